@@ -1,0 +1,138 @@
+"""The validated model description: frozen dataclasses, every quantity SI.
+
+``config.py`` builds these from a TOML file (or a dict) after checking every key; everything
+downstream (pumping, beams, simulate, diagnostics, results) reads only these objects.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+from .materials import Material
+
+
+@dataclass(frozen=True)
+class Grid:
+    """Transverse window (square, ``points`` x ``points`` pixels) and time slicing."""
+
+    points: int = 128
+    width_m: float = 12e-3
+    time_slices: int = 64
+    diffraction: bool = False
+
+
+@dataclass(frozen=True)
+class Pump:
+    """A pump description that builds a gain map (PHYSICS section 1).
+
+    ``geometry``: "end" (Beer–Lambert along z) or "side" (transverse profile, uniform along z).
+    ``energy_J``: pump energy delivered in one pump pulse (power_W x duration when given as power).
+    ``duration_s``: pump pulse length (square pulse), for the storage efficiency.
+    ``absorption_per_m``: pump absorption coefficient (end pumping); None: from the material.
+    ``back_reflectance``: end pumping, fraction of the transmitted pump sent back for a second pass.
+    ``absorbed_fraction``: side pumping, fraction of the delivered pump absorbed in the medium.
+    ``transfer_efficiency``: delivery/coupling efficiency from the pump source into the medium.
+    ``quantum_efficiency``: upper-state ions created per absorbed pump photon.
+    """
+
+    geometry: str
+    energy_J: float
+    duration_s: float
+    wavelength_m: float
+    profile: str = "flat"            # "flat" | "gaussian" | "supergaussian" | "parabolic" (side only)
+    diameter_m: float | None = None  # None: the medium's clear aperture
+    order: float = 8.0
+    absorption_per_m: float | None = None
+    back_reflectance: float = 0.0
+    absorbed_fraction: float = 1.0
+    transfer_efficiency: float = 1.0
+    quantum_efficiency: float = 1.0
+
+
+@dataclass(frozen=True)
+class Medium:
+    """One gain medium (bulk rod or slab). Exactly one of the three gain specifications is set."""
+
+    name: str
+    material: Material
+    length_m: float
+    diameter_m: float                 # clear aperture: diameter (round) or side (square)
+    aperture: str = "round"           # "round" | "square"
+    slices: int = 20
+    loss_per_m: float = 0.0
+    small_signal_gain: float | None = None
+    stored_energy_J: float | None = None
+    pump: Pump | None = None
+    doping_per_m3: float | None = None  # overrides the material's typical doping
+    kind: str = "bulk"
+
+
+@dataclass(frozen=True)
+class Seed:
+    """The input pulse (pulsed) or beam (cw)."""
+
+    wavelength_m: float
+    energy_J: float | None = None     # pulsed
+    power_W: float | None = None      # cw
+    duration_s: float | None = None   # pulsed: FWHM (gaussian, sech2) or full width (flat)
+    shape: str = "gaussian"           # "gaussian" | "flat" | "sech2"
+    profile: str = "gaussian"         # "gaussian" | "flat" | "supergaussian"
+    order: float = 8.0                # supergaussian order
+    diameter_m: float = 1e-3          # 2w (1/e² intensity diameter); flat: hard-edged diameter
+
+
+@dataclass(frozen=True)
+class Step:
+    """One element of the layout. Fields not used by a kind keep their defaults.
+
+    kinds: "pass" (medium, reverse), "loss" (transmission), "aperture" (shape, diameter_m),
+    "space" (length_m), "lens" (focal_m). Optics may carry a damage fluence for the warning.
+    """
+
+    kind: str
+    index: int
+    name: str = ""
+    medium: str | None = None
+    reverse: bool = False
+    transmission: float = 1.0
+    shape: str = "round"              # aperture: "round" | "square"
+    diameter_m: float | None = None   # aperture: diameter (round) or side (square)
+    length_m: float = 0.0             # space
+    focal_m: float | None = None      # lens
+    damage_fluence_J_m2: float | None = None
+    damage_pulse_s: float | None = None
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Thresholds of the warnings (common practice; each may be changed in a [limits] table)."""
+
+    damage_fraction: float = 0.5          # warn above this fraction of the (scaled) damage fluence
+    damage_scaling_exponent: float = 0.5  # damage fluence ~ (tau/tau_ref)**exponent
+    b_integral_step_rad: float = 2.0      # per step (one pass)
+    b_integral_total_rad: float = 3.0     # whole layout
+    clipped_fraction: float = 0.01        # aperture clips more than this fraction of the energy
+    pixels_across_beam: float = 8.0       # fewer pixels across the beam diameter
+    transverse_gain_length: float = 3.0   # g0 x clear-aperture width: parasitic-oscillation risk
+
+
+@dataclass(frozen=True)
+class Config:
+    """A whole validated run description."""
+
+    title: str
+    mode: str
+    grid: Grid
+    media: tuple[Medium, ...]
+    seed: Seed
+    steps: tuple[Step, ...]
+    limits: Limits = field(default_factory=Limits)
+    text: str = ""                    # the TOML text as run (after --set)
+    source: str = "<dict>"            # the file it came from
+    raw: Mapping[str, Any] = field(default_factory=dict)
+
+    def medium(self, name: str) -> Medium:
+        for m in self.media:
+            if m.name == name:
+                return m
+        raise KeyError(name)
