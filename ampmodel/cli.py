@@ -1,0 +1,184 @@
+"""The command line: parse, call, print. Heavy modules are imported inside the commands."""
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import traceback
+from pathlib import Path
+
+from . import __version__
+
+EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="ampmodel",
+        description="Spatially resolved laser-amplifier model: a TOML config in; result.h5, summary.json "
+                    "and plots out.")
+    p.add_argument("--version", action="version", version=f"ampmodel {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    r = sub.add_parser("run", help="run one config: writes result.h5, summary.json and plots/")
+    r.add_argument("config", help="the run config (TOML)")
+    r.add_argument("--out", metavar="DIR", help="output folder (default runs/<config stem>; never overwritten: "
+                                                "-2, -3, ... is appended when it exists)")
+    r.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
+                   help="change one value, e.g. --set seed.energy_J=0.01 --set medium.rod.length_mm=80")
+    r.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+    r.add_argument("--quiet", action="store_true", help="no progress bar")
+    c = sub.add_parser("check", help="validate a config: every problem listed, nothing run or written")
+    c.add_argument("config")
+    c.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides")
+    sub.add_parser("media", help="the built-in materials with their values and sources")
+    return p
+
+
+def _bad_input(problems: list[str]) -> int:
+    for line in problems:
+        print(line, file=sys.stderr)
+    n = len(problems)
+    print(f"{n} problem{'s' if n != 1 else ''} in the input; nothing was run or written.", file=sys.stderr)
+    return EXIT_BAD_INPUT
+
+
+def _load(path: str, overrides: list[str]):
+    from .config import load_config
+    if not Path(path).is_file():
+        from .config import ConfigError
+        raise ConfigError([f"{path}: no such config file"])
+    return load_config(path, overrides)
+
+
+def _free_name(base: Path) -> Path:
+    """``base`` if free, else base-2, base-3, ...: a run never overwrites another."""
+    if not base.exists():
+        return base
+    n = 2
+    while Path(f"{base}-{n}").exists():
+        n += 1
+    return Path(f"{base}-{n}")
+
+
+def _claim(tmp: Path, base: Path) -> Path:
+    """Move the finished temporary folder to the first free name, atomically."""
+    while True:
+        target = _free_name(base)
+        try:
+            os.rename(tmp, target)
+            return target
+        except OSError:
+            if not target.exists():
+                raise
+            # someone took the name in between: try the next one
+
+
+def _fmt(value: float, unit: str) -> str:
+    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
+        if abs(value) >= scale:
+            return f"{value / scale:.4g} {prefix}{unit}"
+    return f"{value:.3g} {unit}"
+
+
+def _print_media(summary: dict) -> None:
+    for m in summary["media"]:
+        line = (f"  medium {m['name']} ({m['material']}): on-axis small-signal gain "
+                f"{m['small_signal_gain_on_axis']:.4g}, stored energy {_fmt(m['stored_energy_J'], 'J')}")
+        if "absorbed_pump_energy_J" in m:
+            line += f", absorbed pump {_fmt(m['absorbed_pump_energy_J'], 'J')}"
+        print(line)
+
+
+def _print_table(summary: dict) -> None:
+    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {'energy in':>11} {'energy out':>11} {'gain':>8} "
+          f"{'peak J/cm²':>10} {'B rad':>6}")
+    for s in summary["steps"]:
+        kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        print(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {_fmt(s['energy_in_J'], 'J'):>11} "
+              f"{_fmt(s['energy_out_J'], 'J'):>11} {s['gain']:>8.4g} {s['peak_fluence_J_cm2']:>10.3g} "
+              f"{s['b_integral_rad']:>6.2f}")
+    print(f"input {_fmt(summary['input_energy_J'], 'J')} -> output {_fmt(summary['output_energy_J'], 'J')} "
+          f"(gain {summary['gain']:.4g}); stored {_fmt(summary['stored_energy_J'], 'J')} -> "
+          f"{_fmt(summary['stored_energy_final_J'], 'J')}, extraction {100 * summary['extraction_efficiency']:.1f} %")
+    print(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
+          f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
+          f"energy balance error {summary['energy_balance_error']:.1e}")
+
+
+def cmd_run(args) -> int:
+    from .simulate import simulate
+    from .diagnostics import SAFETY_NOTE
+    config = _load(args.config, args.overrides)
+    base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
+    result = simulate(config, progress=False if args.quiet else None)
+    base.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{base.name}.", suffix=".partial", dir=base.parent))
+    try:
+        result.save(tmp, plots=not args.no_plots)
+        out = _claim(tmp, base)
+    except BaseException:
+        import shutil
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    s = result.summary
+    print(f"ampmodel run: {config.title}")
+    _print_media(s)
+    _print_table(s)
+    if s["warnings"]:
+        print("warnings:")
+        for w in s["warnings"]:
+            print(f"  - {w}")
+    print(SAFETY_NOTE)
+    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if not args.no_plots else ")"))
+    return EXIT_OK
+
+
+def cmd_check(args) -> int:
+    from . import beams, pumping
+    config = _load(args.config, args.overrides)
+    x = beams.pixel_centres(config.grid.points, config.grid.width_m)
+    print(f"{args.config}: valid ({len(config.media)} medium/media, {len(config.steps)} steps, mode {config.mode})")
+    for m in config.media:
+        gm = pumping.gain_map(m, x, x)
+        stored = pumping.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
+                                         gm.slice_length_m * (x[1] - x[0]) ** 2)
+        print(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
+              f"{pumping.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {_fmt(stored, 'J')}")
+    return EXIT_OK
+
+
+def cmd_media(args) -> int:
+    from .materials import registry
+    print(registry.table_text())
+    return EXIT_OK
+
+
+COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media}
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = _parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    from .config import ConfigError
+    try:
+        return COMMANDS[args.command](args)
+    except ConfigError as err:
+        return _bad_input(err.problems)
+    except KeyboardInterrupt:
+        print("interrupted: nothing was written.", file=sys.stderr)
+        return 130
+    except OSError as err:
+        print(f"ampmodel: cannot write or read a file: {err}", file=sys.stderr)
+        return EXIT_INTERNAL
+    except Exception:  # an internal failure: say so, with the details for a bug report
+        print("ampmodel: internal error (please report it with the config and this message):", file=sys.stderr)
+        traceback.print_exc()
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,163 @@
+"""Diagnostics of a pulsed run: energies, extraction, peaks, B-integral, energy balance, warnings.
+
+The summary dict follows SPEC section 4 (summary.json); its keys carry their units.
+
+Warning thresholds are common practice (each can be changed in the config's [limits] table):
+peak fluence above half the damage fluence scaled to the pulse length by (tau/tau_ref)^0.5; B-integral
+above 2 rad in one step or 3 rad over the layout; more than 1 % of the energy clipped; fewer than 8
+pixels across the beam; a transverse gain-length product g0·D above 3 (parasitic oscillation).
+"""
+from __future__ import annotations
+
+from typing import Any, Mapping
+
+import numpy as np
+
+from . import pumping
+from .description import Config
+from .layout import BeamState, StepOutcome
+from .results import MediumRecord
+
+SAFETY_NOTE = ("Laser safety: beams at these energies are Class 4 hazards to eyes and skin; damage "
+               "thresholds here are estimates. Follow local regulations, the laser-safety standards "
+               "and your laser safety officer.")
+
+J_CM2 = 1e-4   # J/m² -> J/cm²
+W_CM2 = 1e-4   # W/m² -> W/cm²
+
+
+def scaled_damage_fluence(damage_J_m2: float, quoted_pulse_s: float | None, pulse_s: float,
+                          exponent: float) -> float:
+    """Damage fluence scaled from the quoted pulse length: F·(tau/tau_ref)^exponent (common practice)."""
+    if not quoted_pulse_s:
+        return damage_J_m2
+    return damage_J_m2 * (pulse_s / quoted_pulse_s) ** exponent
+
+
+def _step_label(config: Config, index: int) -> str:
+    step = config.steps[index]
+    label = f"step {index} ({step.kind}"
+    if step.kind == "pass":
+        label += f" {step.medium}" + (", reverse" if step.reverse else "")
+    return label + ")"
+
+
+def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: list[StepOutcome],
+              media: Mapping[str, MediumRecord], maps: Mapping[str, pumping.GainMap]) -> dict[str, Any]:
+    """Build the summary.json dict of a pulsed run."""
+    limits, seed = config.limits, config.seed
+    pixel_area = beam.pixel_area_m2
+    dx = float(beam.x_m[1] - beam.x_m[0])
+    e_in = float(seed_map.sum() * pixel_area)
+    e_out = beam.energy_J()
+    warnings: list[str] = []
+
+    media_summary = []
+    stored_before = stored_after = extracted = 0.0
+    for m in config.media:
+        rec = media[m.name]
+        voxel = rec.slice_length_m * pixel_area
+        s0 = pumping.stored_energy_J(rec.gain_initial_per_m, rec.saturation_fluence_J_m2, voxel)
+        s1 = pumping.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
+        # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
+        ext = float(rec.saturation_fluence_J_m2 * voxel * (rec.gain_initial_per_m - rec.gain_final_per_m).sum())
+        stored_before, stored_after, extracted = stored_before + s0, stored_after + s1, extracted + ext
+        g0_axis = pumping.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
+        entry = {"name": m.name, "material": m.material.name,
+                 "small_signal_gain_on_axis": g0_axis,
+                 "small_signal_gain_on_axis_final": pumping.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
+                 "stored_energy_J": s0, "stored_energy_final_J": s1, "extracted_energy_J": ext,
+                 "saturation_fluence_J_cm2": rec.saturation_fluence_J_m2 * J_CM2,
+                 "quasi_three_level": m.material.quasi_three_level}
+        gm = maps[m.name]
+        if m.pump is not None:
+            entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
+            entry["pump_energy_J"] = m.pump.energy_J
+            if gm.pump_limited_voxels:
+                warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
+                                f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
+        media_summary.append(entry)
+        g_peak = float(rec.gain_initial_per_m.max())
+        if g_peak * m.diameter_m > limits.transverse_gain_length:
+            warnings.append(f"medium {m.name}: transverse gain-length product g0·D = {g_peak * m.diameter_m:.2g} "
+                            f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
+                            f"oscillation; consider edge cladding or a lower gain")
+
+    steps = []
+    peak_fluence = float(seed_map.max())
+    peak_intensity = 0.0   # every step records the peaks of the beam entering it
+    lost = 0.0
+    b_total = 0.0
+    pulse_s = seed.duration_s
+    for step, oc in zip(config.steps, outcomes):
+        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
+        peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
+        lost += oc.clipped_J + oc.passive_loss_J
+        entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
+                 "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
+                 "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
+                 "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
+                 "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
+                 "b_integral_rad": oc.b_integral_step_rad,
+                 "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J}
+        if step.kind == "pass":
+            entry["reverse"] = step.reverse
+        steps.append(entry)
+        label = _step_label(config, step.index)
+        if oc.energy_in_J > 0 and oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
+            warnings.append(f"{label}: the aperture clips {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
+                            f"(more than {100 * limits.clipped_fraction:g} %)")
+        if oc.b_integral_step_rad > limits.b_integral_step_rad:
+            warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
+                            f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
+                            f"beam break-up risk")
+        damage, quoted, what = None, None, ""
+        if step.kind == "pass":
+            mat = config.medium(step.medium).material
+            damage, quoted, what = mat.damage_fluence_J_m2, mat.damage_pulse_s, mat.name
+        elif step.damage_fluence_J_m2:
+            damage, quoted, what = step.damage_fluence_J_m2, step.damage_pulse_s, "this optic"
+        if damage:
+            scaled = scaled_damage_fluence(damage, quoted, pulse_s, limits.damage_scaling_exponent)
+            if oc.peak_fluence_J_m2 > limits.damage_fraction * scaled:
+                quoted_txt = f" quoted at {quoted * 1e9:g} ns" if quoted else ""
+                warnings.append(
+                    f"{label}: peak fluence {oc.peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above "
+                    f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
+                    f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
+                    f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+    b_total = float(beam.b_integral.max()) if beam.b_integral.size else 0.0
+    if b_total > limits.b_integral_total_rad:
+        warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
+                        f"in total (common practice)")
+    pixels = seed.diameter_m / dx
+    if pixels < limits.pixels_across_beam:
+        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
+                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
+    if seed.shape != "flat" and config.grid.time_slices < 16:
+        warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
+                        f"coarsely; 16 or more are advised for the output pulse shape")
+
+    balance = (e_in + extracted - e_out - lost) / e_out if e_out > 0 else 0.0
+    return {
+        "mode": "pulsed",
+        "title": config.title,
+        "input_energy_J": e_in,
+        "output_energy_J": e_out,
+        "gain": e_out / e_in if e_in > 0 else 0.0,
+        "stored_energy_J": stored_before,
+        "stored_energy_final_J": stored_after,
+        "extracted_energy_J": extracted,
+        "extraction_efficiency": (e_out - e_in) / stored_before if stored_before > 0 else 0.0,
+        "lost_energy_J": lost,
+        "peak_fluence_J_cm2": peak_fluence * J_CM2,
+        "peak_intensity_W_cm2": peak_intensity * W_CM2,
+        "b_integral_rad": b_total,
+        "energy_balance_error": balance,
+        "pulse_duration_ns": pulse_s * 1e9,
+        "time_slice_ns": beam.dt_s * 1e9,
+        "warnings": warnings,
+        "steps": steps,
+        "media": media_summary,
+        "safety": SAFETY_NOTE,
+    }

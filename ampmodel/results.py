@@ -1,0 +1,179 @@
+"""The Result of a run, and its files: result.h5 (SPEC section 4), summary.json, plots.
+
+Files are written atomically (temporary name in the same folder, then rename) so that a folder never
+holds a file that looks complete but is not.
+"""
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import __version__
+from .description import Config
+
+
+@dataclass
+class StepRecord:
+    """The beam after one step.
+
+    fluence_J_m2 : (Ny, Nx) fluence after the step
+    power_W : (Nt,) mean power in each time slice after the step
+    b_integral_rad : (Ny, Nx) largest accumulated B-integral over the time slices, after the step
+    """
+
+    index: int
+    kind: str
+    medium: str | None
+    fluence_J_m2: np.ndarray
+    power_W: np.ndarray
+    b_integral_rad: np.ndarray
+
+
+@dataclass
+class MediumRecord:
+    """A medium's gain coefficient before the first and after the last pass.
+
+    gain_initial_per_m, gain_final_per_m : (Nz, Ny, Nx), g = sigma_e·N2 − sigma_a·N1 in 1/m
+    """
+
+    name: str
+    gain_initial_per_m: np.ndarray
+    gain_final_per_m: np.ndarray
+    slice_length_m: float
+    saturation_fluence_J_m2: float
+    saturation_intensity_W_m2: float
+    material: str
+    sources: dict[str, str] = field(default_factory=dict)
+
+
+@dataclass
+class Result:
+    """Everything a run produced.
+
+    x_m, y_m : (Nx,), (Ny,) pixel centres; t_s : (Nt,) time-slice centres
+    seed_fluence_J_m2 : (Ny, Nx); seed_power_W : (Nt,)
+    steps : one StepRecord per step, in order; media : name -> MediumRecord
+    summary : the summary.json dict (SPEC section 4)
+    """
+
+    config: Config
+    x_m: np.ndarray
+    y_m: np.ndarray
+    t_s: np.ndarray
+    seed_fluence_J_m2: np.ndarray
+    seed_power_W: np.ndarray
+    steps: list[StepRecord]
+    media: dict[str, MediumRecord]
+    summary: dict[str, Any]
+
+    def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
+        """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``.
+
+        The directory is created; existing result files in it are never overwritten.
+        """
+        out = Path(directory)
+        out.mkdir(parents=True, exist_ok=True)
+        for name in ("result.h5", "summary.json"):
+            if (out / name).exists():
+                raise FileExistsError(f"{out / name} exists: a run never overwrites another")
+        write_hdf5(self, out / "result.h5")
+        write_json(self.summary, out / "summary.json")
+        if plots:
+            from .plots import make_plots  # matplotlib only where it is used
+            make_plots(self, out / "plots")
+        return out
+
+
+def _atomic_target(path: Path) -> tuple[int, str]:
+    return tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+
+
+def write_json(data: dict[str, Any], path: Path) -> None:
+    """Write ``data`` as indented JSON, atomically."""
+    fd, tmp = _atomic_target(path)
+    try:
+        with os.fdopen(fd, "w") as fh:
+            json.dump(data, fh, indent=2, allow_nan=False)
+            fh.write("\n")
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
+    ds = group.create_dataset(name, data=data, compression="gzip", compression_opts=1,
+                              shuffle=True) if np.ndim(data) >= 2 else group.create_dataset(name, data=data)
+    ds.attrs["units"] = units
+    for k, v in attrs.items():
+        ds.attrs[k] = v
+    return ds
+
+
+def write_hdf5(result: Result, path: Path) -> None:
+    """Write result.h5 in SPEC section 4's layout (SI units, a ``units`` attribute on every dataset)."""
+    import h5py
+
+    fd, tmp = _atomic_target(path)
+    os.close(fd)
+    try:
+        with h5py.File(tmp, "w") as f:
+            f.attrs["software_version"] = __version__
+            f.attrs["config"] = result.config.text
+            f.attrs["mode"] = result.config.mode
+            f.attrs["title"] = result.config.title
+            f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+            f.attrs["summary"] = json.dumps(result.summary)
+            g = f.create_group("grid")
+            _dataset(g, "x", result.x_m, "m")
+            _dataset(g, "y", result.y_m, "m")
+            _dataset(g, "t", result.t_s, "s")
+            s = f.create_group("seed")
+            _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
+            _dataset(s, "power", result.seed_power_W, "W")
+            steps = f.create_group("steps")
+            for rec in result.steps:
+                sg = steps.create_group(f"{rec.index:03d}")
+                sg.attrs["kind"] = rec.kind
+                sg.attrs["medium"] = rec.medium or ""
+                _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
+                _dataset(sg, "power", rec.power_W, "W")
+                _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
+            media = f.create_group("media")
+            for name, m in result.media.items():
+                mg = media.create_group(name)
+                mg.attrs["material"] = m.material
+                mg.attrs["material_sources"] = json.dumps(m.sources)
+                attrs = dict(slice_length=m.slice_length_m, saturation_fluence=m.saturation_fluence_J_m2,
+                             saturation_intensity=m.saturation_intensity_W_m2,
+                             slice_length_units="m", saturation_fluence_units="J/m^2",
+                             saturation_intensity_units="W/m^2")
+                _dataset(mg, "gain_initial", m.gain_initial_per_m, "1/m", **attrs)
+                _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
+    """Read a result.h5 back into plain arrays (SI): {'attrs', 'grid', 'seed', 'steps', 'media'}."""
+    import h5py
+
+    out: dict[str, Any] = {"steps": {}, "media": {}}
+    with h5py.File(path, "r") as f:
+        out["attrs"] = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
+        out["grid"] = {k: f["grid"][k][()] for k in f["grid"]}
+        out["seed"] = {k: f["seed"][k][()] for k in f["seed"]}
+        for name, g in f["steps"].items():
+            out["steps"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g.attrs)}
+        for name, g in f["media"].items():
+            out["media"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g["gain_initial"].attrs)}
+    return out
