@@ -1,0 +1,224 @@
+"""The built-in materials: one TOML file per material beside this module.
+
+File format
+-----------
+Each file gives, at top level, ``name`` (str), ``description`` (str) and optionally ``broadening``
+(``"homogeneous"`` or ``"inhomogeneous"``). Every value is a table named after its config key in
+:data:`ampmodel.materials.MATERIAL_KEYS` (config units)::
+
+    [emission_cross_section_cm2]
+    value = 2.8e-19
+    source = "author, title, publisher or journal (year), table"
+    range = "spread reported in the literature"     # optional
+
+``source`` is required for every value; a value recalled rather than looked up says so in its source
+("from memory, verify"). The loader rejects a file with a value lacking its source, an unknown key, a
+missing required key, or a value outside the plausibility range of its key, so bad data cannot ship.
+"""
+from __future__ import annotations
+
+import difflib
+import functools
+import math
+import textwrap
+from pathlib import Path
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python < 3.11
+    import tomli as tomllib  # type: ignore[no-redef]
+
+from ..units import factor, si_name
+from . import BROADENINGS, MATERIAL_KEYS, Material, material_from_values
+
+DATA_DIR = Path(__file__).parent
+"""Directory holding the built-in material files (``*.toml``)."""
+
+_TOP_KEYS = ("name", "description", "broadening")
+_VALUE_FIELDS = ("value", "source", "range")
+_WIDTH = 100
+
+
+def _fail(path: Path, where: str, problem: str) -> ValueError:
+    return ValueError(f"{path.name}: {where}: {problem}")
+
+
+def _check_value(path: Path, key: str, table: object) -> tuple[float, str, str | None]:
+    """Validate one value table; return (value in config units, source, range note or None)."""
+    spec = MATERIAL_KEYS[key]
+    if not isinstance(table, dict):
+        raise _fail(path, key, "must be a table with 'value' and 'source'")
+    unknown = sorted(set(table) - set(_VALUE_FIELDS))
+    if unknown:
+        raise _fail(path, key, f"unknown field(s) {unknown}; allowed: {list(_VALUE_FIELDS)}")
+    if "value" not in table:
+        raise _fail(path, key, "missing 'value'")
+    value = table["value"]
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise _fail(path, key, f"value {value!r} is not a finite number")
+    source = table.get("source")
+    if not isinstance(source, str) or not source.strip():
+        raise _fail(path, key, "missing 'source' (give the publication, or mark it 'from memory, verify')")
+    note = table.get("range")
+    if note is not None and not isinstance(note, str):
+        raise _fail(path, key, "'range' must be a string")
+    value = float(value)
+    if not (value == 0.0 and spec.allow_zero) and not spec.low <= value <= spec.high:
+        allowed = f"{spec.low:g} to {spec.high:g}" + (" (or 0)" if spec.allow_zero else "")
+        raise _fail(path, key, f"value {value:g} outside the plausible range {allowed}")
+    return value, source.strip(), note.strip() if note else None
+
+
+def _load_file(path: str | Path) -> Material:
+    """Read and validate one material file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML file.
+
+    Returns
+    -------
+    Material
+        The material, values in SI, with ``sources`` and ``notes`` keyed by config key.
+
+    Raises
+    ------
+    ValueError
+        Naming the file and the key, when the file is not valid TOML, a value lacks its source, a key
+        is unknown or missing, or a value lies outside the plausible range of its key.
+    """
+    path = Path(path)
+    try:
+        with path.open("rb") as handle:
+            data = tomllib.load(handle)
+    except tomllib.TOMLDecodeError as exc:
+        raise ValueError(f"{path.name}: not valid TOML: {exc}") from exc
+
+    name = data.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise _fail(path, "name", "missing or empty")
+    description = data.get("description", "")
+    if not isinstance(description, str):
+        raise _fail(path, "description", "must be a string")
+    broadening = data.get("broadening", "homogeneous")
+    if broadening not in BROADENINGS:
+        raise _fail(path, "broadening", f"{broadening!r} is not one of {list(BROADENINGS)}")
+
+    values: dict[str, object] = {"broadening": broadening}
+    sources: dict[str, str] = {}
+    notes: dict[str, str] = {}
+    for key, table in data.items():
+        if key in _TOP_KEYS:
+            continue
+        if key not in MATERIAL_KEYS:
+            hint = difflib.get_close_matches(key, list(MATERIAL_KEYS), n=1)
+            did_you_mean = f"; did you mean {hint[0]!r}?" if hint else ""
+            raise _fail(path, key, f"unknown key{did_you_mean}")
+        values[key], sources[key], note = _check_value(path, key, table)
+        if note:
+            notes[key] = note
+    missing = [key for key, spec in MATERIAL_KEYS.items() if spec.required and key not in values]
+    if missing:
+        raise _fail(path, ", ".join(missing), "required key(s) missing")
+    return material_from_values(values, name.strip(), description.strip(), sources, notes)
+
+
+@functools.lru_cache(maxsize=1)
+def _load_all() -> dict[str, Material]:
+    """All built-in materials by name, read once."""
+    materials: dict[str, Material] = {}
+    for path in sorted(DATA_DIR.glob("*.toml")):
+        material = _load_file(path)
+        if material.name in materials:
+            raise ValueError(f"{path.name}: name: {material.name!r} is defined by another file too")
+        materials[material.name] = material
+    return materials
+
+
+def names() -> list[str]:
+    """Names of the built-in materials, sorted (e.g. ``"Nd:YAG"``)."""
+    return sorted(_load_all())
+
+
+def closest(name: str) -> list[str]:
+    """Built-in names close to ``name`` (case-insensitive), best first, for "did you mean" hints."""
+    by_folded = {known.casefold(): known for known in _load_all()}
+    hits = difflib.get_close_matches(name.casefold(), list(by_folded), n=3, cutoff=0.6)
+    return [by_folded[hit] for hit in hits]
+
+
+def get(name: str) -> Material:
+    """The built-in material called ``name``.
+
+    Parameters
+    ----------
+    name : str
+        Exact name, or the same name in other letter case (``"nd:yag"``).
+
+    Raises
+    ------
+    KeyError
+        When no material matches; the message lists close names and all built-in names.
+    """
+    materials = _load_all()
+    if name in materials:
+        return materials[name]
+    for known, material in materials.items():
+        if known.casefold() == name.casefold():
+            return material
+    hint = closest(name)
+    did_you_mean = f"did you mean {' or '.join(repr(h) for h in hint)}? " if hint else ""
+    raise KeyError(f"unknown material {name!r}; {did_you_mean}built-in: {', '.join(names())}")
+
+
+def _format_value(value: float) -> str:
+    return f"{value:.4g}"
+
+
+def _wrapped(label: str, text: str, indent: int) -> list[str]:
+    prefix = " " * indent + label
+    return textwrap.wrap(text, width=_WIDTH, initial_indent=prefix,
+                         subsequent_indent=" " * (indent + len(label)),
+                         break_on_hyphens=False) or [prefix.rstrip()]
+
+
+def _config_values(material: Material) -> dict[str, float]:
+    """The material's values under their config keys, in config units (only those it has)."""
+    out: dict[str, float] = {}
+    for key in MATERIAL_KEYS:
+        si_value = getattr(material, si_name(key), None)
+        if si_value is None or (key not in material.sources and si_value == 0.0):
+            continue
+        out[key] = si_value / factor(key)
+    return out
+
+
+def table_text() -> str:
+    """The built-in materials as text: per material its values in config units and their sources.
+
+    Each material also shows the derived saturation fluence h·nu/(sigma_e + sigma_a) in J/cm² and
+    saturation intensity Fsat/tau in W/cm² (Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963)). Lines
+    are at most 100 characters wide.
+    """
+    key_width = max(len(key) for key in MATERIAL_KEYS)
+    lines: list[str] = []
+    for name in names():
+        material = _load_all()[name]
+        kind = "quasi-three-level" if material.quasi_three_level else "four-level"
+        lines.append(f"{material.name}  ({kind}, {material.broadening} broadening)")
+        if material.description:
+            lines.extend(_wrapped("", material.description, 2))
+        for key, value in _config_values(material).items():
+            lines.append(f"  {key:<{key_width}}  {_format_value(value)}")
+            lines.extend(_wrapped("source: ", material.sources.get(key, "(none)"), 6))
+            if key in material.notes:
+                lines.extend(_wrapped("range: ", material.notes[key], 6))
+        fsat_J_cm2 = material.saturation_fluence_J_m2 / 1e4
+        isat_W_cm2 = material.saturation_intensity_W_m2 / 1e4
+        lines.append(f"  {'saturation fluence, J/cm2':<{key_width}}  {_format_value(fsat_J_cm2)}"
+                     "   (derived: h·nu/(sigma_e + sigma_a))")
+        lines.append(f"  {'saturation intensity, W/cm2':<{key_width}}  {_format_value(isat_W_cm2)}"
+                     "   (derived: Fsat/tau)")
+        lines.append("")
+    return "\n".join(lines).rstrip() + "\n"

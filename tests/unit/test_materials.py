@@ -1,0 +1,198 @@
+"""The built-in material files and their registry."""
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import pytest
+
+from ampmodel.materials import MATERIAL_KEYS, registry
+from ampmodel.units import factor, si_name
+
+EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
+            "Ti:sapphire", "Cr:LiSAF", "alexandrite"]
+
+# Product codes (letters, hyphen, digits, as glass makers number their melts) must not appear in the
+# data: materials go by generic names only.
+PRODUCT_CODE = re.compile(r"\b[A-Z]{1,4}-\d{1,4}\b")
+
+GOOD_FILE = """\
+# test material
+name = "Test:host"
+description = "a test material"
+
+[wavelength_nm]
+value = 1000.0
+source = "test"
+
+[emission_cross_section_cm2]
+value = 1.0e-19
+source = "test"
+
+[upper_lifetime_us]
+value = 200.0
+source = "test"
+
+[refractive_index]
+value = 1.8
+source = "test"
+"""
+
+
+def _write(tmp_path: Path, text: str) -> Path:
+    path = tmp_path / "broken.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def _fsat_J_cm2(name: str) -> float:
+    return registry.get(name).saturation_fluence_J_m2 / 1e4
+
+
+def test_expected_materials_present():
+    assert set(EXPECTED) <= set(registry.names())
+    assert registry.names() == sorted(registry.names())
+
+
+@pytest.mark.parametrize("name", EXPECTED)
+def test_every_value_has_a_source(name):
+    material = registry.get(name)
+    assert material.name == name
+    assert material.sources, name
+    for key, source in material.sources.items():
+        assert key in MATERIAL_KEYS
+        assert source.strip(), f"{name}: {key} has an empty source"
+    # every value the material carries is backed by an entry in sources
+    for key in MATERIAL_KEYS:
+        value = getattr(material, si_name(key))
+        if value is not None and value != 0.0:
+            assert key in material.sources, f"{name}: {key} has no source"
+
+
+@pytest.mark.parametrize("name", EXPECTED)
+def test_values_within_key_ranges(name):
+    material = registry.get(name)
+    for key in material.sources:
+        spec = MATERIAL_KEYS[key]
+        value = getattr(material, si_name(key)) / factor(key)
+        if value == 0.0 and spec.allow_zero:
+            continue
+        assert spec.low <= value * (1 + 1e-12) and value <= spec.high * (1 + 1e-12), (name, key, value)
+
+
+def test_no_product_codes_in_data_files():
+    for path in sorted(registry.DATA_DIR.glob("*.toml")):
+        found = PRODUCT_CODE.findall(path.read_text(encoding="utf-8"))
+        assert not found, f"{path.name} mentions {found}"
+
+
+def test_every_file_starts_with_a_comment():
+    for path in sorted(registry.DATA_DIR.glob("*.toml")):
+        assert path.read_text(encoding="utf-8").startswith("# "), path.name
+
+
+def test_nd_yag_saturation_fluence():
+    # Handbook value 0.67 J/cm² at 1064 nm: W. Koechner, Solid-State Laser Engineering, 6th ed.,
+    # Springer (2006), ch. 2 (from memory — verify).
+    assert _fsat_J_cm2("Nd:YAG") == pytest.approx(0.67, rel=0.05)
+
+
+def test_nd_phosphate_glass_saturation_fluence():
+    # About 5 J/cm²: J. H. Campbell, T. I. Suratwala, J. Non-Cryst. Solids 263&264, 318 (2000)
+    # (from memory — verify).
+    assert 4.0 <= _fsat_J_cm2("Nd:phosphate glass") <= 6.0
+
+
+def test_quasi_three_level_flags():
+    yb = registry.get("Yb:YAG")
+    assert yb.quasi_three_level and yb.absorption_cross_section_m2 > 0.0
+    assert not registry.get("Nd:YAG").quasi_three_level
+
+
+def test_yb_yag_pump_bleaching_limit():
+    # quasi-three-level pumping at 940 nm saturates at N2/Nt = sigma_a,p / (sigma_a,p + sigma_e,p) < 1
+    yb = registry.get("Yb:YAG")
+    sa, se = yb.pump_absorption_cross_section_m2, yb.pump_emission_cross_section_m2
+    assert sa is not None and se is not None and se > 0.0
+    assert 0.7 < sa / (sa + se) < 0.95
+
+
+def test_ti_sapphire_lifetime():
+    # 3.2 µs at room temperature: P. F. Moulton, J. Opt. Soc. Am. B 3, 125 (1986) (from memory — verify).
+    assert registry.get("Ti:sapphire").upper_lifetime_s == pytest.approx(3.2e-6, rel=0.10)
+
+
+def test_glasses_are_inhomogeneous():
+    assert registry.get("Nd:phosphate glass").broadening == "inhomogeneous"
+    assert registry.get("Nd:YAG").broadening == "homogeneous"
+
+
+def test_get_is_case_insensitive():
+    assert registry.get("nd:yag") is registry.get("Nd:YAG")
+
+
+def test_get_unknown_name_suggests():
+    with pytest.raises(KeyError, match="Nd:YAG"):
+        registry.get("Nd:YAGG")
+    assert registry.closest("Nd:YAGG")[0] == "Nd:YAG"
+    assert registry.closest("zzzz") == []
+
+
+def test_table_text():
+    text = registry.table_text()
+    for name in EXPECTED:
+        assert name in text
+    assert "source" in text
+    assert "saturation fluence" in text and "saturation intensity" in text
+    assert max(len(line) for line in text.splitlines()) <= 100
+
+
+def test_loader_accepts_good_file(tmp_path):
+    material = registry._load_file(_write(tmp_path, GOOD_FILE))
+    assert material.name == "Test:host"
+    assert material.wavelength_m == pytest.approx(1e-6)
+    assert material.emission_cross_section_m2 == pytest.approx(1e-23)
+    assert material.sources["upper_lifetime_us"] == "test"
+
+
+def test_loader_rejects_missing_source(tmp_path):
+    text = GOOD_FILE.replace('value = 200.0\nsource = "test"', "value = 200.0")
+    with pytest.raises(ValueError, match=r"broken\.toml.*upper_lifetime_us.*source"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_empty_source(tmp_path):
+    text = GOOD_FILE.replace('value = 1.8\nsource = "test"', 'value = 1.8\nsource = "  "')
+    with pytest.raises(ValueError, match=r"broken\.toml.*refractive_index.*source"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_unknown_key(tmp_path):
+    text = GOOD_FILE + '\n[emission_crosssection_cm2]\nvalue = 1e-19\nsource = "test"\n'
+    with pytest.raises(ValueError, match=r"broken\.toml.*emission_crosssection_cm2.*unknown"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_out_of_range(tmp_path):
+    text = GOOD_FILE.replace("value = 1.8", "value = 18.0")
+    with pytest.raises(ValueError, match=r"broken\.toml.*refractive_index.*range"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_zero_where_not_allowed(tmp_path):
+    text = GOOD_FILE.replace("value = 200.0", "value = 0.0")
+    with pytest.raises(ValueError, match=r"broken\.toml.*upper_lifetime_us"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_missing_required_key(tmp_path):
+    text = GOOD_FILE.replace('[refractive_index]\nvalue = 1.8\nsource = "test"\n', "")
+    with pytest.raises(ValueError, match=r"broken\.toml.*refractive_index.*missing"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def test_loader_rejects_bad_broadening(tmp_path):
+    text = GOOD_FILE.replace('description = "a test material"',
+                             'description = "a test material"\nbroadening = "mixed"')
+    with pytest.raises(ValueError, match=r"broken\.toml.*broadening"):
+        registry._load_file(_write(tmp_path, text))
