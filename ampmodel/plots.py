@@ -1,0 +1,637 @@
+"""Figures of a run: fluence maps, energy per step, pulse power, gain cuts, B-integral.
+
+Each figure is a :class:`matplotlib.figure.Figure` drawn on its own Agg canvas (no pyplot, no global
+state, no display needed) and written as a PNG, atomically, into the plot folder of a run.
+
+Arrays in a :class:`~ampmodel.results.Result` are SI; the figures show them in the units a laser
+engineer reads: mm across the beam and along the medium, J/cm² for fluence, 1/cm for the gain
+coefficient, and time, power and energy in the prefix that suits their size (ps/ns/µs, W/kW/MW/GW,
+µJ/mJ/J). In a cw run the transverse maps hold intensity (W/m², shown in W/cm²), the step figure
+shows power, and there is no pulse figure.
+"""
+from __future__ import annotations
+
+import math
+import os
+import re
+import tempfile
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from .results import Result, StepRecord
+
+DPI = 110
+MAX_IMAGE_PIXELS = 512          # larger maps are block-averaged down to at most this many pixels per axis
+SEED_COLOUR = "#1f5fa8"
+OUTPUT_COLOUR = "#c8432b"
+LOSS_COLOUR = "0.6"
+MAP_CMAP = "inferno"
+
+_ENERGY_UNITS = [(1e-12, "pJ"), (1e-9, "nJ"), (1e-6, "µJ"), (1e-3, "mJ"), (1.0, "J"), (1e3, "kJ")]
+_POWER_UNITS = [(1e-6, "µW"), (1e-3, "mW"), (1.0, "W"), (1e3, "kW"), (1e6, "MW"), (1e9, "GW"),
+                (1e12, "TW")]
+_TIME_UNITS = [(1e-15, "fs"), (1e-12, "ps"), (1e-9, "ns"), (1e-6, "µs"), (1e-3, "ms"), (1.0, "s")]
+
+
+# ----------------------------------------------------------------------------------------------
+# small helpers
+
+
+def _figure(width_in: float, height_in: float) -> Figure:
+    """A new figure with its own Agg canvas and constrained layout."""
+    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _save(fig: Figure, path: Path) -> Path:
+    """Write ``fig`` as PNG to ``path`` atomically (temporary name, then rename) and release it."""
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    os.close(fd)
+    try:
+        fig.savefig(tmp, format="png", dpi=DPI)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    finally:
+        fig.clear()
+    return path
+
+
+def _finite_max(a: np.ndarray, default: float = 0.0) -> float:
+    """Largest finite value of ``a``, or ``default`` when it has none (no warning)."""
+    a = np.asarray(a, dtype=float)
+    ok = np.isfinite(a)
+    return float(a[ok].max()) if ok.any() else default
+
+
+def _finite_min(a: np.ndarray, default: float = 0.0) -> float:
+    """Smallest finite value of ``a``, or ``default`` when it has none (no warning)."""
+    a = np.asarray(a, dtype=float)
+    ok = np.isfinite(a)
+    return float(a[ok].min()) if ok.any() else default
+
+
+def _prefix(value: float, table: list[tuple[float, str]]) -> tuple[float, str]:
+    """The (factor, unit) of ``table`` whose factor is the largest not above ``|value|``.
+
+    Falls back to the smallest entry for tiny values and to the base unit (factor 1) for zero or
+    non-finite values.
+    """
+    value = abs(value)
+    if not np.isfinite(value) or value == 0.0:
+        return next((f, u) for f, u in table if f == 1.0)
+    chosen = table[0]
+    for f, u in table:
+        if f <= value * (1 + 1e-9):
+            chosen = (f, u)
+    return chosen
+
+
+def _block_mean(a: np.ndarray, axis: int, limit: int = MAX_IMAGE_PIXELS) -> np.ndarray:
+    """Average ``a`` over blocks of neighbouring pixels along ``axis`` until it has at most ``limit``."""
+    n = a.shape[axis]
+    k = math.ceil(n / limit)
+    if k <= 1:
+        return a
+    m = (n // k) * k
+    a = np.moveaxis(np.take(a, np.arange(m), axis=axis), axis, 0)
+    a = a.reshape((m // k, k) + a.shape[1:]).mean(axis=1)
+    return np.moveaxis(a, 0, axis)
+
+
+def _extent(centres: np.ndarray) -> tuple[float, float]:
+    """Outer edges (first - d/2, last + d/2) of uniformly spaced pixel ``centres``."""
+    c = np.asarray(centres, dtype=float)
+    d = float(c[1] - c[0]) if c.size > 1 else 1.0
+    return float(c[0] - d / 2), float(c[-1] + d / 2)
+
+
+def _pixel(coords: np.ndarray) -> float:
+    """Pixel pitch of uniformly spaced ``coords`` (m); 1 for a single point."""
+    c = np.asarray(coords, dtype=float)
+    return float(abs(c[1] - c[0])) if c.size > 1 else 1.0
+
+
+def _centre_index(coords: np.ndarray) -> int:
+    """Index of the pixel centre closest to 0 (the optical axis)."""
+    c = np.asarray(coords, dtype=float)
+    return int(np.argmin(np.abs(c))) if c.size else 0
+
+
+def _safe_name(name: str) -> str:
+    """``name`` reduced to characters that are safe in a file name."""
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", name).strip("._") or "medium"
+
+
+def _is_cw(result: Result) -> bool:
+    return getattr(result.config, "mode", "pulsed") == "cw"
+
+
+def _map_quantity(result: Result) -> tuple[str, str]:
+    """(name, display unit) of the transverse maps: fluence in J/cm², or intensity in W/cm² (cw)."""
+    return ("intensity", "W/cm²") if _is_cw(result) else ("fluence", "J/cm²")
+
+
+def step_label(result: Result, rec: StepRecord) -> str:
+    """Short label of a step, such as ``"0 pass rod"``, ``"1 loss"``, ``"2 pass rod (rev)"``.
+
+    Parameters
+    ----------
+    result : the run, whose config tells whether a pass is reversed
+    rec : the step
+    """
+    label = f"{rec.index} {rec.kind}"
+    if rec.medium:
+        label += f" {rec.medium}"
+    steps = getattr(result.config, "steps", ())
+    step = next((s for s in steps if getattr(s, "index", None) == rec.index), None)
+    if step is not None and rec.kind == "pass" and getattr(step, "reverse", False):
+        label += " (rev)"
+    return label
+
+
+def _energies(result: Result) -> tuple[float, np.ndarray]:
+    """Seed energy and energy after each step, in J (cw: power in W).
+
+    Taken from the summary's ``steps`` entries when they are complete, else integrated from the
+    fluence (intensity) maps over the pixel area.
+    """
+    cw = _is_cw(result)
+    in_key, out_key = ("power_in_W", "power_out_W") if cw else ("energy_in_J", "energy_out_J")
+    area = _pixel(result.x_m) * _pixel(result.y_m)
+    seed = float(np.sum(np.nan_to_num(result.seed_fluence_J_m2)) * area)
+    after = np.array([float(np.sum(np.nan_to_num(r.fluence_J_m2)) * area) for r in result.steps])
+    summary = result.summary or {}
+    seed_key = "input_power_W" if cw else "input_energy_J"
+    if isinstance(summary.get(seed_key), (int, float)):
+        seed = float(summary[seed_key])
+    entries = summary.get("steps")
+    if isinstance(entries, list) and len(entries) == len(result.steps):
+        values = [e.get(out_key) if isinstance(e, dict) else None for e in entries]
+        if all(isinstance(v, (int, float)) for v in values):
+            after = np.array(values, dtype=float)
+        if entries and isinstance(entries[0], dict) and isinstance(entries[0].get(in_key), (int, float)):
+            seed = float(entries[0][in_key])
+    return seed, after
+
+
+def _gains(result: Result, seed: float, after: np.ndarray) -> np.ndarray:
+    """Gain of each step (energy out / energy in); NaN where the input is zero."""
+    entries = (result.summary or {}).get("steps")
+    if isinstance(entries, list) and len(entries) == len(result.steps):
+        values = [e.get("gain") if isinstance(e, dict) else None for e in entries]
+        if all(isinstance(v, (int, float)) for v in values):
+            return np.array(values, dtype=float)
+    before = np.concatenate(([seed], after[:-1]))
+    out = np.full(after.shape, np.nan)
+    np.divide(after, before, out=out, where=before > 0)
+    return out
+
+
+def _step_ticks(ax, labels: Sequence[str], positions: Sequence[float], width_in: float) -> None:
+    """Put step labels on the x axis of ``ax``, rotated when they would crowd each other.
+
+    ``width_in`` is the figure width in inches; a character of a tick label takes about 0.065 in.
+    """
+    ax.set_xticks(list(positions))
+    room_in = (width_in - 1.2) / max(len(labels), 1)
+    crowded = max((len(s) for s in labels), default=0) * 0.065 > 0.9 * room_in
+    if crowded:
+        ax.set_xticklabels(labels, rotation=40, ha="right", rotation_mode="anchor")
+    else:
+        ax.set_xticklabels(labels)
+    ax.set_xlim(min(positions) - 0.6, max(positions) + 0.6)
+
+
+# ----------------------------------------------------------------------------------------------
+# 1. fluence maps
+
+
+def _draw_map(fig: Figure, ax, image_J_m2: np.ndarray, x_m: np.ndarray, y_m: np.ndarray,
+              title: str, quantity: str, unit: str) -> None:
+    """Draw one transverse map (SI per m², shown per cm²) with its own colour bar."""
+    img = np.nan_to_num(np.asarray(image_J_m2, dtype=float)) / 1e4
+    x, y = np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float)
+    img = _block_mean(_block_mean(img, 0), 1)
+    x = _block_mean(x, 0)
+    y = _block_mean(y, 0)
+    peak = _finite_max(img)
+    x0, x1 = _extent(x * 1e3)
+    y0, y1 = _extent(y * 1e3)
+    im = ax.imshow(img, origin="lower", extent=(x0, x1, y0, y1), cmap=MAP_CMAP,
+                   vmin=0.0, vmax=peak if peak > 0 else 1.0, interpolation="nearest")
+    ax.set_xlabel("x (mm)")
+    ax.set_ylabel("y (mm)")
+    ax.set_title(title)
+    cb = fig.colorbar(im, ax=ax, shrink=0.9)
+    cb.set_label(f"{quantity} ({unit})")
+    if peak <= 0:
+        ax.text(0.5, 0.5, f"zero {quantity} everywhere", transform=ax.transAxes, ha="center",
+                va="center", color="white", fontsize="large")
+
+
+def _lineout_axis(ax, coord_m: np.ndarray, seed: np.ndarray, out: np.ndarray, axis_name: str,
+                  other_name: str, out_label: str, quantity: str, unit: str) -> None:
+    """Seed and output lineouts on ``ax``; the output gets its own right axis when the peaks differ > 10x."""
+    c = np.asarray(coord_m, dtype=float) * 1e3
+    s = np.nan_to_num(seed) / 1e4
+    o = np.nan_to_num(out) / 1e4
+    ps, po = _finite_max(s), _finite_max(o)
+    ratio = po / ps if ps > 0 and po > 0 else 1.0
+    twin = ratio > 10 or ratio < 0.1
+    kw = dict(marker=".", markersize=3) if c.size <= 48 else {}
+    h1, = ax.plot(c, s, color=SEED_COLOUR, label="seed", **kw)
+    if twin:
+        ax2 = ax.twinx()
+        h2, = ax2.plot(c, o, color=OUTPUT_COLOUR, linestyle="--", label=f"{out_label} (right axis)", **kw)
+        ax.set_ylabel(f"seed {quantity} ({unit})", color=SEED_COLOUR)
+        ax2.set_ylabel(f"output {quantity} ({unit})", color=OUTPUT_COLOUR)
+        ax.tick_params(axis="y", colors=SEED_COLOUR)
+        ax2.tick_params(axis="y", colors=OUTPUT_COLOUR)
+        ax2.set_ylim(bottom=0)
+        ax2.spines["left"].set_visible(False)
+    else:
+        h2, = ax.plot(c, o, color=OUTPUT_COLOUR, linestyle="--", label=out_label, **kw)
+        ax.set_ylabel(f"{quantity} ({unit})")
+    ax.set_ylim(bottom=0)
+    ax.set_xlabel(f"{axis_name} (mm)")
+    ax.set_title(f"lineout along {axis_name} at {other_name} = 0")
+    ax.grid(True, alpha=0.3)
+    (ax2 if twin else ax).legend(handles=[h1, h2], loc="best", fontsize="small", framealpha=0.9)
+
+
+def plot_fluence_maps(result: Result, path: Path) -> Path:
+    """Seed and output fluence maps side by side, with x and y lineouts through the centre.
+
+    Parameters
+    ----------
+    result : the run (maps in J/m², grid in m); shown in J/cm² over mm
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    quantity, unit = _map_quantity(result)
+    seed = np.asarray(result.seed_fluence_J_m2, dtype=float)
+    if result.steps:
+        out = np.asarray(result.steps[-1].fluence_J_m2, dtype=float)
+        out_label = f"output after step {result.steps[-1].index}"
+    else:
+        out, out_label = seed, "output (no steps)"
+    fig = _figure(11.0, 8.2)
+    gs = fig.add_gridspec(2, 2, height_ratios=[1.35, 1.0])
+    ax_s, ax_o = fig.add_subplot(gs[0, 0]), fig.add_subplot(gs[0, 1])
+    ps, po = _finite_max(seed) / 1e4, _finite_max(out) / 1e4
+    _draw_map(fig, ax_s, seed, result.x_m, result.y_m, f"seed: peak {ps:.3g} {unit}", quantity, unit)
+    _draw_map(fig, ax_o, out, result.x_m, result.y_m, f"{out_label}: peak {po:.3g} {unit}", quantity, unit)
+    iy, ix = _centre_index(result.y_m), _centre_index(result.x_m)
+    _lineout_axis(fig.add_subplot(gs[1, 0]), result.x_m, seed[iy, :], out[iy, :], "x", "y",
+                  out_label, quantity, unit)
+    _lineout_axis(fig.add_subplot(gs[1, 1]), result.y_m, seed[:, ix], out[:, ix], "y", "x",
+                  out_label, quantity, unit)
+    fig.suptitle(f"Transverse {quantity}: seed and output" + _title_suffix(result))
+    return _save(fig, path)
+
+
+def _title_suffix(result: Result) -> str:
+    title = getattr(result.config, "title", "")
+    return f"\n{title}" if title else ""
+
+
+# ----------------------------------------------------------------------------------------------
+# 2. energy per step
+
+
+def plot_energy_per_step(result: Result, path: Path) -> Path:
+    """Energy after each step (seed first) and the gain of each step.
+
+    Parameters
+    ----------
+    result : the run; energies in J (cw: power in W), shown with a prefix chosen by size
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    cw = _is_cw(result)
+    seed, after = _energies(result)
+    gains = _gains(result, seed, after)
+    values = np.concatenate(([seed], after))
+    labels = ["seed"] + [step_label(result, r) for r in result.steps]
+    pos = np.arange(values.size, dtype=float)
+    factor, unit = _prefix(_finite_max(values), _POWER_UNITS if cw else _ENERGY_UNITS)
+    shown = values / factor
+    n = values.size
+    width_in = max(6.8, 0.5 * n + 3.0)
+    fig = _figure(width_in, 7.0)
+    gs = fig.add_gridspec(2, 1, height_ratios=[1.3, 1.0])
+    ax_e = fig.add_subplot(gs[0])
+    ax_g = fig.add_subplot(gs[1], sharex=ax_e)
+
+    positive = shown[shown > 0]
+    log_e = positive.size >= 2 and positive.max() / positive.min() > 50
+    plot_e = np.where(shown > 0, shown, np.nan) if log_e else shown
+    ax_e.plot(pos, plot_e, color="0.55", linewidth=1.0, zorder=1)
+    ax_e.scatter(pos[:1], plot_e[:1], color=SEED_COLOUR, s=40, zorder=3, label="seed")
+    ax_e.scatter(pos[1:], plot_e[1:], color=OUTPUT_COLOUR, s=40, zorder=3, label="after step")
+    if log_e:
+        ax_e.set_yscale("log")
+    else:
+        ax_e.set_ylim(bottom=0, top=max(_finite_max(shown) * 1.15, 1e-30) if _finite_max(shown) > 0 else 1.0)
+    if n <= 14:
+        for p, v in zip(pos, shown):
+            if np.isfinite(v) and (v > 0 or not log_e):
+                ax_e.annotate(f"{v:.3g}", (p, v), textcoords="offset points", xytext=(0, 7),
+                              ha="center", fontsize="small")
+    what = "power" if cw else "energy"
+    ax_e.set_ylabel(f"{what} ({unit})")
+    ax_e.set_title(f"{what.capitalize()} after each step")
+    ax_e.grid(True, alpha=0.3)
+    ax_e.legend(loc="best", fontsize="small")
+    ax_e.tick_params(axis="x", labelbottom=False)
+
+    gpos, gval = pos[1:], gains
+    ok = np.isfinite(gval)
+    colours = [OUTPUT_COLOUR if g >= 1 else LOSS_COLOUR for g in gval[ok]]
+    gpos_ok, gval_ok = gpos[ok], gval[ok]
+    gp = gval_ok[gval_ok > 0]
+    log_g = gp.size >= 2 and gp.max() / gp.min() > 30
+    if log_g:
+        ax_g.set_yscale("log")
+        keep = gval_ok > 0
+        ax_g.bar(gpos_ok[keep], gval_ok[keep], width=0.6,
+                 color=[c for c, k in zip(colours, keep) if k])
+    elif gval_ok.size:
+        ax_g.bar(gpos_ok, gval_ok, width=0.6, color=colours)
+        ax_g.set_ylim(bottom=0, top=max(1.0, _finite_max(gval_ok)) * 1.18)
+    else:
+        ax_g.set_ylim(0, 2)
+    ax_g.axhline(1.0, color="0.3", linestyle=":", linewidth=1.0)
+    if n <= 14:
+        for p, g in zip(gpos, gval):
+            text = f"{g:.3g}" if np.isfinite(g) else "n/a"
+            y = g if (np.isfinite(g) and (g > 0 or not log_g)) else (1.0 if log_g else 0.0)
+            ax_g.annotate(text, (p, y), textcoords="offset points", xytext=(0, 3), ha="center",
+                          va="bottom", fontsize="small")
+    ax_g.set_ylabel(f"gain ({what} out / in)")
+    ax_g.set_title("Gain of each step (red: gain > 1, grey: loss; dotted line: 1)")
+    ax_g.grid(True, axis="y", alpha=0.3)
+    ax_g.set_xlabel("step")
+    _step_ticks(ax_g, labels, pos, width_in)
+    fig.suptitle(f"{what.capitalize()} through the layout" + _title_suffix(result))
+    return _save(fig, path)
+
+
+# ----------------------------------------------------------------------------------------------
+# 3. pulse power
+
+
+def plot_pulse_power(result: Result, path: Path) -> Path:
+    """Seed and output power against time, plus normalised shapes when the peaks differ > 5x.
+
+    Parameters
+    ----------
+    result : the run; ``t_s`` in s and power in W, shown with prefixes chosen by span and peak
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    t = np.asarray(result.t_s, dtype=float).ravel()
+    seed = np.nan_to_num(np.asarray(result.seed_power_W, dtype=float).ravel())
+    out = np.nan_to_num(np.asarray(result.steps[-1].power_W, dtype=float).ravel()) if result.steps else seed
+    span = float(t.max() - t.min()) if t.size > 1 else (abs(float(t[0])) if t.size else 0.0)
+    tf, tu = _prefix(span if span > 0 else 1e-9, _TIME_UNITS)
+    ps, po = _finite_max(seed), _finite_max(out)
+    pf, pu = _prefix(max(ps, po), _POWER_UNITS)
+    ratio = po / ps if ps > 0 and po > 0 else 1.0
+    shapes = ratio > 5 or ratio < 0.2
+    fig = _figure(8.0, 7.0 if shapes else 4.6)
+    axes = fig.subplots(2, 1, sharex=True) if shapes else [fig.subplots(1, 1)]
+    ax = axes[0]
+    kw = dict(marker="o", markersize=4) if t.size <= 24 else {}
+    seed_e, after = _energies(result)
+    eu = _prefix(max(seed_e, _finite_max(after)), _ENERGY_UNITS)
+    out_e = after[-1] if after.size else seed_e
+    out_name = f"output after step {result.steps[-1].index}" if result.steps else "output"
+    ax.plot(t / tf, seed / pf, color=SEED_COLOUR, label=f"seed, {seed_e / eu[0]:.3g} {eu[1]}", **kw)
+    ax.plot(t / tf, out / pf, color=OUTPUT_COLOUR, linestyle="--",
+            label=f"{out_name}, {out_e / eu[0]:.3g} {eu[1]}", **kw)
+    ax.set_ylabel(f"power ({pu})")
+    ax.set_ylim(bottom=0, top=max(ps, po) / pf * 1.1 if max(ps, po) > 0 else 1.0)
+    ax.set_title("Pulse power of the whole beam (mean over each time slice)")
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="upper right", fontsize="small")
+    if shapes:
+        axn = axes[1]
+        for p, peak, colour, ls, name in ((seed, ps, SEED_COLOUR, "-", "seed"),
+                                          (out, po, OUTPUT_COLOUR, "--", out_name)):
+            axn.plot(t / tf, p / peak if peak > 0 else p, color=colour, linestyle=ls, label=name, **kw)
+        axn.set_ylabel("power / own peak")
+        axn.set_ylim(0, 1.1)
+        axn.set_title("Normalised pulse shapes (each divided by its own peak)")
+        axn.grid(True, alpha=0.3)
+        axn.legend(loc="upper right", fontsize="small")
+    axes[-1].set_xlabel(f"time ({tu})")
+    if t.size == 1:
+        axes[-1].set_xlim(t[0] / tf - 1.0, t[0] / tf + 1.0)
+    fig.suptitle("Seed and output pulses" + _title_suffix(result))
+    return _save(fig, path)
+
+
+# ----------------------------------------------------------------------------------------------
+# 4. gain cuts of each medium
+
+
+def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
+    """z–x cuts of a medium's gain coefficient before and after, and the on-axis gain along z.
+
+    Parameters
+    ----------
+    result : the run; gain coefficients (Nz, Ny, Nx) in 1/m, shown in 1/cm over z and x in mm
+    name : the medium's name (a key of ``result.media``)
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    med = result.media[name]
+    g0 = np.asarray(med.gain_initial_per_m, dtype=float) / 100.0
+    g1 = np.asarray(med.gain_final_per_m, dtype=float) / 100.0
+    if g0.ndim == 1:
+        g0, g1 = g0[:, None, None], g1[:, None, None]
+    nz, ny, nx = g0.shape
+    dz_mm = med.slice_length_m * 1e3
+    length_mm = nz * dz_mm
+    x_m = np.asarray(result.x_m, dtype=float)
+    y_m = np.asarray(result.y_m, dtype=float)
+    if x_m.size != nx:  # a medium on its own grid: spread its pixels over the window
+        width = getattr(getattr(result.config, "grid", None), "width_m", None) or _pixel(result.x_m) * nx
+        x_m = (np.arange(nx) - (nx - 1) / 2) * (width / nx)
+    if y_m.size != ny:
+        y_m = np.zeros(ny)
+    iy, ix = _centre_index(y_m), _centre_index(x_m)
+    cut0, cut1 = g0[:, iy, :].T, g1[:, iy, :].T       # (Nx, Nz): x vertical, z horizontal
+    cut0, cut1 = (_block_mean(_block_mean(c, 0), 1) for c in (cut0, cut1))
+    xs = _block_mean(x_m, 0) * 1e3
+    x0, x1 = _extent(xs)
+    lo = min(_finite_min(cut0), _finite_min(cut1))
+    hi = max(_finite_max(cut0), _finite_max(cut1))
+    if lo < -1e-3 * max(abs(hi), 1e-30):   # real absorption (quasi-three-level), not round-off
+        m = max(abs(lo), abs(hi), 1e-30)
+        cmap, vmin, vmax = "RdBu_r", -m, m
+    else:
+        cmap, vmin, vmax = "viridis", min(lo, 0.0), hi if hi > 0 else 1.0
+
+    medium_cfg = None
+    try:
+        medium_cfg = result.config.medium(name)
+    except (KeyError, AttributeError):
+        pass
+    passes = [r for r in result.steps if r.kind == "pass" and r.medium == name]
+
+    fig = _figure(9.0, 8.6)
+    gs = fig.add_gridspec(3, 1, height_ratios=[1.0, 1.0, 1.1])
+    ax0 = fig.add_subplot(gs[0])
+    ax1 = fig.add_subplot(gs[1], sharex=ax0, sharey=ax0)
+    ax2 = fig.add_subplot(gs[2], sharex=ax0)
+    for ax, cut, when in ((ax0, cut0, "before the first pass"), (ax1, cut1, "after the last pass")):
+        im = ax.imshow(cut, origin="lower", extent=(0.0, length_mm, x0, x1), aspect="auto",
+                       cmap=cmap, vmin=vmin, vmax=vmax, interpolation="nearest")
+        ax.set_ylabel("x (mm)")
+        ax.set_title(f"gain coefficient {when} (cut at y = 0)")
+        ax.tick_params(axis="x", labelbottom=False)
+    if medium_cfg is not None and getattr(medium_cfg, "diameter_m", None):
+        half = 0.6 * medium_cfg.diameter_m * 1e3
+        if half < (x1 - x0) / 2:
+            ax0.set_ylim(max(x0, -half), min(x1, half))
+    cb = fig.colorbar(im, ax=[ax0, ax1], shrink=0.95)
+    cb.set_label("gain coefficient g (1/cm)")
+
+    edges = np.arange(nz + 1) * dz_mm
+    on0, on1 = g0[:, iy, ix], g1[:, iy, ix]
+    for g, colour, ls, when in ((on0, SEED_COLOUR, "-", "before"), (on1, OUTPUT_COLOUR, "--", "after")):
+        exponent = float(np.nansum(g) * dz_mm / 10.0)        # ∫g dz with g in 1/cm, dz in cm
+        single = math.exp(min(exponent, 700.0))
+        ax2.plot(edges, np.append(np.nan_to_num(g), np.nan_to_num(g[-1:])), drawstyle="steps-post",
+                 color=colour, linestyle=ls, linewidth=1.6,
+                 label=f"{when}: single-pass exp(∫g dz) = {single:.3g}")
+    ax2.axhline(0.0, color="0.5", linewidth=0.8)
+    ax2.set_xlabel("z along the medium (mm)")
+    ax2.set_ylabel("on-axis g (1/cm)")
+    ax2.set_title("on-axis gain coefficient along z")
+    ax2.set_xlim(0.0, length_mm if length_mm > 0 else 1.0)
+    glo = min(_finite_min(on0), _finite_min(on1), 0.0)
+    ghi = max(_finite_max(on0), _finite_max(on1))
+    ax2.set_ylim(glo * 1.1, ghi * 1.2 if ghi > 0 else 1.0)
+    ax2.grid(True, alpha=0.3)
+    ax2.legend(loc="best", fontsize="small", framealpha=0.9)
+
+    material = getattr(med, "material", "")
+    note = f"{len(passes)} pass{'es' if len(passes) != 1 else ''}" if passes else "not passed in this layout"
+    fig.suptitle(f"Gain in medium '{name}'" + (f" ({material})" if material else "") + f": {note}"
+                 + _title_suffix(result))
+    return _save(fig, path)
+
+
+# ----------------------------------------------------------------------------------------------
+# 5. B-integral
+
+
+def _b_integrals(result: Result) -> tuple[np.ndarray, np.ndarray]:
+    """(accumulated, per-step) B-integral in rad: the largest over the beam after / within each step."""
+    total, step = [], []
+    prev = np.zeros_like(np.asarray(result.seed_fluence_J_m2, dtype=float))
+    for r in result.steps:
+        b = np.nan_to_num(np.asarray(r.b_integral_rad, dtype=float))
+        total.append(_finite_max(b))
+        step.append(_finite_max(b - prev) if b.shape == prev.shape else _finite_max(b))
+        prev = b
+    return np.array(total), np.maximum(np.array(step), 0.0)
+
+
+def plot_b_integral(result: Result, path: Path) -> Path:
+    """Accumulated B-integral after each step, with the per-step and total limits as dashed lines.
+
+    Parameters
+    ----------
+    result : the run; ``b_integral_rad`` maps in rad; limits from ``result.config.limits``
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    total, per_step = _b_integrals(result)
+    labels = [step_label(result, r) for r in result.steps]
+    pos = np.arange(len(labels), dtype=float)
+    limits = getattr(result.config, "limits", None)
+    lim_step = getattr(limits, "b_integral_step_rad", None)
+    lim_total = getattr(limits, "b_integral_total_rad", None)
+    width_in = max(6.8, 0.5 * len(labels) + 3.0)
+    fig = _figure(width_in, 5.0)
+    ax = fig.add_subplot()
+    ax.bar(pos, per_step, width=0.6, color="#9ab8d8", label="added in the step")
+    ax.plot(pos, total, color=OUTPUT_COLOUR, marker="o", label="accumulated after the step")
+    if lim_step is not None:
+        ax.axhline(lim_step, color=SEED_COLOUR, linestyle="--", linewidth=1.2,
+                   label=f"per-step limit {lim_step:g} rad")
+    if lim_total is not None:
+        ax.axhline(lim_total, color=OUTPUT_COLOUR, linestyle="--", linewidth=1.2,
+                   label=f"total limit {lim_total:g} rad")
+    top = max(_finite_max(total), lim_step or 0.0, lim_total or 0.0)
+    ax.set_ylim(0, top * 1.15 if top > 0 else 1.0)
+    ax.set_ylabel("B-integral, largest over the beam (rad)")
+    ax.set_xlabel("step")
+    ax.set_title("B-integral through the layout" + _title_suffix(result))
+    ax.grid(True, axis="y", alpha=0.3)
+    ax.legend(loc="upper left", fontsize="small", framealpha=0.9)
+    _step_ticks(ax, labels, pos, width_in)
+    return _save(fig, path)
+
+
+# ----------------------------------------------------------------------------------------------
+
+
+def make_plots(result: Result, directory: Path) -> list[Path]:
+    """Write the figures of a run as PNG files into ``directory`` (created if needed).
+
+    Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
+    ``gain_<medium>.png`` for each medium, and ``b_integral.png`` when any step has a non-zero
+    B-integral.
+
+    Parameters
+    ----------
+    result : the run (all arrays SI: m, s, J/m², W, 1/m, rad)
+    directory : folder for the PNG files
+
+    Returns
+    -------
+    list of Path : the files written, in the order above
+    """
+    out = Path(directory)
+    out.mkdir(parents=True, exist_ok=True)
+    paths = [plot_fluence_maps(result, out / "fluence_maps.png"),
+             plot_energy_per_step(result, out / "energy_per_step.png")]
+    if not _is_cw(result) and np.asarray(result.t_s).size:
+        paths.append(plot_pulse_power(result, out / "pulse_power.png"))
+    used: set[str] = set()
+    for name in result.media:
+        stem = _safe_name(name)
+        while stem in used:
+            stem += "_"
+        used.add(stem)
+        paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
+    if result.steps and _finite_max(_b_integrals(result)[0]) > 0:
+        paths.append(plot_b_integral(result, out / "b_integral.png"))
+    return paths
