@@ -1,0 +1,683 @@
+"""Run configs: TOML file (or dict) -> validated :class:`~ampmodel.description.Config`.
+
+The whole config is checked against the schema in ``config_schema.py`` before anything runs. Every
+problem is collected, and :class:`ConfigError` carries them all, one line each::
+
+    <file>: <key path> = <value>: <what is wrong / what is allowed>[; did you mean 'x'?]
+
+Key paths name media and steps by position and name (``medium[0] (rod).material.wavelength_nm``,
+``step[2].transmission``). Values given in config units (``length_mm``, ``duration_ns``) are
+converted to SI here, once, with :func:`ampmodel.units.to_si`.
+
+Value paths for ``--set`` and sweeps are dotted, media and steps by name or index:
+``seed.energy_J``, ``medium.rod.length_mm``, ``medium.0.slices``, ``step.1.transmission``; a key
+holding a dot is written in double quotes (``sweep."seed.energy_J"``).
+"""
+from __future__ import annotations
+
+import copy
+import dataclasses
+import json
+import os
+import re
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any, Mapping, Sequence
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python < 3.11
+    import tomli as tomllib  # type: ignore[no-redef]
+import tomli_w
+
+from . import config_schema as S
+from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
+                            expected, item_names, join_path, leaf_schema, quoted_list, walk)
+from .description import Config, Grid, Limits, Medium, Pump, Seed, Step
+from .materials import MATERIAL_KEYS, Material, material_from_values
+from .units import si_name, to_si
+
+__all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolve_path", "dump_toml"]
+
+# Tables that a --set may create when its path runs through one that is not there yet.
+_CREATABLE = frozenset({"grid", "seed", "limits", "sweep", "pump", "material"})
+
+
+class ConfigError(Exception):
+    """A config with problems. ``problems`` holds one line per problem, each naming file and key."""
+
+    def __init__(self, problems: Sequence[str] | str):
+        self.problems: list[str] = [problems] if isinstance(problems, str) else list(problems)
+        super().__init__("\n".join(self.problems))
+
+
+# ----------------------------------------------------------------------------------------------
+# Reading
+# ----------------------------------------------------------------------------------------------
+
+_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+
+
+def _parse_toml(text: str, problems: Problems) -> dict | None:
+    """Parse TOML text; a syntax error becomes one problem with its line and column."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        message = str(exc)
+        m = _AT.search(message)
+        if m:
+            where = f"line {m.group(1)}, column {m.group(2)}"
+            message = message[: m.start()]
+        else:
+            where = "the end of the file" if "end of document" in message else "an unknown place"
+            message = re.sub(r"\s*\(at end of document\)\s*$", "", message)
+        problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}")
+        return None
+
+
+def _plain(value: Any, path: str, problems: Problems) -> Any:
+    """A dict given in Python, as TOML would give it: plain dicts, lists, str keys, no None."""
+    if type(value).__module__ == "numpy" and hasattr(value, "tolist"):
+        value = value.tolist()
+    if isinstance(value, Mapping):
+        out = {}
+        for k, v in value.items():
+            if not isinstance(k, str):
+                problems.add(join_path(path, str(k)), "keys must be strings")
+            elif v is not None:
+                out[k] = _plain(v, join_path(path, k), problems)
+        return out
+    if isinstance(value, (list, tuple)):
+        return [_plain(v, path, problems) for v in value]
+    return value
+
+
+# ----------------------------------------------------------------------------------------------
+# Value paths
+# ----------------------------------------------------------------------------------------------
+
+def resolve_path(raw: dict, path: str) -> tuple[Any, Any]:
+    """Find the container and key a dotted value path names.
+
+    Parameters
+    ----------
+    raw : dict
+        The config as read from TOML.
+    path : str
+        Dotted, media and steps by name or index: ``"seed.energy_J"``, ``"medium.rod.length_mm"``,
+        ``"medium.0.slices"``, ``"step.1.transmission"``, ``"grid.points"``.
+
+    Returns
+    -------
+    (container, key) : tuple
+        ``container[key]`` is the value (a dict and a str key; a list and an int index when the
+        path ends at a medium or step). The key need not exist yet in its table.
+
+    Raises
+    ------
+    PathError
+        A KeyError whose message says which part does not resolve, with a "did you mean".
+    """
+    container, key, _ = walk(raw, path)
+    return container, key
+
+
+# ----------------------------------------------------------------------------------------------
+# Overrides and writing
+# ----------------------------------------------------------------------------------------------
+
+def _parse_value(text: str) -> Any:
+    """A --set VALUE as a TOML value, or the plain string when it is not one."""
+    try:
+        parsed = tomllib.loads("v = " + text)
+    except tomllib.TOMLDecodeError:
+        return text
+    return parsed["v"] if list(parsed) == ["v"] else text
+
+
+def _apply(raw: dict, overrides: Sequence[str], problems: Problems) -> dict:
+    """Apply overrides to a copy of ``raw``; a path that does not resolve is a problem."""
+    out = copy.deepcopy(raw)
+    for item in overrides:
+        path, sep, value_text = str(item).partition("=")
+        if not sep or not path.strip():
+            problems.add(f"--set {item}", "expected PATH=VALUE, e.g. --set seed.energy_J=0.01")
+            continue
+        try:
+            container, key, _ = walk(out, path.strip(), create=_CREATABLE)
+        except PathError as exc:
+            problems.add(f"--set {item}", f"the path does not resolve: {exc}")
+            continue
+        container[key] = _parse_value(value_text.strip())
+    return out
+
+
+def apply_overrides(raw: dict, overrides: Sequence[str], source_name: str) -> dict:
+    """Apply ``--set PATH=VALUE`` overrides to a copy of ``raw``.
+
+    Parameters
+    ----------
+    raw : dict
+        The config as read from TOML (not changed).
+    overrides : sequence of str
+        ``"PATH=VALUE"``; VALUE is read as a TOML value (``0.01``, ``true``, ``"rod"``, ``[1, 2]``),
+        or taken as a plain string when it is not one (``seed.shape=flat``).
+    source_name : str
+        The file name shown in the problem lines.
+
+    Returns
+    -------
+    dict
+        A new dict with the values set. A key new to an existing table is added; a path through a
+        [grid], [seed], [limits], [sweep], [medium.pump] or [medium.material] table that is not
+        there creates it.
+
+    Raises
+    ------
+    ConfigError
+        With one line per override whose path does not resolve.
+    """
+    problems = Problems(source_name)
+    out = _apply(raw, overrides, problems)
+    if problems.lines:
+        raise ConfigError(problems.lines)
+    return out
+
+
+def _key_text(key: str) -> str:
+    """A TOML key: bare where possible, else quoted."""
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+
+
+def _is_aot(value: Any) -> bool:
+    """True for a non-empty list of tables (written as [[name]] sections)."""
+    return isinstance(value, list) and bool(value) and all(isinstance(v, dict) for v in value)
+
+
+def _dump_table(table: dict, name: list[str], header: str, out: list[str]) -> None:
+    """Append one table: its header, its plain values, then its sub-tables."""
+    scalars = {k: v for k, v in table.items() if not isinstance(v, dict) and not _is_aot(v)}
+    if header:
+        out.append(("\n" if out else "") + header + "\n")
+    if scalars:
+        out.append(tomli_w.dumps(scalars))
+    for k, v in table.items():
+        dotted = ".".join(_key_text(p) for p in name + [k])
+        if isinstance(v, dict):
+            _dump_table(v, name + [k], f"[{dotted}]", out)
+        elif _is_aot(v):
+            for item in v:
+                _dump_table(item, name + [k], f"[[{dotted}]]", out)
+
+
+def dump_toml(raw: dict) -> str:
+    """Write a config dict as TOML text (tables and arrays of tables under their own headers).
+
+    Parameters
+    ----------
+    raw : dict
+        A config as read from TOML (values: str, int, float, bool, dates, lists, dicts).
+
+    Returns
+    -------
+    str
+        TOML text that reads back to an equal dict.
+    """
+    out: list[str] = []
+    _dump_table(raw, [], "", out)
+    return "".join(out)
+
+
+# ----------------------------------------------------------------------------------------------
+# Loading
+# ----------------------------------------------------------------------------------------------
+
+def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = ()) -> Config:
+    """Read, override and validate a run config.
+
+    Parameters
+    ----------
+    source : str, os.PathLike or Mapping
+        A path to a TOML file, or the config as a dict (shown as ``<dict>`` in problems).
+    overrides : sequence of str
+        ``"PATH=VALUE"`` strings (``--set``), applied before validation.
+
+    Returns
+    -------
+    Config
+        Every quantity SI. ``text`` is the file text (after overrides: the modified config as TOML,
+        headed by a comment listing them), ``raw`` the (modified) dict, ``source`` the path.
+
+    Raises
+    ------
+    ConfigError
+        With every problem found, one line each.
+    """
+    overrides = [overrides] if isinstance(overrides, str) else list(overrides)
+    if isinstance(source, Mapping):
+        name, title, text = "<dict>", "untitled", None
+        problems = Problems(name)
+        raw = _plain(source, "", problems)
+    elif isinstance(source, (str, os.PathLike)):
+        path = Path(source)
+        name, title = str(source), path.stem
+        problems = Problems(name)
+        try:
+            text = path.read_bytes().decode("utf-8-sig")
+        except FileNotFoundError:
+            raise ConfigError([f"{name}: no such config file"]) from None
+        except IsADirectoryError:
+            raise ConfigError([f"{name}: cannot read the config: it is a directory, not a TOML file"]) from None
+        except UnicodeDecodeError as exc:
+            raise ConfigError([f"{name}: cannot read the config: not UTF-8 text ({exc.reason} at byte "
+                               f"{exc.start})"]) from None
+        except OSError as exc:
+            raise ConfigError([f"{name}: cannot read the config: {exc.strerror or exc}"]) from None
+        raw = _parse_toml(text, problems)
+        if raw is None:
+            raise ConfigError(problems.lines)
+    else:
+        raise TypeError(f"load_config takes a path or a mapping, not {type(source).__name__}")
+
+    if overrides:
+        raw = _apply(raw, overrides, problems)
+    config = _validate(raw, problems, title)
+    if problems.lines:
+        raise ConfigError(problems.lines)
+    if overrides:
+        listing = "; ".join(" ".join(str(o).split()) for o in overrides)
+        text = f"# overrides (--set): {listing}\n" + dump_toml(raw)
+    elif text is None:
+        try:
+            text = dump_toml(raw)
+        except (TypeError, ValueError) as exc:
+            raise ConfigError([f"{name}: cannot write the config as TOML: {exc}"]) from None
+    return dataclasses.replace(config, text=text, source=name, raw=raw)
+
+
+# ----------------------------------------------------------------------------------------------
+# Validation
+# ----------------------------------------------------------------------------------------------
+
+def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
+    """Check the whole config; return the Config (text, source, raw not yet set) or None with problems."""
+    top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "sweep"))
+    for key in ("grid", "seed", "limits", "sweep"):
+        if key in raw and not isinstance(raw[key], dict):
+            p.add(key, f"must be a table [{key}], not {S.type_name(raw[key])}", raw[key])
+    for key in ("grid", "seed"):
+        if key not in raw:
+            p.add(key, f"missing section [{key}]: give {S.SECTION_HINTS[key]}")
+    mode = top.get("mode")
+    if raw.get("mode") == "cw":
+        mode = "cw"  # not available in this version, but the seed is still checked as a cw seed
+    grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) else None
+    media, names = _media(p, raw)
+    seed = _seed(p, raw["seed"], mode, media) if isinstance(raw.get("seed"), dict) else None
+    steps = _steps(p, raw, names)
+    limits = Limits(**check_table(p, raw["limits"], "limits", S.LIMITS)) \
+        if isinstance(raw.get("limits"), dict) else Limits()
+    if isinstance(raw.get("sweep"), dict):
+        _sweep(p, raw)
+    if len(p) or grid is None or seed is None or media is None or steps is None:
+        return None
+    return Config(title=top.get("title", default_title), mode=mode, grid=grid, media=tuple(media),
+                  seed=seed, steps=tuple(steps), limits=limits)
+
+
+def _grid(p: Problems, table: dict) -> Grid | None:
+    """The [grid] table."""
+    before = len(p)
+    v = check_table(p, table, "grid", S.GRID)
+    if len(p) > before:
+        return None
+    return Grid(points=v["points"], width_m=to_si("width_mm", v["width_mm"]),
+                time_slices=v["time_slices"], diffraction=v["diffraction"])
+
+
+# --- media ------------------------------------------------------------------------------------
+
+def _media(p: Problems, raw: dict) -> tuple[list[Medium] | None, list[str]]:
+    """Every [[medium]]; return (media or None, the names steps may refer to)."""
+    items = array_of_tables(p, raw, "medium")
+    if items is None:
+        return None, []
+    names = item_names(items, "medium")
+    seen: dict[str, int] = {}
+    media: list[Medium | None] = []
+    for i, item in enumerate(items):
+        if not isinstance(item, dict):
+            media.append(None)
+            continue
+        given = item.get("name")
+        path = f"medium[{i}] ({given})" if isinstance(given, str) else f"medium[{i}]"
+        name = names[i]
+        if isinstance(given, str):
+            reason = ("must not be empty" if not given.strip() else
+                      "must not contain '/'" if "/" in given else
+                      "must not be a plain number (paths and steps read a number as an index)"
+                      if given.isdigit() else None)
+            if reason:
+                p.add(f"medium[{i}].name", f"{reason}; give a medium name such as \"rod\"", given)
+        if name in seen:
+            p.add(f"medium[{i}].name", f"duplicate medium name (medium[{seen[name]}] has it too); "
+                                       "give each medium its own name", name)
+        seen.setdefault(name, i)
+        media.append(_medium(p, item, path, name))
+    if any(m is None for m in media):
+        return None, names
+    return media, names  # type: ignore[return-value]
+
+
+def _medium(p: Problems, item: dict, path: str, name: str) -> Medium | None:
+    """One [[medium]]: keys, material, aperture, exactly one gain specification."""
+    before = len(p)
+    kind = item.get("kind", "bulk")
+    if kind == "fibre":
+        p.add(join_path(path, "kind"), S.MEDIUM["kind"].unavailable[0][1], kind)
+        return None
+    v = check_table(p, item, path, S.MEDIUM, skip=("material",))
+    material = _material(p, item, path, name)
+    if "diameter_mm" in item and "width_mm" in item:
+        p.add(path, "both diameter_mm and width_mm given: give diameter_mm (round aperture) "
+                    "or width_mm (square aperture), not both")
+    elif "diameter_mm" not in item and "width_mm" not in item:
+        p.add(join_path(path, "diameter_mm"), "missing: the clear aperture, diameter_mm (round) "
+                                              "or width_mm (square), a number > 0")
+    aperture_key = "width_mm" if "width_mm" in item else "diameter_mm"
+    gains = [k for k in S.GAIN_KEYS if k in item]
+    if len(gains) > 1:
+        p.add(path, f"two gain specifications ({', '.join(S.GAIN_NAMES[g] for g in gains)}): "
+                    "give exactly one of small_signal_gain, stored_energy_J, [medium.pump]")
+    elif not gains:
+        p.add(path, "no gain specification: give exactly one of small_signal_gain, stored_energy_J, "
+                    "[medium.pump]")
+    pump = None
+    if isinstance(item.get("pump"), dict):
+        pump = _pump(p, item["pump"], join_path(path, "pump"), material)
+    if len(p) > before or material is None:
+        return None
+    return Medium(
+        name=name, material=material, length_m=to_si("length_mm", v["length_mm"]),
+        diameter_m=to_si(aperture_key, v[aperture_key]),
+        aperture="square" if aperture_key == "width_mm" else "round",
+        slices=v["slices"], loss_per_m=to_si("loss_per_cm", v["loss_per_cm"]),
+        small_signal_gain=v.get("small_signal_gain"),
+        stored_energy_J=v.get("stored_energy_J"), pump=pump,
+        doping_per_m3=v.get("doping_per_m3"), kind=v["kind"])
+
+
+def _registry():
+    """The built-in materials (imported when first needed)."""
+    from .materials import registry
+    return registry
+
+
+def _builtin(p: Problems, path: str, name: str) -> Material | None:
+    """A built-in material by name; an unknown name is a problem listing the close ones."""
+    try:
+        registry = _registry()
+    except ImportError:
+        p.add(path, "the built-in materials cannot be loaded in this installation; give a "
+                    "[medium.material] table instead", name)
+        return None
+    try:
+        return registry.get(name)
+    except KeyError:
+        close = registry.closest(name)
+        hint = f"; did you mean {quoted_list(close)}?" if close else ""
+        p.add(path, f"unknown material{hint} (built-in: {', '.join(registry.names())}; "
+                    "`ampmodel media` lists them with their values)", name)
+        return None
+
+
+def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material | None:
+    """A medium's material: a built-in name, or a table (optionally on a built-in ``base``)."""
+    mpath = join_path(path, "material")
+    if "material" not in item:
+        p.add(mpath, 'missing: give material = "<built-in name>" (see `ampmodel media`) '
+                     "or a [medium.material] table")
+        return None
+    value = item["material"]
+    if isinstance(value, str):
+        return _builtin(p, mpath, value)
+    if not isinstance(value, dict):
+        p.add(mpath, f"must be {expected(S.MEDIUM['material'])}, not {S.type_name(value)}", value)
+        return None
+    before = len(p)
+    base_name = value.get("base")
+    v = check_table(p, value, mpath, S.MATERIAL_TABLE, require=not isinstance(base_name, str))
+    base = _builtin(p, join_path(mpath, "base"), base_name) if isinstance(base_name, str) else None
+    if len(p) > before:
+        return None
+    given = {k: x for k, x in v.items() if k in MATERIAL_KEYS or (k == "broadening" and k in value)}
+    if base is not None:
+        name = v.get("name", f"{base.name} (modified)")
+        sources = dict(base.sources)
+        sources.update({k: f"set in the run config ({p.source})" for k in given})
+        changes = {si_name(k): to_si(k, x) for k, x in given.items() if k in MATERIAL_KEYS}
+        if "broadening" in given:
+            changes["broadening"] = given["broadening"]
+        return dataclasses.replace(base, name=name, sources=MappingProxyType(sources), **changes)
+    given.setdefault("broadening", v.get("broadening", "homogeneous"))
+    return material_from_values(given, v.get("name", f"{medium_name} material"),
+                                description=f"given in the run config ({p.source})",
+                                sources={k: f"run config ({p.source})" for k in given})
+
+
+def _pump(p: Problems, table: dict, path: str, material: Material | None) -> Pump | None:
+    """A [medium.pump] table; defaults from the material (pump wavelength, absorption)."""
+    before = len(p)
+    v = check_table(p, table, path, S.PUMP)
+    geometry = v.get("geometry")
+    if "energy_J" in table and "power_W" in table:
+        p.add(path, "both energy_J and power_W given: give one (power_W is multiplied by duration_us)")
+    elif "energy_J" not in table and "power_W" not in table:
+        p.add(join_path(path, "energy_J"), "missing: the pump energy energy_J (or power_W), a number > 0")
+    if geometry == "side":
+        for key in S.END_ONLY:
+            if key in table:
+                p.add(join_path(path, key), 'applies to end pumping only (geometry = "end")', table[key])
+    if geometry == "end":
+        for key in S.SIDE_ONLY:
+            if key in table:
+                p.add(join_path(path, key), 'applies to side pumping only (geometry = "side")', table[key])
+        if v.get("profile") == "parabolic":
+            p.add(join_path(path, "profile"), "'parabolic' applies to side pumping only; for end pumping give "
+                                              "'flat', 'gaussian' or 'supergaussian'", "parabolic")
+    wavelength_nm = v.get("wavelength_nm")
+    if "wavelength_nm" not in table and material is not None:
+        if material.pump_wavelength_m is None:
+            p.add(join_path(path, "wavelength_nm"), f"missing: material '{material.name}' gives no pump "
+                                                    "wavelength; give wavelength_nm")
+        else:
+            wavelength_nm = material.pump_wavelength_m / 1e-9
+    if wavelength_nm is not None and material is not None and wavelength_nm >= material.wavelength_m / 1e-9:
+        p.add(join_path(path, "wavelength_nm"), f"the pump wavelength must be shorter than the lasing "
+                                                f"wavelength ({material.wavelength_m / 1e-9:g} nm)", wavelength_nm)
+    if geometry == "end" and "absorption_per_cm" not in table and material is not None:
+        if material.pump_absorption_per_m is None:
+            p.add(join_path(path, "absorption_per_cm"), f"missing: material '{material.name}' gives no pump "
+                                                        "absorption; give absorption_per_cm for end pumping")
+    if len(p) > before or material is None:
+        return None
+    duration_s = to_si("duration_us", v["duration_us"])
+    energy_J = v["energy_J"] if "energy_J" in v else v["power_W"] * duration_s
+    return Pump(
+        geometry=geometry, energy_J=energy_J, duration_s=duration_s,
+        wavelength_m=to_si("wavelength_nm", wavelength_nm), profile=v["profile"],
+        diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else None,
+        order=v["order"],
+        absorption_per_m=to_si("absorption_per_cm", v["absorption_per_cm"]) if "absorption_per_cm" in v else None,
+        back_reflectance=v.get("back_reflectance", 0.0), absorbed_fraction=v.get("absorbed_fraction", 1.0),
+        transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"])
+
+
+# --- seed -------------------------------------------------------------------------------------
+
+def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None) -> Seed | None:
+    """The [seed] table; pulsed and cw seeds take different keys."""
+    before = len(p)
+    v = check_table(p, table, "seed", S.SEED)
+    durations = [k for k in S.DURATION_KEYS if k in table]
+    if mode == "pulsed":
+        for key in S.CW_SEED_KEYS:
+            if key in table:
+                p.add(join_path("seed", key), 'is a key of a cw seed (mode = "cw"); a pulsed seed takes energy_J',
+                      table[key])
+        if "energy_J" not in table:
+            p.add("seed.energy_J", f"missing: the pulse energy, {expected(S.SEED['energy_J'])} "
+                                   '(required when mode = "pulsed")')
+        if len(durations) > 1:
+            p.add("seed", f"several durations ({', '.join(durations)}): give exactly one of "
+                          f"{', '.join(S.DURATION_KEYS)}")
+        elif not durations:
+            p.add("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or duration_ps, "
+                                      "duration_fs, duration_us")
+    elif mode == "cw":
+        for key in S.PULSED_SEED_KEYS:
+            if key in table:
+                p.add(join_path("seed", key), 'is a key of a pulsed seed (mode = "pulsed"); a cw seed takes power_W',
+                      table[key])
+        if "power_W" not in table:
+            p.add("seed.power_W", f"missing: the beam power, {expected(S.SEED['power_W'])}")
+    wavelength_nm = v.get("wavelength_nm")
+    if "wavelength_nm" not in table and media is not None:
+        wavelength_nm = media[0].material.wavelength_m / 1e-9
+    if len(p) > before or wavelength_nm is None or mode is None:
+        return None
+    duration_s = to_si(durations[0], v[durations[0]]) if mode == "pulsed" else None
+    return Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
+                power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
+                order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]))
+
+
+# --- steps ------------------------------------------------------------------------------------
+
+def _steps(p: Problems, raw: dict, names: list[str]) -> list[Step] | None:
+    """Every [[step]], in order."""
+    items = array_of_tables(p, raw, "step")
+    if items is None:
+        return None
+    steps = []
+    for i, item in enumerate(items):
+        if isinstance(item, dict):
+            steps.append(_step(p, i, item, names))
+    if len(steps) < len(items) or any(s is None for s in steps):
+        return None
+    return steps
+
+
+def _wrong_kind_message(kind: str, schema: Mapping[str, S.Key]):
+    """The message for a key that a step of this kind does not take."""
+    def message(key: str) -> str:
+        owners = [k for k, keys in S.STEP_KINDS.items() if key in keys]
+        if owners:
+            return (f"'{key}' is not a key of a '{kind}' step (it belongs to {quoted_list(owners)} steps); "
+                    f"keys: {', '.join(schema)}")
+        return f"unknown key{did_you_mean(key, schema) or S.allowed_keys(schema)}"
+    return message
+
+
+def _step(p: Problems, i: int, item: dict, names: list[str]) -> Step | None:
+    """One [[step]]: its kind decides which keys it takes."""
+    before = len(p)
+    name = item.get("name") if isinstance(item.get("name"), str) else ""
+    path = f"step[{i}] ({name})" if name else f"step[{i}]"
+    kind = item.get("kind")
+    if "kind" not in item:
+        p.add(join_path(path, "kind"), f"missing: the step kind, {expected(S.STEP_COMMON['kind'])}")
+        return None
+    _, message = check_value(kind, S.STEP_COMMON["kind"])
+    if message:
+        p.add(join_path(path, "kind"), message, kind)
+        return None
+    schema = {**S.STEP_COMMON, **S.STEP_KINDS[kind]}
+    v = check_table(p, item, path, schema, unknown=_wrong_kind_message(kind, schema))
+    fields: dict[str, Any] = {}
+    if kind == "pass" and "medium" in v:
+        ref = v["medium"]
+        if isinstance(ref, int) and 0 <= ref < len(names):
+            fields["medium"] = names[ref]
+        elif isinstance(ref, str) and ref in names:
+            fields["medium"] = ref
+        elif names:
+            hint = did_you_mean(ref, names) if isinstance(ref, str) else ""
+            p.add(join_path(path, "medium"), f"no such medium; media: {', '.join(names)} "
+                                             f"(or an index from 0 to {len(names) - 1}){hint}", ref)
+        fields["reverse"] = v["reverse"]
+    elif kind == "loss" and "transmission" in v:
+        fields["transmission"] = v["transmission"]
+    elif kind == "aperture":
+        shape = v.get("shape") or ("square" if "width_mm" in item and "diameter_mm" not in item else "round")
+        need, other = ("diameter_mm", "width_mm") if shape == "round" else ("width_mm", "diameter_mm")
+        if other in item:
+            p.add(join_path(path, other), f"a {shape} aperture takes {need}, not {other}", item[other])
+        elif need not in item:
+            p.add(join_path(path, need), f"missing: the {shape} aperture's {need}, a number > 0")
+        if need in v:
+            fields.update(shape=shape, diameter_m=to_si(need, v[need]))
+    elif kind == "space" and "length_mm" in v:
+        fields["length_m"] = to_si("length_mm", v["length_mm"])
+    elif kind == "lens" and "focal_mm" in v:
+        fields["focal_m"] = to_si("focal_mm", v["focal_mm"])
+    damage = [k for k in ("damage_fluence_J_cm2", "damage_pulse_ns") if k in item]
+    if len(damage) == 1:
+        missing = "damage_pulse_ns" if damage[0] == "damage_fluence_J_cm2" else "damage_fluence_J_cm2"
+        p.add(join_path(path, missing), f"missing: {damage[0]} is given; give both damage_fluence_J_cm2 and "
+                                        "damage_pulse_ns (the pulse length the fluence was quoted at), or neither")
+    for key in damage:
+        if key in v:
+            fields[si_name(key)] = to_si(key, v[key])
+    if len(p) > before:
+        return None
+    return Step(kind=kind, index=i, name=name, **fields)
+
+
+# --- sweep ------------------------------------------------------------------------------------
+
+def _sweep(p: Problems, raw: dict) -> None:
+    """The [sweep] table: paths that resolve to values, non-empty lists of valid values, combine."""
+    sweep = raw["sweep"]
+    lengths: dict[str, int] = {}
+    combine = "grid"
+    if "combine" in sweep:
+        combine, message = check_value(sweep["combine"], S.SWEEP_COMBINE)
+        if message:
+            p.add("sweep.combine", message, sweep["combine"])
+    for key, values in sweep.items():
+        if key == "combine":
+            continue
+        path = join_path("sweep", key)
+        try:
+            _, leaf, trail = walk(raw, key)
+        except PathError as exc:
+            p.add(path, f"not a value path of this config: {exc}", values)
+            continue
+        schema = leaf_schema(raw, trail) if trail[0] != "sweep" else None
+        if schema is None or leaf not in schema:
+            prefix = key.rsplit(".", 1)[0] + "." if "." in key else ""
+            hits = S.close_matches(leaf, schema) if schema else []
+            hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
+            p.add(path, f"not a value this config can sweep; give a path such as seed.energy_J or "
+                        f"medium.<name>.length_mm{hint}", values)
+            continue
+        if not isinstance(values, list) or not values:
+            p.add(path, "must be a non-empty array of values, e.g. [0.001, 0.01]", values)
+            continue
+        lengths[key] = len(values)
+        for j, value in enumerate(values):
+            _, message = check_value(value, schema[leaf])
+            if message:
+                p.add(f"{path}[{j}]", message, value)
+            elif schema[leaf].kind == "material" and isinstance(value, str):
+                _builtin(p, f"{path}[{j}]", value)
+            elif schema[leaf].kind == "ref" and value not in item_names(raw["medium"], "medium") \
+                    and not (isinstance(value, int) and 0 <= value < len(raw["medium"])):
+                p.add(f"{path}[{j}]", "no such medium; media: "
+                                      f"{', '.join(item_names(raw['medium'], 'medium'))}", value)
+    if not lengths and not any(k != "combine" for k in sweep):
+        p.add("sweep", 'empty: give at least one path with its values, e.g. "seed.energy_J" = [0.001, 0.01]')
+    if combine == "zip" and len(set(lengths.values())) > 1:
+        listing = ", ".join(f"{k}: {n}" for k, n in lengths.items())
+        p.add("sweep", f'combine = "zip" needs lists of equal length ({listing})')

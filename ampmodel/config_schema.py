@@ -1,0 +1,656 @@
+"""The run-config schema as data: for every table, its keys with type, range, default and meaning.
+
+``config.py`` walks a config against these tables. Each key is a :class:`Key`; the checks that
+involve several keys at once (exactly one gain specification, keys that depend on the pump
+geometry or the step kind, ...) live in ``config.py``. This module also holds what every check
+shares: :class:`Problems` (the collected problem lines), :func:`show` (a value as it reads in
+TOML), :func:`did_you_mean`, :func:`check_value` (type and range of one value),
+:func:`check_table` (one table against its schema) and the dotted value paths (:func:`walk`).
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime
+import difflib
+import json
+import math
+import re
+from dataclasses import dataclass
+from typing import Any, Iterable, Mapping
+
+from .description import Limits
+from .materials import BROADENINGS, MATERIAL_KEYS
+
+ANY = object()
+"""Marks an ``unavailable`` entry that applies whatever the value is."""
+NO_VALUE = object()
+"""Marks a problem that has no value to show (a missing key)."""
+
+
+@dataclass(frozen=True)
+class Key:
+    """One config key.
+
+    Parameters
+    ----------
+    kind : str
+        "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
+        "material" (a built-in name or a table) or "ref" (a medium name or index).
+    meaning : str
+        What the key means, in a few words (used in the problem messages).
+    required : bool
+        The key must be given (where the table itself is given).
+    default : object
+        The value used when the key is absent (config units); None: no default.
+    gt, ge, lt, le : float or None
+        Bounds (config units): greater than, greater or equal, less than, less or equal.
+    nonzero : bool
+        Zero is not allowed (any sign otherwise).
+    zero_ok : bool
+        Zero is allowed besides the range ``ge .. le``.
+    choices : tuple of str
+        For strings: the allowed values.
+    unavailable : tuple of (value, message)
+        Values that are valid names but not available in this version (``ANY``: every value).
+    """
+
+    kind: str
+    meaning: str = ""
+    required: bool = False
+    default: Any = None
+    gt: float | None = None
+    ge: float | None = None
+    lt: float | None = None
+    le: float | None = None
+    nonzero: bool = False
+    zero_ok: bool = False
+    choices: tuple[str, ...] = ()
+    unavailable: tuple[tuple[Any, str], ...] = ()
+
+
+def number(meaning: str, **bounds: Any) -> Key:
+    """A float key (ints accepted); ``bounds`` are the other :class:`Key` fields."""
+    return Key("float", meaning, **bounds)
+
+
+def integer(meaning: str, low: int, high: int, **more: Any) -> Key:
+    """An integer key in ``low .. high``."""
+    return Key("int", meaning, ge=low, le=high, **more)
+
+
+def choice(meaning: str, choices: tuple[str, ...], **more: Any) -> Key:
+    """A string key that takes one of ``choices``."""
+    return Key("str", meaning, choices=choices, **more)
+
+
+def flag(meaning: str, **more: Any) -> Key:
+    """A boolean key."""
+    return Key("bool", meaning, **more)
+
+
+def text(meaning: str, **more: Any) -> Key:
+    """A free string key."""
+    return Key("str", meaning, **more)
+
+
+# ----------------------------------------------------------------------------------------------
+# The tables
+# ----------------------------------------------------------------------------------------------
+
+MODES = ("pulsed", "cw")
+TOP: dict[str, Key] = {
+    "title": text("a title for the run"),
+    "mode": choice("run mode", MODES, default="pulsed",
+                   unavailable=(("cw", 'CW mode is not available in this version; use mode = "pulsed"'),)),
+    "grid": Key("table", "the transverse window and time slicing", required=True),
+    "medium": Key("tables", "the gain media", required=True),
+    "seed": Key("table", "the input pulse", required=True),
+    "step": Key("tables", "the layout, step by step", required=True),
+    "limits": Key("table", "thresholds of the warnings"),
+    "sweep": Key("table", "values to sweep"),
+}
+SECTION_HINTS = {
+    "grid": "[grid] with width_mm (and optionally points, time_slices)",
+    "medium": "at least one [[medium]] with name, material, length_mm, diameter_mm and a gain specification",
+    "seed": "[seed] with energy_J, duration_ns and diameter_mm",
+    "step": 'at least one [[step]], e.g. kind = "pass", medium = "<name>"',
+}
+
+GRID: dict[str, Key] = {
+    "points": integer("transverse points per axis", 8, 4096, default=128),
+    "width_mm": number("full width of the square transverse window", gt=0, required=True),
+    "time_slices": integer("slices across the pulse", 1, 100000, default=64),
+    "diffraction": flag("split-step diffraction", default=False,
+                        unavailable=((True, "split-step diffraction is not available in this version; "
+                                            "set grid.diffraction = false"),)),
+}
+
+MEDIUM_KINDS = ("bulk", "fibre")
+GAIN_KEYS = ("small_signal_gain", "stored_energy_J", "pump")
+GAIN_NAMES = {"small_signal_gain": "small_signal_gain", "stored_energy_J": "stored_energy_J",
+              "pump": "[medium.pump]"}
+_DOPING = MATERIAL_KEYS["doping_per_m3"]
+MEDIUM: dict[str, Key] = {
+    "name": text("medium name (steps refer to it)"),
+    "kind": choice("medium kind", MEDIUM_KINDS, default="bulk",
+                   unavailable=(("fibre", 'fibre media are not available in this version; use kind = "bulk"'),)),
+    "material": Key("material", 'a built-in material name or a [medium.material] table', required=True),
+    "length_mm": number("length along the beam", gt=0, required=True),
+    "diameter_mm": number("clear-aperture diameter (round)", gt=0),
+    "width_mm": number("clear-aperture side (square)", gt=0),
+    "slices": integer("slices along z", 1, 100000, default=20),
+    "loss_per_cm": number("passive loss coefficient", ge=0, default=0.0),
+    "doping_per_m3": number("active-ion density", ge=_DOPING.low, le=_DOPING.high),
+    "small_signal_gain": number("single-pass small-signal gain G0", ge=1, lt=1e30),
+    "stored_energy_J": number("extractable stored energy", gt=0),
+    "pump": Key("table", "a pump description that builds the gain map"),
+}
+
+GEOMETRIES = ("end", "side")
+PUMP_PROFILES = ("flat", "gaussian", "supergaussian", "parabolic")
+PUMP: dict[str, Key] = {
+    "geometry": choice("pump geometry", GEOMETRIES, required=True),
+    "energy_J": number("pump energy in one pump pulse", gt=0),
+    "power_W": number("pump power during the pump pulse", gt=0),
+    "duration_us": number("pump pulse length", gt=0, required=True),
+    "wavelength_nm": number("pump wavelength", ge=150.0, le=20000.0),
+    "profile": choice("transverse pump profile", PUMP_PROFILES, default="flat"),
+    "diameter_mm": number("pumped diameter", gt=0),
+    "order": number("supergaussian order", ge=2, default=8.0),
+    "absorption_per_cm": number("pump absorption coefficient", gt=0),
+    "back_reflectance": number("end pumping: fraction of the transmitted pump sent back", ge=0, le=1),
+    "absorbed_fraction": number("side pumping: fraction of the pump absorbed", gt=0, le=1),
+    "transfer_efficiency": number("pump delivery efficiency", gt=0, le=1, default=1.0),
+    "quantum_efficiency": number("upper-state ions per absorbed pump photon", gt=0, le=1, default=1.0),
+}
+END_ONLY = ("back_reflectance", "absorption_per_cm")
+SIDE_ONLY = ("absorbed_fraction",)
+
+MATERIAL_TABLE: dict[str, Key] = {
+    key: number(spec.meaning, required=spec.required, ge=spec.low, le=spec.high, zero_ok=spec.allow_zero)
+    for key, spec in MATERIAL_KEYS.items()
+}
+MATERIAL_TABLE.update({
+    "name": text("material name"),
+    "broadening": choice("line broadening", BROADENINGS, default="homogeneous"),
+    "base": text("a built-in material to start from"),
+    "spectrum": Key("table", "cross-section spectra", unavailable=(
+        (ANY, "cross-section spectra are not available in this version; give emission_cross_section_cm2 "
+              "(and absorption_cross_section_cm2) at the lasing wavelength"),)),
+})
+
+PULSE_SHAPES = ("gaussian", "flat", "sech2")
+BEAM_PROFILES = ("gaussian", "flat", "supergaussian")
+DURATION_KEYS = ("duration_ns", "duration_ps", "duration_fs", "duration_us")
+PULSED_SEED_KEYS = ("energy_J", "shape") + DURATION_KEYS
+CW_SEED_KEYS = ("power_W",)
+SEED: dict[str, Key] = {
+    "wavelength_nm": number("seed wavelength", ge=150.0, le=20000.0),
+    "energy_J": number("pulse energy", gt=0),
+    "power_W": number("beam power", gt=0),
+    **{key: number("pulse duration (FWHM; full width for a flat pulse)", gt=0) for key in DURATION_KEYS},
+    "shape": choice("temporal pulse shape", PULSE_SHAPES, default="gaussian"),
+    "profile": choice("transverse profile", BEAM_PROFILES, default="gaussian"),
+    "order": number("supergaussian order", ge=2, default=8.0),
+    "diameter_mm": number("beam diameter 2w (1/e^2 intensity)", gt=0, required=True),
+}
+
+STEP_KIND_NAMES = ("pass", "loss", "aperture", "space", "lens")
+STEP_COMMON: dict[str, Key] = {
+    "kind": choice("step kind", STEP_KIND_NAMES, required=True),
+    "name": text("step name"),
+}
+_DAMAGE: dict[str, Key] = {
+    "damage_fluence_J_cm2": number("damage fluence of the optic", gt=0),
+    "damage_pulse_ns": number("pulse length the damage fluence was quoted at", gt=0),
+}
+APERTURE_SHAPES = ("round", "square")
+STEP_KINDS: dict[str, dict[str, Key]] = {
+    "pass": {
+        "medium": Key("ref", "the medium this step passes through", required=True),
+        "reverse": flag("traverse from the far end", default=False),
+    },
+    "loss": {
+        "transmission": number("power transmission", gt=0, le=1, required=True),
+        **_DAMAGE,
+    },
+    "aperture": {
+        "shape": choice("aperture shape", APERTURE_SHAPES),
+        "diameter_mm": number("aperture diameter (round)", gt=0),
+        "width_mm": number("aperture side (square)", gt=0),
+        **_DAMAGE,
+    },
+    "space": {"length_mm": number("free-space length", ge=0, required=True)},
+    "lens": {"focal_mm": number("focal length", nonzero=True, required=True)},
+}
+
+_LIMIT_MEANINGS = {
+    "damage_fraction": "warn above this fraction of the damage fluence",
+    "damage_scaling_exponent": "damage fluence scales as (pulse length)**exponent",
+    "b_integral_step_rad": "B-integral warning level per step",
+    "b_integral_total_rad": "B-integral warning level for the layout",
+    "clipped_fraction": "warn when an aperture clips more than this fraction",
+    "pixels_across_beam": "warn with fewer pixels across the beam",
+    "transverse_gain_length": "warn above this transverse gain-length product",
+}
+LIMITS: dict[str, Key] = {
+    f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)
+    for f in dataclasses.fields(Limits)
+}
+
+COMBINES = ("grid", "zip")
+SWEEP_COMBINE = choice("how the swept lists combine", COMBINES, default="grid")
+
+
+# ----------------------------------------------------------------------------------------------
+# Helpers shared by every problem message
+# ----------------------------------------------------------------------------------------------
+
+def show(value: Any, limit: int = 70) -> str:
+    """A value as it reads in a TOML file, shortened to about ``limit`` characters."""
+    if isinstance(value, bool):
+        out = "true" if value else "false"
+    elif isinstance(value, str):
+        out = json.dumps(value, ensure_ascii=False)
+    elif isinstance(value, float):
+        out = "nan" if math.isnan(value) else ("inf" if value > 0 else "-inf") if math.isinf(value) else repr(value)
+    elif isinstance(value, int):
+        out = str(value)
+    elif isinstance(value, dict):
+        items = [f"{k} = {show(v, 20)}" for k, v in list(value.items())[:4]]
+        out = "{" + ", ".join(items) + (", ...}" if len(value) > 4 else "}")
+    elif isinstance(value, list):
+        out = "[" + ", ".join(show(v, 20) for v in value[:5]) + (", ...]" if len(value) > 5 else "]")
+    elif value is None:
+        out = "nothing"
+    else:
+        out = str(value)
+    return out if len(out) <= limit else out[: limit - 3] + "..."
+
+
+def type_name(value: Any) -> str:
+    """'a string', 'an integer', ... for the problem messages."""
+    if isinstance(value, bool):
+        return "a boolean"
+    if isinstance(value, int):
+        return "an integer"
+    if isinstance(value, float):
+        return "a number"
+    if isinstance(value, str):
+        return "a string"
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, (datetime.date, datetime.time)):
+        return "a date/time"
+    if value is None:
+        return "nothing"
+    return f"a {type(value).__name__}"
+
+
+def quoted_list(names: Iterable[Any]) -> str:
+    """"'a', 'b' or 'c'"."""
+    names = [f"'{n}'" for n in names]
+    if len(names) <= 1:
+        return "".join(names)
+    return ", ".join(names[:-1]) + " or " + names[-1]
+
+
+def close_matches(word: Any, choices: Iterable[Any], n: int = 3) -> list[str]:
+    """The choices closest to ``word`` (case-insensitive), best first."""
+    lowered: dict[str, str] = {}
+    for c in choices:
+        lowered.setdefault(str(c).lower(), str(c))
+    hits = difflib.get_close_matches(str(word).lower(), list(lowered), n=n, cutoff=0.6)
+    return [lowered[h] for h in hits]
+
+
+def did_you_mean(word: Any, choices: Iterable[Any]) -> str:
+    """"; did you mean 'x'?" for the closest of ``choices``, or "" when none is close."""
+    hits = close_matches(word, choices)
+    return f"; did you mean {quoted_list(hits)}?" if hits else ""
+
+
+def _fmt(x: float) -> str:
+    return f"{x:g}"
+
+
+def rule(key: Key) -> str:
+    """The allowed values of a number key, in words: "> 0 and <= 1", "from 8 to 4096"."""
+    if key.ge is not None and key.le is not None:
+        text_ = f"from {_fmt(key.ge)} to {_fmt(key.le)}"
+    else:
+        parts = [f"{op} {_fmt(v)}" for op, v in ((">", key.gt), (">=", key.ge), ("<", key.lt), ("<=", key.le))
+                 if v is not None]
+        if key.gt is not None and key.le is not None and key.ge is None and key.lt is None:
+            parts = [f"> {_fmt(key.gt)} and <= {_fmt(key.le)}"]
+        text_ = " and ".join(parts)
+    if key.nonzero:
+        text_ = ("non-zero " + text_).strip()
+    if key.zero_ok:
+        text_ = "0 or " + text_
+    return text_
+
+
+def expected(key: Key) -> str:
+    """What a key takes, in words: "a number > 0", "an integer from 8 to 4096", "one of 'a', 'b'"."""
+    if key.kind == "float":
+        r = rule(key)
+        if key.nonzero and r == "non-zero":
+            return "a non-zero number"
+        return f"a number {r}".strip()
+    if key.kind == "int":
+        return f"an integer {rule(key)}".strip()
+    if key.kind == "bool":
+        return "true or false"
+    if key.kind == "str":
+        return "one of " + ", ".join(f"'{c}'" for c in key.choices) if key.choices else "a string"
+    if key.kind == "table":
+        return "a table"
+    if key.kind == "tables":
+        return "an array of tables"
+    if key.kind == "material":
+        return "a built-in material name (string) or a [medium.material] table"
+    if key.kind == "ref":
+        return "a medium name (string) or index (integer from 0)"
+    return key.kind
+
+
+def _unavailable(value: Any, key: Key) -> str | None:
+    for v, message in key.unavailable:
+        if v is ANY or (type(value) is type(v) and value == v):
+            return message
+    return None
+
+
+def _in_range(x: float, key: Key) -> bool:
+    if key.zero_ok and x == 0:
+        return True
+    return not ((key.gt is not None and not x > key.gt) or (key.ge is not None and not x >= key.ge)
+                or (key.lt is not None and not x < key.lt) or (key.le is not None and not x <= key.le)
+                or (key.nonzero and x == 0))
+
+
+def _looks_numeric(s: str) -> bool:
+    try:
+        float(s)
+    except ValueError:
+        return False
+    return True
+
+
+def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
+    """Check the type and range of one value.
+
+    Parameters
+    ----------
+    value : object
+        The value as read from the config.
+    key : Key
+        Its schema entry.
+
+    Returns
+    -------
+    (value, problem) : tuple
+        ``value`` normalised (ints given for floats become floats) and None, or (None, message)
+        where ``message`` says what is wrong and what is allowed.
+    """
+    kind = key.kind
+    if kind == "table" and (msg := _unavailable(value, key)):
+        return None, msg
+    want = expected(key)
+    if kind in ("float", "int"):
+        if isinstance(value, bool):
+            return None, f"must be {want}, not a boolean (true/false)"
+        if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
+            return None, f"must be {want}: write {int(value)}, without a decimal point"
+        ok_types = (int,) if kind == "int" else (int, float)
+        if not isinstance(value, ok_types):
+            hint = "; write the number without quotes" if isinstance(value, str) and _looks_numeric(value) else ""
+            return None, f"must be {want}, not {type_name(value)}{hint}"
+        if kind == "float":
+            value = float(value)
+            if not math.isfinite(value):
+                return None, f"must be {want}; nan and inf are not allowed"
+        if not _in_range(value, key):
+            return None, f"out of range: must be {want} ({key.meaning})"
+        return value, None
+    if kind == "bool":
+        if not isinstance(value, bool):
+            return None, f"must be true or false, not {type_name(value)}"
+    elif kind == "str":
+        if not isinstance(value, str):
+            return None, f"must be {want}, not {type_name(value)}"
+        if key.choices and value not in key.choices:
+            return None, f"must be {want}{did_you_mean(value, key.choices)}"
+    elif kind == "table":
+        if not isinstance(value, dict):
+            return None, f"must be a table, not {type_name(value)}"
+    elif kind == "material":
+        if not isinstance(value, (str, dict)):
+            return None, f"must be {want}, not {type_name(value)}"
+    elif kind == "ref":
+        if isinstance(value, bool) or not isinstance(value, (str, int)):
+            return None, f"must be {want}, not {type_name(value)}"
+    msg = _unavailable(value, key)
+    return (None, msg) if msg else (value, None)
+
+
+# ----------------------------------------------------------------------------------------------
+# Problems, tables and value paths
+# ----------------------------------------------------------------------------------------------
+
+class PathError(KeyError):
+    """A dotted value path that does not resolve; the message says why (with a "did you mean")."""
+
+    def __str__(self) -> str:
+        return str(self.args[0]) if self.args else ""
+
+
+class Problems:
+    """Collects problem lines for one source."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.lines: list[str] = []
+
+    def add(self, path: str, message: str, value: Any = NO_VALUE) -> None:
+        head = path if value is NO_VALUE else f"{path} = {show(value)}"
+        self.lines.append(f"{self.source}: {head}: {message}")
+
+    def __len__(self) -> int:
+        return len(self.lines)
+
+
+def join_path(path: str, key: Any) -> str:
+    """``path.key`` as shown in problems (a key that is not a bare TOML key is quoted)."""
+    key = str(key)
+    part = key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+    return f"{path}.{part}" if path else part
+
+
+def check_table(p: Problems, table: dict, path: str, schema: Mapping[str, Key], *,
+                 require: bool = True, skip: tuple = (), unknown=None) -> dict:
+    """Check every key of ``table`` against ``schema``, adding a problem for each bad one.
+
+    Parameters
+    ----------
+    p : Problems
+        Where the problems go.
+    table : dict
+        The table as read.
+    path : str
+        Its key path in the problem lines (``medium[0] (rod)``).
+    schema : mapping of str -> Key
+        The allowed keys.
+    require : bool
+        Report missing required keys (False: a base supplies them).
+    skip : tuple of str
+        Keys checked elsewhere.
+    unknown : callable or None
+        ``unknown(key) -> message`` for a key not in ``schema`` (default: "did you mean").
+
+    Returns
+    -------
+    dict
+        The good values (config units; ints for floats made floats) plus the defaults of the
+        absent keys.
+    """
+    out: dict[str, Any] = {}
+    for key, value in table.items():
+        if key in skip:
+            continue
+        spec = schema.get(key)
+        if spec is None:
+            message = unknown(key) if unknown else f"unknown key{did_you_mean(key, schema) or allowed_keys(schema)}"
+            p.add(join_path(path, key), message, value)
+            continue
+        good, message = check_value(value, spec)
+        if message:
+            p.add(join_path(path, key), message, value)
+        else:
+            out[key] = good
+    for key, spec in schema.items():
+        if key not in table and key not in skip:
+            if spec.required and require:
+                p.add(join_path(path, key), f"missing: {spec.meaning}, {expected(spec)}")
+            elif spec.default is not None:
+                out[key] = spec.default
+    return out
+
+
+def allowed_keys(schema: Mapping[str, Any]) -> str:
+    """"; keys: a, b, c" for an unknown key with no close match."""
+    return "; keys: " + ", ".join(schema)
+
+
+def array_of_tables(p: Problems, raw: dict, key: str) -> list | None:
+    """The array of tables under ``key``, or None (with a problem) when it is missing or malformed."""
+    if key not in raw:
+        p.add(key, f"missing: give {SECTION_HINTS[key]}")
+        return None
+    items = raw[key]
+    if isinstance(items, dict):
+        p.add(key, f"must be an array of tables: write [[{key}]] (double brackets) for each {key}", items)
+        return None
+    if not isinstance(items, list) or not items:
+        p.add(key, f"must be a non-empty array of tables: give {SECTION_HINTS[key]}", items)
+        return None
+    bad = [i for i, item in enumerate(items) if not isinstance(item, dict)]
+    for i in bad:
+        p.add(f"{key}[{i}]", f"must be a table ([[{key}]]), not {type_name(items[i])}", items[i])
+    return items
+
+
+def split_path(path: str) -> list[str]:
+    """Split a dotted value path; parts in double quotes may hold dots (``sweep."seed.energy_J"``)."""
+    parts, buf, quoted, was_quoted = [], "", False, False
+    for ch in path:
+        if ch == '"':
+            quoted, was_quoted = not quoted, True
+        elif ch == "." and not quoted:
+            parts.append((buf, was_quoted))
+            buf, was_quoted = "", False
+        else:
+            buf += ch
+    parts.append((buf, was_quoted))
+    if quoted:
+        raise PathError(f"unbalanced quote in {path!r}")
+    segs = [p if q else p.strip() for p, q in parts]
+    if any(not s for s, (_, q) in zip(segs, parts) if not q):
+        raise PathError(f"empty part in {path!r}; write the path like medium.rod.length_mm")
+    return segs
+
+
+def item_names(items: list, list_key: Any) -> list[str]:
+    """The names of the tables in an array of tables (media without a name: ``medium<i>``)."""
+    names = []
+    for i, item in enumerate(items):
+        name = item.get("name") if isinstance(item, dict) else None
+        names.append(name if isinstance(name, str) else (f"medium{i}" if list_key == "medium" else ""))
+    return names
+
+
+def select_item(items: list, seg: str, list_key: Any, where: str) -> int:
+    """The index of the item named ``seg`` (a name first, then a plain index)."""
+    if not items:
+        raise PathError(f"{where} is empty")
+    names = item_names(items, list_key)
+    if seg in names:
+        return names.index(seg)
+    if seg.isdigit() and int(seg) < len(items):
+        return int(seg)
+    named = [n for n in names if n]
+    listing = f"; names: {', '.join(named)}" if named else ""
+    raise PathError(f"no item '{seg}' in {where} (indices 0 to {len(items) - 1}{listing})"
+                    f"{did_you_mean(seg, named)}")
+
+
+def walk(raw: dict, path: str, create: frozenset = frozenset()) -> tuple[Any, Any, list]:
+    """Follow a dotted value path through a config dict.
+
+    Parameters
+    ----------
+    raw : dict
+        The config as read.
+    path : str
+        Dotted path, media and steps by name or index.
+    create : frozenset of str
+        Table names that are created (empty) where the path runs through one that is absent.
+
+    Returns
+    -------
+    (container, key, trail) : tuple
+        ``container[key]`` is the value named; ``trail`` the keys and list indices on the way.
+
+    Raises
+    ------
+    PathError
+        When a part does not resolve.
+    """
+    segs = split_path(path)
+    node: Any = raw
+    trail: list = []
+    for n, seg in enumerate(segs):
+        last = n == len(segs) - 1
+        where = ".".join(str(t) for t in trail) or "the top level"
+        if isinstance(node, dict):
+            if last:
+                return node, seg, trail + [seg]
+            if seg not in node:
+                if seg in create:
+                    node[seg] = {}
+                else:
+                    raise PathError(f"no key '{seg}' in {where}{did_you_mean(seg, node)}")
+            child = node[seg]
+            if not isinstance(child, (dict, list)):
+                raise PathError(f"{join_path(where if trail else '', seg)} is {show(child)}, not a table")
+            node = child
+            trail.append(seg)
+        elif isinstance(node, list):
+            idx = select_item(node, seg, trail[-1] if trail else None, where)
+            if last:
+                return node, idx, trail + [idx]
+            node = node[idx]
+            trail.append(idx)
+        else:
+            raise PathError(f"{where} is {show(node)}, not a table")
+    raise PathError(f"cannot resolve {path!r}")  # pragma: no cover - the loop always returns
+
+
+def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
+    """The schema table the last key of a resolved value path belongs to (None: not a value path)."""
+    sections = {"grid": GRID, "seed": SEED, "limits": LIMITS}
+    if len(trail) == 1:
+        return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
+    if len(trail) == 2 and trail[0] in sections:
+        return sections[trail[0]]
+    if trail[0] == "medium" and len(trail) == 3 and isinstance(trail[1], int):
+        return {k: s for k, s in MEDIUM.items() if k != "pump"}
+    if trail[0] == "medium" and len(trail) == 4 and trail[2] in ("pump", "material"):
+        return PUMP if trail[2] == "pump" else {k: s for k, s in MATERIAL_TABLE.items() if k != "spectrum"}
+    if trail[0] == "step" and len(trail) == 3 and isinstance(trail[1], int):
+        kind = raw["step"][trail[1]].get("kind")
+        return {**STEP_COMMON, **STEP_KINDS.get(kind, {})} if isinstance(kind, str) else None
+    return None
