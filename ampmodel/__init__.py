@@ -15,7 +15,7 @@ def __getattr__(name: str):
         from . import config
         return getattr(config, name)
     if name == "simulate":
-        from .simulate import simulate
+        from .solver import simulate
         return simulate
     if name == "Result":
         from .results import Result

@@ -107,7 +107,7 @@ def _print_table(summary: dict) -> None:
 
 
 def cmd_run(args) -> int:
-    from .simulate import simulate
+    from .solver import simulate
     from .diagnostics import SAFETY_NOTE
     config = _load(args.config, args.overrides)
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem

@@ -1,7 +1,7 @@
 """The validated model description: frozen dataclasses, every quantity SI.
 
 ``config.py`` builds these from a TOML file (or a dict) after checking every key; everything
-downstream (pumping, beams, simulate, diagnostics, results) reads only these objects.
+downstream (pumping, beams, solver, diagnostics, results) reads only these objects.
 """
 from __future__ import annotations
 

@@ -60,6 +60,27 @@ def on_axis_gain(gain_per_m: np.ndarray, slice_length_m: float) -> float:
     return float(np.exp(ln_g[np.ix_(ys, xs)].mean()))
 
 
+def pump_absorption_per_m(pump: Pump, medium: Medium) -> float:
+    """Small-signal pump absorption coefficient (1/m) of an end-pumped medium.
+
+    In order: the pump's own ``absorption_per_m``; sigma_a,p·Nt when the medium overrides the doping
+    and the material gives the pump cross-section; the material's coefficient at its typical doping,
+    scaled to the medium's doping when that is given.
+    """
+    mat = medium.material
+    if pump.absorption_per_m is not None:
+        return pump.absorption_per_m
+    if medium.doping_per_m3 is not None and mat.pump_absorption_cross_section_m2:
+        return mat.pump_absorption_cross_section_m2 * medium.doping_per_m3
+    if mat.pump_absorption_per_m is not None:
+        if medium.doping_per_m3 is not None and mat.doping_per_m3:
+            return mat.pump_absorption_per_m * medium.doping_per_m3 / mat.doping_per_m3
+        return mat.pump_absorption_per_m
+    if mat.pump_absorption_cross_section_m2 and mat.doping_per_m3:
+        return mat.pump_absorption_cross_section_m2 * mat.doping_per_m3
+    raise ValueError(f"medium {medium.name!r}: no pump absorption coefficient is known")
+
+
 def _pump_absorbed_density(pump: Pump, medium: Medium, x_m: np.ndarray, y_m: np.ndarray,
                            mask: np.ndarray, z_edges_m: np.ndarray) -> np.ndarray:
     """(Nz, Ny, Nx) absorbed pump energy density (J/m³), slice-integrated exactly."""
@@ -72,8 +93,7 @@ def _pump_absorbed_density(pump: Pump, medium: Medium, x_m: np.ndarray, y_m: np.
         # Pump profile normalised on the grid (pump outside the clear aperture is lost).
         areal = profile / (profile.sum() * pixel_area)            # 1/m²
         areal = np.where(mask, areal, 0.0)
-        alpha = pump.absorption_per_m if pump.absorption_per_m is not None \
-            else medium.material.pump_absorption_per_m
+        alpha = pump_absorption_per_m(pump, medium)
         length = medium.length_m
         forward = np.exp(-alpha * z_edges_m)
         frac = forward[:-1] - forward[1:]                          # absorbed on the first pass

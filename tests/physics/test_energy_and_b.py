@@ -22,7 +22,7 @@ from scipy.integrate import solve_ivp
 
 from ampmodel import pumping
 from ampmodel.description import Pump, Seed
-from ampmodel.simulate import simulate
+from ampmodel.solver import simulate
 
 from physics_reference import (aperture_step, disc, loss_step, make_config, make_material, make_medium,
                                pass_step, photon_energy, radius)

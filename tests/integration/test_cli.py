@@ -1,0 +1,141 @@
+"""The command line end to end: run, check, media, --set, no overwriting, the example configs."""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+CONFIGS = sorted((ROOT / "configs").glob("*.toml"))
+SMALL = ["--set", "grid.points=32", "--set", "grid.time_slices=12"]
+
+
+def ampmodel(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "ampmodel", *args], capture_output=True, text=True,
+                          cwd=cwd or ROOT, timeout=300)
+
+
+def assert_output_contract(out: Path) -> dict:
+    """The run folder holds SPEC section 4's files, keys, datasets and units attributes."""
+    summary = json.loads((out / "summary.json").read_text())
+    for key in ("mode", "input_energy_J", "output_energy_J", "stored_energy_J", "stored_energy_final_J",
+                "extraction_efficiency", "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad",
+                "energy_balance_error", "warnings", "steps"):
+        assert key in summary, key
+    for step in summary["steps"]:
+        for key in ("index", "kind", "energy_in_J", "energy_out_J", "gain", "peak_fluence_J_cm2",
+                    "b_integral_rad"):
+            assert key in step, (step["index"], key)
+    with h5py.File(out / "result.h5", "r") as f:
+        for attr in ("software_version", "config", "mode", "created_utc"):
+            assert attr in f.attrs
+        for path in ("grid/x", "grid/y", "grid/t", "seed/fluence", "seed/power"):
+            assert path in f
+        assert len(f["steps"]) == len(summary["steps"])
+        for name in f["steps"]:
+            assert f"steps/{name}/fluence" in f and f"steps/{name}/power" in f
+        for name in f["media"]:
+            for attr in ("slice_length", "saturation_fluence", "saturation_intensity"):
+                assert attr in f[f"media/{name}/gain_initial"].attrs
+        missing = []
+        f.visititems(lambda p, o: missing.append(p) if isinstance(o, h5py.Dataset) and "units" not in o.attrs else None)
+        assert not missing, missing
+        # summary.json agrees with the fields in the file
+        x = f["grid/x"][()]
+        area = (x[1] - x[0]) ** 2
+        last = sorted(f["steps"])[-1]
+        assert summary["output_energy_J"] == pytest.approx(f[f"steps/{last}/fluence"][()].sum() * area, rel=1e-12)
+    assert list((out / "plots").glob("*.png"))
+    return summary
+
+
+def test_help_lists_the_commands():
+    proc = ampmodel("--help")
+    assert proc.returncode == 0
+    for word in ("run", "check", "media"):
+        assert word in proc.stdout
+
+
+def test_media_prints_every_material_with_sources():
+    proc = ampmodel("media")
+    assert proc.returncode == 0, proc.stderr
+    for name in ("Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
+                 "Ti:sapphire", "Cr:LiSAF", "alexandrite"):
+        assert name in proc.stdout
+    assert "source" in proc.stdout.lower()
+
+
+@pytest.mark.parametrize("config", CONFIGS, ids=[c.stem for c in CONFIGS])
+def test_example_configs_check_and_run(config, tmp_path):
+    check = ampmodel("check", str(config))
+    assert check.returncode == 0, check.stderr
+    assert "small-signal gain" in check.stdout
+    out = tmp_path / "out"
+    proc = ampmodel("run", str(config), "--out", str(out), *SMALL)
+    assert proc.returncode == 0, proc.stderr
+    assert "Laser safety" in proc.stdout
+    summary = assert_output_contract(out)
+    assert abs(summary["energy_balance_error"]) < 1e-9
+    assert summary["output_energy_J"] > summary["input_energy_J"]
+
+
+def test_near_damage_example_warns(tmp_path):
+    proc = ampmodel("run", str(ROOT / "configs" / "double_pass_side_pumped.toml"), "--out", str(tmp_path / "o"),
+                    "--no-plots", *SMALL)
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert any("damage fluence" in w for w in summary["warnings"]), summary["warnings"]
+    assert "damage fluence" in proc.stdout
+
+
+def test_a_run_never_overwrites_another(tmp_path):
+    config = ROOT / "configs" / "single_pass_rod.toml"
+    outs = []
+    for _ in range(3):
+        proc = ampmodel("run", str(config), "--no-plots", *SMALL, cwd=tmp_path)
+        assert proc.returncode == 0, proc.stderr
+        outs.append(proc.stdout)
+    names = sorted(p.name for p in (tmp_path / "runs").iterdir())
+    assert names == ["single_pass_rod", "single_pass_rod-2", "single_pass_rod-3"]
+    assert not list((tmp_path / "runs").glob(".*partial"))
+
+
+def test_set_changes_the_run_and_is_recorded(tmp_path):
+    config = ROOT / "configs" / "single_pass_rod.toml"
+    a, b = tmp_path / "a", tmp_path / "b"
+    assert ampmodel("run", str(config), "--out", str(a), "--no-plots", *SMALL).returncode == 0
+    proc = ampmodel("run", str(config), "--out", str(b), "--no-plots", *SMALL, "--set", "seed.energy_J=0.002")
+    assert proc.returncode == 0, proc.stderr
+    sa = json.loads((a / "summary.json").read_text())
+    sb = json.loads((b / "summary.json").read_text())
+    assert sa["input_energy_J"] == pytest.approx(0.020, rel=1e-12)
+    assert sb["input_energy_J"] == pytest.approx(0.002, rel=1e-12)
+    assert sb["gain"] > sa["gain"]          # less saturation at lower input
+    with h5py.File(b / "result.h5", "r") as f:
+        assert "0.002" in f.attrs["config"]
+
+
+def test_api_matches_the_command_line(tmp_path):
+    import ampmodel as api
+    config = api.load_config(ROOT / "configs" / "single_pass_rod.toml", SMALL[1::2])
+    result = api.simulate(config)
+    result.save(tmp_path / "api", plots=False)
+    assert ampmodel("run", str(ROOT / "configs" / "single_pass_rod.toml"), "--out", str(tmp_path / "cli"),
+                    "--no-plots", *SMALL).returncode == 0
+    cli = json.loads((tmp_path / "cli" / "summary.json").read_text())
+    assert result.summary["output_energy_J"] == pytest.approx(cli["output_energy_J"], rel=1e-12)
+    with h5py.File(tmp_path / "api" / "result.h5", "r") as f:
+        assert np.allclose(f["seed/fluence"][()], result.seed_fluence_J_m2)
+
+
+def test_missing_config_file_is_bad_input(tmp_path):
+    proc = ampmodel("run", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "o"))
+    assert proc.returncode == 2
+    assert "no such config file" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert not (tmp_path / "o").exists()
