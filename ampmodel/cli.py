@@ -136,9 +136,13 @@ def cmd_run(args) -> int:
 
 def cmd_check(args) -> int:
     from . import beams, pumping
+    from .solver import check_memory
     config = _load(args.config, args.overrides)
+    need = check_memory(config)
     x = beams.pixel_centres(config.grid.points, config.grid.width_m)
-    print(f"{args.config}: valid ({len(config.media)} medium/media, {len(config.steps)} steps, mode {config.mode})")
+    nm = len(config.media)
+    print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {len(config.steps)} steps, mode {config.mode}, "
+          f"about {_fmt(need, 'B')} of arrays)")
     for m in config.media:
         gm = pumping.gain_map(m, x, x)
         stored = pumping.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,

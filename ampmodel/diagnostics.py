@@ -134,6 +134,10 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     if pixels < limits.pixels_across_beam:
         warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
                         f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
+    edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
+    if edge > 1e-3 * seed_map.max():
+        warnings.append(f"grid: the seed reaches the edge of the {config.grid.width_m * 1e3:g} mm window "
+                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
     if seed.shape != "flat" and config.grid.time_slices < 16:
         warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
                         f"coarsely; 16 or more are advised for the output pulse shape")

@@ -22,6 +22,42 @@ def _progress(total: int, enabled: bool | None):
     return tqdm(total=total, unit="slice", desc="amplifying", leave=False)
 
 
+def memory_estimate_bytes(config: Config) -> int:
+    """Bytes the arrays of a run need at their peak (float64): the beam's fluence and B-integral per
+    time slice with one working copy and the kernel's temporaries, each medium's gain three times
+    (working, initial, final), and one map per step for the records."""
+    pixels = config.grid.points ** 2
+    beam = 5 * config.grid.time_slices * pixels
+    media = sum(3 * m.slices * pixels for m in config.media)
+    records = 2 * len(config.steps) * pixels
+    return 8 * (beam + media + records)
+
+
+def available_memory_bytes() -> int | None:
+    """Memory available to a new allocation (Linux /proc/meminfo MemAvailable), or None if unknown."""
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        return None
+    return None
+
+
+def check_memory(config: Config) -> int:
+    """Refuse, before allocating, a run whose arrays would not fit in the available memory.
+
+    Returns the estimate in bytes; raises ConfigError (bad input, exit 2) naming the grid keys."""
+    need, have = memory_estimate_bytes(config), available_memory_bytes()
+    if have is not None and need > 0.8 * have:
+        from .config import ConfigError
+        raise ConfigError([f"{config.source}: grid: the run needs about {need / 2**30:.1f} GiB of arrays but "
+                           f"{have / 2**30:.1f} GiB are available; lower grid.points, grid.time_slices or "
+                           f"the media's slices"])
+    return need
+
+
 def simulate(config: Config, progress: bool | None = False) -> Result:
     """Run a validated configuration and return its Result (nothing is written).
 
@@ -33,6 +69,7 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     if config.mode != "pulsed":
         raise NotImplementedError(f"mode {config.mode!r} is not available in this version")
     grid, seed = config.grid, config.seed
+    check_memory(config)
     x = beams.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
     t, weights, dt = beams.time_slices(seed.shape, seed.duration_s, grid.time_slices)

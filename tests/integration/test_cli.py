@@ -139,3 +139,23 @@ def test_missing_config_file_is_bad_input(tmp_path):
     assert "no such config file" in proc.stderr
     assert "Traceback" not in proc.stderr
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_a_grid_too_large_for_memory_is_refused_before_allocating(command, tmp_path):
+    config = ROOT / "configs" / "single_pass_rod.toml"
+    extra = ["--out", str(tmp_path / "o")] if command == "run" else []
+    proc = ampmodel(command, str(config), *extra, "--set", "grid.points=4096", "--set", "grid.time_slices=4096")
+    assert proc.returncode == 2
+    assert "grid" in proc.stderr and "GiB" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert not (tmp_path / "o").exists()
+
+
+def test_seed_cut_by_the_window_warns(tmp_path):
+    config = ROOT / "configs" / "single_pass_rod.toml"
+    proc = ampmodel("run", str(config), "--out", str(tmp_path / "o"), "--no-plots", *SMALL,
+                    "--set", "grid.width_mm=5.0")
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert any("edge of the 5 mm window" in w for w in summary["warnings"]), summary["warnings"]
