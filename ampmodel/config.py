@@ -394,7 +394,8 @@ def _medium(p: Problems, item: dict, path: str, name: str) -> Medium | None:
                     "[medium.pump]")
     pump = None
     if isinstance(item.get("pump"), dict):
-        pump = _pump(p, item["pump"], join_path(path, "pump"), material)
+        doping = item.get("doping_per_m3") if isinstance(item.get("doping_per_m3"), (int, float)) else None
+        pump = _pump(p, item["pump"], join_path(path, "pump"), material, doping)
     if len(p) > before or material is None:
         return None
     return Medium(
@@ -465,7 +466,8 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
                                 sources={k: f"run config ({p.source})" for k in given})
 
 
-def _pump(p: Problems, table: dict, path: str, material: Material | None) -> Pump | None:
+def _pump(p: Problems, table: dict, path: str, material: Material | None,
+          doping_per_m3: float | None = None) -> Pump | None:
     """A [medium.pump] table; defaults from the material (pump wavelength, absorption)."""
     before = len(p)
     v = check_table(p, table, path, S.PUMP)
@@ -495,10 +497,16 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None) -> Pum
     if wavelength_nm is not None and material is not None and wavelength_nm >= material.wavelength_m / 1e-9:
         p.add(join_path(path, "wavelength_nm"), f"the pump wavelength must be shorter than the lasing "
                                                 f"wavelength ({material.wavelength_m / 1e-9:g} nm)", wavelength_nm)
+    density = doping_per_m3 or (material.doping_per_m3 if material is not None else None)
     if geometry == "end" and "absorption_per_cm" not in table and material is not None:
-        if material.pump_absorption_per_m is None:
+        from_cross_section = material.pump_absorption_cross_section_m2 and density
+        if material.pump_absorption_per_m is None and not from_cross_section:
             p.add(join_path(path, "absorption_per_cm"), f"missing: material '{material.name}' gives no pump "
                                                         "absorption; give absorption_per_cm for end pumping")
+    if material is not None and material.quasi_three_level and not density:
+        p.add(join_path(path.rsplit(".", 1)[0], "doping_per_m3"),
+              f"missing: a pumped quasi-three-level medium needs its ion density and material "
+              f"'{material.name}' gives none; give doping_per_m3 in the medium or the material")
     if len(p) > before or material is None:
         return None
     duration_s = to_si("duration_us", v["duration_us"])

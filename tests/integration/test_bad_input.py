@@ -58,6 +58,8 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_parabolic_end.toml": (['medium[0] (rod).pump.profile = "parabolic"', "side pumping only"], 1),
     "bad_float_for_int.toml": (["grid.points = 128.0: must be an integer", "write 128"], 1),
     "bad_sweep_path.toml": (['sweep."seed.energi_J"', "did you mean 'seed.energy_J'?"], 1),
+    "bad_pump_quasi_three_level_no_doping.toml": (["medium[0] (c).doping_per_m3: missing",
+                                                   "needs its ion density"], 1),
     "bad_many_problems.toml": (['titel = "broken"', "grid.points = 4", "medium[0] (rod).length_mm = -1.0",
                                 "medium[0] (rod).material.refractive_index = 0.5", 'seed.energy_J = "ten"',
                                 'seed.shape = "square"', "step[1].transmission = 0.0"], 7),
