@@ -127,7 +127,6 @@ def gain_map(medium: Medium, x_m: np.ndarray, y_m: np.ndarray) -> GainMap:
     nz = medium.slices
     dz = medium.length_m / nz
     mask = beams.aperture_mask(x_m, y_m, medium.aperture, medium.diameter_m)
-    shape = (nz, len(y_m), len(x_m))
     pixel_area = (x_m[1] - x_m[0]) * (y_m[1] - y_m[0])
     if medium.small_signal_gain is not None:
         g0 = np.log(medium.small_signal_gain) / medium.length_m

@@ -5,18 +5,14 @@ line (``check`` and ``run``: exit code 2, the same lines on stderr, no traceback
 """
 from __future__ import annotations
 
-import difflib
 import os
 import subprocess
 import sys
-import types
 from pathlib import Path
 
 import pytest
 
-import ampmodel.materials
 from ampmodel.config import ConfigError, load_config
-from ampmodel.materials import material_from_values
 
 ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "tests" / "data"
@@ -68,26 +64,11 @@ CASES: dict[str, tuple[list[str], int]] = {
 }
 FILES = sorted(CASES)
 
-_FALLBACK = {
-    "Nd:YAG": dict(wavelength_nm=1064.0, emission_cross_section_cm2=2.8e-19, upper_lifetime_us=230.0,
-                   refractive_index=1.82),
-}
-
-
 @pytest.fixture
-def registry(monkeypatch):
-    """The built-in materials; a one-material stand-in where the registry is not installed."""
-    try:
-        from ampmodel.materials import registry as real
-        return real
-    except ImportError:
-        fake = types.ModuleType("ampmodel.materials.registry")
-        fake.names = lambda: list(_FALLBACK)
-        fake.get = lambda name: material_from_values(_FALLBACK[name], name)
-        fake.closest = lambda name: difflib.get_close_matches(name, list(_FALLBACK), 3, 0.5)
-        monkeypatch.setitem(sys.modules, "ampmodel.materials.registry", fake)
-        monkeypatch.setattr(ampmodel.materials, "registry", fake, raising=False)
-        return fake
+def registry():
+    """The built-in materials."""
+    from ampmodel.materials import registry as real
+    return real
 
 
 def test_enough_broken_configs_are_covered():

@@ -2,43 +2,26 @@
 from __future__ import annotations
 
 import copy
-import difflib
 import math
-import sys
-import tomllib
-import types
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python < 3.11
+    import tomli as tomllib
 from pathlib import Path
 
 import pytest
 
-import ampmodel.materials
 from ampmodel.config import ConfigError, PathError, apply_overrides, dump_toml, load_config, resolve_path
 from ampmodel.description import Limits
-from ampmodel.materials import material_from_values
 
 ROOT = Path(__file__).resolve().parents[2]
 GOOD = ROOT / "tests" / "data" / "good_minimal.toml"
 
-_FALLBACK = {
-    "Nd:YAG": dict(wavelength_nm=1064.0, emission_cross_section_cm2=2.8e-19, upper_lifetime_us=230.0,
-                   refractive_index=1.82, pump_wavelength_nm=808.0, pump_absorption_per_cm=4.0),
-}
-
-
 @pytest.fixture
-def registry(monkeypatch):
-    """The built-in materials; a one-material stand-in where the registry is not installed."""
-    try:
-        from ampmodel.materials import registry as real
-        return real
-    except ImportError:
-        fake = types.ModuleType("ampmodel.materials.registry")
-        fake.names = lambda: list(_FALLBACK)
-        fake.get = lambda name: material_from_values(_FALLBACK[name], name)
-        fake.closest = lambda name: difflib.get_close_matches(name, list(_FALLBACK), 3, 0.5)
-        monkeypatch.setitem(sys.modules, "ampmodel.materials.registry", fake)
-        monkeypatch.setattr(ampmodel.materials, "registry", fake, raising=False)
-        return fake
+def registry():
+    """The built-in materials."""
+    from ampmodel.materials import registry as real
+    return real
 
 
 def good() -> dict:
