@@ -53,7 +53,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     warnings: list[str] = []
 
     media_summary = []
-    stored_before = stored_after = extracted = 0.0
+    stored_before = stored_after = 0.0
     for m in config.media:
         rec = media[m.name]
         voxel = rec.slice_length_m * pixel_area
@@ -61,7 +61,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         s1 = pumping.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
         # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
         ext = float(rec.saturation_fluence_J_m2 * voxel * (rec.gain_initial_per_m - rec.gain_final_per_m).sum())
-        stored_before, stored_after, extracted = stored_before + s0, stored_after + s1, extracted + ext
+        stored_before, stored_after = stored_before + s0, stored_after + s1
         g0_axis = pumping.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
         entry = {"name": m.name, "material": m.material.name,
                  "small_signal_gain_on_axis": g0_axis,
@@ -99,7 +99,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                  "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
                  "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
                  "b_integral_rad": oc.b_integral_step_rad,
-                 "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J}
+                 "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
+                 "extracted_energy_J": oc.extracted_J}
         if step.kind == "pass":
             entry["reverse"] = step.reverse
         steps.append(entry)
@@ -142,7 +143,11 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
                         f"coarsely; 16 or more are advised for the output pulse shape")
 
-    balance = (e_in + extracted - e_out - lost) / e_out if e_out > 0 else 0.0
+    # The balance uses the energy each pass took from its gain, summed from the beam (exact FN
+    # bookkeeping, precise relative to the beam energy); the media's gain-map differences give the
+    # same figure to round-off relative to the stored energy.
+    gained = sum(oc.extracted_J for oc in outcomes)
+    balance = (e_in + gained - e_out - lost) / e_out if e_out > 0 else 0.0
     return {
         "mode": "pulsed",
         "title": config.title,
@@ -151,7 +156,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         "gain": e_out / e_in if e_in > 0 else 0.0,
         "stored_energy_J": stored_before,
         "stored_energy_final_J": stored_after,
-        "extracted_energy_J": extracted,
+        "extracted_energy_J": gained,
         "extraction_efficiency": (e_out - e_in) / stored_before if stored_before > 0 else 0.0,
         "lost_energy_J": lost,
         "peak_fluence_J_cm2": peak_fluence * J_CM2,

@@ -64,6 +64,7 @@ class StepOutcome:
     energy_out_J: float
     clipped_J: float = 0.0
     passive_loss_J: float = 0.0
+    extracted_J: float = 0.0          # energy the gain gave the beam (negative where it absorbed)
     peak_fluence_J_m2: float = 0.0
     peak_intensity_W_m2: float = 0.0
     b_integral_step_rad: float = 0.0
@@ -119,19 +120,20 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
     passive = 0.0
     peak_f, peak_i = _peaks(beam)
     order = range(medium.ln_gain.shape[0] - 1, -1, -1) if reverse else range(medium.ln_gain.shape[0])
+    gained = 0.0
     for k in order:
         before = fluence.copy() if b_coef > 0.0 else None
         if half_loss != 1.0:
-            e0 = fluence.sum()
             fluence *= half_loss
-            passive += e0 * (1.0 - half_loss)
+        e_a = fluence.sum()
         ln_gain = medium.ln_gain[k]
         for t in range(fluence.shape[0]):
             fn_slice(fluence[t], ln_gain, fsat, out=fluence[t])
+        e_b = fluence.sum()
+        gained += e_b - e_a        # what the gain gave (or, absorbing, took): exact FN bookkeeping
         if half_loss != 1.0:
-            e0 = fluence.sum()
+            passive += e_a * (1.0 / half_loss - 1.0) + e_b * (1.0 - half_loss)
             fluence *= half_loss
-            passive += e0 * (1.0 - half_loss)
         if before is not None:
             beam.b_integral += b_coef * _log_mean(before, fluence)
         f, i = _peaks(beam)
@@ -139,8 +141,10 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
         if tick is not None:
             tick()
     b_step = float((beam.b_integral - b_start).max()) if b_start is not None else 0.0
-    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, passive_loss_J=passive * beam.pixel_area_m2,
-                       peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i, b_integral_step_rad=b_step)
+    area = beam.pixel_area_m2
+    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, passive_loss_J=passive * area,
+                       extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
+                       b_integral_step_rad=b_step)
 
 
 def apply_loss(beam: BeamState, step: Step) -> StepOutcome:
