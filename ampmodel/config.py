@@ -30,6 +30,7 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 import tomli_w
 
+from . import config_cw
 from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
                             expected, item_names, join_path, leaf_schema, quoted_list, walk)
@@ -40,7 +41,7 @@ from .units import si_name, to_si
 __all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolve_path", "dump_toml"]
 
 # Tables that a --set may create when its path runs through one that is not there yet.
-_CREATABLE = frozenset({"grid", "seed", "limits", "sweep", "pump", "material"})
+_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "pump", "material"})
 
 
 class ConfigError(Exception):
@@ -301,20 +302,20 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
 
 def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     """Check the whole config; return the Config (text, source, raw not yet set) or None with problems."""
-    top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "sweep"))
-    for key in ("grid", "seed", "limits", "sweep"):
+    top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "solver", "sweep"))
+    for key in ("grid", "seed", "limits", "solver", "sweep"):
         if key in raw and not isinstance(raw[key], dict):
             p.add(key, f"must be a table [{key}], not {S.type_name(raw[key])}", raw[key])
     for key in ("grid", "seed"):
         if key not in raw:
             p.add(key, f"missing section [{key}]: give {S.SECTION_HINTS[key]}")
     mode = top.get("mode")
-    if raw.get("mode") == "cw":
-        mode = "cw"  # not available in this version, but the seed is still checked as a cw seed
     grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) else None
-    media, names = _media(p, raw)
+    config_cw.grid_keys(p, raw, mode)
+    media, names = _media(p, raw, mode)
     seed = _seed(p, raw["seed"], mode, media) if isinstance(raw.get("seed"), dict) else None
-    steps = _steps(p, raw, names)
+    steps = _steps(p, raw, names, mode)
+    solver = config_cw.solver(p, raw, mode)
     limits = Limits(**check_table(p, raw["limits"], "limits", S.LIMITS)) \
         if isinstance(raw.get("limits"), dict) else Limits()
     if isinstance(raw.get("sweep"), dict):
@@ -322,7 +323,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     return Config(title=top.get("title", default_title), mode=mode, grid=grid, media=tuple(media),
-                  seed=seed, steps=tuple(steps), limits=limits)
+                  seed=seed, steps=tuple(steps), limits=limits, solver=solver)
 
 
 def _grid(p: Problems, table: dict) -> Grid | None:
@@ -337,7 +338,7 @@ def _grid(p: Problems, table: dict) -> Grid | None:
 
 # --- media ------------------------------------------------------------------------------------
 
-def _media(p: Problems, raw: dict) -> tuple[list[Medium] | None, list[str]]:
+def _media(p: Problems, raw: dict, mode: str | None = "pulsed") -> tuple[list[Medium] | None, list[str]]:
     """Every [[medium]]; return (media or None, the names steps may refer to)."""
     items = array_of_tables(p, raw, "medium")
     if items is None:
@@ -363,13 +364,13 @@ def _media(p: Problems, raw: dict) -> tuple[list[Medium] | None, list[str]]:
             p.add(f"medium[{i}].name", f"duplicate medium name (medium[{seen[name]}] has it too); "
                                        "give each medium its own name", name)
         seen.setdefault(name, i)
-        media.append(_medium(p, item, path, name))
+        media.append(_medium(p, item, path, name, mode))
     if any(m is None for m in media):
         return None, names
     return media, names  # type: ignore[return-value]
 
 
-def _medium(p: Problems, item: dict, path: str, name: str) -> Medium | None:
+def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "pulsed") -> Medium | None:
     """One [[medium]]: keys, material, aperture, exactly one gain specification."""
     before = len(p)
     kind = item.get("kind", "bulk")
@@ -395,7 +396,7 @@ def _medium(p: Problems, item: dict, path: str, name: str) -> Medium | None:
     pump = None
     if isinstance(item.get("pump"), dict):
         doping = item.get("doping_per_m3") if isinstance(item.get("doping_per_m3"), (int, float)) else None
-        pump = _pump(p, item["pump"], join_path(path, "pump"), material, doping)
+        pump = _pump(p, item["pump"], join_path(path, "pump"), material, doping, mode)
     if len(p) > before or material is None:
         return None
     return Medium(
@@ -467,15 +468,12 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
 
 
 def _pump(p: Problems, table: dict, path: str, material: Material | None,
-          doping_per_m3: float | None = None) -> Pump | None:
+          doping_per_m3: float | None = None, mode: str | None = "pulsed") -> Pump | None:
     """A [medium.pump] table; defaults from the material (pump wavelength, absorption)."""
     before = len(p)
     v = check_table(p, table, path, S.PUMP)
     geometry = v.get("geometry")
-    if "energy_J" in table and "power_W" in table:
-        p.add(path, "both energy_J and power_W given: give one (power_W is multiplied by duration_us)")
-    elif "energy_J" not in table and "power_W" not in table:
-        p.add(join_path(path, "energy_J"), "missing: the pump energy energy_J (or power_W), a number > 0")
+    config_cw.pump_keys(p, table, path, mode, material)
     if geometry == "side":
         for key in S.END_ONLY:
             if key in table:
@@ -509,8 +507,11 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
               f"'{material.name}' gives none; give doping_per_m3 in the medium or the material")
     if len(p) > before or material is None:
         return None
-    duration_s = to_si("duration_us", v["duration_us"])
-    energy_J = v["energy_J"] if "energy_J" in v else v["power_W"] * duration_s
+    if mode == "cw":
+        duration_s, energy_J, power_W = None, None, v["power_W"]
+    else:
+        duration_s = to_si("duration_us", v["duration_us"])
+        energy_J, power_W = (v["energy_J"] if "energy_J" in v else v["power_W"] * duration_s), None
     return Pump(
         geometry=geometry, energy_J=energy_J, duration_s=duration_s,
         wavelength_m=to_si("wavelength_nm", wavelength_nm), profile=v["profile"],
@@ -518,7 +519,8 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
         order=v["order"],
         absorption_per_m=to_si("absorption_per_cm", v["absorption_per_cm"]) if "absorption_per_cm" in v else None,
         back_reflectance=v.get("back_reflectance", 0.0), absorbed_fraction=v.get("absorbed_fraction", 1.0),
-        transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"])
+        transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"],
+        power_W=power_W)
 
 
 # --- seed -------------------------------------------------------------------------------------
@@ -562,7 +564,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
 
 # --- steps ------------------------------------------------------------------------------------
 
-def _steps(p: Problems, raw: dict, names: list[str]) -> list[Step] | None:
+def _steps(p: Problems, raw: dict, names: list[str], mode: str | None = "pulsed") -> list[Step] | None:
     """Every [[step]], in order."""
     items = array_of_tables(p, raw, "step")
     if items is None:
@@ -570,7 +572,7 @@ def _steps(p: Problems, raw: dict, names: list[str]) -> list[Step] | None:
     steps = []
     for i, item in enumerate(items):
         if isinstance(item, dict):
-            steps.append(_step(p, i, item, names))
+            steps.append(_step(p, i, item, names, mode))
     if len(steps) < len(items) or any(s is None for s in steps):
         return None
     return steps
@@ -587,7 +589,7 @@ def _wrong_kind_message(kind: str, schema: Mapping[str, S.Key]):
     return message
 
 
-def _step(p: Problems, i: int, item: dict, names: list[str]) -> Step | None:
+def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = "pulsed") -> Step | None:
     """One [[step]]: its kind decides which keys it takes."""
     before = len(p)
     name = item.get("name") if isinstance(item.get("name"), str) else ""
@@ -629,8 +631,10 @@ def _step(p: Problems, i: int, item: dict, names: list[str]) -> Step | None:
         fields["length_m"] = to_si("length_mm", v["length_mm"])
     elif kind == "lens" and "focal_mm" in v:
         fields["focal_m"] = to_si("focal_mm", v["focal_mm"])
+    config_cw.step_keys(p, item, path, mode)
+    fields.update(config_cw.cw_fields(v))
     damage = [k for k in ("damage_fluence_J_cm2", "damage_pulse_ns") if k in item]
-    if len(damage) == 1:
+    if len(damage) == 1 and config_cw.damage_pair_needed(mode):
         missing = "damage_pulse_ns" if damage[0] == "damage_fluence_J_cm2" else "damage_fluence_J_cm2"
         p.add(join_path(path, missing), f"missing: {damage[0]} is given; give both damage_fluence_J_cm2 and "
                                         "damage_pulse_ns (the pulse length the fluence was quoted at), or neither")

@@ -18,7 +18,7 @@ import re
 from dataclasses import dataclass
 from typing import Any, Iterable, Mapping
 
-from .description import Limits
+from .description import Limits, Solver
 from .materials import BROADENINGS, MATERIAL_KEYS
 
 ANY = object()
@@ -100,13 +100,13 @@ def text(meaning: str, **more: Any) -> Key:
 MODES = ("pulsed", "cw")
 TOP: dict[str, Key] = {
     "title": text("a title for the run"),
-    "mode": choice("run mode", MODES, default="pulsed",
-                   unavailable=(("cw", 'CW mode is not available in this version; use mode = "pulsed"'),)),
+    "mode": choice("run mode", MODES, default="pulsed"),
     "grid": Key("table", "the transverse window and time slicing", required=True),
     "medium": Key("tables", "the gain media", required=True),
     "seed": Key("table", "the input pulse", required=True),
     "step": Key("tables", "the layout, step by step", required=True),
     "limits": Key("table", "thresholds of the warnings"),
+    "solver": Key("table", "settings of the cw steady-state iteration"),
     "sweep": Key("table", "values to sweep"),
 }
 SECTION_HINTS = {
@@ -152,7 +152,7 @@ PUMP: dict[str, Key] = {
     "geometry": choice("pump geometry", GEOMETRIES, required=True),
     "energy_J": number("pump energy in one pump pulse", gt=0),
     "power_W": number("pump power during the pump pulse", gt=0),
-    "duration_us": number("pump pulse length", gt=0, required=True),
+    "duration_us": number("pump pulse length (pulsed mode)", gt=0),
     "wavelength_nm": number("pump wavelength", ge=150.0, le=20000.0),
     "profile": choice("transverse pump profile", PUMP_PROFILES, default="flat"),
     "diameter_mm": number("pumped diameter", gt=0),
@@ -201,8 +201,9 @@ STEP_COMMON: dict[str, Key] = {
     "name": text("step name"),
 }
 _DAMAGE: dict[str, Key] = {
-    "damage_fluence_J_cm2": number("damage fluence of the optic", gt=0),
-    "damage_pulse_ns": number("pulse length the damage fluence was quoted at", gt=0),
+    "damage_fluence_J_cm2": number("damage fluence of the optic (pulsed mode)", gt=0),
+    "damage_pulse_ns": number("pulse length the damage fluence was quoted at (pulsed mode)", gt=0),
+    "damage_intensity_W_cm2": number("cw damage intensity of the optic (cw mode)", gt=0),
 }
 APERTURE_SHAPES = ("round", "square")
 STEP_KINDS: dict[str, dict[str, Key]] = {
@@ -236,6 +237,16 @@ _LIMIT_MEANINGS = {
 LIMITS: dict[str, Key] = {
     f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)
     for f in dataclasses.fields(Limits)
+}
+
+_SOLVER_DEFAULTS = Solver()
+SOLVER: dict[str, Key] = {
+    "max_iterations": integer("sweeps of the layout before the cw iteration gives up", 1, 1000000,
+                              default=_SOLVER_DEFAULTS.max_iterations),
+    "tolerance": number("largest relative change of the gain in one sweep at convergence", gt=0, le=1e-3,
+                        default=_SOLVER_DEFAULTS.tolerance),
+    "damping": number("under-relaxation factor of the first sweeps (1: none)", gt=0, le=1,
+                      default=_SOLVER_DEFAULTS.damping),
 }
 
 COMBINES = ("grid", "zip")
@@ -641,7 +652,7 @@ def walk(raw: dict, path: str, create: frozenset = frozenset()) -> tuple[Any, An
 
 def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
     """The schema table the last key of a resolved value path belongs to (None: not a value path)."""
-    sections = {"grid": GRID, "seed": SEED, "limits": LIMITS}
+    sections = {"grid": GRID, "seed": SEED, "limits": LIMITS, "solver": SOLVER}
     if len(trail) == 1:
         return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
     if len(trail) == 2 and trail[0] in sections:

@@ -26,8 +26,10 @@ class Pump:
     """A pump description that builds a gain map (PHYSICS section 1).
 
     ``geometry``: "end" (Beer–Lambert along z) or "side" (transverse profile, uniform along z).
-    ``energy_J``: pump energy delivered in one pump pulse (power_W x duration when given as power).
-    ``duration_s``: pump pulse length (square pulse), for the storage efficiency.
+    ``energy_J``: pulsed: pump energy delivered in one pump pulse (power_W x duration when given as
+    power); None in cw mode.
+    ``duration_s``: pulsed: pump pulse length (square pulse), for the storage efficiency; None in cw.
+    ``power_W``: cw: the continuous pump power; None in pulsed mode.
     ``absorption_per_m``: pump absorption coefficient (end pumping); None: from the material.
     ``back_reflectance``: end pumping, fraction of the transmitted pump sent back for a second pass.
     ``absorbed_fraction``: side pumping, fraction of the delivered pump absorbed in the medium.
@@ -36,8 +38,8 @@ class Pump:
     """
 
     geometry: str
-    energy_J: float
-    duration_s: float
+    energy_J: float | None
+    duration_s: float | None
     wavelength_m: float
     profile: str = "flat"            # "flat" | "gaussian" | "supergaussian" | "parabolic" (side only)
     diameter_m: float | None = None  # None: the medium's clear aperture
@@ -47,6 +49,7 @@ class Pump:
     absorbed_fraction: float = 1.0
     transfer_efficiency: float = 1.0
     quantum_efficiency: float = 1.0
+    power_W: float | None = None
 
 
 @dataclass(frozen=True)
@@ -101,6 +104,23 @@ class Step:
     focal_m: float | None = None      # lens
     damage_fluence_J_m2: float | None = None
     damage_pulse_s: float | None = None
+    damage_intensity_W_m2: float | None = None   # cw runs
+
+
+@dataclass(frozen=True)
+class Solver:
+    """Settings of the cw steady-state iteration (the [solver] table; cw mode only).
+
+    max_iterations : sweeps of the whole layout before the run gives up
+    tolerance : converged when the largest change of any voxel's gain coefficient in one sweep is
+        below ``tolerance`` times the largest small-signal gain coefficient
+    damping : under-relaxation factor of the first sweeps (1: none); halved automatically, down to
+        1/64, whenever the change grows from one sweep to the next
+    """
+
+    max_iterations: int = 1000
+    tolerance: float = 1e-9
+    damping: float = 1.0
 
 
 @dataclass(frozen=True)
@@ -127,6 +147,7 @@ class Config:
     seed: Seed
     steps: tuple[Step, ...]
     limits: Limits = field(default_factory=Limits)
+    solver: Solver = field(default_factory=Solver)
     text: str = ""                    # the TOML text as run (after --set)
     source: str = "<dict>"            # the file it came from
     raw: Mapping[str, Any] = field(default_factory=dict)

@@ -23,17 +23,21 @@ from .description import Config
 class StepRecord:
     """The beam after one step.
 
-    fluence_J_m2 : (Ny, Nx) fluence after the step
-    power_W : (Nt,) mean power in each time slice after the step
-    b_integral_rad : (Ny, Nx) largest accumulated B-integral over the time slices, after the step
+    pulsed: fluence_J_m2 (Ny, Nx) fluence after the step; power_W (Nt,) mean power in each time slice
+    after the step; b_integral_rad (Ny, Nx) largest accumulated B-integral over the time slices.
+    cw: intensity_W_m2 (Ny, Nx) after the step; for passes, axis_intensity_W_m2 (Nz + 1,) the on-axis
+    intensity at the medium's slice faces, at positions axis_z_m (m, from the face z = 0).
     """
 
     index: int
     kind: str
     medium: str | None
-    fluence_J_m2: np.ndarray
-    power_W: np.ndarray
-    b_integral_rad: np.ndarray
+    fluence_J_m2: np.ndarray | None = None
+    power_W: np.ndarray | None = None
+    b_integral_rad: np.ndarray | None = None
+    intensity_W_m2: np.ndarray | None = None
+    axis_z_m: np.ndarray | None = None
+    axis_intensity_W_m2: np.ndarray | None = None
 
 
 @dataclass
@@ -41,6 +45,8 @@ class MediumRecord:
     """A medium's gain coefficient before the first and after the last pass.
 
     gain_initial_per_m, gain_final_per_m : (Nz, Ny, Nx), g = sigma_e·N2 − sigma_a·N1 in 1/m
+    (cw: the small-signal gain with the pump alone, and the saturated gain of the steady state)
+    pump_intensity_W_m2 : cw with a pump: (Nz, Ny, Nx) mean pump intensity in each voxel (W/m²)
     """
 
     name: str
@@ -51,14 +57,16 @@ class MediumRecord:
     saturation_intensity_W_m2: float
     material: str
     sources: dict[str, str] = field(default_factory=dict)
+    pump_intensity_W_m2: np.ndarray | None = None
 
 
 @dataclass
 class Result:
     """Everything a run produced.
 
-    x_m, y_m : (Nx,), (Ny,) pixel centres; t_s : (Nt,) time-slice centres
-    seed_fluence_J_m2 : (Ny, Nx); seed_power_W : (Nt,)
+    x_m, y_m : (Nx,), (Ny,) pixel centres; t_s : (Nt,) time-slice centres (cw: empty)
+    seed_fluence_J_m2 : (Ny, Nx); seed_power_W : (Nt,) (pulsed; None in cw)
+    seed_intensity_W_m2 : (Ny, Nx) (cw; None in pulsed)
     steps : one StepRecord per step, in order; media : name -> MediumRecord
     summary : the summary.json dict (SPEC section 4)
     """
@@ -72,6 +80,7 @@ class Result:
     steps: list[StepRecord]
     media: dict[str, MediumRecord]
     summary: dict[str, Any]
+    seed_intensity_W_m2: np.ndarray | None = None
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``.
@@ -131,18 +140,30 @@ def write_hdf5(result: Result, path: Path) -> None:
             f.attrs["title"] = result.config.title
             f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
             f.attrs["summary"] = json.dumps(result.summary)
+            cw = result.config.mode == "cw"
             g = f.create_group("grid")
             _dataset(g, "x", result.x_m, "m")
             _dataset(g, "y", result.y_m, "m")
-            _dataset(g, "t", result.t_s, "s")
+            if not cw:
+                _dataset(g, "t", result.t_s, "s")
             s = f.create_group("seed")
-            _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
-            _dataset(s, "power", result.seed_power_W, "W")
+            if cw:
+                _dataset(s, "intensity", result.seed_intensity_W_m2, "W/m^2")
+            else:
+                _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
+                _dataset(s, "power", result.seed_power_W, "W")
             steps = f.create_group("steps")
             for rec in result.steps:
                 sg = steps.create_group(f"{rec.index:03d}")
                 sg.attrs["kind"] = rec.kind
                 sg.attrs["medium"] = rec.medium or ""
+                if cw:
+                    _dataset(sg, "intensity", rec.intensity_W_m2, "W/m^2")
+                    if rec.axis_intensity_W_m2 is not None:
+                        _dataset(sg, "axis_z", rec.axis_z_m, "m")
+                        _dataset(sg, "axis_intensity", rec.axis_intensity_W_m2, "W/m^2",
+                                 meaning="on-axis intensity at the medium's slice faces, at axis_z")
+                    continue
                 _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
                 _dataset(sg, "power", rec.power_W, "W")
                 _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
@@ -157,6 +178,9 @@ def write_hdf5(result: Result, path: Path) -> None:
                              saturation_intensity_units="W/m^2")
                 _dataset(mg, "gain_initial", m.gain_initial_per_m, "1/m", **attrs)
                 _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
+                if m.pump_intensity_W_m2 is not None:
+                    _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
+                             meaning="mean pump intensity in each voxel, all pump passes")
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)

@@ -27,6 +27,14 @@ def memory_estimate_bytes(config: Config) -> int:
     time slice with one working copy and the kernel's temporaries, each medium's gain three times
     (working, initial, final), and one map per step for the records."""
     pixels = config.grid.points ** 2
+    if config.mode == "cw":
+        # cw: per medium the gain, small-signal gain, saturation intensity, the two direction sums,
+        # the intensity entering each voxel in each pass, and (pumped) the pump's fields, on the
+        # internal grid (loss sub-slices, at most MAX_LOSS_SUBSTEPS, counted as 4 here), plus the maps.
+        passes = {m.name: sum(1 for s in config.steps if s.kind == "pass" and s.medium == m.name)
+                  for m in config.media}
+        media = sum((8 + passes[m.name]) * m.slices * pixels * (4 if m.loss_per_m > 0 else 1) for m in config.media)
+        return 8 * (media + (3 + len(config.steps)) * pixels)
     beam = 5 * config.grid.time_slices * pixels
     media = sum(3 * m.slices * pixels for m in config.media)
     records = 2 * len(config.steps) * pixels
@@ -66,10 +74,11 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     config : Config from :func:`ampmodel.load_config`
     progress : True shows a progress bar on stderr, None shows it on an interactive terminal
     """
-    if config.mode != "pulsed":
-        raise NotImplementedError(f"mode {config.mode!r} is not available in this version")
-    grid, seed = config.grid, config.seed
     check_memory(config)
+    if config.mode == "cw":
+        from .cw import simulate_cw
+        return simulate_cw(config, progress)
+    grid, seed = config.grid, config.seed
     x = beams.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
     t, weights, dt = beams.time_slices(seed.shape, seed.duration_s, grid.time_slices)

@@ -34,6 +34,7 @@ MATERIAL_KEYS: dict[str, KeySpec] = {
     "n2_m2_W": KeySpec(False, 1e-22, 1e-16, "nonlinear refractive index (for the B-integral)", allow_zero=True),
     "damage_fluence_J_cm2": KeySpec(False, 1e-3, 1e4, "laser-damage fluence (bulk or coating) ..."),
     "damage_pulse_ns": KeySpec(False, 1e-6, 1e9, "... and the pulse length it was quoted at"),
+    "damage_intensity_W_cm2": KeySpec(False, 1e2, 1e13, "cw laser-damage intensity (bulk or coating), for cw runs"),
     "doping_per_m3": KeySpec(False, 1e20, 1e29, "active-ion density (typical doping)"),
     "pump_wavelength_nm": KeySpec(False, 150.0, 20000.0, "pump wavelength"),
     "pump_absorption_per_cm": KeySpec(False, 1e-4, 1e4, "small-signal pump absorption coefficient at the typical doping"),
@@ -61,6 +62,7 @@ class Material:
     n2_m2_W: float = 0.0
     damage_fluence_J_m2: float | None = None
     damage_pulse_s: float | None = None
+    damage_intensity_W_m2: float | None = None
     doping_per_m3: float | None = None
     pump_wavelength_m: float | None = None
     pump_absorption_per_m: float | None = None
