@@ -82,6 +82,15 @@ def _fmt(value: float, unit: str) -> str:
 
 
 def _print_media(summary: dict) -> None:
+    if summary["mode"] == "cw":
+        for m in summary["media"]:
+            line = (f"  medium {m['name']} ({m['material']}): on-axis small-signal gain "
+                    f"{m['small_signal_gain_on_axis']:.4g}, saturated {m['saturated_gain_on_axis']:.4g}")
+            if "absorbed_pump_power_W" in m:
+                line += (f", absorbed pump {_fmt(m['absorbed_pump_power_W'], 'W')} of "
+                         f"{_fmt(m['pump_power_W'], 'W')}, photon balance error {m['photon_balance_error']:.1e}")
+            print(line)
+        return
     for m in summary["media"]:
         line = (f"  medium {m['name']} ({m['material']}): on-axis small-signal gain "
                 f"{m['small_signal_gain_on_axis']:.4g}, stored energy {_fmt(m['stored_energy_J'], 'J')}")
@@ -90,7 +99,26 @@ def _print_media(summary: dict) -> None:
         print(line)
 
 
+def _print_cw_table(summary: dict) -> None:
+    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {'power in':>11} {'power out':>11} {'gain':>8} {'peak W/cm²':>10}")
+    for s in summary["steps"]:
+        kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        print(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {_fmt(s['power_in_W'], 'W'):>11} "
+              f"{_fmt(s['power_out_W'], 'W'):>11} {s['gain']:>8.4g} {s['peak_intensity_W_cm2']:>10.3g}")
+    line = (f"input {_fmt(summary['input_power_W'], 'W')} -> output {_fmt(summary['output_power_W'], 'W')} "
+            f"(gain {summary['gain']:.4g})")
+    if "optical_efficiency" in summary:
+        line += (f"; absorbed pump {_fmt(summary['absorbed_pump_power_W'], 'W')}, optical-to-optical efficiency "
+                 f"{100 * summary['optical_efficiency']:.1f} %")
+    print(line)
+    print(f"peak intensity {summary['peak_intensity_W_cm2']:.3g} W/cm², steady state after {summary['cw_iterations']} "
+          f"sweeps (residual {summary['cw_residual']:.1e}), power balance error {summary['power_balance_error']:.1e}")
+
+
 def _print_table(summary: dict) -> None:
+    if summary["mode"] == "cw":
+        _print_cw_table(summary)
+        return
     print(f"{'step':>4}  {'kind':<8} {'medium':<10} {'energy in':>11} {'energy out':>11} {'gain':>8} "
           f"{'peak J/cm²':>10} {'B rad':>6}")
     for s in summary["steps"]:
@@ -143,6 +171,18 @@ def cmd_check(args) -> int:
     nm = len(config.media)
     print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {len(config.steps)} steps, mode {config.mode}, "
           f"about {_fmt(need, 'B')} of arrays)")
+    if config.mode == "cw":
+        from .cw import build_medium
+        for m in config.media:
+            st = build_medium(m, x, x, config.solver)
+            g = st.coarse(st.g0)
+            line = (f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
+                    f"{pumping.on_axis_gain(g, m.length_m / m.slices):.4g}")
+            if st.pump_field is not None:
+                absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
+                line += f", absorbed pump {_fmt(absorbed, 'W')} of {_fmt(st.pump.power_W, 'W')} (no signal)"
+            print(line)
+        return EXIT_OK
     for m in config.media:
         gm = pumping.gain_map(m, x, x)
         stored = pumping.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,

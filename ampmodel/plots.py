@@ -133,6 +133,18 @@ def _is_cw(result: Result) -> bool:
     return getattr(result.config, "mode", "pulsed") == "cw"
 
 
+def seed_map(result: Result) -> np.ndarray:
+    """The seed's transverse map: fluence (J/m²), or intensity (W/m²) in a cw run."""
+    cw_map = getattr(result, "seed_intensity_W_m2", None)
+    return np.asarray(cw_map if _is_cw(result) and cw_map is not None else result.seed_fluence_J_m2, dtype=float)
+
+
+def step_map(result: Result, rec: StepRecord) -> np.ndarray:
+    """The beam's transverse map after a step: fluence (J/m²), or intensity (W/m²) in a cw run."""
+    cw_map = getattr(rec, "intensity_W_m2", None)
+    return np.asarray(cw_map if _is_cw(result) and cw_map is not None else rec.fluence_J_m2, dtype=float)
+
+
 def _map_quantity(result: Result) -> tuple[str, str]:
     """(name, display unit) of the transverse maps: fluence in J/cm², or intensity in W/cm² (cw)."""
     return ("intensity", "W/cm²") if _is_cw(result) else ("fluence", "J/cm²")
@@ -165,8 +177,8 @@ def _energies(result: Result) -> tuple[float, np.ndarray]:
     cw = _is_cw(result)
     in_key, out_key = ("power_in_W", "power_out_W") if cw else ("energy_in_J", "energy_out_J")
     area = _pixel(result.x_m) * _pixel(result.y_m)
-    seed = float(np.sum(np.nan_to_num(result.seed_fluence_J_m2)) * area)
-    after = np.array([float(np.sum(np.nan_to_num(r.fluence_J_m2)) * area) for r in result.steps])
+    seed = float(np.sum(np.nan_to_num(seed_map(result))) * area)
+    after = np.array([float(np.sum(np.nan_to_num(step_map(result, r))) * area) for r in result.steps])
     summary = result.summary or {}
     seed_key = "input_power_W" if cw else "input_energy_J"
     if isinstance(summary.get(seed_key), (int, float)):
@@ -279,9 +291,9 @@ def plot_fluence_maps(result: Result, path: Path) -> Path:
     Path : ``path``
     """
     quantity, unit = _map_quantity(result)
-    seed = np.asarray(result.seed_fluence_J_m2, dtype=float)
+    seed = seed_map(result)
     if result.steps:
-        out = np.asarray(result.steps[-1].fluence_J_m2, dtype=float)
+        out = step_map(result, result.steps[-1])
         out_label = f"output after step {result.steps[-1].index}"
     else:
         out, out_label = seed, "output (no steps)"
@@ -608,7 +620,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
 
     Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
     ``gain_<medium>.png`` for each medium, and ``b_integral.png`` when any step has a non-zero
-    B-integral.
+    B-integral. A cw run writes ``intensity_maps.png``, ``power_per_step.png`` and
+    ``gain_<medium>.png`` (the steady-state gain along z and the intensity of each pass; plots_cw.py).
 
     Parameters
     ----------
@@ -621,9 +634,10 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     """
     out = Path(directory)
     out.mkdir(parents=True, exist_ok=True)
-    paths = [plot_fluence_maps(result, out / "fluence_maps.png"),
-             plot_energy_per_step(result, out / "energy_per_step.png")]
-    if not _is_cw(result) and np.asarray(result.t_s).size:
+    cw = _is_cw(result)
+    paths = [plot_fluence_maps(result, out / ("intensity_maps.png" if cw else "fluence_maps.png")),
+             plot_energy_per_step(result, out / ("power_per_step.png" if cw else "energy_per_step.png"))]
+    if not cw and np.asarray(result.t_s).size:
         paths.append(plot_pulse_power(result, out / "pulse_power.png"))
     used: set[str] = set()
     for name in result.media:
@@ -631,7 +645,11 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
         while stem in used:
             stem += "_"
         used.add(stem)
-        paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
-    if result.steps and _finite_max(_b_integrals(result)[0]) > 0:
+        if cw:
+            from .plots_cw import plot_cw_gain
+            paths.append(plot_cw_gain(result, name, out / f"gain_{stem}.png"))
+        else:
+            paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
+    if not cw and result.steps and _finite_max(_b_integrals(result)[0]) > 0:
         paths.append(plot_b_integral(result, out / "b_integral.png"))
     return paths
