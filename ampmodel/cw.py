@@ -14,7 +14,7 @@ Per slice the gain is the exact steady-state solution for the intensities enteri
 (``kernels/cw_saturation.py``): Lambert-W form for a homogeneous line, a quadrature for an
 inhomogeneous one. Passive loss inside a medium is split around the gain step (half the loss, the
 gain, half the loss); with loss, each slice is cut into ``loss_substeps`` internal sub-slices so
-that the splitting error stays near 1e-6 of the output (README).
+that the splitting error stays below about 1e-6 of the output (README).
 
 References
 ----------
@@ -35,10 +35,11 @@ from .layout import STEP_ACTIONS, BeamState
 
 # Sub-slices per slice with passive loss. The symmetric splitting of the loss around the gain step
 # is second order: against scipy.integrate.solve_ivp the relative error of the output intensity is
-# about 1e-6·p/LOSS_SPLIT_LIMIT or less for an inhomogeneous line (about 30 times less for a
-# homogeneous one), p = (g0·dz)·(α·dz); each slice is cut so that p <= LOSS_SPLIT_LIMIT in every
-# sub-slice (tests/physics/test_cw_slices.py).
-LOSS_SPLIT_LIMIT = 5e-3
+# at most about 5e-3·q, q = L·dz²·g0²·α (medium length L, slice length dz, largest |g0|, loss
+# coefficient α; measured over both line shapes and I/Isat from 0.01 to 100). Each slice is cut into
+# sub-slices so that q <= LOSS_SPLIT_LIMIT, which keeps the error near 5e-7 or below
+# (tests/physics/test_cw_slices.py checks 1e-6).
+LOSS_SPLIT_LIMIT = 1e-4
 MAX_LOSS_SUBSTEPS = 64
 MIN_DAMPING = 1.0 / 64.0
 
@@ -101,12 +102,12 @@ class CwOutcome:
 
 
 def loss_substeps(medium: Medium, g0_max_per_m: float) -> int:
-    """Internal sub-slices per slice: 1 without loss, else enough that (g0·dz)(α·dz) <= LOSS_SPLIT_LIMIT."""
+    """Internal sub-slices per slice: 1 without loss, else enough that L·dz²·g0²·α <= LOSS_SPLIT_LIMIT."""
     if medium.loss_per_m <= 0.0:
         return 1
     dz = medium.length_m / medium.slices
-    product = max(abs(g0_max_per_m), medium.loss_per_m) * medium.loss_per_m * dz * dz
-    return int(min(MAX_LOSS_SUBSTEPS, max(1, math.ceil(math.sqrt(product / LOSS_SPLIT_LIMIT)))))
+    q = medium.length_m * dz * dz * g0_max_per_m ** 2 * medium.loss_per_m
+    return int(min(MAX_LOSS_SUBSTEPS, max(1, math.ceil(math.sqrt(q / LOSS_SPLIT_LIMIT)))))
 
 
 def _levels(medium: Medium) -> cw_pump.SignalLevels:

@@ -13,6 +13,12 @@ import pytest
 ROOT = Path(__file__).resolve().parents[2]
 CONFIGS = sorted((ROOT / "configs").glob("*.toml"))
 SMALL = ["--set", "grid.points=32", "--set", "grid.time_slices=12"]
+SMALL_CW = ["--set", "grid.points=32"]            # a cw run has no time slices
+
+
+def is_cw(config: Path) -> bool:
+    import re
+    return re.search(r'^mode\s*=\s*"cw"', config.read_text(), re.MULTILINE) is not None
 
 
 def ampmodel(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
@@ -20,9 +26,42 @@ def ampmodel(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess
                           cwd=cwd or ROOT, timeout=300)
 
 
+def assert_cw_output_contract(out: Path) -> dict:
+    """A cw run folder: SPEC section 4 with power and intensity in place of energy and fluence."""
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["mode"] == "cw"
+    for key in ("input_power_W", "output_power_W", "gain", "peak_intensity_W_cm2", "b_integral_rad",
+                "power_balance_error", "cw_iterations", "cw_residual", "absorbed_pump_power_W", "warnings", "steps"):
+        assert key in summary, key
+    for step in summary["steps"]:
+        for key in ("index", "kind", "power_in_W", "power_out_W", "gain", "peak_intensity_W_cm2", "b_integral_rad"):
+            assert key in step, (step["index"], key)
+    with h5py.File(out / "result.h5", "r") as f:
+        assert f.attrs["mode"] == "cw"
+        for path in ("grid/x", "grid/y", "seed/intensity"):
+            assert path in f
+        for name in f["steps"]:
+            assert f[f"steps/{name}/intensity"].attrs["units"] == "W/m^2"
+        for name in f["media"]:
+            for attr in ("slice_length", "saturation_fluence", "saturation_intensity"):
+                assert attr in f[f"media/{name}/gain_initial"].attrs
+        missing = []
+        f.visititems(lambda p, o: missing.append(p) if isinstance(o, h5py.Dataset) and "units" not in o.attrs else None)
+        assert not missing, missing
+        x = f["grid/x"][()]
+        last = sorted(f["steps"])[-1]
+        assert summary["output_power_W"] == pytest.approx(f[f"steps/{last}/intensity"][()].sum() * (x[1] - x[0]) ** 2,
+                                                          rel=1e-12)
+    names = {p.name for p in (out / "plots").glob("*.png")}
+    assert {"intensity_maps.png", "power_per_step.png"} <= names and any(n.startswith("gain_") for n in names)
+    return summary
+
+
 def assert_output_contract(out: Path) -> dict:
     """The run folder holds SPEC section 4's files, keys, datasets and units attributes."""
     summary = json.loads((out / "summary.json").read_text())
+    if summary.get("mode") == "cw":
+        return assert_cw_output_contract(out)
     for key in ("mode", "input_energy_J", "output_energy_J", "stored_energy_J", "stored_energy_final_J",
                 "extraction_efficiency", "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad",
                 "energy_balance_error", "warnings", "steps"):
@@ -76,10 +115,15 @@ def test_example_configs_check_and_run(config, tmp_path):
     assert check.returncode == 0, check.stderr
     assert "small-signal gain" in check.stdout
     out = tmp_path / "out"
-    proc = ampmodel("run", str(config), "--out", str(out), *SMALL)
+    proc = ampmodel("run", str(config), "--out", str(out), *(SMALL_CW if is_cw(config) else SMALL))
     assert proc.returncode == 0, proc.stderr
     assert "Laser safety" in proc.stdout
     summary = assert_output_contract(out)
+    if summary["mode"] == "cw":
+        assert abs(summary["power_balance_error"]) < 1e-7
+        assert summary["output_power_W"] > summary["input_power_W"]
+        assert abs(summary["photon_balance_error"]) < 1e-6
+        return
     assert abs(summary["energy_balance_error"]) < 1e-9
     assert summary["output_energy_J"] > summary["input_energy_J"]
 
@@ -159,3 +203,22 @@ def test_seed_cut_by_the_window_warns(tmp_path):
     assert proc.returncode == 0, proc.stderr
     summary = json.loads((tmp_path / "o" / "summary.json").read_text())
     assert any("edge of the 5 mm window" in w for w in summary["warnings"]), summary["warnings"]
+
+
+def test_cw_run_that_does_not_converge_exits_2_and_writes_nothing(tmp_path):
+    config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
+    out = tmp_path / "o"
+    proc = ampmodel("run", str(config), "--out", str(out), *SMALL_CW, "--set", "solver.max_iterations=2")
+    assert proc.returncode == 2, proc.stderr
+    assert "solver.max_iterations = 2" in proc.stderr and "did not converge" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert not out.exists() and not list(tmp_path.glob(".*partial"))
+
+
+def test_cw_damage_intensity_warns(tmp_path):
+    config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
+    proc = ampmodel("run", str(config), "--out", str(tmp_path / "o"), "--no-plots", *SMALL_CW,
+                    "--set", "step.1.damage_intensity_W_cm2=200")
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert any("cw damage intensity of this optic" in w for w in summary["warnings"]), summary["warnings"]

@@ -190,4 +190,4 @@ def test_cw_run_has_no_pulse_figure(tmp_path):
     result = synthetic_result()
     result = dataclasses.replace(result, config=dataclasses.replace(result.config, mode="cw"), summary={})
     names = {p.name for p in make_plots(result, tmp_path)}
-    assert names == {"fluence_maps.png", "energy_per_step.png", "gain_rod.png"}
+    assert names == {"intensity_maps.png", "power_per_step.png", "gain_rod.png"}
