@@ -4,7 +4,7 @@ In cw every pass of a medium is present at once and all of them see the same sat
 the figure shows (1) a z–x cut of that saturated gain coefficient, (2) the on-axis gain coefficient
 along z, small-signal (the pump alone, no signal) and saturated (the gain every pass sees), and
 (3) the on-axis intensity of each pass along z with its direction, and the pump's on-axis intensity
-when the medium is pumped. Units as a laser engineer reads them: mm, 1/cm, W/cm² (kW/cm²).
+when the medium is end-pumped. Units as a laser engineer reads them: mm, 1/cm, W/cm² (kW/cm²).
 """
 from __future__ import annotations
 
@@ -112,7 +112,12 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     ax2.set_xlabel("z along the medium (mm)")
     ax2.set_title("on-axis intensity of each pass (arrow: direction of travel)")
     ax2.grid(True, alpha=0.3)
-    if med.pump_intensity_W_m2 is not None:
+    try:
+        pump_cfg = result.config.medium(name).pump
+    except (KeyError, AttributeError):
+        pump_cfg = None
+    # Side pumping enters across the rod, uniform along z: only an end pump has a profile along z.
+    if med.pump_intensity_W_m2 is not None and getattr(pump_cfg, "geometry", "end") == "end":
         pump_axis = np.asarray(med.pump_intensity_W_m2, dtype=float)[:, ay, ax] / 1e7      # kW/cm²
         twin = ax2.twinx()
         centres = (np.arange(nz) + 0.5) * dz_mm

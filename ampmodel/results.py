@@ -180,7 +180,8 @@ def write_hdf5(result: Result, path: Path) -> None:
                 _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
                 if m.pump_intensity_W_m2 is not None:
                     _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
-                             meaning="mean pump intensity in each voxel, all pump passes")
+                             meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
+                                     "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
