@@ -101,8 +101,8 @@ def test_inhomogeneous_pass_matches_the_closed_form_per_pixel():
 
 def test_inhomogeneous_kernel_with_both_directions_matches_quad():
     rng = np.random.default_rng(3)
-    f, b = 10.0 ** rng.uniform(-4, 1, 12), 10.0 ** rng.uniform(-4, 1, 12)
-    c = rng.uniform(0.05, 2.0, 12)
+    f, b = 10.0 ** rng.uniform(-4, 2, 12), 10.0 ** rng.uniform(-4, 2, 12)
+    c = rng.uniform(-2.0, 2.0, 12)                          # negative: an absorbing slice
     x = inhomogeneous_slice_gain(f * ISAT, b * ISAT, c, ISAT)
     for fi, bi, ci, xi in zip(f, b, c, x):
         h, _ = quad(lambda t: np.sqrt(1.0 + fi * np.exp(t) + bi * np.exp(xi - t)), 0.0, xi, epsabs=1e-14, epsrel=1e-13)
