@@ -91,8 +91,10 @@ def test_weak_pump_follows_beer_lambert_with_a_back_reflector():
 
 def test_pump_bleaching_matches_solve_ivp():
     """Pump alone (signal negligible), flat pump, one pass: dΦ/dz = −(α0 − (σa,p + σe,p)·N2)·Φ with
-    N2 = Nt·σa,p·Φ/((σa,p + σe,p)·Φ + 1/τ), integrated by solve_ivp; the voxel scheme is second order."""
-    config = pumped_config(pump_power_W=150.0, seed_power_W=1e-9, back_reflectance=0.0, slices=60, points=16)
+    N2 = Nt·σa,p·Φ/((σa,p + σe,p)·Φ + 1/τ), integrated by solve_ivp. This is the saturable form
+    dΦ/dz = −α0·Φ/(1 + (σa,p + σe,p)·τ·Φ), which the voxel scheme solves exactly per slice (the same
+    identity as the Lambert-W form of the signal), so even 3 slices agree to the iteration tolerance."""
+    config = pumped_config(pump_power_W=150.0, seed_power_W=1e-9, back_reflectance=0.0, slices=3, points=16)
     result = simulate(config)
     m = result.summary["media"][0]
     sap, sep, tau = 8.0e-25, 1.6e-25, 951e-6
@@ -107,7 +109,7 @@ def test_pump_bleaching_matches_solve_ivp():
 
     sol = solve_ivp(rhs, (0.0, 6e-3), [phi0], method="DOP853", rtol=1e-11, atol=1e-6 * phi0)
     transmitted_fraction = m["pump_power_transmitted_W"] / 150.0
-    assert transmitted_fraction == pytest.approx(sol.y[0, -1] / phi0, rel=2e-4)
+    assert transmitted_fraction == pytest.approx(sol.y[0, -1] / phi0, rel=1e-6)      # measured 5e-8
     unbleached = np.exp(-sap * NT * 6e-3)
     assert transmitted_fraction > 1.3 * unbleached                  # bleaching matters at this pump
     assert pump[0, ix, ix] > pump[-1, ix, ix]
