@@ -320,6 +320,19 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         if isinstance(raw.get("limits"), dict) else Limits()
     if isinstance(raw.get("sweep"), dict):
         _sweep(p, raw)
+    if mode == "cw" and grid is not None and grid.diffraction:
+        p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
+                                  "set grid.diffraction = false", True)
+    if mode == "cw" and isinstance(raw.get("seed"), dict):
+        for key in S.SEED_FIELD_KEYS:
+            if key in raw["seed"]:
+                p.add(join_path("seed", key), 'applies to mode = "pulsed" only in this version (a cw seed is taken '
+                                              "at its waist with a flat wavefront); remove it", raw["seed"][key])
+    if grid is not None and not grid.diffraction and isinstance(raw.get("step"), list):
+        for i, item in enumerate(raw["step"]):
+            if isinstance(item, dict) and item.get("kind") in S.FIELD_ONLY_KINDS:
+                p.add(f"step[{i}].kind", f"a '{item['kind']}' step acts on the optical field: set "
+                                         "grid.diffraction = true (or remove the step)", item["kind"])
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     return Config(title=top.get("title", default_title), mode=mode, grid=grid, media=tuple(media),
@@ -333,7 +346,7 @@ def _grid(p: Problems, table: dict) -> Grid | None:
     if len(p) > before:
         return None
     return Grid(points=v["points"], width_m=to_si("width_mm", v["width_mm"]),
-                time_slices=v["time_slices"], diffraction=v["diffraction"])
+                time_slices=v["time_slices"], diffraction=v["diffraction"], fft_workers=v["fft_workers"])
 
 
 # --- media ------------------------------------------------------------------------------------
@@ -551,6 +564,10 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                       table[key])
         if "power_W" not in table:
             p.add("seed.power_W", f"missing: the beam power, {expected(S.SEED['power_W'])}")
+    wavefront = [k for k in S.SEED_WAVEFRONT_KEYS if k in table]
+    if len(wavefront) > 1:
+        p.add("seed", "both waist_mm and curvature_mm given: give one (the waist position fixes the "
+                      "wavefront curvature of a Gaussian seed)")
     wavelength_nm = v.get("wavelength_nm")
     if "wavelength_nm" not in table and media is not None:
         wavelength_nm = media[0].material.wavelength_m / 1e-9
@@ -559,7 +576,10 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     duration_s = to_si(durations[0], v[durations[0]]) if mode == "pulsed" else None
     return Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
                 power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
-                order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]))
+                order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]),
+                waist_m=to_si("waist_mm", v["waist_mm"]) if "waist_mm" in v else None,
+                curvature_m=to_si("curvature_mm", v["curvature_mm"]) if "curvature_mm" in v else None,
+                m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"])
 
 
 # --- steps ------------------------------------------------------------------------------------
@@ -627,10 +647,19 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
             p.add(join_path(path, need), f"missing: the {shape} aperture's {need}, a number > 0")
         if need in v:
             fields.update(shape=shape, diameter_m=to_si(need, v[need]))
+        if "order" in v:
+            fields["order"] = v["order"]
     elif kind == "space" and "length_mm" in v:
         fields["length_m"] = to_si("length_mm", v["length_mm"])
     elif kind == "lens" and "focal_mm" in v:
         fields["focal_m"] = to_si("focal_mm", v["focal_mm"])
+    elif kind == "filter":
+        if "focal_mm" in v:
+            fields["focal_m"] = to_si("focal_mm", v["focal_mm"])
+        if "pinhole_diameter_mm" in v:
+            fields["pinhole_diameter_m"] = to_si("pinhole_diameter_mm", v["pinhole_diameter_mm"])
+    elif kind == "relay" and "magnification" in v:
+        fields["magnification"] = v["magnification"]
     config_cw.step_keys(p, item, path, mode)
     fields.update(config_cw.cw_fields(v))
     damage = [k for k in ("damage_fluence_J_cm2", "damage_pulse_ns") if k in item]

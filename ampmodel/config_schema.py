@@ -120,9 +120,8 @@ GRID: dict[str, Key] = {
     "points": integer("transverse points per axis", 8, 4096, default=128),
     "width_mm": number("full width of the square transverse window", gt=0, required=True),
     "time_slices": integer("slices across the pulse", 1, 100000, default=64),
-    "diffraction": flag("split-step diffraction", default=False,
-                        unavailable=((True, "split-step diffraction is not available in this version; "
-                                            "set grid.diffraction = false"),)),
+    "diffraction": flag("split-step diffraction", default=False),
+    "fft_workers": integer("threads of each FFT; -1: all cores", -1, 4096, nonzero=True, default=-1),
 }
 
 MEDIUM_KINDS = ("bulk", "fibre")
@@ -193,9 +192,17 @@ SEED: dict[str, Key] = {
     "profile": choice("transverse profile", BEAM_PROFILES, default="gaussian"),
     "order": number("supergaussian order", ge=2, default=8.0),
     "diameter_mm": number("beam diameter 2w (1/e^2 intensity)", gt=0, required=True),
+    "waist_mm": number("distance from the start plane to the seed's waist (> 0: downstream)"),
+    "curvature_mm": number("wavefront radius at the start plane (> 0 diverging, < 0 converging)",
+                           nonzero=True),
+    "m_squared": number("beam quality factor M^2", ge=1, le=50, default=1.0),
+    "phase_screen_seed": integer("random seed of the M^2 phase screen", 0, 2**31 - 1, default=0),
 }
+SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
+SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
 
-STEP_KIND_NAMES = ("pass", "loss", "aperture", "space", "lens")
+STEP_KIND_NAMES = ("pass", "loss", "aperture", "space", "lens", "filter", "relay")
+FIELD_ONLY_KINDS = ("filter",)   # step kinds that act on the field: they need grid.diffraction = true
 STEP_COMMON: dict[str, Key] = {
     "kind": choice("step kind", STEP_KIND_NAMES, required=True),
     "name": text("step name"),
@@ -219,10 +226,19 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
         "shape": choice("aperture shape", APERTURE_SHAPES),
         "diameter_mm": number("aperture diameter (round)", gt=0),
         "width_mm": number("aperture side (square)", gt=0),
+        "order": number("super-Gaussian order of a soft edge; leave it out for a hard edge", ge=2, le=1000),
         **_DAMAGE,
     },
     "space": {"length_mm": number("free-space length", ge=0, required=True)},
     "lens": {"focal_mm": number("focal length", nonzero=True, required=True)},
+    "filter": {
+        "focal_mm": number("focal length of the filter's two lenses", gt=0, required=True),
+        "pinhole_diameter_mm": number("pinhole diameter in the focal plane", gt=0, required=True),
+        **_DAMAGE,
+    },
+    "relay": {
+        "magnification": number("image magnification of the 4f relay", ge=0.01, le=100, default=1.0),
+    },
 }
 
 _LIMIT_MEANINGS = {
@@ -233,6 +249,8 @@ _LIMIT_MEANINGS = {
     "clipped_fraction": "warn when an aperture clips more than this fraction",
     "pixels_across_beam": "warn with fewer pixels across the beam",
     "transverse_gain_length": "warn above this transverse gain-length product",
+    "window_edge_fraction": "warn when this energy fraction reaches the absorbing window edge",
+    "sampling_limit_fraction": "warn when this energy fraction nears the grid's sampling limit",
 }
 LIMITS: dict[str, Key] = {
     f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)

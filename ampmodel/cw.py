@@ -232,11 +232,12 @@ def cw_pass(intensity: np.ndarray, st: CwMedium, step: Step, damping: float, pix
 
 def other_step(intensity: np.ndarray, step: Step, x_m: np.ndarray, y_m: np.ndarray,
                wavelength_m: float) -> tuple[np.ndarray, CwOutcome]:
-    """A loss, aperture, space or lens step on the intensity map: the pulsed step actions of
-    ``layout.py`` applied to a one-slice beam of 1 s, whose energies are then powers."""
+    """A loss, aperture, space, lens or relay step on the intensity map: the pulsed step actions of
+    ``layout.py`` (and ``optics.FLUENCE_STEP_ACTIONS``) applied to a one-slice beam of 1 s, whose energies are then powers."""
     beam = BeamState(fluence=intensity[None, :, :].copy(), b_integral=np.zeros((1,) + intensity.shape),
                      x_m=x_m, y_m=y_m, dt_s=1.0, wavelength_m=wavelength_m)
-    oc = STEP_ACTIONS[step.kind](beam, step)
+    from .optics import FLUENCE_STEP_ACTIONS   # soft apertures and relays act on the map too
+    oc = FLUENCE_STEP_ACTIONS.get(step.kind, STEP_ACTIONS.get(step.kind))(beam, step)
     return beam.fluence[0], CwOutcome(oc.energy_in_J, oc.energy_out_J, clipped_W=oc.clipped_J,
                                       passive_loss_W=oc.passive_loss_J, peak_intensity_W_m2=oc.peak_intensity_W_m2)
 

@@ -13,12 +13,17 @@ from .materials import Material
 
 @dataclass(frozen=True)
 class Grid:
-    """Transverse window (square, ``points`` x ``points`` pixels) and time slicing."""
+    """Transverse window (square, ``points`` x ``points`` pixels) and time slicing.
+
+    ``diffraction``: True carries the beam as a complex field (split-step angular spectrum);
+    ``fft_workers``: threads of each batched FFT (−1: all cores).
+    """
 
     points: int = 128
     width_m: float = 12e-3
     time_slices: int = 64
     diffraction: bool = False
+    fft_workers: int = -1
 
 
 @dataclass(frozen=True)
@@ -82,14 +87,20 @@ class Seed:
     profile: str = "gaussian"         # "gaussian" | "flat" | "supergaussian"
     order: float = 8.0                # supergaussian order
     diameter_m: float = 1e-3          # 2w (1/e² intensity diameter); flat: hard-edged diameter
+    # where the seed is taken (the start plane of the layout); at most one of the two is set:
+    waist_m: float | None = None      # distance from the start plane to the waist (> 0: downstream)
+    curvature_m: float | None = None  # wavefront radius at the start (> 0 diverging, < 0 converging)
+    m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see optics.py)
+    phase_screen_seed: int = 0        # random seed of that phase screen
 
 
 @dataclass(frozen=True)
 class Step:
     """One element of the layout. Fields not used by a kind keep their defaults.
 
-    kinds: "pass" (medium, reverse), "loss" (transmission), "aperture" (shape, diameter_m),
-    "space" (length_m), "lens" (focal_m). Optics may carry a damage fluence for the warning.
+    kinds: "pass" (medium, reverse), "loss" (transmission), "aperture" (shape, diameter_m, and
+    order for a soft edge), "space" (length_m), "lens" (focal_m), "filter" (focal_m,
+    pinhole_diameter_m), "relay" (magnification). Optics may carry a damage fluence for the warning.
     """
 
     kind: str
@@ -101,7 +112,10 @@ class Step:
     shape: str = "round"              # aperture: "round" | "square"
     diameter_m: float | None = None   # aperture: diameter (round) or side (square)
     length_m: float = 0.0             # space
-    focal_m: float | None = None      # lens
+    focal_m: float | None = None      # lens, filter
+    order: float | None = None        # aperture: super-Gaussian order of a soft edge (None: hard)
+    pinhole_diameter_m: float | None = None   # filter
+    magnification: float = 1.0        # relay
     damage_fluence_J_m2: float | None = None
     damage_pulse_s: float | None = None
     damage_intensity_W_m2: float | None = None   # cw runs
@@ -134,6 +148,8 @@ class Limits:
     clipped_fraction: float = 0.01        # aperture clips more than this fraction of the energy
     pixels_across_beam: float = 8.0       # fewer pixels across the beam diameter
     transverse_gain_length: float = 3.0   # g0 x clear-aperture width: parasitic-oscillation risk
+    window_edge_fraction: float = 1e-4    # diffraction: energy fraction reaching the absorbing window edge
+    sampling_limit_fraction: float = 1e-3 # diffraction: energy fraction near the grid's sampling limit
 
 
 @dataclass(frozen=True)

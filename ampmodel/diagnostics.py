@@ -15,6 +15,7 @@ import numpy as np
 
 from . import pumping
 from .description import Config
+from .kernels.diffraction import critical_power_W, self_focusing_length_m
 from .layout import BeamState, StepOutcome
 from .results import MediumRecord
 
@@ -34,7 +35,8 @@ def scaled_damage_fluence(damage_J_m2: float, quoted_pulse_s: float | None, puls
     return damage_J_m2 * (pulse_s / quoted_pulse_s) ** exponent
 
 
-def _step_label(config: Config, index: int) -> str:
+def step_label(config: Config, index: int) -> str:
+    """``step 3 (pass rod, reverse)``: how warnings name a step."""
     step = config.steps[index]
     label = f"step {index} ({step.kind}"
     if step.kind == "pass":
@@ -42,9 +44,22 @@ def _step_label(config: Config, index: int) -> str:
     return label + ")"
 
 
+_step_label = step_label
+
+# What a clipping step does, in the clipping warning.
+_CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
+               "pass": "the clear aperture clips"}
+
+
 def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: list[StepOutcome],
-              media: Mapping[str, MediumRecord], maps: Mapping[str, pumping.GainMap]) -> dict[str, Any]:
-    """Build the summary.json dict of a pulsed run."""
+              media: Mapping[str, MediumRecord], maps: Mapping[str, pumping.GainMap],
+              seed_beam: Mapping[str, float] | None = None,
+              extra_warnings: list[str] | None = None) -> dict[str, Any]:
+    """Build the summary.json dict of a pulsed run.
+
+    ``beam`` is the final beam (fluence path ``layout.BeamState`` or field path ``optics.FieldBeam``);
+    ``seed_beam`` the seed's beam figures; ``extra_warnings`` are added as they are (grid checks).
+    """
     limits, seed = config.limits, config.seed
     pixel_area = beam.pixel_area_m2
     dx = float(beam.x_m[1] - beam.x_m[0])
@@ -69,6 +84,9 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                  "stored_energy_J": s0, "stored_energy_final_J": s1, "extracted_energy_J": ext,
                  "saturation_fluence_J_cm2": rec.saturation_fluence_J_m2 * J_CM2,
                  "quasi_three_level": m.material.quasi_three_level}
+        if m.material.n2_m2_W > 0:
+            entry["critical_power_W"] = critical_power_W(m.material.wavelength_m, m.material.refractive_index,
+                                                         m.material.n2_m2_W)
         gm = maps[m.name]
         if m.pump is not None:
             entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
@@ -92,7 +110,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     for step, oc in zip(config.steps, outcomes):
         peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
         peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
-        lost += oc.clipped_J + oc.passive_loss_J
+        edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
+        lost += oc.clipped_J + oc.passive_loss_J + edge_lost
         entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
                  "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
                  "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
@@ -101,13 +120,43 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                  "b_integral_rad": oc.b_integral_step_rad,
                  "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
                  "extracted_energy_J": oc.extracted_J}
+        if config.grid.diffraction:
+            entry["edge_absorbed_energy_J"] = edge_lost
+        entry.update(oc.extras.get("beam", {}))
+        if "peak_power_W" in oc.extras:
+            entry["peak_power_W"] = oc.extras["peak_power_W"]
         if step.kind == "pass":
             entry["reverse"] = step.reverse
         steps.append(entry)
-        label = _step_label(config, step.index)
+        label = step_label(config, step.index)
+        for text in oc.extras.get("warnings", ()):
+            warnings.append(f"{label}: {text}")
         if oc.energy_in_J > 0 and oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
-            warnings.append(f"{label}: the aperture clips {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
+            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
+            warnings.append(f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
                             f"(more than {100 * limits.clipped_fraction:g} %)")
+        if oc.energy_in_J > 0 and edge_lost > limits.clipped_fraction * oc.energy_in_J:
+            warnings.append(f"{label}: the absorbing window edge takes {100 * edge_lost / oc.energy_in_J:.1f} % of "
+                            f"the energy (more than {100 * limits.clipped_fraction:g} %); widen grid.width_mm")
+        if step.kind == "pass" and "peak_power_W" in oc.extras:
+            mat = config.medium(step.medium).material
+            if mat.n2_m2_W > 0:
+                p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+                ratio = oc.extras["peak_power_W"] / p_cr
+                if ratio > 1.0:
+                    beam_fig = oc.extras.get("beam", {})
+                    radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
+                    z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
+                    length = config.medium(step.medium).length_m
+                    collapse = (f"; Marburger's collapse distance for a smooth beam of this size is about "
+                                f"{z_sf:.3g} m against the {length * 1e3:g} mm medium (an estimate)"
+                                if np.isfinite(z_sf) and radius > 0 else "")
+                    warnings.append(
+                        f"{label}: peak power {oc.extras['peak_power_W']:.3g} W is {ratio:.2g} times the critical "
+                        f"power for self-focusing in {mat.name} (P_cr = 3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, "
+                        f"Marburger 1975, from memory — verify){collapse}; "
+                        + ("the field path includes the Kerr phase" if config.grid.diffraction else
+                           "set grid.diffraction = true to include the Kerr phase in the beam"))
         if oc.b_integral_step_rad > limits.b_integral_step_rad:
             warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
                             f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
@@ -139,6 +188,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     if edge > 1e-3 * seed_map.max():
         warnings.append(f"grid: the seed reaches the edge of the {config.grid.width_m * 1e3:g} mm window "
                         f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+    warnings.extend(extra_warnings or ())
     if seed.shape != "flat" and config.grid.time_slices < 16:
         warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
                         f"coarsely; 16 or more are advised for the output pulse shape")
@@ -165,6 +215,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         "energy_balance_error": balance,
         "pulse_duration_ns": pulse_s * 1e9,
         "time_slice_ns": beam.dt_s * 1e9,
+        "diffraction": config.grid.diffraction,
+        "seed_beam": dict(seed_beam or {}),
         "warnings": warnings,
         "steps": steps,
         "media": media_summary,

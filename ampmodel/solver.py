@@ -6,10 +6,14 @@ from contextlib import nullcontext
 
 import numpy as np
 
-from . import beams, diagnostics, pumping
+from . import beams, diagnostics, optics, pumping
 from .description import Config
+from .kernels.beam_figures import aperture_figures, d4sigma
 from .layout import STEP_ACTIONS, BeamState, MediumState, StepOutcome, pass_medium
 from .results import MediumRecord, Result, StepRecord
+
+# Step actions of the fluence path: the layout's, with the optics that also act without diffraction.
+FLUENCE_ACTIONS = {**STEP_ACTIONS, **optics.FLUENCE_STEP_ACTIONS}
 
 
 def _progress(total: int, enabled: bool | None):
@@ -35,7 +39,8 @@ def memory_estimate_bytes(config: Config) -> int:
                   for m in config.media}
         media = sum((8 + passes[m.name]) * m.slices * pixels * (4 if m.loss_per_m > 0 else 1) for m in config.media)
         return 8 * (media + (3 + len(config.steps)) * pixels)
-    beam = 5 * config.grid.time_slices * pixels
+    # the field path holds a complex field, its transform and the gain step's temporaries besides
+    beam = (12 if config.grid.diffraction else 5) * config.grid.time_slices * pixels
     media = sum(3 * m.slices * pixels for m in config.media)
     records = 2 * len(config.steps) * pixels
     return 8 * (beam + media + records)
@@ -82,11 +87,19 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     x = beams.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
     t, weights, dt = beams.time_slices(seed.shape, seed.duration_s, grid.time_slices)
-    seed_map = beams.seed_fluence(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
-    fluence = weights[:, None, None] * seed_map[None, :, :]
-    beam = BeamState(fluence=fluence, b_integral=np.zeros_like(fluence), x_m=x, y_m=y, dt_s=dt,
-                     wavelength_m=seed.wavelength_m)
-    seed_power = fluence.sum(axis=(1, 2)) * beam.pixel_area_m2 / dt
+    if grid.diffraction or seed.waist_m is not None:
+        seed_field = _seed_field(config, x, y)
+        seed_map = optics.fluence_of(seed_field)
+    else:
+        seed_map = beams.seed_fluence(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
+    if grid.diffraction:
+        beam = optics.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m, grid.fft_workers)
+    else:
+        fluence = weights[:, None, None] * seed_map[None, :, :]
+        beam = BeamState(fluence=fluence, b_integral=np.zeros_like(fluence), x_m=x, y_m=y, dt_s=dt,
+                         wavelength_m=seed.wavelength_m)
+    area = beam.pixel_area_m2
+    seed_power = weights * seed_map.sum() * area / dt
 
     maps = {m.name: pumping.gain_map(m, x, y) for m in config.media}
     states = {}
@@ -99,21 +112,36 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     initial_ln_gain = {name: s.ln_gain.copy() for name, s in states.items()}
 
     total_slices = sum(config.medium(s.medium).slices for s in config.steps if s.kind == "pass")
+    apertures = _clear_apertures(config, states)
     outcomes: list[StepOutcome] = []
     records: list[StepRecord] = []
+    checks = [("the seed", optics.check_grid(beam))] if grid.diffraction else []
+    power_before = float(seed_power.max()) if seed_power.size else 0.0
     with _progress(total_slices, progress) as bar:
         tick = bar.update if bar is not None else None
         for step in config.steps:
-            if step.kind == "pass":
+            if grid.diffraction and step.kind == "pass":
+                index = config.medium(step.medium).material.refractive_index
+                outcome = optics.pass_medium_field(beam, states[step.medium], index, reverse=step.reverse,
+                                                   tick=tick)
+            elif grid.diffraction:
+                outcome = optics.FIELD_STEP_ACTIONS[step.kind](beam, step)
+            elif step.kind == "pass":
                 outcome = pass_medium(beam, states[step.medium], reverse=step.reverse, tick=tick)
             else:
-                outcome = STEP_ACTIONS[step.kind](beam, step)
+                outcome = FLUENCE_ACTIONS[step.kind](beam, step)
+            fluence = beam.fluence
+            fluence_map = fluence.sum(axis=0)
+            power = fluence.sum(axis=(1, 2)) * area / dt
+            if grid.diffraction:
+                checks.append((diagnostics.step_label(config, step.index), optics.check_grid(beam)))
+            outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
+            outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
+            power_before = float(power.max()) if power.size else 0.0
             outcomes.append(outcome)
             records.append(StepRecord(
                 index=step.index, kind=step.kind, medium=step.medium,
-                fluence_J_m2=beam.fluence.sum(axis=0),
-                power_W=beam.fluence.sum(axis=(1, 2)) * beam.pixel_area_m2 / dt,
-                b_integral_rad=beam.b_integral.max(axis=0)))
+                fluence_J_m2=fluence_map, power_W=power, b_integral_rad=beam.b_integral.max(axis=0)))
 
     media_records = {}
     for m in config.media:
@@ -124,6 +152,46 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
             material=m.material.name, sources=dict(m.material.sources))
-    summary = diagnostics.summarise(config, beam, seed_map, outcomes, media_records, maps)
+    grid_warnings = optics.grid_warnings(checks, config.limits, grid.width_m, grid.points)
+    seed_aperture = apertures[config.steps[0].index] if config.steps else np.ones_like(seed_map, dtype=bool)
+    summary = diagnostics.summarise(config, beam, seed_map, outcomes, media_records, maps,
+                                    seed_beam=beam_figures(seed_map, x, y, seed_aperture, area),
+                                    extra_warnings=grid_warnings)
     return Result(config=config, x_m=x, y_m=y, t_s=t, seed_fluence_J_m2=seed_map, seed_power_W=seed_power,
                   steps=records, media=media_records, summary=summary)
+
+
+def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """The seed's field at the start plane (waist position, curvature, M²: beams.seed_start_field)."""
+    seed = config.seed
+    try:
+        return beams.seed_start_field(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
+                                      seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
+                                      m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed)
+    except ValueError as exc:
+        from .config import ConfigError
+        raise ConfigError([f"{config.source}: seed: {exc}"]) from None
+
+
+def _clear_apertures(config: Config, states: dict[str, MediumState]) -> dict[int, np.ndarray]:
+    """The clear aperture each step's beam figures are taken over: a pass's own medium; any other
+    step the next medium the beam passes (after the last pass, the last one passed)."""
+    out: dict[int, np.ndarray] = {}
+    passes = [s for s in config.steps if s.kind == "pass"]
+    fallback = next(iter(states.values())).mask if states else None
+    for step in config.steps:
+        ahead = [s for s in passes if s.index >= step.index]
+        chosen = ahead[0] if ahead else (passes[-1] if passes else None)
+        out[step.index] = states[chosen.medium].mask if chosen is not None else fallback
+    return out
+
+
+def beam_figures(fluence_map: np.ndarray, x: np.ndarray, y: np.ndarray, aperture: np.ndarray | None,
+                 pixel_area_m2: float) -> dict[str, float]:
+    """D4σ diameters (mm), peak-to-mean modulation and fill factor over ``aperture`` of a fluence map
+    (definitions in kernels/beam_figures.py and the README)."""
+    dx4, dy4 = d4sigma(fluence_map, x, y)
+    inside = aperture if aperture is not None else np.ones(fluence_map.shape, dtype=bool)
+    modulation, fill = aperture_figures(fluence_map, inside, pixel_area_m2)
+    return {"d4sigma_x_mm": dx4 * 1e3, "d4sigma_y_mm": dy4 * 1e3, "modulation_peak_to_mean": modulation,
+            "fill_factor": fill}
