@@ -159,7 +159,8 @@ def seed_start_field(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m:
       (:func:`~ampmodel.kernels.diffraction.gaussian_beam`); any other seed one exact
       angular-spectrum step of −waist_m in air.
     - ``curvature_m`` (wavefront radius at the start plane, > 0 diverging, < 0 converging): the phase
-      exp(−i·k·r²/(2R)) is applied.
+      exp(+i·k·r²/(2R)) is applied (the convention E·exp(+ikz) of ``kernels/diffraction.py``: the
+      phase of a thin lens of focal length −R).
 
     Without these keys the field is sqrt(:func:`seed_fluence`) with a flat phase.
 
@@ -181,7 +182,7 @@ def seed_start_field(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m:
             ky = kd.angular_frequencies(len(y_m), float(y_m[1] - y_m[0]) * len(y_m))
             field = kd.propagate(field, kd.transfer_function(kx, ky, wavelength_m, 1.0, -waist_m))
     if curvature_m is not None:
-        field = field * kd.lens_phase(x_m, y_m, wavelength_m, curvature_m)
+        field = field * kd.lens_phase(x_m, y_m, wavelength_m, -curvature_m)
     pixel_area = abs(x_m[1] - x_m[0]) * abs(y_m[1] - y_m[0]) if len(x_m) > 1 else 1.0
     total = float((np.abs(field) ** 2).sum() * pixel_area)
     if total <= 0.0:

@@ -272,11 +272,10 @@ def field_loss(beam: FieldBeam, step: Step) -> StepOutcome:
 
 
 def field_aperture(beam: FieldBeam, step: Step) -> StepOutcome:
-    """A centred aperture, hard (grey rim pixels) or soft (super-Gaussian ``order``): the amplitude
-    times sqrt(T), T from :func:`~ampmodel.kernels.diffraction.aperture_transmission`."""
+    """A centred aperture, hard (grey rim pixels) or soft (super-Gaussian ``order``): the field times
+    the amplitude transmission of :func:`~ampmodel.kernels.diffraction.aperture_amplitude`."""
     def change():
-        t = kd.aperture_transmission(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order)
-        beam.field *= np.sqrt(t)
+        beam.field *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order)
         return {"_loss": "clipped"}
     return _simple(beam, change)
 
@@ -328,12 +327,12 @@ def field_filter(beam: FieldBeam, step: Step) -> StepOutcome:
     (:func:`~ampmodel.kernels.diffraction.pinhole_filter`, which explains the method)."""
     def change():
         radius = step.pinhole_diameter_m / 2.0
-        beam.field, pad = kd.pinhole_filter(beam.field, beam.width_m, beam.wavelength_m, step.focal_m, radius,
-                                            beam.workers)
+        beam.field, pad, passed = kd.pinhole_filter(beam.field, beam.width_m, beam.wavelength_m, step.focal_m,
+                                                    radius, beam.workers)
         beam.fft_count += 2 * beam.field.shape[0]
         dx = float(beam.x_m[1] - beam.x_m[0])
         focal_half_width = beam.wavelength_m * step.focal_m / (2.0 * dx)   # the grid's reach in the focal plane
-        out = {"_loss": "clipped", "padding": pad}
+        out = {"_loss": "clipped", "padding": pad, "pinhole_transmission": passed}
         if radius >= focal_half_width:
             out["warnings"] = [f"the pinhole (radius {radius * 1e6:.3g} µm) is wider than the focal plane the grid "
                                f"reaches (half-width λf/(2dx) = {focal_half_width * 1e6:.3g} µm): it removes "
@@ -393,7 +392,7 @@ def fluence_aperture(beam, step: Step) -> StepOutcome:
         return apply_aperture(beam, step)
     e_in = beam.energy_J()
     peak_f, peak_i = float(beam.fluence.sum(axis=0).max()), float(beam.fluence.max() / beam.dt_s)
-    beam.fluence *= kd.aperture_transmission(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order)
+    beam.fluence *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order) ** 2
     e_out = beam.energy_J()
     return StepOutcome(e_in, e_out, clipped_J=e_in - e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
 

@@ -619,8 +619,9 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     """Write the figures of a run as PNG files into ``directory`` (created if needed).
 
     Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
-    ``gain_<medium>.png`` for each medium, and ``b_integral.png`` when any step has a non-zero
-    B-integral. A cw run writes ``intensity_maps.png``, ``power_per_step.png`` and
+    ``gain_<medium>.png`` for each medium, ``b_integral.png`` when any step has a non-zero
+    B-integral, and ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
+    (``plots_beam.py``). A cw run writes ``intensity_maps.png``, ``power_per_step.png`` and
     ``gain_<medium>.png`` (the steady-state gain along z and the intensity of each pass; plots_cw.py).
 
     Parameters
@@ -652,4 +653,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
             paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
     if not cw and result.steps and _finite_max(_b_integrals(result)[0]) > 0:
         paths.append(plot_b_integral(result, out / "b_integral.png"))
+    from .plots_beam import has_beam_figures, plot_beam_size, plot_beam_steps
+    if result.steps and has_beam_figures(result):
+        paths.append(plot_beam_steps(result, out / "beam_steps.png"))
+        paths.append(plot_beam_size(result, out / "beam_size.png"))
     return paths

@@ -69,6 +69,7 @@ class Result:
     seed_intensity_W_m2 : (Ny, Nx) (cw; None in pulsed)
     steps : one StepRecord per step, in order; media : name -> MediumRecord
     summary : the summary.json dict (SPEC section 4)
+    output_field : (Nt, Ny, Nx) complex field after the last step (diffraction runs; |E|² in J/m²)
     """
 
     config: Config
@@ -81,6 +82,7 @@ class Result:
     media: dict[str, MediumRecord]
     summary: dict[str, Any]
     seed_intensity_W_m2: np.ndarray | None = None
+    output_field: np.ndarray | None = None
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``.
@@ -167,6 +169,12 @@ def write_hdf5(result: Result, path: Path) -> None:
                 _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
                 _dataset(sg, "power", rec.power_W, "W")
                 _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
+            _beam_figures(f, result.summary)
+            if result.output_field is not None:
+                o = f.create_group("output")
+                _dataset(o, "field", result.output_field, "sqrt(J/m^2)",
+                         meaning="complex field of each time slice after the last step; |field|^2 is the "
+                                 "slice's fluence in J/m^2")
             media = f.create_group("media")
             for name, m in result.media.items():
                 mg = media.create_group(name)
@@ -188,17 +196,35 @@ def write_hdf5(result: Result, path: Path) -> None:
         raise
 
 
+_BEAM_KEYS = (("d4sigma_x", "d4sigma_x_mm", 1e-3, "m"), ("d4sigma_y", "d4sigma_y_mm", 1e-3, "m"),
+              ("modulation", "modulation_peak_to_mean", 1.0, "1"), ("fill_factor", "fill_factor", 1.0, "1"))
+
+
+def _beam_figures(f, summary: dict[str, Any]) -> None:
+    """/beam/*: the beam figures of the seed (row 0) and after each step (rows 1...), from the summary."""
+    rows = [summary.get("seed_beam") or {}] + [s for s in summary.get("steps", [])]
+    if not rows[0] or any(key not in r for r in rows for _, key, _, _ in _BEAM_KEYS):
+        return
+    g = f.create_group("beam")
+    g.attrs["rows"] = "seed, then after each step in order"
+    for name, key, scale, units in _BEAM_KEYS:
+        _dataset(g, name, np.array([r[key] * scale for r in rows]), units)
+
+
 def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
     """Read a result.h5 back into plain arrays (SI): {'attrs', 'grid', 'seed', 'steps', 'media'}."""
     import h5py
 
-    out: dict[str, Any] = {"steps": {}, "media": {}}
+    out: dict[str, Any] = {"steps": {}, "media": {}, "beam": {}, "output": {}}
     with h5py.File(path, "r") as f:
         out["attrs"] = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
         out["grid"] = {k: f["grid"][k][()] for k in f["grid"]}
         out["seed"] = {k: f["seed"][k][()] for k in f["seed"]}
         for name, g in f["steps"].items():
             out["steps"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g.attrs)}
+        for group in ("beam", "output"):
+            if group in f:
+                out[group] = {k: f[group][k][()] for k in f[group]}
         for name, g in f["media"].items():
             out["media"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g["gain_initial"].attrs)}
     return out

@@ -158,7 +158,8 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
                                     seed_beam=beam_figures(seed_map, x, y, seed_aperture, area),
                                     extra_warnings=grid_warnings)
     return Result(config=config, x_m=x, y_m=y, t_s=t, seed_fluence_J_m2=seed_map, seed_power_W=seed_power,
-                  steps=records, media=media_records, summary=summary)
+                  steps=records, media=media_records, summary=summary,
+                  output_field=beam.field if grid.diffraction else None)
 
 
 def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
