@@ -148,7 +148,7 @@ class Limits:
     clipped_fraction: float = 0.01        # aperture clips more than this fraction of the energy
     pixels_across_beam: float = 8.0       # fewer pixels across the beam diameter
     transverse_gain_length: float = 3.0   # g0 x clear-aperture width: parasitic-oscillation risk
-    window_edge_fraction: float = 1e-4    # diffraction: energy fraction reaching the absorbing window edge
+    window_edge_fraction: float = 1e-3    # diffraction: energy fraction reaching the absorbing window edge
     sampling_limit_fraction: float = 1e-3 # diffraction: energy fraction near the grid's sampling limit
 
 

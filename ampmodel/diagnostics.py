@@ -102,6 +102,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                             f"oscillation; consider edge cladding or a lower gain")
 
     steps = []
+    self_focusing: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)
     peak_fluence = float(seed_map.max())
     peak_intensity = 0.0   # every step records the peaks of the beam entering it
     lost = 0.0
@@ -141,26 +142,13 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         if step.kind == "pass" and "peak_power_W" in oc.extras:
             mat = config.medium(step.medium).material
             if mat.n2_m2_W > 0:
-                p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
-                ratio = oc.extras["peak_power_W"] / p_cr
-                if ratio > 1.0:
-                    beam_fig = oc.extras.get("beam", {})
-                    radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
-                    z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
-                    length = config.medium(step.medium).length_m
-                    collapse = (f"; Marburger's collapse distance for a smooth beam of this size is about "
-                                f"{z_sf:.3g} m against the {length * 1e3:g} mm medium (an estimate)"
-                                if np.isfinite(z_sf) and radius > 0 else "")
-                    warnings.append(
-                        f"{label}: peak power {oc.extras['peak_power_W']:.3g} W is {ratio:.2g} times the critical "
-                        f"power for self-focusing in {mat.name} (P_cr = 3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, "
-                        f"Marburger 1975, from memory — verify){collapse}; "
-                        + ("the field path includes the Kerr phase" if config.grid.diffraction else
-                           "set grid.diffraction = true to include the Kerr phase in the beam"))
-        if oc.b_integral_step_rad > limits.b_integral_step_rad:
-            warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
-                            f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
-                            f"beam break-up risk")
+                ratio = oc.extras["peak_power_W"] / critical_power_W(mat.wavelength_m, mat.refractive_index,
+                                                                     mat.n2_m2_W)
+                worst = self_focusing.get(step.medium)
+                if ratio > 1.0 and (worst is None or ratio > worst[0]):
+                    self_focusing[step.medium] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
+                elif ratio > 1.0:
+                    self_focusing[step.medium] = worst[:3] + (worst[3] + 1,)
         damage, quoted, what = None, None, ""
         if step.kind == "pass":
             mat = config.medium(step.medium).material
@@ -176,6 +164,22 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                     f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
                     f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
                     f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+    for name, (ratio, index, oc, count) in self_focusing.items():
+        mat = config.medium(name).material
+        p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+        beam_fig = oc.extras.get("beam", {})
+        radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
+        z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
+        collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
+                    f"the {config.medium(name).length_m * 1e3:g} mm medium (an estimate)"
+                    if np.isfinite(z_sf) and radius > 0 else "")
+        passes = f" ({count} passes above it)" if count > 1 else ""
+        warnings.append(
+            f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config, index)}, "
+            f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
+            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
+            + ("the field path includes the Kerr phase" if config.grid.diffraction else
+               "set grid.diffraction = true to include the Kerr phase in the beam"))
     b_total = float(beam.b_integral.max()) if beam.b_integral.size else 0.0
     if b_total > limits.b_integral_total_rad:
         warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
