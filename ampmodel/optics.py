@@ -33,7 +33,7 @@ from . import beams
 from .description import Limits, Step
 from .kernels import diffraction as kd
 from .kernels.frantz_nodvik import fn_slice
-from .layout import MediumState, StepOutcome, _log_mean
+from .layout import MediumState, StepOutcome
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
 SPECTRAL_TAIL = 1e-6
@@ -223,12 +223,17 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
             f *= half_loss
         ratio = np.zeros_like(f)
         np.divide(f, f_in, out=ratio, where=f_in > 0.0)
-        factor = np.sqrt(ratio)
         if b_coef > 0.0:
-            phase = b_coef * _log_mean(f_in, f)
-            beam.b_integral += phase
-            factor = factor * np.exp(1j * phase)
-        beam.field *= factor
+            # logarithmic mean of f_in and f = f_in·(r − 1)/ln r, r = f/f_in (f_in where r = 1)
+            x = ratio - 1.0
+            with np.errstate(divide="ignore", invalid="ignore"):
+                mean = f_in * x / np.log1p(x)
+            np.copyto(mean, f_in, where=(x == 0.0))
+            mean *= b_coef
+            beam.b_integral += mean
+            beam.field *= kd.amplitude_phase(np.sqrt(ratio, out=ratio), mean)
+        else:
+            beam.field *= np.sqrt(ratio, out=ratio)
         energy = float(f.sum())
         pf, pi = _peaks(f, beam.dt_s)
         peak_f, peak_i = max(peak_f, pf), max(peak_i, pi)

@@ -334,3 +334,35 @@ def self_focusing_length_m(wavelength_m: float, index: float, beam_radius_m: flo
     if root <= 0.852 or inner <= 0.0:
         return math.inf
     return 0.367 * k * beam_radius_m ** 2 / math.sqrt(inner)
+
+
+# Taylor coefficients of cos and sin in powers of φ² (through φ⁸ and φ⁹): below SMALL_PHASE rad the
+# truncation error is under 3e-17, round-off level.
+SMALL_PHASE = 0.1
+_COS = (1.0, -1.0 / 2, 1.0 / 24, -1.0 / 720, 1.0 / 40320)
+_SIN = (1.0, -1.0 / 6, 1.0 / 120, -1.0 / 5040, 1.0 / 362880)
+
+
+def amplitude_phase(amplitude: np.ndarray, phase_rad: np.ndarray) -> np.ndarray:
+    """Complex factor amplitude·exp(i·phase), elementwise.
+
+    Kerr phases per slice are small: when every |phase| <= SMALL_PHASE the cosine and sine are summed
+    from their Taylor series (Horner, exact to round-off there), several times faster than the complex
+    exponential; otherwise numpy's cos and sin are used.
+    """
+    out = np.empty(np.shape(phase_rad), dtype=np.complex128)
+    if phase_rad.size and float(np.max(np.abs(phase_rad))) <= SMALL_PHASE:
+        p2 = phase_rad * phase_rad
+        c = np.full_like(p2, _COS[-1])
+        s = np.full_like(p2, _SIN[-1])
+        for a, b in zip(_COS[-2::-1], _SIN[-2::-1]):
+            c *= p2
+            c += a
+            s *= p2
+            s += b
+        s *= phase_rad
+    else:
+        c, s = np.cos(phase_rad), np.sin(phase_rad)
+    np.multiply(amplitude, c, out=out.real)
+    np.multiply(amplitude, s, out=out.imag)
+    return out
