@@ -23,7 +23,7 @@ import numpy as np
 import scipy.fft
 
 # Absorbing window edge: amplitude mask m(u) = exp(−EDGE_STRENGTH·u^EDGE_ORDER) per axis, with
-# u = |x|/(W/2). m is 1 − 6e-4 at u = 0.8, 0.93 at u = 0.9 and 1e-2 (intensity 1e-4) at the window
+# u = |x|/(W/2). m is 1 − 7e-4 at u = 0.8, 0.93 at u = 0.9 and 1e-2 (intensity 1e-4) at the window
 # edge: the outer tenth of the window on each side absorbs, the central CLEAR_FRACTION is clear.
 EDGE_ORDER = 40
 EDGE_STRENGTH = math.log(100.0)
@@ -92,7 +92,7 @@ def propagate(field: np.ndarray, transfer: np.ndarray, workers: int = -1) -> np.
 def edge_mask(x_m: np.ndarray, y_m: np.ndarray, width_m: float) -> np.ndarray:
     """(Ny, Nx) amplitude mask of the absorbing window edge (super-Gaussian in x times in y).
 
-    m = exp(−a·u^p) per axis, u = |x|/(W/2), p = EDGE_ORDER, a = EDGE_STRENGTH: 1 to within 6e-4 over
+    m = exp(−a·u^p) per axis, u = |x|/(W/2), p = EDGE_ORDER, a = EDGE_STRENGTH: 1 to within 7e-4 over
     the central 80 % of the window, 1e-2 (intensity 1e-4) at its edge.
     """
     half = width_m / 2.0

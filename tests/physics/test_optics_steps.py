@@ -217,3 +217,18 @@ def test_grid_warnings_name_a_grid_that_would_do():
     assert "reaches the absorbing edge of the 8 mm window" in text and "grid.width_mm = " in text
     assert "step 2 (lens): the lens phase is undersampled" in text
     assert "angular spectrum reaches the sampling limit of 48 points" in text and "grid.points = " in text
+
+
+def test_field_run_files_hold_the_beam_figures_and_the_output_field(tmp_path):
+    """result.h5 of a field run: /beam rows (seed, then each step) equal the summary's figures, and
+    /output/field squares to the last step's fluence."""
+    from ampmodel.results import read_hdf5
+
+    result = _run(True)
+    result.save(tmp_path / "run", plots=False)
+    data = read_hdf5(tmp_path / "run" / "result.h5")
+    rows = [result.summary["seed_beam"]] + result.summary["steps"]
+    assert np.allclose(data["beam"]["d4sigma_x"], [r["d4sigma_x_mm"] * 1e-3 for r in rows], rtol=1e-15)
+    assert np.allclose(data["beam"]["fill_factor"], [r["fill_factor"] for r in rows], rtol=1e-15)
+    field = data["output"]["field"]
+    assert np.allclose((np.abs(field) ** 2).sum(axis=0), result.steps[-1].fluence_J_m2, rtol=1e-12)
