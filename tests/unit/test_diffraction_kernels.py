@@ -76,3 +76,21 @@ def test_soft_aperture_and_relay_on_the_fluence_path():
     assert beam.energy_J() + out.clipped_J == pytest.approx(e0, rel=1e-12)
     assert out.clipped_J < 1e-4 * e0          # only the far wing falls outside the window
     assert beam.fluence[0].max() == pytest.approx(spot.max() / 4, rel=3e-2)
+
+
+def test_cw_mode_refuses_diffraction_and_the_seed_field_keys():
+    """Diffraction is for pulsed runs in this version: a cw config with it, or with a seed waist, says so."""
+    from ampmodel.config import tomllib   # tomllib, or tomli on Python 3.10
+    from pathlib import Path
+
+    from ampmodel.config import ConfigError, load_config
+
+    root = Path(__file__).resolve().parents[2]
+    raw = tomllib.loads((root / "configs" / "cw_double_pass_single_frequency.toml").read_text())
+    raw["grid"]["diffraction"] = True
+    raw["seed"]["waist_mm"] = 100.0
+    with pytest.raises(ConfigError) as info:
+        load_config(raw)
+    text = "\n".join(info.value.problems)
+    assert 'grid.diffraction = true: split-step diffraction is available for mode = "pulsed" only' in text
+    assert "seed.waist_mm = 100.0: applies to mode = \"pulsed\" only" in text
