@@ -11,6 +11,7 @@ SUFFIXES: dict[str, tuple[str, float]] = {
     "_J_cm2": ("_J_m2", 1e4),
     "_W_cm2": ("_W_m2", 1e4),
     "_m2_W": ("_m2_W", 1.0),
+    "_m_W": ("_m_W", 1.0),
     "_per_cm": ("_per_m", 1e2),
     "_per_m3": ("_per_m3", 1.0),
     "_per_m": ("_per_m", 1.0),

@@ -6,9 +6,10 @@ config may instead give a ``[medium.material]`` table with the same keys.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Mapping
+from typing import Any, Mapping
 
 from ..units import photon_energy_J, si_name, to_si
 
@@ -40,9 +41,116 @@ MATERIAL_KEYS: dict[str, KeySpec] = {
     "pump_absorption_per_cm": KeySpec(False, 1e-4, 1e4, "small-signal pump absorption coefficient at the typical doping"),
     "pump_absorption_cross_section_cm2": KeySpec(False, 1e-26, 1e-16, "absorption cross-section at the pump wavelength"),
     "pump_emission_cross_section_cm2": KeySpec(False, 1e-26, 1e-16, "emission cross-section at the pump wavelength (quasi-three-level bleaching limit)", allow_zero=True),
+    "raman_gain_m_W": KeySpec(False, 1e-15, 1e-11, "peak stimulated-Raman gain coefficient (fibres: the Raman threshold)"),
 }
 STRING_KEYS = {"name": "material name", "broadening": "line broadening: 'homogeneous' or 'inhomogeneous'"}
 BROADENINGS = ("homogeneous", "inhomogeneous")
+
+# Keys a cross-section spectrum can stand in for: (key, spectrum column, wavelength key it is read at).
+SPECTRUM_STANDS_IN = (
+    ("emission_cross_section_cm2", "emission", "wavelength_nm"),
+    ("absorption_cross_section_cm2", "absorption", "wavelength_nm"),
+    ("pump_absorption_cross_section_cm2", "absorption", "pump_wavelength_nm"),
+    ("pump_emission_cross_section_cm2", "emission", "pump_wavelength_nm"),
+)
+SPECTRUM_ARRAYS = {"wavelength_nm": "wavelengths of the table, strictly increasing",
+                   "emission_cm2": "emission cross-section at each wavelength",
+                   "absorption_cm2": "absorption cross-section at each wavelength"}
+SPECTRUM_MAX_CM2 = 1e-16
+
+
+@dataclass(frozen=True)
+class Spectrum:
+    """Cross-section spectra as a table, interpolated linearly in wavelength.
+
+    wavelength_m : strictly increasing wavelengths (m); emission_m2, absorption_m2 : cross-sections (m²)
+    at those wavelengths; source : where the table comes from.
+    """
+
+    wavelength_m: tuple[float, ...]
+    emission_m2: tuple[float, ...]
+    absorption_m2: tuple[float, ...]
+    source: str = ""
+
+    def covers(self, wavelength_m: float) -> bool:
+        """True when ``wavelength_m`` lies inside the table (no extrapolation is done)."""
+        return self.wavelength_m[0] * (1 - 1e-12) <= wavelength_m <= self.wavelength_m[-1] * (1 + 1e-12)
+
+    def at(self, wavelength_m):
+        """(sigma_e, sigma_a) in m² at ``wavelength_m`` (scalar or array, inside the table)."""
+        import numpy as np
+        from ..kernels.fibre_rates import interpolate_cross_sections
+        return interpolate_cross_sections(np.asarray(self.wavelength_m), np.asarray(self.emission_m2),
+                                          np.asarray(self.absorption_m2), wavelength_m)
+
+    @property
+    def range_nm(self) -> str:
+        return f"{self.wavelength_m[0] * 1e9:g} to {self.wavelength_m[-1] * 1e9:g} nm"
+
+
+def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list[tuple[str, Any, str]]]:
+    """Check a ``[spectrum]`` table (config units) and build its :class:`Spectrum`.
+
+    Parameters
+    ----------
+    table : the table as read: ``wavelength_nm``, ``emission_cm2``, ``absorption_cm2`` (arrays of
+        equal length, at least 2 entries, wavelengths strictly increasing, cross-sections from 0 to
+        1e-16 cm²) and ``source`` (a string; required when ``need_source``).
+    need_source : True for the built-in material files.
+
+    Returns
+    -------
+    (spectrum or None, problems) : each problem is (key, value or None, message).
+    """
+    problems: list[tuple[str, Any, str]] = []
+    if not isinstance(table, dict):
+        return None, [("", table, "must be a table with wavelength_nm, emission_cm2 and absorption_cm2 arrays")]
+    allowed = set(SPECTRUM_ARRAYS) | {"source"}
+    for key in table:
+        if key not in allowed:
+            import difflib
+            hint = difflib.get_close_matches(key, sorted(allowed), n=1)
+            problems.append((key, table[key], "unknown key" + (f"; did you mean '{hint[0]}'?" if hint else
+                                                               f"; keys: {', '.join(sorted(allowed))}")))
+    arrays: dict[str, list[float]] = {}
+    for key, meaning in SPECTRUM_ARRAYS.items():
+        if key not in table:
+            problems.append((key, None, f"missing: {meaning}, an array of numbers"))
+            continue
+        value = table[key]
+        good = (isinstance(value, list) and len(value) >= 2
+                and all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+                        for v in value))
+        if not good:
+            problems.append((key, value, f"must be an array of at least 2 finite numbers ({meaning})"))
+            continue
+        values = [float(v) for v in value]
+        if key == "wavelength_nm":
+            if not all(150.0 <= v <= 20000.0 for v in values):
+                problems.append((key, value, "out of range: wavelengths from 150 to 20000 nm"))
+                continue
+            if any(b <= a for a, b in zip(values, values[1:])):
+                problems.append((key, value, "must be strictly increasing"))
+                continue
+        elif not all(0.0 <= v <= SPECTRUM_MAX_CM2 for v in values):
+            problems.append((key, value, f"out of range: cross-sections from 0 to {SPECTRUM_MAX_CM2:g} cm2"))
+            continue
+        arrays[key] = values
+    if len(arrays) == 3 and len({len(v) for v in arrays.values()}) != 1:
+        sizes = ", ".join(f"{k}: {len(v)}" for k, v in arrays.items())
+        problems.append(("", None, f"the arrays must have equal length ({sizes})"))
+    source = table.get("source", "")
+    if "source" in table and (not isinstance(source, str) or not source.strip()):
+        problems.append(("source", source, "must be a non-empty string naming the publication"))
+    elif need_source and "source" not in table:
+        problems.append(("source", None, "missing: the publication the table comes from "
+                                         "(or 'from memory, verify')"))
+    if problems:
+        return None, problems
+    return Spectrum(wavelength_m=tuple(v * 1e-9 for v in arrays["wavelength_nm"]),
+                    emission_m2=tuple(v * 1e-4 for v in arrays["emission_cm2"]),
+                    absorption_m2=tuple(v * 1e-4 for v in arrays["absorption_cm2"]),
+                    source=str(source).strip()), []
 
 
 @dataclass(frozen=True)
@@ -68,7 +176,9 @@ class Material:
     pump_absorption_per_m: float | None = None
     pump_absorption_cross_section_m2: float | None = None
     pump_emission_cross_section_m2: float | None = None
+    raman_gain_m_W: float | None = None
     broadening: str = "homogeneous"
+    spectrum: Spectrum | None = None
     description: str = ""
     sources: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
     notes: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
@@ -77,6 +187,13 @@ class Material:
     def quasi_three_level(self) -> bool:
         """True when the lower laser level is thermally populated (absorption at the lasing wavelength)."""
         return self.absorption_cross_section_m2 > 0.0
+
+    def cross_sections_m2(self, wavelength_m):
+        """(sigma_e, sigma_a) in m² at ``wavelength_m``: from the spectrum when the material has one,
+        else the scalar values (valid at the lasing wavelength only)."""
+        if self.spectrum is not None:
+            return self.spectrum.at(wavelength_m)
+        return self.emission_cross_section_m2, self.absorption_cross_section_m2
 
     @property
     def photon_energy_J(self) -> float:
@@ -95,20 +212,35 @@ class Material:
 
 def material_from_values(values: Mapping[str, object], name: str, description: str = "",
                          sources: Mapping[str, str] | None = None,
-                         notes: Mapping[str, str] | None = None) -> Material:
+                         notes: Mapping[str, str] | None = None,
+                         spectrum: Spectrum | None = None) -> Material:
     """Build a Material from values under their config keys (config units); keys must be validated.
 
     Parameters
     ----------
     values : mapping of config key (see MATERIAL_KEYS, plus 'broadening') -> value in config units
     name : the material's name
+    spectrum : optional cross-section table; it stands in for the scalar cross-sections that are not
+        given (at ``wavelength_nm``, and at ``pump_wavelength_nm`` for the pump's), each derived value
+        sourced to the table. The wavelengths must lie inside the table.
     """
     kwargs: dict[str, object] = {}
+    sources = dict(sources or {})
     for key, value in values.items():
         if key in MATERIAL_KEYS:
             kwargs[si_name(key)] = to_si(key, value)
         elif key == "broadening":
             kwargs["broadening"] = str(value)
+    if spectrum is not None:
+        kwargs["spectrum"] = spectrum
+        for key, column, at_key in SPECTRUM_STANDS_IN:
+            at = kwargs.get(si_name(at_key))
+            if key in values or at is None or not spectrum.covers(at):
+                continue
+            sigma_e, sigma_a = spectrum.at(at)
+            kwargs[si_name(key)] = float(sigma_e if column == "emission" else sigma_a)
+            sources.setdefault(key, f"read from the cross-section spectrum at {at * 1e9:g} nm "
+                                   "(the spectrum's source applies)")
     return Material(name=name, description=description,
-                    sources=MappingProxyType(dict(sources or {})),
+                    sources=MappingProxyType(sources),
                     notes=MappingProxyType(dict(notes or {})), **kwargs)

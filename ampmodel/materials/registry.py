@@ -12,7 +12,18 @@ Each file gives, at top level, ``name`` (str), ``description`` (str) and optiona
     range = "spread reported in the literature"     # optional
 
 ``source`` is required for every value; a value recalled rather than looked up says so in its source
-("from memory, verify"). The loader rejects a file with a value lacking its source, an unknown key, a
+("from memory, verify").
+
+A material may also carry cross-section spectra as a table, interpolated linearly in wavelength::
+
+    [spectrum]
+    wavelength_nm = [900.0, 975.0, 1030.0]
+    emission_cm2 = [2.0e-22, 2.5e-20, 6.0e-21]
+    absorption_cm2 = [6.5e-21, 2.6e-20, 4.0e-22]
+    source = "author, title, journal (year), figure"
+
+The spectrum then stands in for the scalar cross-sections that the file does not give (at
+``wavelength_nm`` and ``pump_wavelength_nm``), each derived value sourced to the table. The loader rejects a file with a value lacking its source, an unknown key, a
 missing required key, or a value outside the plausibility range of its key, so bad data cannot ship.
 """
 from __future__ import annotations
@@ -29,12 +40,12 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
 from ..units import factor, si_name
-from . import BROADENINGS, MATERIAL_KEYS, Material, material_from_values
+from . import BROADENINGS, MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, material_from_values
 
 DATA_DIR = Path(__file__).parent
 """Directory holding the built-in material files (``*.toml``)."""
 
-_TOP_KEYS = ("name", "description", "broadening")
+_TOP_KEYS = ("name", "description", "broadening", "spectrum")
 _VALUE_FIELDS = ("value", "source", "range")
 _WIDTH = 100
 
@@ -118,10 +129,21 @@ def _load_file(path: str | Path) -> Material:
         values[key], sources[key], note = _check_value(path, key, table)
         if note:
             notes[key] = note
-    missing = [key for key, spec in MATERIAL_KEYS.items() if spec.required and key not in values]
+    spectrum = None
+    if "spectrum" in data:
+        spectrum, problems = check_spectrum(data["spectrum"], need_source=True)
+        if problems:
+            key, _, message = problems[0]
+            raise _fail(path, f"spectrum.{key}" if key else "spectrum", message)
+        for key in ("wavelength_nm", "pump_wavelength_nm"):
+            if key in values and not spectrum.covers(values[key] * factor(key)):
+                raise _fail(path, key, f"{values[key]:g} lies outside the spectrum ({spectrum.range_nm})")
+    stand_ins = {key for key, _, _ in SPECTRUM_STANDS_IN} if spectrum is not None else set()
+    missing = [key for key, spec in MATERIAL_KEYS.items()
+               if spec.required and key not in values and key not in stand_ins]
     if missing:
         raise _fail(path, ", ".join(missing), "required key(s) missing")
-    return material_from_values(values, name.strip(), description.strip(), sources, notes)
+    return material_from_values(values, name.strip(), description.strip(), sources, notes, spectrum=spectrum)
 
 
 @functools.lru_cache(maxsize=1)
@@ -214,6 +236,10 @@ def table_text() -> str:
             lines.extend(_wrapped("source: ", material.sources.get(key, "(none)"), 6))
             if key in material.notes:
                 lines.extend(_wrapped("range: ", material.notes[key], 6))
+        if material.spectrum is not None:
+            sp = material.spectrum
+            lines.append(f"  {'cross-section spectrum':<{key_width}}  {len(sp.wavelength_m)} points, {sp.range_nm}")
+            lines.extend(_wrapped("source: ", sp.source, 6))
         fsat_J_cm2 = material.saturation_fluence_J_m2 / 1e4
         isat_W_cm2 = material.saturation_intensity_W_m2 / 1e4
         lines.append(f"  {'saturation fluence, J/cm2':<{key_width}}  {_format_value(fsat_J_cm2)}"
