@@ -58,8 +58,51 @@ class Pump:
 
 
 @dataclass(frozen=True)
+class FibrePump:
+    """The CW pump of a fibre (PHYSICS section 5).
+
+    ``power_W`` is launched at each pumped end: ``direction`` "forward" (at z = 0, with the signal),
+    "backward" (at z = L) or "both" (power_W at each end). ``cladding``: launched into the inner
+    cladding (overlap A_core/A_clad) instead of the core mode.
+    """
+
+    wavelength_m: float
+    power_W: float
+    direction: str = "forward"
+    cladding: bool = False
+
+
+@dataclass(frozen=True)
+class Fibre:
+    """What makes a medium a doped fibre (``Medium.kind == "fibre"``); SI units.
+
+    The mode field comes from ``mode_field_diameter_m`` when given, else from ``core_na`` through
+    Marcuse's formula at each wavelength. ``signal_overlap`` and ``pump_overlap`` override the
+    computed overlaps (signal and ASE; pump). ``rings`` > 1 resolves the doped core radially (each
+    ring its own population). ``ase_band_m`` is (shortest, longest) wavelength of the ASE bins.
+    """
+
+    core_diameter_m: float
+    cladding_diameter_m: float | None = None
+    core_na: float | None = None
+    mode_field_diameter_m: float | None = None
+    ase: bool = False
+    ase_band_m: tuple[float, float] | None = None
+    ase_bins: int = 40
+    signal_overlap: float | None = None
+    pump_overlap: float | None = None
+    rings: int = 1
+    pump: FibrePump | None = None
+
+
+@dataclass(frozen=True)
 class Medium:
-    """One gain medium (bulk rod or slab). Exactly one of the three gain specifications is set."""
+    """One gain medium: a bulk rod or slab, or a doped fibre (``kind = "fibre"``, ``fibre`` set).
+
+    A bulk medium has exactly one of the three gain specifications; a fibre's gain comes from its
+    pump (``fibre.pump``), its ``length_m``, ``doping_per_m3`` and material (``diameter_m`` is then
+    the core diameter).
+    """
 
     name: str
     material: Material
@@ -73,6 +116,7 @@ class Medium:
     pump: Pump | None = None
     doping_per_m3: float | None = None  # overrides the material's typical doping
     kind: str = "bulk"
+    fibre: Fibre | None = None
 
 
 @dataclass(frozen=True)
@@ -92,6 +136,7 @@ class Seed:
     curvature_m: float | None = None  # wavefront radius at the start (> 0 diverging, < 0 converging)
     m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see optics.py)
     phase_screen_seed: int = 0        # random seed of that phase screen
+    repetition_rate_Hz: float | None = None   # pulsed fibre layouts: pulses at this rate
 
 
 @dataclass(frozen=True)

@@ -208,13 +208,17 @@ def slice_transfer(power_in_W: np.ndarray, growth_per_m: np.ndarray, source_W_m:
 
     Returns
     -------
-    (power_out_W, mean_power_W) : the power leaving the slice and its mean over the slice.
+    (power_out_W, mean_power_W) : the power leaving the slice and its mean over the slice,
+    P_out = P_in·eˣ + s·h·φ1(x) and P̄ = P_in·φ1(x) + s·h·φ2(x), x = a·h.
     """
-    x = growth_per_m * length_m
-    p1 = phi1(x)
-    out = power_in_W * np.exp(np.minimum(x, _X_MAX)) + source_W_m * length_m * p1
-    mean = power_in_W * p1 + source_W_m * length_m * phi2(x)
-    return out, mean
+    x = np.minimum(growth_per_m * length_m, _X_MAX)
+    small = np.abs(x) < 1e-3
+    xs = np.where(small, 1.0, x)
+    em1 = np.expm1(xs)
+    p1 = np.where(small, 1.0 + x * (0.5 + x * (1.0 / 6.0 + x / 24.0)), em1 / xs)
+    p2 = np.where(small, 0.5 + x * (1.0 / 6.0 + x * (1.0 / 24.0 + x / 120.0)), (em1 - xs) / (xs * xs))
+    sh = source_W_m * length_m
+    return power_in_W * np.exp(x) + sh * p1, power_in_W * p1 + sh * p2
 
 
 def propagate_frozen(power_in_W: np.ndarray, growth_per_m: np.ndarray, source_W_m: np.ndarray,
