@@ -4,13 +4,14 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from ampmodel.materials import MATERIAL_KEYS, registry
 from ampmodel.units import factor, si_name
 
 EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
-            "Ti:sapphire", "Cr:LiSAF", "alexandrite"]
+            "Ti:sapphire", "Cr:LiSAF", "alexandrite", "Yb:silica fibre", "Er:silica fibre"]
 
 # Product codes (letters, hyphen, digits, as glass makers number their melts) must not appear in the
 # data: materials go by generic names only.
@@ -196,3 +197,73 @@ def test_loader_rejects_bad_broadening(tmp_path):
                              'description = "a test material"\nbroadening = "mixed"')
     with pytest.raises(ValueError, match=r"broken\.toml.*broadening"):
         registry._load_file(_write(tmp_path, text))
+
+
+# --- cross-section spectra ----------------------------------------------------------------------
+
+SPECTRUM = """
+[spectrum]
+wavelength_nm = [900.0, 1000.0, 1100.0]
+emission_cm2 = [1.0e-22, 2.0e-19, 5.0e-20]
+absorption_cm2 = [3.0e-20, 1.0e-20, 0.0]
+source = "test table"
+"""
+
+
+def test_loader_reads_a_spectrum_that_stands_in_for_the_cross_section(tmp_path):
+    text = GOOD_FILE.replace('[emission_cross_section_cm2]\nvalue = 1.0e-19\nsource = "test"\n', "") + SPECTRUM
+    material = registry._load_file(_write(tmp_path, text))
+    assert material.spectrum is not None and material.spectrum.source == "test table"
+    assert material.emission_cross_section_m2 == pytest.approx(2.0e-23)       # the table at 1000 nm
+    assert material.absorption_cross_section_m2 == pytest.approx(1.0e-24)
+    assert "spectrum" in material.sources["emission_cross_section_cm2"]
+    se, sa = material.cross_sections_m2(950e-9)
+    assert (float(se), float(sa)) == pytest.approx(((1e-22 + 2e-19) / 2 * 1e-4, 2e-24))
+
+
+@pytest.mark.parametrize("change, message", [
+    ('source = "test table"\n', "spectrum.source"),
+    ("wavelength_nm = [900.0, 1000.0, 1100.0]", "strictly increasing"),
+    ("absorption_cm2 = [3.0e-20, 1.0e-20, 0.0]", "equal length"),
+    ("emission_cm2 = [1.0e-22, 2.0e-19, 5.0e-20]", "out of range"),
+])
+def test_loader_rejects_a_bad_spectrum(tmp_path, change, message):
+    replacement = {"wavelength_nm": "wavelength_nm = [900.0, 1100.0, 1000.0]",
+                   "absorption_cm2": "absorption_cm2 = [3.0e-20, 1.0e-20]",
+                   "emission_cm2": "emission_cm2 = [1.0e-22, -2.0e-19, 5.0e-20]"}
+    new = next((v for k, v in replacement.items() if change.startswith(k)), "")
+    with pytest.raises(ValueError, match=message):
+        registry._load_file(_write(tmp_path, GOOD_FILE + SPECTRUM.replace(change, new)))
+
+
+def test_loader_rejects_a_wavelength_outside_the_spectrum(tmp_path):
+    text = GOOD_FILE.replace("value = 1000.0", "value = 1200.0") + SPECTRUM
+    with pytest.raises(ValueError, match="wavelength_nm.*outside the spectrum"):
+        registry._load_file(_write(tmp_path, text))
+
+
+def _mccumber_ratio(wavelength_nm, zero_line_nm, temperature_K=295.0):
+    """sigma_e/sigma_a = exp((E0 − h nu)/kT) (D. E. McCumber, Phys. Rev. 136, A954 (1964)); kT in cm^-1."""
+    kt_cm = 0.6950348 * temperature_K
+    return np.exp((1e7 / zero_line_nm - 1e7 / wavelength_nm) / kt_cm)
+
+
+@pytest.mark.parametrize("name, zero_line_nm, wings", [
+    ("Yb:silica fibre", 975.0, [900.0, 940.0, 1000.0, 1030.0, 1064.0]),
+    ("Er:silica fibre", 1531.0, [1480.0, 1500.0, 1550.0, 1580.0, 1600.0]),
+])
+def test_fibre_spectra_follow_mccumber_in_the_wings(name, zero_line_nm, wings):
+    material = registry.get(name)
+    se, sa = material.cross_sections_m2(np.array(wings) * 1e-9)
+    assert se / sa == pytest.approx(_mccumber_ratio(np.array(wings), zero_line_nm), rel=0.15)
+
+
+def test_fibre_spectra_peaks():
+    # peaks from memory — verify: Yb-doped silica about 2.5e-20 to 2.7e-20 cm2 at 975 nm (R. Paschotta et
+    # al., IEEE J. Quantum Electron. 33, 1049 (1997)); Er-doped silica about 5e-21 to 7e-21 cm2 near
+    # 1530 nm (E. Desurvire, Erbium-Doped Fiber Amplifiers, Wiley (1994))
+    yb, er = registry.get("Yb:silica fibre").spectrum, registry.get("Er:silica fibre").spectrum
+    i = int(np.argmax(yb.absorption_m2))
+    assert 972e-9 <= yb.wavelength_m[i] <= 978e-9 and 2.4e-24 <= yb.absorption_m2[i] <= 2.8e-24
+    j = int(np.argmax(er.absorption_m2))
+    assert 1525e-9 <= er.wavelength_m[j] <= 1535e-9 and 5e-25 <= er.absorption_m2[j] <= 7e-25
