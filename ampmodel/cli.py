@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import argparse
+import math
 import os
 import sys
 import tempfile
@@ -115,6 +116,44 @@ def _print_cw_table(summary: dict) -> None:
           f"sweeps (residual {summary['cw_residual']:.1e}), power balance error {summary['power_balance_error']:.1e}")
 
 
+def _print_fibre(summary: dict) -> None:
+    """The table of a layout of fibres (cw or pulsed)."""
+    cw = summary["mode"] == "cw"
+    for m in summary["media"]:
+        when = "with the pump alone" if cw else "before a pulse"
+        line = (f"  fibre {m['name']} ({m['material']}, {m['length_m']:g} m): mode-field diameter "
+                f"{m['mode_field_diameter_um']:.3g} µm, overlap {m['signal_overlap']:.3f}, small-signal gain "
+                f"{m['small_signal_gain_dB']:.1f} dB {when}")
+        if "pump_power_W" in m:
+            line += f", pump {_fmt(m['pump_power_W'], 'W')} (absorbed {_fmt(m['absorbed_pump_power_W'], 'W')})"
+        print(line)
+    unit, key = ("W", "power") if cw else ("J", "energy")
+    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {key + ' in':>11} {key + ' out':>11} {'gain dB':>8}")
+    for s in summary["steps"]:
+        gain = 10 * math.log10(s["gain"]) if s["gain"] > 0 else float("-inf")
+        print(f"{s['index']:>4}  {s['kind']:<8} {(s['medium'] or ''):<10} {_fmt(s[key + '_in_' + unit], unit):>11} "
+              f"{_fmt(s[key + '_out_' + unit], unit):>11} {gain:>8.2f}")
+    if cw:
+        print(f"input {_fmt(summary['input_power_W'], 'W')} -> output {_fmt(summary['output_power_W'], 'W')} "
+              f"(gain {summary['gain_dB']:.2f} dB, noise figure {summary['noise_figure_dB']:.2f} dB); residual pump "
+              f"{_fmt(summary['pump_power_out_W'], 'W')}, ASE forward {_fmt(summary['ase_forward_W'], 'W')}, "
+              f"backward {_fmt(summary['ase_backward_W'], 'W')}")
+        print(f"steady state: {summary['cw_iterations']} iterations, last change {summary['cw_residual']:.1e}; "
+              f"photon balance error {summary['photon_balance_error']:.1e}")
+        return
+    rate = summary.get("repetition_rate_Hz")
+    print(f"input {_fmt(summary['input_energy_J'], 'J')} -> output {_fmt(summary['output_energy_J'], 'J')} "
+          f"(gain {summary['gain_dB']:.2f} dB), peak power {_fmt(summary['output_peak_power_W'], 'W')}, "
+          f"FWHM {summary['output_pulse_duration_ns']:.3g} ns"
+          + (f", mean power {_fmt(summary['output_power_W'], 'W')} at {_fmt(rate, 'Hz')}" if rate else
+             " (a single pulse)"))
+    print(f"stored {_fmt(summary['stored_energy_J'], 'J')} -> {_fmt(summary['stored_energy_final_J'], 'J')}, "
+          f"B-integral {summary['b_integral_rad']:.3g} rad, peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm² "
+          f"(axis), residual pump {_fmt(summary['pump_power_out_W'], 'W')}, ASE forward "
+          f"{_fmt(summary['ase_forward_W'], 'W')}, backward {_fmt(summary['ase_backward_W'], 'W')}, energy balance "
+          f"error {summary['energy_balance_error']:.1e}")
+
+
 def _print_table(summary: dict) -> None:
     if summary["mode"] == "cw":
         _print_cw_table(summary)
@@ -151,8 +190,11 @@ def cmd_run(args) -> int:
         raise
     s = result.summary
     print(f"ampmodel run: {config.title}")
-    _print_media(s)
-    _print_table(s)
+    if s.get("layout") == "fibre":
+        _print_fibre(s)
+    else:
+        _print_media(s)
+        _print_table(s)
     if s["warnings"]:
         print("warnings:")
         for w in s["warnings"]:
@@ -171,6 +213,11 @@ def cmd_check(args) -> int:
     nm = len(config.media)
     print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {len(config.steps)} steps, mode {config.mode}, "
           f"about {_fmt(need, 'B')} of arrays)")
+    if any(m.kind == "fibre" for m in config.media):
+        from .fibre_run import describe_fibres
+        for line in describe_fibres(config):
+            print(line)
+        return EXIT_OK
     if config.mode == "cw":
         from .cw import build_medium
         for m in config.media:

@@ -31,14 +31,17 @@ except ModuleNotFoundError:  # Python < 3.11
 import tomli_w
 
 from . import config_cw
+from . import config_fibre
 from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
                             expected, item_names, join_path, leaf_schema, quoted_list, walk)
 from .description import Config, Grid, Limits, Medium, Pump, Seed, Step
-from .materials import MATERIAL_KEYS, Material, material_from_values
+from .materials import MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, material_from_values
 from .units import si_name, to_si
 
 __all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolve_path", "dump_toml"]
+
+STAND_IN_KEYS = frozenset(key for key, _, _ in SPECTRUM_STANDS_IN)
 
 # Tables that a --set may create when its path runs through one that is not there yet.
 _CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "pump", "material"})
@@ -302,20 +305,26 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
 
 def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     """Check the whole config; return the Config (text, source, raw not yet set) or None with problems."""
+    fibre_layout = config_fibre.any_fibre(raw)        # a layout with a fibre (checked to be fibres only)
+    only_fibres = config_fibre.all_fibre(raw)
     top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "solver", "sweep"))
     for key in ("grid", "seed", "limits", "solver", "sweep"):
         if key in raw and not isinstance(raw[key], dict):
             p.add(key, f"must be a table [{key}], not {S.type_name(raw[key])}", raw[key])
     for key in ("grid", "seed"):
-        if key not in raw:
+        if key not in raw and not (key == "grid" and only_fibres):
             p.add(key, f"missing section [{key}]: give {S.SECTION_HINTS[key]}")
     mode = top.get("mode")
-    grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) else None
+    grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) and not only_fibres else None
     config_cw.grid_keys(p, raw, mode)
     media, names = _media(p, raw, mode)
-    seed = _seed(p, raw["seed"], mode, media) if isinstance(raw.get("seed"), dict) else None
+    seed = _seed(p, raw["seed"], mode, media, fibre_layout) if isinstance(raw.get("seed"), dict) else None
     steps = _steps(p, raw, names, mode)
     solver = config_cw.solver(p, raw, mode)
+    if fibre_layout:
+        config_fibre.check_layout(p, raw, media, steps, seed, mode)
+    if only_fibres:
+        grid = config_fibre.grid(p, raw, media, seed)
     limits = Limits(**check_table(p, raw["limits"], "limits", S.LIMITS)) \
         if isinstance(raw.get("limits"), dict) else Limits()
     if isinstance(raw.get("sweep"), dict):
@@ -386,10 +395,8 @@ def _media(p: Problems, raw: dict, mode: str | None = "pulsed") -> tuple[list[Me
 def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "pulsed") -> Medium | None:
     """One [[medium]]: keys, material, aperture, exactly one gain specification."""
     before = len(p)
-    kind = item.get("kind", "bulk")
-    if kind == "fibre":
-        p.add(join_path(path, "kind"), S.MEDIUM["kind"].unavailable[0][1], kind)
-        return None
+    if item.get("kind") == "fibre":
+        return config_fibre.fibre_medium(p, item, path, name, _material(p, item, path, name))
     v = check_table(p, item, path, S.MEDIUM, skip=("material",))
     material = _material(p, item, path, name)
     if "diameter_mm" in item and "width_mm" in item:
@@ -461,11 +468,23 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
         return None
     before = len(p)
     base_name = value.get("base")
-    v = check_table(p, value, mpath, S.MATERIAL_TABLE, require=not isinstance(base_name, str))
+    spectrum = None
+    if "spectrum" in value:
+        spectrum = _spectrum(p, value["spectrum"], join_path(mpath, "spectrum"))
+    schema = S.MATERIAL_TABLE
+    if "spectrum" in value:          # the spectrum stands in for the scalar cross-sections
+        schema = {k: dataclasses.replace(s, required=False) if k == "emission_cross_section_cm2" else s
+                  for k, s in schema.items()}
+    v = check_table(p, value, mpath, schema, require=not isinstance(base_name, str))
     base = _builtin(p, join_path(mpath, "base"), base_name) if isinstance(base_name, str) else None
     if len(p) > before:
         return None
     given = {k: x for k, x in v.items() if k in MATERIAL_KEYS or (k == "broadening" and k in value)}
+    if spectrum is not None:
+        wl = given.get("wavelength_nm", base.wavelength_m / 1e-9 if base is not None else None)
+        if wl is not None and not spectrum.covers(wl * 1e-9):
+            p.add(join_path(mpath, "wavelength_nm"), f"outside the spectrum ({spectrum.range_nm})", wl)
+            return None
     if base is not None:
         name = v.get("name", f"{base.name} (modified)")
         sources = dict(base.sources)
@@ -473,11 +492,41 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
         changes = {si_name(k): to_si(k, x) for k, x in given.items() if k in MATERIAL_KEYS}
         if "broadening" in given:
             changes["broadening"] = given["broadening"]
+        if spectrum is not None:
+            # a new spectrum: the cross-sections not given in the table are read from it again
+            keep = {k: x for k, x in _config_values(base).items() if k not in STAND_IN_KEYS}
+            keep.update(given)
+            keep["broadening"] = given.get("broadening", base.broadening)
+            sources = {k: x for k, x in sources.items() if k not in STAND_IN_KEYS or k in given}
+            return material_from_values(keep, name, description=base.description, sources=sources,
+                                        notes=dict(base.notes), spectrum=spectrum)
         return dataclasses.replace(base, name=name, sources=MappingProxyType(sources), **changes)
     given.setdefault("broadening", v.get("broadening", "homogeneous"))
     return material_from_values(given, v.get("name", f"{medium_name} material"),
                                 description=f"given in the run config ({p.source})",
-                                sources={k: f"run config ({p.source})" for k in given})
+                                sources={k: f"run config ({p.source})" for k in given}, spectrum=spectrum)
+
+
+def _spectrum(p: Problems, table: Any, path: str):
+    """A [medium.material.spectrum] table; each problem names its key."""
+    spectrum, problems = check_spectrum(table, need_source=False)
+    for key, value, message in problems:
+        where = join_path(path, key) if key else path
+        if value is None:
+            p.add(where, message)
+        else:
+            p.add(where, message, value)
+    return spectrum
+
+
+def _config_values(material: Material) -> dict[str, float]:
+    """A material's values under their config keys (config units)."""
+    out = {}
+    for key in MATERIAL_KEYS:
+        value = getattr(material, si_name(key), None)
+        if value is not None:
+            out[key] = value / to_si(key, 1.0)
+    return out
 
 
 def _pump(p: Problems, table: dict, path: str, material: Material | None,
@@ -538,10 +587,15 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
 
 # --- seed -------------------------------------------------------------------------------------
 
-def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None) -> Seed | None:
-    """The [seed] table; pulsed and cw seeds take different keys."""
+def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None,
+          fibre_layout: bool = False) -> Seed | None:
+    """The [seed] table; pulsed and cw seeds take different keys; in a fibre layout the fibre's mode
+    carries the seed (no transverse profile) and pulses may come at a repetition rate."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
+    if not fibre_layout and "diameter_mm" not in table:
+        p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
+    rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
     durations = [k for k in S.DURATION_KEYS if k in table]
     if mode == "pulsed":
         for key in S.CW_SEED_KEYS:
@@ -576,10 +630,10 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     duration_s = to_si(durations[0], v[durations[0]]) if mode == "pulsed" else None
     return Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
                 power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
-                order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]),
+                order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else 0.0,
                 waist_m=to_si("waist_mm", v["waist_mm"]) if "waist_mm" in v else None,
                 curvature_m=to_si("curvature_mm", v["curvature_mm"]) if "curvature_mm" in v else None,
-                m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"])
+                m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz)
 
 
 # --- steps ------------------------------------------------------------------------------------

@@ -35,7 +35,8 @@ class Key:
     ----------
     kind : str
         "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
-        "material" (a built-in name or a table) or "ref" (a medium name or index).
+        "material" (a built-in name or a table), "ref" (a medium name or index) or "floats" (an array
+        of numbers, each within the bounds; ``size`` entries when given).
     meaning : str
         What the key means, in a few words (used in the problem messages).
     required : bool
@@ -66,6 +67,7 @@ class Key:
     zero_ok: bool = False
     choices: tuple[str, ...] = ()
     unavailable: tuple[tuple[Any, str], ...] = ()
+    size: int | None = None
 
 
 def number(meaning: str, **bounds: Any) -> Key:
@@ -131,8 +133,8 @@ GAIN_NAMES = {"small_signal_gain": "small_signal_gain", "stored_energy_J": "stor
 _DOPING = MATERIAL_KEYS["doping_per_m3"]
 MEDIUM: dict[str, Key] = {
     "name": text("medium name (steps refer to it)"),
-    "kind": choice("medium kind", MEDIUM_KINDS, default="bulk",
-                   unavailable=(("fibre", 'fibre media are not available in this version; use kind = "bulk"'),)),
+    "kind": choice("medium kind (fibre media take the keys of config_fibre.FIBRE_MEDIUM)", MEDIUM_KINDS,
+                   default="bulk"),
     "material": Key("material", 'a built-in material name or a [medium.material] table', required=True),
     "length_mm": number("length along the beam", gt=0, required=True),
     "diameter_mm": number("clear-aperture diameter (round)", gt=0),
@@ -173,9 +175,7 @@ MATERIAL_TABLE.update({
     "name": text("material name"),
     "broadening": choice("line broadening", BROADENINGS, default="homogeneous"),
     "base": text("a built-in material to start from"),
-    "spectrum": Key("table", "cross-section spectra", unavailable=(
-        (ANY, "cross-section spectra are not available in this version; give emission_cross_section_cm2 "
-              "(and absorption_cross_section_cm2) at the lasing wavelength"),)),
+    "spectrum": Key("table", "cross-section spectra: wavelength_nm, emission_cm2, absorption_cm2 arrays"),
 })
 
 PULSE_SHAPES = ("gaussian", "flat", "sech2")
@@ -191,12 +191,14 @@ SEED: dict[str, Key] = {
     "shape": choice("temporal pulse shape", PULSE_SHAPES, default="gaussian"),
     "profile": choice("transverse profile", BEAM_PROFILES, default="gaussian"),
     "order": number("supergaussian order", ge=2, default=8.0),
-    "diameter_mm": number("beam diameter 2w (1/e^2 intensity)", gt=0, required=True),
+    "diameter_mm": number("beam diameter 2w (1/e^2 intensity)", gt=0),
     "waist_mm": number("distance from the start plane to the seed's waist (> 0: downstream)"),
     "curvature_mm": number("wavefront radius at the start plane (> 0 diverging, < 0 converging)",
                            nonzero=True),
     "m_squared": number("beam quality factor M^2", ge=1, le=50, default=1.0),
     "phase_screen_seed": integer("random seed of the M^2 phase screen", 0, 2**31 - 1, default=0),
+    "repetition_rate_Hz": number("pulse repetition rate (fibre layouts)", gt=0),
+    "repetition_rate_kHz": number("pulse repetition rate (fibre layouts)", gt=0),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
@@ -251,6 +253,8 @@ _LIMIT_MEANINGS = {
     "transverse_gain_length": "warn above this transverse gain-length product",
     "window_edge_fraction": "warn when this energy fraction reaches the absorbing window edge",
     "sampling_limit_fraction": "warn when this energy fraction nears the grid's sampling limit",
+    "ase_fraction": "fibres: warn when the ASE leaving a fibre exceeds this fraction of its signal",
+    "gain_without_ase_dB": "fibres with ase = false: warn above this small-signal gain (dB)",
 }
 LIMITS: dict[str, Key] = {
     f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)
@@ -383,6 +387,9 @@ def expected(key: Key) -> str:
         return "a built-in material name (string) or a [medium.material] table"
     if key.kind == "ref":
         return "a medium name (string) or index (integer from 0)"
+    if key.kind == "floats":
+        count = f"{key.size} numbers" if key.size else "numbers"
+        return f"an array of {count} {rule(key)}".strip()
     return key.kind
 
 
@@ -429,6 +436,18 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
     if kind == "table" and (msg := _unavailable(value, key)):
         return None, msg
     want = expected(key)
+    if kind == "floats":
+        numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                                  for v in value)
+        if not numbers:
+            return None, f"must be {want}, not {type_name(value)}"
+        if key.size is not None and len(value) != key.size:
+            return None, f"must be {want}, not {len(value)}"
+        if not all(math.isfinite(v) for v in value):
+            return None, f"must be {want}; nan and inf are not allowed"
+        if not all(_in_range(float(v), key) for v in value):
+            return None, f"out of range: must be {want} ({key.meaning})"
+        return [float(v) for v in value], None
     if kind in ("float", "int"):
         if isinstance(value, bool):
             return None, f"must be {want}, not a boolean (true/false)"
@@ -675,10 +694,16 @@ def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
         return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
     if len(trail) == 2 and trail[0] in sections:
         return sections[trail[0]]
+    fibre = trail[0] == "medium" and isinstance(trail[1], int) and isinstance(raw["medium"][trail[1]], dict) \
+        and raw["medium"][trail[1]].get("kind") == "fibre"
+    if fibre:
+        from .config_fibre import FIBRE_MEDIUM, FIBRE_PUMP
     if trail[0] == "medium" and len(trail) == 3 and isinstance(trail[1], int):
-        return {k: s for k, s in MEDIUM.items() if k != "pump"}
+        return {k: s for k, s in (FIBRE_MEDIUM if fibre else MEDIUM).items() if k != "pump"}
     if trail[0] == "medium" and len(trail) == 4 and trail[2] in ("pump", "material"):
-        return PUMP if trail[2] == "pump" else {k: s for k, s in MATERIAL_TABLE.items() if k != "spectrum"}
+        if trail[2] == "pump":
+            return FIBRE_PUMP if fibre else PUMP
+        return {k: s for k, s in MATERIAL_TABLE.items() if k != "spectrum"}
     if trail[0] == "step" and len(trail) == 3 and isinstance(trail[1], int):
         kind = raw["step"][trail[1]].get("kind")
         return {**STEP_COMMON, **STEP_KINDS.get(kind, {})} if isinstance(kind, str) else None

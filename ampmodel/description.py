@@ -195,6 +195,8 @@ class Limits:
     transverse_gain_length: float = 3.0   # g0 x clear-aperture width: parasitic-oscillation risk
     window_edge_fraction: float = 1e-3    # diffraction: energy fraction reaching the absorbing window edge
     sampling_limit_fraction: float = 1e-3 # diffraction: energy fraction near the grid's sampling limit
+    ase_fraction: float = 0.1             # fibres: ASE leaving a fibre, as a fraction of its signal output
+    gain_without_ase_dB: float = 30.0     # fibres with ase = false: small-signal gain above which ASE matters
 
 
 @dataclass(frozen=True)

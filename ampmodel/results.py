@@ -41,6 +41,44 @@ class StepRecord:
 
 
 @dataclass
+class FibreRecord:
+    """A fibre along its length (SI; z from the end where the signal enters).
+
+    z_m : (Nz + 1,) slice boundaries; ring_edges_m : (R + 1,) radii of the rings of the doped core
+    cw: signal_W (Nz + 1,) the signal; pump_forward_W, pump_backward_W (Nz + 1,) or None; ase_forward_W,
+    ase_backward_W (B, Nz + 1) the ASE in each spectral bin; inversion (R, Nz) N2/Nt of each ring and
+    slice; inversion_pump_only (R, Nz) with the pump alone (no signal; ASE as configured).
+    pulsed: pulse_energy_J (Nz + 1,); the pump and ASE just before a pulse; inversion (R, Nz) just before
+    and inversion_after (R, Nz) just after a pulse; output_power_W (Nt,) the pulse leaving the fibre;
+    recovery_t_s, recovery_mean_inversion the fibre-averaged N2/Nt over the period after a pulse.
+    modal_gain_per_m : (Nz,) the signal's net gain coefficient Γ·(σe·N2 − σa·N1) − loss
+    ase_wavelength_m, ase_bin_width_m : (B,) the ASE bins; attrs : scalars (mode-field radius, overlaps,
+    saturation energy, solver figures)
+    """
+
+    name: str
+    mode: str
+    z_m: np.ndarray
+    ring_edges_m: np.ndarray
+    ase_wavelength_m: np.ndarray
+    ase_bin_width_m: np.ndarray
+    ase_forward_W: np.ndarray
+    ase_backward_W: np.ndarray
+    inversion: np.ndarray
+    modal_gain_per_m: np.ndarray
+    attrs: dict[str, Any] = field(default_factory=dict)
+    signal_W: np.ndarray | None = None
+    pulse_energy_J: np.ndarray | None = None
+    pump_forward_W: np.ndarray | None = None
+    pump_backward_W: np.ndarray | None = None
+    inversion_pump_only: np.ndarray | None = None
+    inversion_after: np.ndarray | None = None
+    output_power_W: np.ndarray | None = None
+    recovery_t_s: np.ndarray | None = None
+    recovery_mean_inversion: np.ndarray | None = None
+
+
+@dataclass
 class MediumRecord:
     """A medium's gain coefficient before the first and after the last pass.
 
@@ -70,6 +108,7 @@ class Result:
     steps : one StepRecord per step, in order; media : name -> MediumRecord
     summary : the summary.json dict (SPEC section 4)
     output_field : (Nt, Ny, Nx) complex field after the last step (diffraction runs; |E|² in J/m²)
+    fibres : name -> FibreRecord, for layouts of fibres (SPEC section 6)
     """
 
     config: Config
@@ -83,6 +122,7 @@ class Result:
     summary: dict[str, Any]
     seed_intensity_W_m2: np.ndarray | None = None
     output_field: np.ndarray | None = None
+    fibres: dict[str, FibreRecord] = field(default_factory=dict)
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``.
@@ -190,6 +230,8 @@ def write_hdf5(result: Result, path: Path) -> None:
                     _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
                              meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
                                      "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
+            if result.fibres:
+                _write_fibres(f.create_group("fibre"), result.fibres)
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
@@ -211,8 +253,47 @@ def _beam_figures(f, summary: dict[str, Any]) -> None:
         _dataset(g, name, np.array([r[key] * scale for r in rows]), units)
 
 
+# (name in the file, FibreRecord field, units, meaning)
+_FIBRE_DATASETS = (
+    ("z", "z_m", "m", "slice boundaries along the fibre, from the signal's input end"),
+    ("ring_edges", "ring_edges_m", "m", "radii of the ring boundaries of the doped core"),
+    ("signal_power", "signal_W", "W", "signal power along the fibre"),
+    ("pulse_energy", "pulse_energy_J", "J", "pulse energy along the fibre"),
+    ("pump_forward_power", "pump_forward_W", "W", "pump launched at z = 0, along the fibre (pulsed: before a pulse)"),
+    ("pump_backward_power", "pump_backward_W", "W", "pump launched at z = L, along the fibre (pulsed: before a pulse)"),
+    ("ase_wavelength", "ase_wavelength_m", "m", "centre of each ASE bin"),
+    ("ase_bin_width", "ase_bin_width_m", "m", "width of each ASE bin"),
+    ("ase_forward_power", "ase_forward_W", "W", "forward ASE power in each bin along the fibre (bin, z)"),
+    ("ase_backward_power", "ase_backward_W", "W", "backward ASE power in each bin along the fibre (bin, z)"),
+    ("inversion", "inversion", "1", "N2/Nt of each ring in each slice (pulsed: just before a pulse)"),
+    ("inversion_pump_only", "inversion_pump_only", "1", "N2/Nt with the pump alone (no signal; ASE as configured)"),
+    ("inversion_after_pulse", "inversion_after", "1", "N2/Nt of each ring in each slice just after a pulse"),
+    ("modal_gain", "modal_gain_per_m", "1/m", "net gain coefficient of the signal in each slice"),
+    ("output_power", "output_power_W", "W", "power of the pulse leaving the fibre in each time slice"),
+    ("recovery_t", "recovery_t_s", "s", "time after a pulse"),
+    ("recovery_mean_inversion", "recovery_mean_inversion", "1", "fibre-averaged N2/Nt after a pulse"),
+)
+
+
+def _write_fibres(group, fibres: dict[str, FibreRecord]) -> None:
+    """The /fibre/NAME groups (SPEC section 6): powers, ASE and inversion along each fibre."""
+    for name, rec in fibres.items():
+        fg = group.create_group(name)
+        fg.attrs["mode"] = rec.mode
+        for key, value in rec.attrs.items():
+            fg.attrs[key] = value
+        for key in ("mode_field_radius", "length", "saturation_energy"):
+            if key in rec.attrs:
+                fg.attrs[f"{key}_units"] = {"saturation_energy": "J"}.get(key, "m")
+        for dset, attr, units, meaning in _FIBRE_DATASETS:
+            value = getattr(rec, attr)
+            if value is not None:
+                _dataset(fg, dset, np.asarray(value, dtype=float), units, meaning=meaning)
+
+
 def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
-    """Read a result.h5 back into plain arrays (SI): {'attrs', 'grid', 'seed', 'steps', 'media'}."""
+    """Read a result.h5 back into plain arrays (SI): {'attrs', 'grid', 'seed', 'steps', 'media'} and, for
+    fibre layouts, 'fibre'."""
     import h5py
 
     out: dict[str, Any] = {"steps": {}, "media": {}, "beam": {}, "output": {}}
@@ -227,4 +308,6 @@ def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
                 out[group] = {k: f[group][k][()] for k in f[group]}
         for name, g in f["media"].items():
             out["media"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g["gain_initial"].attrs)}
+        if "fibre" in f:
+            out["fibre"] = {name: {k: g[k][()] for k in g} | {"attrs": dict(g.attrs)} for name, g in f["fibre"].items()}
     return out

@@ -80,6 +80,9 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     progress : True shows a progress bar on stderr, None shows it on an interactive terminal
     """
     check_memory(config)
+    if any(m.kind == "fibre" for m in config.media):
+        from .fibre_run import simulate_fibre
+        return simulate_fibre(config, progress)
     if config.mode == "cw":
         from .cw import simulate_cw
         return simulate_cw(config, progress)

@@ -190,10 +190,25 @@ def test_unknown_base_material(registry):
     assert "medium[0] (rod).material.base" in one_problem(raw)
 
 
-def test_material_spectrum_is_not_available_yet():
+def test_material_spectrum_problems_name_their_keys():
     raw = good()
     raw["medium"][0]["material"]["spectrum"] = {"wavelength_nm": [1000.0], "emission_cm2": [1e-20]}
-    assert "spectra are not available" in one_problem(raw)
+    problems = "\n".join(problems_of(raw))
+    assert "medium[0] (rod).material.spectrum.wavelength_nm = [1000.0]: must be an array of at least 2" in problems
+    assert "medium[0] (rod).material.spectrum.absorption_cm2: missing" in problems
+
+
+def test_material_spectrum_stands_in_for_the_cross_sections():
+    raw = good()
+    mat = raw["medium"][0]["material"]
+    del mat["emission_cross_section_cm2"]
+    mat["spectrum"] = {"wavelength_nm": [1000.0, 1100.0], "emission_cm2": [1e-19, 3e-19],
+                       "absorption_cm2": [0.0, 0.0]}
+    material = load_config(raw).media[0].material
+    assert material.emission_cross_section_m2 == pytest.approx(2.28e-23)          # at 1064 nm
+    assert material.spectrum.wavelength_m == pytest.approx((1000e-9, 1100e-9))
+    mat["wavelength_nm"] = 1200.0
+    assert "material.wavelength_nm = 1200.0: outside the spectrum (1000 to 1100 nm)" in one_problem(raw)
 
 
 # --- pumps -------------------------------------------------------------------------------------------
