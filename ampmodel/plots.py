@@ -145,6 +145,12 @@ def step_map(result: Result, rec: StepRecord) -> np.ndarray:
     return np.asarray(cw_map if _is_cw(result) and cw_map is not None else rec.fluence_J_m2, dtype=float)
 
 
+def _length_unit(coords_m: np.ndarray) -> tuple[float, str]:
+    """(factor from m, label) for transverse coordinates: µm for a window narrower than 1 mm (fibres)."""
+    extent = float(np.max(np.abs(coords_m))) if np.size(coords_m) else 1.0
+    return (1e6, "µm") if extent < 0.5e-3 else (1e3, "mm")
+
+
 def _map_quantity(result: Result) -> tuple[str, str]:
     """(name, display unit) of the transverse maps: fluence in J/cm², or intensity in W/cm² (cw)."""
     return ("intensity", "W/cm²") if _is_cw(result) else ("fluence", "J/cm²")
@@ -234,12 +240,13 @@ def _draw_map(fig: Figure, ax, image_J_m2: np.ndarray, x_m: np.ndarray, y_m: np.
     x = _block_mean(x, 0)
     y = _block_mean(y, 0)
     peak = _finite_max(img)
-    x0, x1 = _extent(x * 1e3)
-    y0, y1 = _extent(y * 1e3)
+    scale, unit_x = _length_unit(x)
+    x0, x1 = _extent(x * scale)
+    y0, y1 = _extent(y * scale)
     im = ax.imshow(img, origin="lower", extent=(x0, x1, y0, y1), cmap=MAP_CMAP,
                    vmin=0.0, vmax=peak if peak > 0 else 1.0, interpolation="nearest")
-    ax.set_xlabel("x (mm)")
-    ax.set_ylabel("y (mm)")
+    ax.set_xlabel(f"x ({unit_x})")
+    ax.set_ylabel(f"y ({unit_x})")
     ax.set_title(title)
     cb = fig.colorbar(im, ax=ax, shrink=0.9)
     cb.set_label(f"{quantity} ({unit})")
@@ -251,7 +258,8 @@ def _draw_map(fig: Figure, ax, image_J_m2: np.ndarray, x_m: np.ndarray, y_m: np.
 def _lineout_axis(ax, coord_m: np.ndarray, seed: np.ndarray, out: np.ndarray, axis_name: str,
                   other_name: str, out_label: str, quantity: str, unit: str) -> None:
     """Seed and output lineouts on ``ax``; the output gets its own right axis when the peaks differ > 10x."""
-    c = np.asarray(coord_m, dtype=float) * 1e3
+    scale, unit_x = _length_unit(np.asarray(coord_m, dtype=float))
+    c = np.asarray(coord_m, dtype=float) * scale
     s = np.nan_to_num(seed) / 1e4
     o = np.nan_to_num(out) / 1e4
     ps, po = _finite_max(s), _finite_max(o)
@@ -272,7 +280,7 @@ def _lineout_axis(ax, coord_m: np.ndarray, seed: np.ndarray, out: np.ndarray, ax
         h2, = ax.plot(c, o, color=OUTPUT_COLOUR, linestyle="--", label=out_label, **kw)
         ax.set_ylabel(f"{quantity} ({unit})")
     ax.set_ylim(bottom=0)
-    ax.set_xlabel(f"{axis_name} (mm)")
+    ax.set_xlabel(f"{axis_name} ({unit_x})")
     ax.set_title(f"lineout along {axis_name} at {other_name} = 0")
     ax.grid(True, alpha=0.3)
     (ax2 if twin else ax).legend(handles=[h1, h2], loc="best", fontsize="small", framealpha=0.9)
@@ -623,6 +631,9 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     B-integral, and ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
     (``plots_beam.py``). A cw run writes ``intensity_maps.png``, ``power_per_step.png`` and
     ``gain_<medium>.png`` (the steady-state gain along z and the intensity of each pass; plots_cw.py).
+    A layout of fibres writes the maps (``intensity_maps.png`` and ``power_per_step.png``
+    in cw) and the pulse, then per fibre ``fibre_<name>_powers.png``, ``gain_<name>.png`` (gain and
+    inversion along it) and ``fibre_<name>_ase.png`` (plots_fibre.py).
 
     Parameters
     ----------
@@ -640,6 +651,9 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
              plot_energy_per_step(result, out / ("power_per_step.png" if cw else "energy_per_step.png"))]
     if not cw and np.asarray(result.t_s).size:
         paths.append(plot_pulse_power(result, out / "pulse_power.png"))
+    if getattr(result, "fibres", None):
+        from .plots_fibre import make_fibre_plots
+        return paths + make_fibre_plots(result, out, set())
     used: set[str] = set()
     for name in result.media:
         stem = _safe_name(name)
