@@ -188,16 +188,24 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
     peak_axis = peak_fluence = lost = extracted = 0.0
     value = float(seed.power_W) if cw else float(seed.energy_J)      # the signal entering the next step
     first_fibre = last_fibre = None
+    # on-axis peak per unit power or energy, 2/(πw²), of the mode the beam is in (before a fibre: the first's)
+    axis = next(2.0 / (math.pi * st["model"].mode_radius_m ** 2) for st in stages if "model" in st)
+    peak_in = 0.0 if cw else float(np.max(stages[0]["input"])) / next(st["train"].dt_s for st in stages
+                                                                        if "train" in st)
     for st in stages:
         step = st["step"]
         if st.get("loss"):
             out = value * step.transmission
-            entry = {"index": step.index, "kind": "loss", "medium": None, "gain": step.transmission}
+            entry = {"index": step.index, "kind": "loss", "medium": None, "gain": step.transmission,
+                     "b_integral_rad": 0.0}
             if cw:
-                entry.update(power_in_W=value, power_out_W=out, passive_loss_W=value - out)
+                entry.update(power_in_W=value, power_out_W=out, passive_loss_W=value - out,
+                             peak_intensity_W_cm2=value * axis * W_CM2)
             else:
-                entry.update(energy_in_J=value, energy_out_J=out, peak_fluence_J_cm2=0.0, b_integral_rad=0.0,
-                             clipped_energy_J=0.0, passive_loss_J=value - out)
+                entry.update(energy_in_J=value, energy_out_J=out, peak_fluence_J_cm2=value * axis * J_CM2,
+                             peak_intensity_W_cm2=peak_in * axis * W_CM2, clipped_energy_J=0.0,
+                             passive_loss_J=value - out)
+                peak_in *= step.transmission
             steps.append(entry)
             chain.append((step.transmission, 1.0 / step.transmission))
             lost += value - out
@@ -242,6 +250,8 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
                           "peak_intensity_W_cm2": st["peak_power_W"] * st["peak_axis_per_m2"] * W_CM2,
                           "b_integral_rad": b, "clipped_energy_J": 0.0, "passive_loss_J": train.pulse.loss_J})
             _pulse_warnings(config, step, model, peak_f, b, warnings)
+            peak_in = st["peak_power_W"]
+        axis = st["peak_axis_per_m2"]
         value = out
     fibres = [st for st in stages if "model" in st]
     summary: dict[str, Any] = {"mode": config.mode, "title": config.title, "layout": "fibre"}

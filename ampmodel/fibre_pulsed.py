@@ -192,13 +192,13 @@ def recover(model: FibreModel, n2_start: np.ndarray, period_s: float, steps: int
 
 
 def recovery_steps(model: FibreModel, n2: np.ndarray, period_s: float) -> int:
-    """Time steps for one period: at least 32, and at least sixteen per shortest population time
+    """Time steps for one period: at least 8, and at least sixteen per shortest population time
     constant 1/(1/τ + W_up + W_down) met in the fibre, at most 20000 (the midpoint steps are second
     order: sixteen per time constant keep the pulse energy within about 1e-4 of the converged value)."""
     ch = _pump_ase_channels(model)
     _, means = _between_pulse_powers(model, n2, ch)
     fastest = float(np.max(1.0 / model.lifetime_s + model.rate_total[ch].T @ means))
-    return int(min(20000, max(32, math.ceil(16 * period_s * fastest))))
+    return int(min(20000, max(8, math.ceil(16 * period_s * fastest))))
 
 
 @dataclass
@@ -275,7 +275,7 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
             break
         ys.append(x.ravel())
         gs.append(g.ravel())
-        ys, gs = ys[-6:], gs[-6:]
+        ys, gs = ys[-8:], gs[-8:]
         x = np.clip(_anderson_step(ys, gs), 0.0, 1.0).reshape(shape)
     pulse = amplify_pulse(model, x, energy_J, dt_s, n2_index_m2_W)
     between = {"pump_out_W": rec.pump_out_W, "ase_forward_W": rec.ase_forward_W,

@@ -110,8 +110,8 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
         tick = bar.update if bar is not None else None
         for step in config.steps:
             if step.kind == "loss":
+                stages.append({"step": step, "loss": True, "input": signal})
                 signal = signal * step.transmission
-                stages.append({"step": step, "loss": True})
             else:
                 medium = config.medium(step.medium)
                 model = F.build_model(medium, wavelength)
