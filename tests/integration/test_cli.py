@@ -57,11 +57,35 @@ def assert_cw_output_contract(out: Path) -> dict:
     return summary
 
 
+def assert_fibre_outputs(out: Path, summary: dict) -> None:
+    """SPEC section 6: the fibre keys of summary.json, the groups along each fibre in result.h5, the
+    fibre figures."""
+    for key in ("pump_power_out_W", "ase_forward_W", "ase_backward_W", "gain_dB"):
+        assert key in summary, key
+    if summary["mode"] == "cw":
+        assert "noise_figure_dB" in summary and abs(summary["photon_balance_error"]) < 1e-6
+    names = {p.name for p in (out / "plots").glob("*.png")}
+    with h5py.File(out / "result.h5", "r") as f:
+        for medium in summary["media"]:
+            g = f[f"fibre/{medium['name']}"]
+            for name in ("z", "inversion", "modal_gain", "ase_wavelength", "ase_forward_power", "ase_backward_power"):
+                assert name in g, name
+            assert ("signal_power" if summary["mode"] == "cw" else "pulse_energy") in g
+            assert g["inversion"].attrs["units"] == "1" and g["z"].attrs["units"] == "m"
+            assert g["inversion"].shape == (medium["rings"], g["z"].shape[0] - 1)
+            assert {f"fibre_{medium['name']}_powers.png", f"gain_{medium['name']}.png"} <= names
+
+
 def assert_output_contract(out: Path) -> dict:
     """The run folder holds SPEC section 4's files, keys, datasets and units attributes."""
     summary = json.loads((out / "summary.json").read_text())
     if summary.get("mode") == "cw":
-        return assert_cw_output_contract(out)
+        summary = assert_cw_output_contract(out)
+        if summary.get("layout") == "fibre":
+            assert_fibre_outputs(out, summary)
+        return summary
+    if summary.get("layout") == "fibre":
+        assert_fibre_outputs(out, summary)
     for key in ("mode", "input_energy_J", "output_energy_J", "stored_energy_J", "stored_energy_final_J",
                 "extraction_efficiency", "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad",
                 "energy_balance_error", "warnings", "steps"):
@@ -104,8 +128,9 @@ def test_media_prints_every_material_with_sources():
     proc = ampmodel("media")
     assert proc.returncode == 0, proc.stderr
     for name in ("Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
-                 "Ti:sapphire", "Cr:LiSAF", "alexandrite"):
+                 "Ti:sapphire", "Cr:LiSAF", "alexandrite", "Yb:silica fibre", "Er:silica fibre"):
         assert name in proc.stdout
+    assert "cross-section spectrum" in proc.stdout
     assert "source" in proc.stdout.lower()
 
 
@@ -222,3 +247,32 @@ def test_cw_damage_intensity_warns(tmp_path):
     assert proc.returncode == 0, proc.stderr
     summary = json.loads((tmp_path / "o" / "summary.json").read_text())
     assert any("cw damage intensity of this optic" in w for w in summary["warnings"]), summary["warnings"]
+
+
+def test_fibre_check_describes_each_fibre(tmp_path):
+    proc = ampmodel("check", str(ROOT / "configs" / "fibre_yb_pulsed.toml"), cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    for part in ("fibre pre (Yb:silica fibre)", "fibre power (Yb:silica fibre)", "V = 4.58", "mode-field diameter",
+                 "pump overlap 0.0144", "small-signal gain"):
+        assert part in proc.stdout, (part, proc.stdout)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_fibre_run_set_and_repetition_rate(tmp_path):
+    """--set reaches fibre keys; a single pulse (no repetition rate) meets the fibre in its pumped steady
+    state and takes more energy than a pulse in a 50 kHz train."""
+    config = ROOT / "configs" / "fibre_yb_pulsed.toml"
+    small = ["--no-plots", "--set", "medium.pre.slices=40", "--set", "medium.power.slices=40",
+             "--set", "medium.power.rings=1", "--set", "grid.time_slices=8"]
+    a, b = tmp_path / "train", tmp_path / "single"
+    assert ampmodel("run", str(config), "--out", str(a), *small).returncode == 0
+    edited = tmp_path / "single.toml"
+    edited.write_text(config.read_text().replace("repetition_rate_kHz = 50.0", ""))
+    proc = ampmodel("run", str(edited), "--out", str(b), *small)
+    assert proc.returncode == 0, proc.stderr
+    train = json.loads((a / "summary.json").read_text())
+    single = json.loads((b / "summary.json").read_text())
+    assert train["repetition_rate_Hz"] == 5e4 and single["repetition_rate_Hz"] is None
+    assert single["output_energy_J"] > train["output_energy_J"]
+    assert train["media"][1]["rings"] == 1
+    assert train["output_power_W"] == pytest.approx(train["output_energy_J"] * 5e4, rel=1e-12)
