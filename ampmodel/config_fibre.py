@@ -171,7 +171,11 @@ def _fibre_pump(p: Problems, table: dict, path: str, material: Material | None) 
 def check_layout(p: Problems, raw: dict, media: list[Medium] | None, steps: list[Step] | None,
                  seed: Seed | None, mode: str | None) -> None:
     """A layout with fibres: fibres only, pass and loss steps, each fibre passed once, the seed
-    wavelength inside each fibre's cross-sections."""
+    wavelength inside each fibre's cross-sections, no [solver] table (the fibre solver iterates to its own
+    stated tolerance)."""
+    if isinstance(raw.get("solver"), dict):
+        p.add("solver", "the [solver] table sets the bulk cw iteration; a fibre's steady state is solved to a "
+                        "relative change of 1e-9 by its own relaxation and Newton steps: remove it", raw["solver"])
     items = raw.get("medium") if isinstance(raw.get("medium"), list) else []
     for i, item in enumerate(items):
         if isinstance(item, dict) and item.get("kind", "bulk") != "fibre":

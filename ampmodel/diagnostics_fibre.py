@@ -207,6 +207,7 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
                              passive_loss_J=value - out)
                 peak_in *= step.transmission
             steps.append(entry)
+            _optic_damage(config, step, value * axis, peak_in * axis, warnings)
             chain.append((step.transmission, 1.0 / step.transmission))
             lost += value - out
             value = out
@@ -231,6 +232,13 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
                                                              * sol.mean_power_W[s]))
             lost += passive
             out = fig["signal_out_W"]
+            damage = config.medium(model.name).material.damage_intensity_W_m2
+            peak_i = st["peak_power_W"] * st["peak_axis_per_m2"]
+            if damage and peak_i > limits.damage_fraction * damage:
+                warnings.append(f"step {step.index} (pass {model.name}): peak intensity on the fibre's axis "
+                                f"{peak_i * W_CM2:.3g} W/cm² is above {100 * limits.damage_fraction:g} % of the cw "
+                                f"damage intensity of {config.medium(model.name).material.name} "
+                                f"({damage * W_CM2:.3g} W/cm², common practice)")
             steps.append({"index": step.index, "kind": "pass", "medium": model.name, "power_in_W": value,
                           "power_out_W": out, "gain": fig["gain"], "gain_dB": fig["gain_dB"],
                           "peak_intensity_W_cm2": st["peak_power_W"] * st["peak_axis_per_m2"] * W_CM2,
@@ -302,6 +310,27 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
             "output_pulse_duration_ns": _fwhm_s(out_power, last.dt_s) * 1e9})
     summary.update({"warnings": warnings, "steps": steps, "media": media, "safety": SAFETY_NOTE})
     return summary
+
+
+def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float, warnings: list[str]) -> None:
+    """A loss step's optic against its damage data: the on-axis fluence (pulsed, scaled to the pulse
+    length) or intensity (cw) of the beam reaching it."""
+    limits = config.limits
+    if config.mode == "cw":
+        damage = step.damage_intensity_W_m2
+        if damage and axis_value > limits.damage_fraction * damage:
+            warnings.append(f"step {step.index} (loss): peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
+                            f"{100 * limits.damage_fraction:g} % of the cw damage intensity of this optic "
+                            f"({damage * W_CM2:.3g} W/cm², common practice)")
+        return
+    if step.damage_fluence_J_m2:
+        scaled = scaled_damage_fluence(step.damage_fluence_J_m2, step.damage_pulse_s, config.seed.duration_s,
+                                       limits.damage_scaling_exponent)
+        if axis_value > limits.damage_fraction * scaled:
+            warnings.append(f"step {step.index} (loss): peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
+                            f"is above {100 * limits.damage_fraction:g} % of the damage fluence of this optic "
+                            f"(estimated {scaled * J_CM2:.3g} J/cm² at {config.seed.duration_s * 1e9:g} ns, "
+                            f"common practice)")
 
 
 def _pulse_warnings(config: Config, step, model: F.FibreModel, peak_fluence_J_m2: float, b_rad: float,

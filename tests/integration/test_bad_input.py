@@ -83,6 +83,7 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_fibre_seed_wavelength.toml": (["seed.wavelength_nm = 1300.0: outside the cross-section spectrum of "
                                         "fibre 'f1' (850 to 1150 nm)"], 1),
     "bad_fibre_with_bulk.toml": (['medium[1].kind = "bulk": a layout with a fibre is made of fibres only'], 1),
+    "bad_fibre_solver.toml": (["solver = {max_iterations = 50}: the [solver] table sets the bulk cw iteration"], 1),
     "bad_repetition_rate_bulk.toml": (["seed.repetition_rate_kHz = 10.0: the inversion between pulses is "
                                        "modelled for fibre layouts only"], 1),
     "bad_medium_table.toml": (["medium = {", "write [[medium]]"], 1),
