@@ -150,11 +150,12 @@ def newton(model, launch_W: np.ndarray, power: np.ndarray, n2: np.ndarray, toler
     res, scale = prob.residual(u)
     err = float(np.max(np.abs(res) / scale))
     merit = float(np.sum((res / scale) ** 2))
-    it = 0
-    for it in range(1, max_iterations + 1):
+    steps, extra = 0, 1            # one step more once within the tolerance: it costs little and
+    while steps < max_iterations:  # leaves the residual at round-off (quadratic convergence)
         if err < tolerance:
-            it -= 1
-            break
+            if extra == 0:
+                break
+            extra -= 1
         try:
             step = splu(prob.jacobian(u)).solve(-res)
         except RuntimeError:          # singular: no Newton step from here
@@ -174,5 +175,6 @@ def newton(model, launch_W: np.ndarray, power: np.ndarray, n2: np.ndarray, toler
             break
         u, res, scale, merit = trial, r2, s2, m2
         err = float(np.max(np.abs(res) / scale))
+        steps += 1
     power, n2 = prob.split(u)
-    return power.copy(), n2.copy(), it, err
+    return power.copy(), n2.copy(), steps, err
