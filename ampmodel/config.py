@@ -36,7 +36,8 @@ from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
                             expected, item_names, join_path, leaf_schema, quoted_list, walk)
 from .description import Config, Grid, Limits, Medium, Pump, Seed, Step
-from .materials import MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, material_from_values
+from .materials import (MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, config_values,
+                        material_from_values)
 from .units import si_name, to_si
 
 __all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolve_path", "dump_toml"]
@@ -494,7 +495,7 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
             changes["broadening"] = given["broadening"]
         if spectrum is not None:
             # a new spectrum: the cross-sections not given in the table are read from it again
-            keep = {k: x for k, x in _config_values(base).items() if k not in STAND_IN_KEYS}
+            keep = {k: x for k, x in config_values(base).items() if k not in STAND_IN_KEYS}
             keep.update(given)
             keep["broadening"] = given.get("broadening", base.broadening)
             sources = {k: x for k, x in sources.items() if k not in STAND_IN_KEYS or k in given}
@@ -517,16 +518,6 @@ def _spectrum(p: Problems, table: Any, path: str):
         else:
             p.add(where, message, value)
     return spectrum
-
-
-def _config_values(material: Material) -> dict[str, float]:
-    """A material's values under their config keys (config units)."""
-    out = {}
-    for key in MATERIAL_KEYS:
-        value = getattr(material, si_name(key), None)
-        if value is not None:
-            out[key] = value / to_si(key, 1.0)
-    return out
 
 
 def _pump(p: Problems, table: dict, path: str, material: Material | None,

@@ -160,7 +160,7 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     ax.legend(loc="lower right", fontsize="small", framealpha=0.9)
     what = "steady state" if rec.mode == "cw" else "between pulses, just before a pulse"
     ax.set_title(f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
-    fig.suptitle(f"ASE spectra" + _title_suffix(result))
+    fig.suptitle("ASE spectra" + _title_suffix(result))
     return _save(fig, path)
 
 

@@ -210,6 +210,17 @@ class Material:
         return self.saturation_fluence_J_m2 / self.upper_lifetime_s
 
 
+def config_values(material: Material) -> dict[str, float]:
+    """The material's values under their config keys, in config units (only those it has)."""
+    out: dict[str, float] = {}
+    for key in MATERIAL_KEYS:
+        si_value = getattr(material, si_name(key), None)
+        if si_value is None or (key not in material.sources and si_value == 0.0):
+            continue
+        out[key] = si_value / to_si(key, 1.0)
+    return out
+
+
 def material_from_values(values: Mapping[str, object], name: str, description: str = "",
                          sources: Mapping[str, str] | None = None,
                          notes: Mapping[str, str] | None = None,

@@ -39,8 +39,9 @@ try:
 except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
-from ..units import factor, si_name
-from . import BROADENINGS, MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, material_from_values
+from ..units import factor
+from . import (BROADENINGS, MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, config_values,
+               material_from_values)
 
 DATA_DIR = Path(__file__).parent
 """Directory holding the built-in material files (``*.toml``)."""
@@ -205,17 +206,6 @@ def _wrapped(label: str, text: str, indent: int) -> list[str]:
                          break_on_hyphens=False) or [prefix.rstrip()]
 
 
-def _config_values(material: Material) -> dict[str, float]:
-    """The material's values under their config keys, in config units (only those it has)."""
-    out: dict[str, float] = {}
-    for key in MATERIAL_KEYS:
-        si_value = getattr(material, si_name(key), None)
-        if si_value is None or (key not in material.sources and si_value == 0.0):
-            continue
-        out[key] = si_value / factor(key)
-    return out
-
-
 def table_text() -> str:
     """The built-in materials as text: per material its values in config units and their sources.
 
@@ -231,7 +221,7 @@ def table_text() -> str:
         lines.append(f"{material.name}  ({kind}, {material.broadening} broadening)")
         if material.description:
             lines.extend(_wrapped("", material.description, 2))
-        for key, value in _config_values(material).items():
+        for key, value in config_values(material).items():
             lines.append(f"  {key:<{key_width}}  {_format_value(value)}")
             lines.extend(_wrapped("source: ", material.sources.get(key, "(none)"), 6))
             if key in material.notes:

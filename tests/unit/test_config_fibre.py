@@ -1,7 +1,6 @@
 """Config of fibre media and fibre layouts (SPEC section 6): SI values, defaults, the checks across keys."""
 from __future__ import annotations
 
-import copy
 import math
 try:
     import tomllib
