@@ -99,8 +99,7 @@ def _stage_figures(st: dict, cw: bool) -> dict[str, Any]:
         profile = sol.power_W[s]
         st.update(signal_out=fig["signal_out_W"], ase_forward_W=fig["ase_forward_W"],
                   ase_backward_W=fig["ase_backward_W"], peak_power_W=float(profile.max()),
-                  gain_free_dB=10 / math.log(10) * float(np.sum(model.growth(st["pump_only"].n2, [s]))
-                                                         * model.slice_length_m))
+                  gain_free_dB=model.signal_gain_dB(st["pump_only"].n2))
         st["fig"] = fig
     else:
         train = st["train"]
@@ -109,8 +108,7 @@ def _stage_figures(st: dict, cw: bool) -> dict[str, Any]:
         st.update(signal_out=float(train.pulse.energy_out_J.sum()) * (train.repetition_rate_Hz or 1.0),
                   ase_forward_W=train.between["ase_forward_W"], ase_backward_W=train.between["ase_backward_W"],
                   peak_power_W=peak_power,
-                  gain_free_dB=10 / math.log(10) * float(np.sum(model.growth(train.n2_before, [s]))
-                                                         * model.slice_length_m))
+                  gain_free_dB=model.signal_gain_dB(train.n2_before))
     st["effective_length_m"] = _integral(profile, z) / profile[-1] if profile[-1] > 0 else model.length_m
     st["peak_axis_per_m2"] = 2.0 / w2
     return st
@@ -133,8 +131,7 @@ def _medium_entry(config: Config, st: dict, cw: bool) -> dict[str, Any]:
         "name": model.name, "kind": "fibre", "material": medium.material.name, "length_m": model.length_m,
         "rings": model.rings, "mode_field_diameter_um": 2e6 * model.mode_radius_m,
         "signal_overlap": float(model.overlap[s].sum()),
-        "saturation_energy_J": float(model.photon_energy_J[s] * model.doped_area_m2
-                                     / (model.overlap[s].sum() * (model.sigma_e_m2[s] + model.sigma_a_m2[s]))),
+        "saturation_energy_J": model.modal_saturation_energy_J(s),
         "small_signal_gain_dB": st["gain_free_dB"], "small_signal_gain_on_axis": 10 ** (st["gain_free_dB"] / 10),
         "ase_forward_W": st["ase_forward_W"], "ase_backward_W": st["ase_backward_W"],
         "peak_power_W": st["peak_power_W"], "effective_length_m": st["effective_length_m"],

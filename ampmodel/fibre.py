@@ -112,6 +112,18 @@ class FibreModel:
         """Spontaneous emission into the given channels (W/m) for populations n2."""
         return np.tensordot(self.source_weight[channels], n2, axes=(1, 0))
 
+    def signal_gain_dB(self, n2: np.ndarray) -> float:
+        """Small-signal gain of the signal through the whole fibre for populations n2 (R, Nz), in dB
+        (10·log10 e · Σ (g − l)·h)."""
+        return float(10.0 / np.log(10.0) * np.sum(self.growth(n2, [self.signal])) * self.slice_length_m)
+
+    def modal_saturation_energy_J(self, channel: int = 0) -> float:
+        """Saturation energy of the overlap model, hν·A/(Γ·(σe + σa)), Γ the channel's overlap with the
+        whole doped core (J)."""
+        k = channel
+        return float(self.photon_energy_J[k] * self.doped_area_m2
+                     / (self.overlap[k].sum() * (self.sigma_e_m2[k] + self.sigma_a_m2[k])))
+
     def saturation_energy_J(self, channel: int = 0) -> np.ndarray:
         """(R,) saturation energy hν·A_j/(Γ_kj·(σe + σa)) of each ring for a pulse in channel k
         (inf for a ring the channel does not reach)."""

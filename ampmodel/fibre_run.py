@@ -159,8 +159,7 @@ def _common(model: F.FibreModel) -> dict:
     edges = model.ase_bin_edges_m
     s = model.signal
     attrs = {"mode_field_radius": model.mode_radius_m, "signal_overlap": float(model.overlap[s].sum()),
-             "saturation_energy": float(model.photon_energy_J[s] * model.doped_area_m2
-                                        / (model.overlap[s].sum() * (model.sigma_e_m2[s] + model.sigma_a_m2[s]))),
+             "saturation_energy": model.modal_saturation_energy_J(s),
              "length": model.length_m, "rings": model.rings}
     pumps = [i for i in (model.pump_forward, model.pump_backward) if i is not None]
     if pumps:
@@ -217,7 +216,7 @@ def describe_fibres(config: Config) -> list[str]:
         model = F.build_model(m, config.seed.wavelength_m)
         s = model.signal
         pump_only = F.solve_cw(model, 0.0)
-        gain_dB = 10 / np.log(10) * float(np.sum(model.growth(pump_only.n2, [s]))) * model.slice_length_m
+        gain_dB = model.signal_gain_dB(pump_only.n2)
         line = (f"  fibre {m.name} ({m.material.name}): "
                 + (f"V = {model.v_number:.2f}, " if model.v_number is not None else "")
                 + f"mode-field diameter {2e6 * model.mode_radius_m:.3g} µm, signal overlap {model.overlap[s].sum():.3f}")
