@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .plots import OUTPUT_COLOUR, SEED_COLOUR, _figure, _save, _title_suffix
+from .plots import _ENERGY_UNITS, _POWER_UNITS, OUTPUT_COLOUR, SEED_COLOUR, _figure, _prefix, _save, _title_suffix
 from .results import FibreRecord, Result
 
 PUMP_COLOUR = "#2a9d3a"
@@ -72,10 +72,7 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
 
 
 def _energy_unit(value: float) -> tuple[float, str]:
-    for scale, unit in ((1.0, "J"), (1e-3, "mJ"), (1e-6, "µJ"), (1e-9, "nJ")):
-        if value >= scale:
-            return scale, unit
-    return 1e-12, "pJ"
+    return _prefix(value, _ENERGY_UNITS)
 
 
 def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
@@ -146,9 +143,9 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     with np.errstate(divide="ignore"):
         dbm = lambda w: 10 * np.log10(np.maximum(w, 1e-30) / 1e-3)  # noqa: E731
         ax.step(wl, dbm(fwd), where="mid", color=OUTPUT_COLOUR, lw=1.6,
-                label=f"forward, at z = {rec.z_m[-1]:g} m: {rec.ase_forward_W[:, -1].sum():.3g} W")
+                label=f"forward, at z = {rec.z_m[-1]:g} m: {_watts(rec.ase_forward_W[:, -1].sum())}")
         ax.step(wl, dbm(bwd), where="mid", color=ASE_COLOUR, lw=1.6, ls="--",
-                label=f"backward, at z = 0: {rec.ase_backward_W[:, 0].sum():.3g} W")
+                label=f"backward, at z = 0: {_watts(rec.ase_backward_W[:, 0].sum())}")
     peak = max(float(np.max(dbm(fwd))), float(np.max(dbm(bwd))))
     ax.set_ylim(peak - 60, peak + 5)
     signal_nm = result.config.seed.wavelength_m * 1e9
@@ -162,6 +159,12 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     ax.set_title(f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
     fig.suptitle("ASE spectra" + _title_suffix(result))
     return _save(fig, path)
+
+
+def _watts(value: float) -> str:
+    """A power with the prefix that suits its size (plots._prefix)."""
+    scale, unit = _prefix(value, _POWER_UNITS)
+    return f"{value / scale:.3g} {unit}"
 
 
 def make_fibre_plots(result: Result, directory: Path, used: set[str]) -> list[Path]:
