@@ -31,6 +31,14 @@ def memory_estimate_bytes(config: Config) -> int:
     time slice with one working copy and the kernel's temporaries, each medium's gain three times
     (working, initial, final), and one map per step for the records."""
     pixels = config.grid.points ** 2
+    if any(m.kind == "fibre" for m in config.media):
+        # fibres: per fibre the gain maps before and after (slices x pixels), every channel's power at
+        # the slice boundaries and slice means, and the populations; one map per step for the records
+        def channels(m):
+            return 4 + (2 * m.fibre.ase_bins if m.fibre.ase else 0)
+        media = sum(2 * m.slices * pixels + 3 * channels(m) * (m.slices + 1) + 2 * m.fibre.rings * m.slices
+                    for m in config.media)
+        return 8 * (media + (3 + len(config.steps)) * pixels + 2 * config.grid.time_slices)
     if config.mode == "cw":
         # cw: per medium the gain, small-signal gain, saturation intensity, the two direction sums,
         # the intensity entering each voxel in each pass, and (pumped) the pump's fields, on the
