@@ -12,10 +12,12 @@ backward channels (backward pump, backward ASE) at z = L. It is solved by relaxa
 sweep (slice by slice from z = 0, the forward channels propagated while the backward channels'
 slice-mean powers are held at their last values, the populations of each slice solved together
 with the forward channels passing through it) followed by a backward sweep (the same from z = L),
-repeated until the largest change of any channel's power (relative to that channel's largest power)
-and of any population between two iterations falls below the tolerance (default 1e-9). A layout
-without backward channels needs one forward sweep. The number of iterations and the last change are
-reported.
+repeated with Anderson mixing of the iterates until the largest change of any channel's power
+(relative to that channel's largest power) and of any population falls below 1e-6; Newton's method
+on the discretised equations (fibre_newton.py) then finishes to the tolerance (1e-9) and one step
+more. A layout without backward channels needs one forward sweep, which is exact. When the sweeps do
+not settle, the launched powers are lowered until they do and raised back in stages solved by
+Newton's method (see :func:`solve_cw`). The method, the iterations and the last change are reported.
 
 References
 ----------
