@@ -26,8 +26,12 @@ power has the exact solution (``slice_transfer``):
     x = (g − l)·h,  φ1(x) = (eˣ − 1)/x,  φ2(x) = (eˣ − 1 − x)/x²,
 
 stable for any gain or absorption per slice. When the populations of a slice are set from the
-slice-mean powers P̄, photons are conserved exactly slice by slice: Σ_k (Φ_out − Φ_in)_k =
-h·Σ_j A_j·Nt_j·(Σ_k s_k-part − n2_j/τ) − background loss (see the fibre physics tests).
+slice-mean powers P̄, photons are conserved exactly slice by slice: over a slice of length h,
+
+    Σ_k (Φ_k,leaving − Φ_k,entering) = h·[Σ_k s_k/(hν_k) − Σ_j A_j·Nt_j·n2_j/τ − Σ_k l_k·P̄_k/(hν_k)],
+
+(Φ = P/hν, sums over the channels that act on the ions): what the ions lose to spontaneous decay
+beyond the guided spontaneous emission, and the background loss, is what the light loses.
 """
 from __future__ import annotations
 
