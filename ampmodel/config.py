@@ -35,17 +35,18 @@ from . import config_fibre
 from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
                             expected, item_names, join_path, leaf_schema, quoted_list, walk)
-from .description import Config, Grid, Limits, Medium, Pump, Seed, Step
+from .description import (Config, Grid, Limits, Medium, Pump, Seed, Step, Train, longest_layout_time_s,
+                          passed_media)
 from .materials import (MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, config_values,
                         material_from_values)
-from .units import si_name, to_si
+from .units import LIGHT_SPEED_M_S, si_name, to_si
 
 __all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolve_path", "dump_toml"]
 
 STAND_IN_KEYS = frozenset(key for key, _, _ in SPECTRUM_STANDS_IN)
 
 # Tables that a --set may create when its path runs through one that is not there yet.
-_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "pump", "material"})
+_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "pump", "material", "train"})
 
 
 class ConfigError(Exception):
@@ -308,8 +309,9 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     """Check the whole config; return the Config (text, source, raw not yet set) or None with problems."""
     fibre_layout = config_fibre.any_fibre(raw)        # a layout with a fibre (checked to be fibres only)
     only_fibres = config_fibre.all_fibre(raw)
-    top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "solver", "sweep"))
-    for key in ("grid", "seed", "limits", "solver", "sweep"):
+    top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "solver", "sweep",
+                                              "train"))
+    for key in ("grid", "seed", "limits", "solver", "sweep", "train"):
         if key in raw and not isinstance(raw[key], dict):
             p.add(key, f"must be a table [{key}], not {S.type_name(raw[key])}", raw[key])
     for key in ("grid", "seed"):
@@ -328,6 +330,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         grid = config_fibre.grid(p, raw, media, seed)
     limits = Limits(**check_table(p, raw["limits"], "limits", S.LIMITS)) \
         if isinstance(raw.get("limits"), dict) else Limits()
+    train = Train(**check_table(p, raw["train"], "train", S.TRAIN)) \
+        if isinstance(raw.get("train"), dict) else Train()
     if isinstance(raw.get("sweep"), dict):
         _sweep(p, raw)
     if mode == "cw" and grid is not None and grid.diffraction:
@@ -345,8 +349,52 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
                                          "grid.diffraction = true (or remove the step)", item["kind"])
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
+    _timing(p, raw, media, seed, tuple(steps))
+    if len(p):
+        return None
     return Config(title=top.get("title", default_title), mode=mode, grid=grid, media=tuple(media),
-                  seed=seed, steps=tuple(steps), limits=limits, solver=solver)
+                  seed=seed, steps=tuple(steps), limits=limits, solver=solver, train=train)
+
+
+def _timing(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[Step, ...]) -> None:
+    """Checks that involve time: a pulse train's pumps and period, and the ion density that a
+    quasi-three-level medium needs once time passes between steps."""
+    path_of = {m.name: f"medium[{i}] ({m.name})" for i, m in enumerate(media)}
+    passed = passed_media(steps)
+    train = seed.repetition_rate_Hz is not None
+    if "train" in raw and not train:
+        p.add("train", "applies to pulse trains only: give seed.repetition_rate_Hz, or remove the [train] table")
+    time_passes = train or any(s.delay_s > 0 or s.round_trip_time_s > 0 for s in steps) \
+        or any(i.delay_s > 0 for s in steps for i in s.steps)
+    for m in media:
+        if time_passes and m.material.quasi_three_level and not (m.doping_per_m3 or m.material.doping_per_m3):
+            p.add(join_path(path_of[m.name], "doping_per_m3"),
+                  "missing: time passes in this layout (delays, round trips or a pulse train), and a "
+                  "quasi-three-level medium then relaxes towards absorption -sigma_a·Nt; give its ion "
+                  "density doping_per_m3 in the medium or the material")
+    if not train:
+        return
+    for name in passed:
+        if config_medium(media, name).pump is None:
+            p.add(path_of[name], "a pulse train (seed.repetition_rate_Hz) needs a pump that restores the gain "
+                                 "between pulses: give a [medium.pump] table (continuous = true for a CW pump)")
+    period = 1.0 / seed.repetition_rate_Hz
+    layout = longest_layout_time_s(steps)
+    pump_s = max((m.pump.duration_s for m in media if m.name in passed and m.pump is not None
+                  and not m.pump.continuous), default=0.0)
+    if layout + pump_s > period:
+        parts = [f"the layout's longest time {layout * 1e9:.4g} ns (delays, spaces at length/c, repeats at "
+                 f"their most round trips)"]
+        if pump_s:
+            parts.append(f"the pump pulse {pump_s * 1e6:.4g} us")
+        p.add("seed.repetition_rate_Hz", f"the period ({period * 1e9:.4g} ns) is shorter than "
+                                         f"{' plus '.join(parts)}; lower the repetition rate (or a repeat's "
+                                         f"max_count, or the pump's duration_us)", seed.repetition_rate_Hz)
+
+
+def config_medium(media: list[Medium], name: str) -> Medium:
+    """The medium called ``name``."""
+    return next(m for m in media if m.name == name)
 
 
 def _grid(p: Problems, table: dict) -> Grid | None:
@@ -526,7 +574,20 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
     before = len(p)
     v = check_table(p, table, path, S.PUMP)
     geometry = v.get("geometry")
-    config_cw.pump_keys(p, table, path, mode, material)
+    continuous = v.get("continuous") is True
+    if mode == "cw" or not continuous:
+        config_cw.pump_keys(p, table, path, mode, material)
+        if mode == "cw" and table.get("continuous") is False:
+            p.add(join_path(path, "continuous"), 'a pump in a cw run is continuous: remove continuous = false '
+                                                 '(or set mode = "pulsed" for a pump pulse)', False)
+    else:
+        for key, why in (("energy_J", "takes power_W, not an energy"),
+                         ("duration_us", "has no pulse length")):
+            if key in table:
+                p.add(join_path(path, key), f"a continuous pump {why}: remove {key} (or set continuous = false "
+                                            "for a pump pulse)", table[key])
+        if "power_W" not in table:
+            p.add(join_path(path, "power_W"), "missing: the power of the continuous pump, a number > 0")
     if geometry == "side":
         for key in S.END_ONLY:
             if key in table:
@@ -560,7 +621,7 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
               f"'{material.name}' gives none; give doping_per_m3 in the medium or the material")
     if len(p) > before or material is None:
         return None
-    if mode == "cw":
+    if mode == "cw" or continuous:
         duration_s, energy_J, power_W = None, None, v["power_W"]
     else:
         duration_s = to_si("duration_us", v["duration_us"])
@@ -573,7 +634,7 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
         absorption_per_m=to_si("absorption_per_cm", v["absorption_per_cm"]) if "absorption_per_cm" in v else None,
         back_reflectance=v.get("back_reflectance", 0.0), absorbed_fraction=v.get("absorbed_fraction", 1.0),
         transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"],
-        power_W=power_W)
+        power_W=power_W, continuous=continuous or mode == "cw")
 
 
 # --- seed -------------------------------------------------------------------------------------
@@ -654,21 +715,32 @@ def _wrong_kind_message(kind: str, schema: Mapping[str, S.Key]):
     return message
 
 
-def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = "pulsed") -> Step | None:
-    """One [[step]]: its kind decides which keys it takes."""
+def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = "pulsed",
+          parent: tuple[int, str] | None = None) -> Step | None:
+    """One [[step]] (or, with ``parent`` = (index, path) of a repeat, one of its [[step.steps]]):
+    its kind decides which keys it takes."""
     before = len(p)
     name = item.get("name") if isinstance(item.get("name"), str) else ""
-    path = f"step[{i}] ({name})" if name else f"step[{i}]"
+    where = f"{parent[1]}.steps[{i}]" if parent else f"step[{i}]"
+    path = f"{where} ({name})" if name else where
     kind = item.get("kind")
+    kind_key = S.INNER_STEP_KIND if parent else S.STEP_COMMON["kind"]
     if "kind" not in item:
-        p.add(join_path(path, "kind"), f"missing: the step kind, {expected(S.STEP_COMMON['kind'])}")
+        p.add(join_path(path, "kind"), f"missing: the step kind, {expected(kind_key)}")
         return None
-    _, message = check_value(kind, S.STEP_COMMON["kind"])
+    _, message = check_value(kind, kind_key)
     if message:
+        if parent and kind == "repeat":
+            message += "; a repeat cannot hold another repeat (write the inner steps out, or use count)"
         p.add(join_path(path, "kind"), message, kind)
         return None
-    schema = {**S.STEP_COMMON, **S.STEP_KINDS[kind]}
-    v = check_table(p, item, path, schema, unknown=_wrong_kind_message(kind, schema))
+    if mode == "cw" and (kind == "repeat" or "delay_ns" in item):
+        what, value = ("kind", kind) if kind == "repeat" else ("delay_ns", item["delay_ns"])
+        p.add(join_path(path, what), 'applies to mode = "pulsed" only: a cw beam is steady, so steps take no '
+                                     'time and are not repeated round trip by round trip', value)
+        return None
+    schema = {**S.STEP_COMMON, **S.STEP_KINDS[kind], **S.STEP_TIME}
+    v = check_table(p, item, path, schema, unknown=_wrong_kind_message(kind, schema), skip=("steps",))
     fields: dict[str, Any] = {}
     if kind == "pass" and "medium" in v:
         ref = v["medium"]
@@ -696,6 +768,8 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
             fields["order"] = v["order"]
     elif kind == "space" and "length_mm" in v:
         fields["length_m"] = to_si("length_mm", v["length_mm"])
+        if mode != "cw":   # a path takes time: length/c (in air, index 1) unless delay_ns says otherwise
+            fields["delay_s"] = fields["length_m"] / LIGHT_SPEED_M_S
     elif kind == "lens" and "focal_mm" in v:
         fields["focal_m"] = to_si("focal_mm", v["focal_mm"])
     elif kind == "filter":
@@ -705,6 +779,8 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
             fields["pinhole_diameter_m"] = to_si("pinhole_diameter_mm", v["pinhole_diameter_mm"])
     elif kind == "relay" and "magnification" in v:
         fields["magnification"] = v["magnification"]
+    elif kind == "repeat":
+        fields.update(_repeat(p, i, item, v, path, names, mode))
     config_cw.step_keys(p, item, path, mode)
     fields.update(config_cw.cw_fields(v))
     damage = [k for k in ("damage_fluence_J_cm2", "damage_pulse_ns") if k in item]
@@ -715,9 +791,58 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
     for key in damage:
         if key in v:
             fields[si_name(key)] = to_si(key, v[key])
+    if "delay_ns" in v:
+        fields["delay_s"] = to_si("delay_ns", v["delay_ns"])
     if len(p) > before:
         return None
-    return Step(kind=kind, index=i, name=name, **fields)
+    return Step(kind=kind, index=i, name=name, parent=parent[0] if parent else None, **fields)
+
+
+def _repeat(p: Problems, i: int, item: dict, v: dict, path: str, names: list[str],
+            mode: str | None = "pulsed") -> dict[str, Any]:
+    """A repeat's own keys and its [[step.steps]]: the fields of its Step."""
+    fields: dict[str, Any] = {}
+    if "count" in item and "until" in item:
+        p.add(path, 'both count and until given: give count (a fixed number of round trips) or until = "peak" '
+                    "(stop after the round trip of largest energy), not both")
+    elif "count" not in item and "until" not in item:
+        p.add(join_path(path, "count"), 'missing: the number of round trips count, an integer >= 1; or '
+                                        'until = "peak" (with max_count, the safety limit)')
+    if "max_count" in item and "until" not in item:
+        p.add(join_path(path, "max_count"), 'applies with until = "peak" only (the safety limit on the round '
+                                            "trips); with count, remove it", item["max_count"])
+    fields["count"] = v.get("count")
+    fields["until"] = v.get("until")
+    fields["max_count"] = v.get("max_count", S.MAX_COUNT_DEFAULT)
+    items = item.get("steps")
+    spath = join_path(path, "steps")
+    inner: list[Step | None] = []
+    if items is None:
+        p.add(spath, "missing: the steps of one round trip; write them as [[step.steps]] tables after the "
+                     "repeat's [[step]]")
+    elif isinstance(items, dict):
+        p.add(spath, "must be an array of tables: write [[step.steps]] (double brackets) for each step", items)
+    elif not isinstance(items, list) or not items:
+        p.add(spath, "must be a non-empty array of tables: write [[step.steps]] for each step of a round trip",
+              items)
+    else:
+        for j, sub in enumerate(items):
+            if not isinstance(sub, dict):
+                p.add(f"{spath}[{j}]", f"must be a table ([[step.steps]]), not {S.type_name(sub)}", sub)
+                inner.append(None)
+            else:
+                inner.append(_step(p, j, sub, names, mode, parent=(i, f"step[{i}]")))
+    if inner and all(s is not None for s in inner):
+        fields["steps"] = tuple(inner)
+        if "round_trip_ns" in v:
+            fields["round_trip_s"] = to_si("round_trip_ns", v["round_trip_ns"])
+            inside = sum(s.delay_s for s in fields["steps"])
+            if inside > fields["round_trip_s"] * (1 + 1e-12):
+                p.add(join_path(path, "round_trip_ns"),
+                      f"shorter than the time the steps inside take ({inside * 1e9:.6g} ns: their delay_ns, and "
+                      f"length/c for each space); give at least that, or remove round_trip_ns to use the sum",
+                      item["round_trip_ns"])
+    return fields
 
 
 # --- sweep ------------------------------------------------------------------------------------

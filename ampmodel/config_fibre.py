@@ -218,7 +218,8 @@ SEED_TRANSVERSE = ("profile", "order", "diameter_mm", "waist_mm", "curvature_mm"
 
 def check_seed(p: Problems, table: dict, fibre_layout: bool, mode: str | None) -> float | None:
     """The seed keys that depend on fibres: no transverse profile in a fibre layout; a repetition rate
-    only for pulses in a fibre layout. Returns the repetition rate in Hz (None when not given)."""
+    only for pulses (a bulk train's own checks are in config_timing). Returns the repetition rate in
+    Hz (None when not given)."""
     if fibre_layout:
         for key in SEED_TRANSVERSE:
             if key in table:
@@ -231,10 +232,7 @@ def check_seed(p: Problems, table: dict, fibre_layout: bool, mode: str | None) -
     if not rates:
         return None
     key = rates[0]
-    if not fibre_layout:
-        p.add(join_path("seed", key), "the inversion between pulses is modelled for fibre layouts only; remove "
-                                      "it (a bulk medium meets each pulse with its stored gain)", table[key])
-    elif mode == "cw":
+    if mode == "cw":
         p.add(join_path("seed", key), 'applies to pulses (mode = "pulsed"); a cw seed takes power_W', table[key])
     value = table[key]
     if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0:

@@ -110,6 +110,7 @@ TOP: dict[str, Key] = {
     "limits": Key("table", "thresholds of the warnings"),
     "solver": Key("table", "settings of the cw steady-state iteration"),
     "sweep": Key("table", "values to sweep"),
+    "train": Key("table", "how a pulse train is solved (with seed.repetition_rate_Hz)"),
 }
 SECTION_HINTS = {
     "grid": "[grid] with width_mm (and optionally points, time_slices)",
@@ -154,6 +155,7 @@ PUMP: dict[str, Key] = {
     "energy_J": number("pump energy in one pump pulse", gt=0),
     "power_W": number("pump power during the pump pulse", gt=0),
     "duration_us": number("pump pulse length (pulsed mode)", gt=0),
+    "continuous": flag("a CW pump, on all the time (give power_W)", default=False),
     "wavelength_nm": number("pump wavelength", ge=150.0, le=20000.0),
     "profile": choice("transverse pump profile", PUMP_PROFILES, default="flat"),
     "diameter_mm": number("pumped diameter", gt=0),
@@ -197,18 +199,32 @@ SEED: dict[str, Key] = {
                            nonzero=True),
     "m_squared": number("beam quality factor M^2", ge=1, le=50, default=1.0),
     "phase_screen_seed": integer("random seed of the M^2 phase screen", 0, 2**31 - 1, default=0),
-    "repetition_rate_Hz": number("pulse repetition rate (fibre layouts)", gt=0),
-    "repetition_rate_kHz": number("pulse repetition rate (fibre layouts)", gt=0),
+    "repetition_rate_Hz": number("pulses per second: a pulse train (bulk or fibre layouts)", gt=0),
+    "repetition_rate_kHz": number("thousands of pulses per second: a pulse train (bulk or fibre layouts)", gt=0),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
 
-STEP_KIND_NAMES = ("pass", "loss", "aperture", "space", "lens", "filter", "relay")
+TRAIN: dict[str, Key] = {
+    "tolerance": number("relative difference at which the pulses repeat", gt=0, lt=0.1, default=1e-6),
+    "max_pulses": integer("pulses run one after another from the start of the train", 1, 1_000_000,
+                          default=200),
+    "method": choice("how the periodic steady state is found", ("auto", "iterate"), default="auto"),
+}
+
+STEP_KIND_NAMES = ("pass", "loss", "aperture", "space", "lens", "filter", "relay", "repeat")
 FIELD_ONLY_KINDS = ("filter",)   # step kinds that act on the field: they need grid.diffraction = true
+INNER_STEP_KIND_NAMES = tuple(k for k in STEP_KIND_NAMES if k != "repeat")
 STEP_COMMON: dict[str, Key] = {
     "kind": choice("step kind", STEP_KIND_NAMES, required=True),
     "name": text("step name"),
 }
+STEP_TIME: dict[str, Key] = {   # every step kind takes these, after its own keys
+    "delay_ns": number("time the step takes before the next step (the media are pumped and decay)", ge=0),
+}
+INNER_STEP_KIND = choice("step kind inside a repeat", INNER_STEP_KIND_NAMES, required=True)
+UNTIL_RULES = ("peak",)
+MAX_COUNT_DEFAULT = 1000
 _DAMAGE: dict[str, Key] = {
     "damage_fluence_J_cm2": number("damage fluence of the optic (pulsed mode)", gt=0),
     "damage_pulse_ns": number("pulse length the damage fluence was quoted at (pulsed mode)", gt=0),
@@ -240,6 +256,13 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
     },
     "relay": {
         "magnification": number("image magnification of the 4f relay", ge=0.01, le=100, default=1.0),
+    },
+    "repeat": {
+        "steps": Key("tables", "the steps of one round trip", required=True),
+        "count": integer("number of round trips", 1, 1_000_000),
+        "until": choice("stop rule: 'peak' dumps after the round trip of largest energy", UNTIL_RULES),
+        "max_count": integer("safety limit on the round trips with until = 'peak'", 1, 1_000_000),
+        "round_trip_ns": number("time of one round trip", gt=0),
     },
 }
 
@@ -689,7 +712,7 @@ def walk(raw: dict, path: str, create: frozenset = frozenset()) -> tuple[Any, An
 
 def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
     """The schema table the last key of a resolved value path belongs to (None: not a value path)."""
-    sections = {"grid": GRID, "seed": SEED, "limits": LIMITS, "solver": SOLVER}
+    sections = {"grid": GRID, "seed": SEED, "limits": LIMITS, "solver": SOLVER, "train": TRAIN}
     if len(trail) == 1:
         return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
     if len(trail) == 2 and trail[0] in sections:
@@ -706,5 +729,10 @@ def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
         return {k: s for k, s in MATERIAL_TABLE.items() if k != "spectrum"}
     if trail[0] == "step" and len(trail) == 3 and isinstance(trail[1], int):
         kind = raw["step"][trail[1]].get("kind")
-        return {**STEP_COMMON, **STEP_KINDS.get(kind, {})} if isinstance(kind, str) else None
+        schema = {**STEP_COMMON, **STEP_KINDS.get(kind, {}), **STEP_TIME} if isinstance(kind, str) else None
+        return {k: s for k, s in schema.items() if k != "steps"} if schema else None
+    if trail[0] == "step" and len(trail) == 5 and trail[2] == "steps" and isinstance(trail[3], int):
+        kind = raw["step"][trail[1]]["steps"][trail[3]].get("kind")
+        return {**STEP_COMMON, **STEP_KINDS.get(kind, {}), **STEP_TIME} \
+            if isinstance(kind, str) and kind in INNER_STEP_KIND_NAMES else None
     return None

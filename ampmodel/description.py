@@ -34,12 +34,15 @@ class Pump:
     ``energy_J``: pulsed: pump energy delivered in one pump pulse (power_W x duration when given as
     power); None in cw mode.
     ``duration_s``: pulsed: pump pulse length (square pulse), for the storage efficiency; None in cw.
-    ``power_W``: cw: the continuous pump power; None in pulsed mode.
+    ``power_W``: the continuous pump power (cw mode, or a continuous pump in pulsed mode); else None.
     ``absorption_per_m``: pump absorption coefficient (end pumping); None: from the material.
     ``back_reflectance``: end pumping, fraction of the transmitted pump sent back for a second pass.
     ``absorbed_fraction``: side pumping, fraction of the delivered pump absorbed in the medium.
     ``transfer_efficiency``: delivery/coupling efficiency from the pump source into the medium.
     ``quantum_efficiency``: upper-state ions created per absorbed pump photon.
+    ``continuous``: a CW pump of ``power_W``, on all the time (``energy_J`` and ``duration_s`` are
+    None); every pump of a cw-mode run is continuous. In pulsed mode a pump pulse ends when the seed
+    pulse arrives; in a pulse train it repeats before each pulse.
     """
 
     geometry: str
@@ -54,7 +57,8 @@ class Pump:
     absorbed_fraction: float = 1.0
     transfer_efficiency: float = 1.0
     quantum_efficiency: float = 1.0
-    power_W: float | None = None
+    power_W: float | None = None      # cw mode and continuous pumps: the delivered power
+    continuous: bool = False
 
 
 @dataclass(frozen=True)
@@ -136,7 +140,7 @@ class Seed:
     curvature_m: float | None = None  # wavefront radius at the start (> 0 diverging, < 0 converging)
     m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see optics.py)
     phase_screen_seed: int = 0        # random seed of that phase screen
-    repetition_rate_Hz: float | None = None   # pulsed fibre layouts: pulses at this rate
+    repetition_rate_Hz: float | None = None   # pulses per second: a pulse train (None: one pulse)
 
 
 @dataclass(frozen=True)
@@ -145,7 +149,12 @@ class Step:
 
     kinds: "pass" (medium, reverse), "loss" (transmission), "aperture" (shape, diameter_m, and
     order for a soft edge), "space" (length_m), "lens" (focal_m), "filter" (focal_m,
-    pinhole_diameter_m), "relay" (magnification). Optics may carry a damage fluence for the warning.
+    pinhole_diameter_m), "relay" (magnification), "repeat" (steps, count or until = "peak" with
+    max_count, round_trip_s). Optics may carry a damage fluence for the warning.
+
+    ``delay_s`` is the time the step takes before the next step begins (the media are pumped and
+    decay meanwhile); a step inside a repeat has ``parent`` set to the repeat's index and ``index``
+    counting within the repeat.
     """
 
     kind: str
@@ -164,6 +173,24 @@ class Step:
     damage_fluence_J_m2: float | None = None
     damage_pulse_s: float | None = None
     damage_intensity_W_m2: float | None = None   # cw runs
+    delay_s: float = 0.0
+    steps: tuple["Step", ...] = ()     # repeat: the steps of one round trip
+    count: int | None = None          # repeat: a fixed number of round trips ...
+    until: str | None = None          # ... or "peak": stop after the round trip of largest energy
+    max_count: int = 1000             # repeat with until: safety limit on the round trips
+    round_trip_s: float | None = None  # repeat: time of one round trip (None: the sum of the delays)
+    parent: int | None = None         # index of the enclosing repeat
+
+    @property
+    def round_trip_time_s(self) -> float:
+        """A repeat's round-trip time: ``round_trip_s`` or the sum of its steps' delays."""
+        inner = sum(s.delay_s for s in self.steps)
+        return max(self.round_trip_s or 0.0, inner)
+
+    @property
+    def most_round_trips(self) -> int:
+        """The largest number of round trips a repeat can make."""
+        return self.count if self.count is not None else self.max_count
 
 
 @dataclass(frozen=True)
@@ -180,6 +207,21 @@ class Solver:
     max_iterations: int = 1000
     tolerance: float = 1e-9
     damping: float = 1.0
+
+
+@dataclass(frozen=True)
+class Train:
+    """How a pulse train (``seed.repetition_rate_Hz``) is solved.
+
+    ``tolerance``: the output repeats when pulse energies agree to this relative difference.
+    ``max_pulses``: the largest number of pulses run one after another from the start of the train.
+    ``method``: "auto" (a direct solution of the fixed point where it applies, then accelerated
+    iteration) or "iterate" (accelerated iteration only).
+    """
+
+    tolerance: float = 1e-6
+    max_pulses: int = 200
+    method: str = "auto"
 
 
 @dataclass(frozen=True)
@@ -211,6 +253,7 @@ class Config:
     steps: tuple[Step, ...]
     limits: Limits = field(default_factory=Limits)
     solver: Solver = field(default_factory=Solver)
+    train: Train = field(default_factory=Train)
     text: str = ""                    # the TOML text as run (after --set)
     source: str = "<dict>"            # the file it came from
     raw: Mapping[str, Any] = field(default_factory=dict)
@@ -220,3 +263,23 @@ class Config:
             if m.name == name:
                 return m
         raise KeyError(name)
+
+
+def passed_media(steps: tuple[Step, ...]) -> list[str]:
+    """Names of the media that the steps pass through (repeats included), in order of first pass."""
+    names: list[str] = []
+    for step in steps:
+        for inner in (step.steps if step.kind == "repeat" else (step,)):
+            if inner.kind == "pass" and inner.medium not in names:
+                names.append(inner.medium)
+    return names
+
+
+def longest_layout_time_s(steps: tuple[Step, ...]) -> float:
+    """The longest time the steps can take (s): their delays, each repeat at its most round trips."""
+    total = 0.0
+    for step in steps:
+        if step.kind == "repeat":
+            total += step.most_round_trips * step.round_trip_time_s
+        total += step.delay_s
+    return total

@@ -8,6 +8,8 @@ References
 Storage efficiency of a square pump pulse of length tp, eta = (tau/tp)·(1 − exp(−tp/tau)): the exact
 solution of dN/dt = R − N/tau (textbook, e.g. W. Koechner, Solid-State Laser Engineering, Springer).
 Quasi-three-level bleaching limit N2/Nt <= sigma_a,p/(sigma_a,p + sigma_e,p) at the pump wavelength.
+A continuous (CW) pump holds the steady state of the same equation, N2 = R·tau (capped at the
+bleaching limit): the state of a medium pumped long before the seed arrives.
 """
 from __future__ import annotations
 
@@ -27,8 +29,11 @@ class GainMap:
     gain_per_m : (Nz, Ny, Nx) gain coefficient g (1/m)
     mask : (Ny, Nx) bool, inside the clear aperture
     slice_length_m : dz
-    absorbed_pump_J : pump energy absorbed in the medium (0 without a pump)
-    stored_energy_J : extractable stored energy down to transparency, Fsat·∫max(g, 0) dV
+    absorbed_pump_J : pump energy absorbed in the medium (0 without a pump or with a continuous pump)
+    absorbed_pump_W : pump power absorbed in the medium (continuous pumps)
+    pump_rate_per_m3_s : (Nz, Ny, Nx) upper-state ions created per m³ and s while the pump is on
+        (None without a pump)
+    n2_max_per_m3 : quasi-three-level bleaching limit of N2 (None: no limit)
     """
 
     gain_per_m: np.ndarray
@@ -36,6 +41,9 @@ class GainMap:
     slice_length_m: float
     absorbed_pump_J: float = 0.0
     pump_limited_voxels: int = 0
+    absorbed_pump_W: float = 0.0
+    pump_rate_per_m3_s: np.ndarray | None = None
+    n2_max_per_m3: float | None = None
 
 
 def storage_efficiency(upper_lifetime_s: float, pump_duration_s: float) -> float:
@@ -83,10 +91,11 @@ def pump_absorption_per_m(pump: Pump, medium: Medium) -> float:
 
 def _pump_absorbed_density(pump: Pump, medium: Medium, x_m: np.ndarray, y_m: np.ndarray,
                            mask: np.ndarray, z_edges_m: np.ndarray) -> np.ndarray:
-    """(Nz, Ny, Nx) absorbed pump energy density (J/m³), slice-integrated exactly."""
+    """(Nz, Ny, Nx) absorbed pump energy density (J/m³), slice-integrated exactly; for a continuous
+    pump the absorbed power density (W/m³)."""
     dz = np.diff(z_edges_m)
     pixel_area = (x_m[1] - x_m[0]) * (y_m[1] - y_m[0])
-    delivered = pump.energy_J * pump.transfer_efficiency
+    delivered = (pump.power_W if pump.continuous else pump.energy_J) * pump.transfer_efficiency
     diameter = pump.diameter_m if pump.diameter_m is not None else medium.diameter_m
     profile = beams.transverse_profile(x_m, y_m, pump.profile, diameter, pump.order)
     if pump.geometry == "end":
@@ -140,17 +149,20 @@ def gain_map(medium: Medium, x_m: np.ndarray, y_m: np.ndarray) -> GainMap:
     pump = medium.pump
     assert pump is not None
     z_edges = np.linspace(0.0, medium.length_m, nz + 1)
-    absorbed = _pump_absorbed_density(pump, medium, x_m, y_m, mask, z_edges)       # J/m³
-    absorbed_J = float(absorbed.sum() * pixel_area * dz)
-    eta = storage_efficiency(mat.upper_lifetime_s, pump.duration_s) * pump.quantum_efficiency
-    n2 = absorbed * (eta / photon_energy_J(pump.wavelength_m))                      # ions/m³
+    absorbed = _pump_absorbed_density(pump, medium, x_m, y_m, mask, z_edges)       # J/m³ (cw: W/m³)
+    absorbed_total = float(absorbed.sum() * pixel_area * dz)
+    ions_per_J = pump.quantum_efficiency / photon_energy_J(pump.wavelength_m)
+    if pump.continuous:
+        rate = absorbed * ions_per_J                                                # ions/m³/s
+        n2 = rate * mat.upper_lifetime_s                                            # steady state R·tau
+    else:
+        rate = absorbed * (ions_per_J / pump.duration_s)
+        n2 = absorbed * (ions_per_J * storage_efficiency(mat.upper_lifetime_s, pump.duration_s))
     limited = 0
+    n2_max = bleaching_limit_per_m3(medium)
     if mat.quasi_three_level:
         nt = medium.doping_per_m3 or mat.doping_per_m3
-        sap = mat.pump_absorption_cross_section_m2
-        sep = mat.pump_emission_cross_section_m2 or 0.0
-        if sap:
-            n2_max = nt * sap / (sap + sep)
+        if n2_max is not None:
             limited = int((n2 > n2_max).sum())
             np.minimum(n2, n2_max, out=n2)
         sa = mat.absorption_cross_section_m2
@@ -158,4 +170,18 @@ def gain_map(medium: Medium, x_m: np.ndarray, y_m: np.ndarray) -> GainMap:
         gain = np.where(mask[None, :, :], gain, 0.0)
     else:
         gain = mat.emission_cross_section_m2 * n2
-    return GainMap(gain, mask, dz, absorbed_pump_J=absorbed_J, pump_limited_voxels=limited)
+    return GainMap(gain, mask, dz, absorbed_pump_J=0.0 if pump.continuous else absorbed_total,
+                   pump_limited_voxels=limited, absorbed_pump_W=absorbed_total if pump.continuous else 0.0,
+                   pump_rate_per_m3_s=rate, n2_max_per_m3=n2_max)
+
+
+def bleaching_limit_per_m3(medium: Medium) -> float | None:
+    """Quasi-three-level bleaching limit N2 <= Nt·sigma_a,p/(sigma_a,p + sigma_e,p) at the pump
+    wavelength (ions/m³); None for four-level media or when the pump cross-section is not known."""
+    mat = medium.material
+    nt = medium.doping_per_m3 or mat.doping_per_m3
+    sap = mat.pump_absorption_cross_section_m2
+    if not mat.quasi_three_level or not sap or not nt:
+        return None
+    sep = mat.pump_emission_cross_section_m2 or 0.0
+    return nt * sap / (sap + sep)
