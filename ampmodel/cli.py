@@ -168,6 +168,18 @@ def _print_table(summary: dict) -> None:
     print(f"input {_fmt(summary['input_energy_J'], 'J')} -> output {_fmt(summary['output_energy_J'], 'J')} "
           f"(gain {summary['gain']:.4g}); stored {_fmt(summary['stored_energy_J'], 'J')} -> "
           f"{_fmt(summary['stored_energy_final_J'], 'J')}, extraction {100 * summary['extraction_efficiency']:.1f} %")
+    for s in summary["steps"]:
+        if s["kind"] == "repeat":
+            rule = "at the peak" if s.get("until") == "peak" else "after the count"
+            print(f"step {s['index']} repeat: {s['round_trip_count']} round trips of {s['round_trip_ns']:.4g} ns, "
+                  f"dumped {rule}; build-up time {s['build_up_time_ns']:.4g} ns")
+    train = summary.get("train")
+    if train:
+        est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
+        print(f"pulse train at {_fmt(train['repetition_rate_Hz'], 'Hz')}: steady state {_fmt(train['pulse_energy_J'], 'J')} "
+              f"per pulse, {_fmt(train['average_power_W'], 'W')} average; stored before each pulse "
+              f"{_fmt(train['stored_energy_before_pulse_J'], 'J')}; within {train['tolerance']:g} after "
+              f"{train['pulses_to_steady_state']} pulses{est}")
     print(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
           f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
           f"energy balance error {summary['energy_balance_error']:.1e}")

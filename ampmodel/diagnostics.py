@@ -14,7 +14,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from . import pumping
-from .description import Config
+from .description import Config, Step
 from .kernels.diffraction import critical_power_W, self_focusing_length_m
 from .layout import BeamState, StepOutcome
 from .results import MediumRecord
@@ -35,10 +35,14 @@ def scaled_damage_fluence(damage_J_m2: float, quoted_pulse_s: float | None, puls
     return damage_J_m2 * (pulse_s / quoted_pulse_s) ** exponent
 
 
-def step_label(config: Config, index: int) -> str:
-    """``step 3 (pass rod, reverse)``: how warnings name a step."""
+def step_label(config: Config, index: int, inner: int | None = None) -> str:
+    """``step 3 (pass rod, reverse)``, ``step 0, round-trip step 2 (loss)``: how warnings name a step
+    (``inner``: a step inside the repeat ``index``)."""
     step = config.steps[index]
     label = f"step {index} ({step.kind}"
+    if inner is not None:
+        step = step.steps[inner]
+        label = f"step {index}, round-trip step {inner} ({step.kind}"
     if step.kind == "pass":
         label += f" {step.medium}" + (", reverse" if step.reverse else "")
     return label + ")"
@@ -49,6 +53,85 @@ _step_label = step_label
 # What a clipping step does, in the clipping warning.
 _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
                "pass": "the clear aperture clips"}
+
+
+def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
+    """A step's summary entry: SPEC section 4's keys and more; a repeat adds its round trips and the
+    entries of its steps in the dump round trip."""
+    entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
+             "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
+             "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
+             "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
+             "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
+             "b_integral_rad": oc.b_integral_step_rad,
+             "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
+             "extracted_energy_J": oc.extracted_J, "delay_ns": step.delay_s * 1e9}
+    if config.grid.diffraction:
+        entry["edge_absorbed_energy_J"] = oc.extras.get("edge_absorbed_J", 0.0)
+    entry.update(oc.extras.get("beam", {}))
+    if "peak_power_W" in oc.extras:
+        entry["peak_power_W"] = oc.extras["peak_power_W"]
+    if step.kind == "pass":
+        entry["reverse"] = step.reverse
+    if step.kind == "repeat":
+        x = oc.extras
+        energies = x["round_trip_energies_J"]
+        round_trip_s = x["round_trip_s"]
+        dump = x["dump_round_trip"]
+        before = [oc.energy_in_J] + list(energies[:-1])
+        round_trips = [{"round_trip": k, "energy_J": e, "time_ns": k * round_trip_s * 1e9,
+                        "gain": e / b if b > 0 else 0.0, "kept": k <= dump, "dumped": k == dump}
+                       for k, (e, b) in enumerate(zip(energies, before), start=1)]
+        entry.update({
+            "round_trip_count": dump,
+            "until": step.until, "count": step.count,
+            "round_trip_ns": round_trip_s * 1e9,
+            "build_up_time_ns": dump * round_trip_s * 1e9,
+            "energy_per_round_trip_J": list(energies),
+            "round_trips": round_trips,
+            "steps": [_step_entry(config, s, o) for s, o in zip(step.steps, x["inner"])],
+        })
+        if step.until is not None:
+            entry["peak_found"] = x["peak_found"]
+            entry["max_count"] = step.max_count
+    return entry
+
+
+def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> list[str]:
+    """Clipping, window-edge, B-integral and damage warnings of one step (a repeat's own steps are
+    checked one by one, not the repeat as a whole)."""
+    limits = config.limits
+    pulse_s = config.seed.duration_s
+    warnings = [f"{label}: {text}" for text in oc.extras.get("warnings", ())]
+    edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
+    if step.kind != "repeat" and oc.energy_in_J > 0:
+        if oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
+            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
+            warnings.append(f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
+                            f"(more than {100 * limits.clipped_fraction:g} %)")
+        if edge_lost > limits.clipped_fraction * oc.energy_in_J:
+            warnings.append(f"{label}: the absorbing window edge takes {100 * edge_lost / oc.energy_in_J:.1f} % of "
+                            f"the energy (more than {100 * limits.clipped_fraction:g} %); widen grid.width_mm")
+    if step.kind != "repeat" and oc.b_integral_step_rad > limits.b_integral_step_rad:
+        warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
+                        f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
+                        f"beam break-up risk")
+    damage, quoted, what = None, None, ""
+    if step.kind == "pass":
+        mat = config.medium(step.medium).material
+        damage, quoted, what = mat.damage_fluence_J_m2, mat.damage_pulse_s, mat.name
+    elif step.damage_fluence_J_m2:
+        damage, quoted, what = step.damage_fluence_J_m2, step.damage_pulse_s, "this optic"
+    if damage:
+        scaled = scaled_damage_fluence(damage, quoted, pulse_s, limits.damage_scaling_exponent)
+        if oc.peak_fluence_J_m2 > limits.damage_fraction * scaled:
+            quoted_txt = f" quoted at {quoted * 1e9:g} ns" if quoted else ""
+            warnings.append(
+                f"{label}: peak fluence {oc.peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above "
+                f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
+                f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
+                f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+    return warnings
 
 
 def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: list[StepOutcome],
@@ -87,8 +170,16 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         if m.material.n2_m2_W > 0:
             entry["critical_power_W"] = critical_power_W(m.material.wavelength_m, m.material.refractive_index,
                                                          m.material.n2_m2_W)
+        if rec.pumped_J or rec.decayed_J:
+            # time passed in the layout: the gain map also changed by pumping and decay
+            entry["extracted_energy_J"] = ext + rec.pumped_J - rec.decayed_J
+            entry["pump_stored_energy_J"] = rec.pumped_J
+            entry["decayed_energy_J"] = rec.decayed_J
         gm = maps[m.name]
-        if m.pump is not None:
+        if m.pump is not None and m.pump.continuous:
+            entry["absorbed_pump_power_W"] = gm.absorbed_pump_W
+            entry["pump_power_W"] = m.pump.power_W
+        elif m.pump is not None:
             entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
             entry["pump_energy_J"] = m.pump.energy_J
             if gm.pump_limited_voxels:
@@ -113,57 +204,29 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
         edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
         lost += oc.clipped_J + oc.passive_loss_J + edge_lost
-        entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
-                 "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
-                 "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
-                 "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
-                 "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
-                 "b_integral_rad": oc.b_integral_step_rad,
-                 "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
-                 "extracted_energy_J": oc.extracted_J}
-        if config.grid.diffraction:
-            entry["edge_absorbed_energy_J"] = edge_lost
-        entry.update(oc.extras.get("beam", {}))
-        if "peak_power_W" in oc.extras:
-            entry["peak_power_W"] = oc.extras["peak_power_W"]
-        if step.kind == "pass":
-            entry["reverse"] = step.reverse
-        steps.append(entry)
+        steps.append(_step_entry(config, step, oc))
         label = step_label(config, step.index)
-        for text in oc.extras.get("warnings", ()):
-            warnings.append(f"{label}: {text}")
-        if oc.energy_in_J > 0 and oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
-            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
-            warnings.append(f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
-                            f"(more than {100 * limits.clipped_fraction:g} %)")
-        if oc.energy_in_J > 0 and edge_lost > limits.clipped_fraction * oc.energy_in_J:
-            warnings.append(f"{label}: the absorbing window edge takes {100 * edge_lost / oc.energy_in_J:.1f} % of "
-                            f"the energy (more than {100 * limits.clipped_fraction:g} %); widen grid.width_mm")
-        if step.kind == "pass" and "peak_power_W" in oc.extras:
-            mat = config.medium(step.medium).material
+        warnings.extend(_step_warnings(config, step, oc, label))
+        if step.kind == "repeat":
+            for inner, ioc in zip(step.steps, oc.extras["inner"]):
+                warnings.extend(_step_warnings(config, inner, ioc, step_label(config, step.index, inner.index)))
+            if step.until is not None and not oc.extras["peak_found"] and oc.energy_out_J > 0:
+                warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
+                                f"trips; the pulse was dumped after the last; raise max_count or check the "
+                                f"cavity's gain and loss")
+        # the media a step passes: a pass's own, a repeat's (at the repeat's peak power, after the dump)
+        passed = [step.medium] if step.kind == "pass" else \
+            list(dict.fromkeys(s.medium for s in step.steps if s.kind == "pass"))
+        for name in passed if "peak_power_W" in oc.extras else ():
+            mat = config.medium(name).material
             if mat.n2_m2_W > 0:
                 ratio = oc.extras["peak_power_W"] / critical_power_W(mat.wavelength_m, mat.refractive_index,
                                                                      mat.n2_m2_W)
-                worst = self_focusing.get(step.medium)
+                worst = self_focusing.get(name)
                 if ratio > 1.0 and (worst is None or ratio > worst[0]):
-                    self_focusing[step.medium] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
+                    self_focusing[name] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
                 elif ratio > 1.0:
-                    self_focusing[step.medium] = worst[:3] + (worst[3] + 1,)
-        damage, quoted, what = None, None, ""
-        if step.kind == "pass":
-            mat = config.medium(step.medium).material
-            damage, quoted, what = mat.damage_fluence_J_m2, mat.damage_pulse_s, mat.name
-        elif step.damage_fluence_J_m2:
-            damage, quoted, what = step.damage_fluence_J_m2, step.damage_pulse_s, "this optic"
-        if damage:
-            scaled = scaled_damage_fluence(damage, quoted, pulse_s, limits.damage_scaling_exponent)
-            if oc.peak_fluence_J_m2 > limits.damage_fraction * scaled:
-                quoted_txt = f" quoted at {quoted * 1e9:g} ns" if quoted else ""
-                warnings.append(
-                    f"{label}: peak fluence {oc.peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above "
-                    f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
-                    f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
-                    f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+                    self_focusing[name] = worst[:3] + (worst[3] + 1,)
     for name, (ratio, index, oc, count) in self_focusing.items():
         mat = config.medium(name).material
         p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)

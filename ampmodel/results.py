@@ -27,6 +27,8 @@ class StepRecord:
     after the step; b_integral_rad (Ny, Nx) largest accumulated B-integral over the time slices.
     cw: intensity_W_m2 (Ny, Nx) after the step; for passes, axis_intensity_W_m2 (Nz + 1,) the on-axis
     intensity at the medium's slice faces, at positions axis_z_m (m, from the face z = 0).
+    datasets : more datasets of the step (pulsed), name -> (array, units), e.g. a repeat's energy
+    after each round trip
     """
 
     index: int
@@ -38,6 +40,7 @@ class StepRecord:
     intensity_W_m2: np.ndarray | None = None
     axis_z_m: np.ndarray | None = None
     axis_intensity_W_m2: np.ndarray | None = None
+    datasets: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
 
 
 @dataclass
@@ -96,6 +99,8 @@ class MediumRecord:
     material: str
     sources: dict[str, str] = field(default_factory=dict)
     pump_intensity_W_m2: np.ndarray | None = None
+    pumped_J: float = 0.0             # put into the upper state by the pump during the layout (h·nu_s per ion)
+    decayed_J: float = 0.0            # lost by spontaneous decay during the layout
 
 
 @dataclass
@@ -109,6 +114,8 @@ class Result:
     summary : the summary.json dict (SPEC section 4)
     output_field : (Nt, Ny, Nx) complex field after the last step (diffraction runs; |E|² in J/m²)
     fibres : name -> FibreRecord, for layouts of fibres (SPEC section 6)
+    train : pulse trains: datasets of the train, name -> (array, units), e.g. the energy of each
+        pulse from the start of the train (empty for a single pulse)
     """
 
     config: Config
@@ -123,6 +130,7 @@ class Result:
     seed_intensity_W_m2: np.ndarray | None = None
     output_field: np.ndarray | None = None
     fibres: dict[str, FibreRecord] = field(default_factory=dict)
+    train: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``.
@@ -209,6 +217,8 @@ def write_hdf5(result: Result, path: Path) -> None:
                 _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
                 _dataset(sg, "power", rec.power_W, "W")
                 _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
+                for name, (data, units) in rec.datasets.items():
+                    _dataset(sg, name, np.asarray(data), units)
             _beam_figures(f, result.summary)
             if result.output_field is not None:
                 o = f.create_group("output")
@@ -232,6 +242,10 @@ def write_hdf5(result: Result, path: Path) -> None:
                                      "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
             if result.fibres:
                 _write_fibres(f.create_group("fibre"), result.fibres)
+            if result.train:
+                tg = f.create_group("train")
+                for name, (data, units) in result.train.items():
+                    _dataset(tg, name, np.asarray(data), units)
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
@@ -310,4 +324,6 @@ def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
             out["media"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g["gain_initial"].attrs)}
         if "fibre" in f:
             out["fibre"] = {name: {k: g[k][()] for k in g} | {"attrs": dict(g.attrs)} for name, g in f["fibre"].items()}
+        if "train" in f:
+            out["train"] = {k: f["train"][k][()] for k in f["train"]}
     return out

@@ -6,8 +6,8 @@ from contextlib import nullcontext
 
 import numpy as np
 
-from . import beams, diagnostics, optics, pumping
-from .description import Config
+from . import beams, diagnostics, optics, pumping, timing, trains
+from .description import Config, Step
 from .kernels.beam_figures import aperture_figures, d4sigma
 from .layout import STEP_ACTIONS, BeamState, MediumState, StepOutcome, pass_medium
 from .results import MediumRecord, Result, StepRecord
@@ -16,20 +16,22 @@ from .results import MediumRecord, Result, StepRecord
 FLUENCE_ACTIONS = {**STEP_ACTIONS, **optics.FLUENCE_STEP_ACTIONS}
 
 
-def _progress(total: int, enabled: bool | None):
-    """A tqdm bar over z-slice passes, shown on an interactive terminal (or when forced on)."""
+def _progress(total: int | None, enabled: bool | None, unit: str = "slice", desc: str = "amplifying"):
+    """A tqdm bar over z-slice passes (or pulses of a train), shown on an interactive terminal (or
+    when forced on); ``total`` None: not known in advance."""
     if enabled is None:
         enabled = sys.stderr.isatty()
-    if not enabled or total < 50:
+    if not enabled or (total is not None and total < 50):
         return nullcontext(None)
     from tqdm import tqdm
-    return tqdm(total=total, unit="slice", desc="amplifying", leave=False)
+    return tqdm(total=total, unit=unit, desc=desc, leave=False)
 
 
 def memory_estimate_bytes(config: Config) -> int:
     """Bytes the arrays of a run need at their peak (float64): the beam's fluence and B-integral per
     time slice with one working copy and the kernel's temporaries, each medium's gain three times
-    (working, initial, final), and one map per step for the records."""
+    (working, initial, final), and one map per step for the records; a repeat that stops at the
+    peak keeps a copy of the beam and the gain maps, and a pulse train the fixed-point history."""
     pixels = config.grid.points ** 2
     if any(m.kind == "fibre" for m in config.media):
         # fibres: per fibre the gain maps before and after (slices x pixels), every channel's power at
@@ -51,6 +53,12 @@ def memory_estimate_bytes(config: Config) -> int:
     beam = (12 if config.grid.diffraction else 5) * config.grid.time_slices * pixels
     media = sum(3 * m.slices * pixels for m in config.media)
     records = 2 * len(config.steps) * pixels
+    if any(s.kind == "repeat" and s.until is not None for s in config.steps):
+        # the copy kept of the round trip before (a complex field counts twice)
+        beam += (4 if config.grid.diffraction else 2) * config.grid.time_slices * pixels
+        media += sum(m.slices * pixels for m in config.media)
+    if config.seed.repetition_rate_Hz is not None:      # the fixed-point history and working states
+        media += (2 * trains.ANDERSON_DEPTH + 8) * sum(m.slices * pixels for m in config.media)
     return 8 * (beam + media + records)
 
 
@@ -103,12 +111,17 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
         seed_map = optics.fluence_of(seed_field)
     else:
         seed_map = beams.seed_fluence(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
-    if grid.diffraction:
-        beam = optics.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m, grid.fft_workers)
-    else:
+
+    def new_beam():
+        """A fresh seed pulse on the grid (a field beam with diffraction)."""
+        if grid.diffraction:
+            return optics.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m,
+                                     grid.fft_workers)
         fluence = weights[:, None, None] * seed_map[None, :, :]
-        beam = BeamState(fluence=fluence, b_integral=np.zeros_like(fluence), x_m=x, y_m=y, dt_s=dt,
+        return BeamState(fluence=fluence, b_integral=np.zeros_like(fluence), x_m=x, y_m=y, dt_s=dt,
                          wavelength_m=seed.wavelength_m)
+
+    beam = new_beam()
     area = beam.pixel_area_m2
     seed_power = weights * seed_map.sum() * area / dt
 
@@ -120,39 +133,55 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
             name=m.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2, slice_length_m=gm.slice_length_m,
             loss_per_m=m.loss_per_m, n2_m2_W=m.material.n2_m2_W)
-    initial_ln_gain = {name: s.ln_gain.copy() for name, s in states.items()}
-
-    total_slices = sum(config.medium(s.medium).slices for s in config.steps if s.kind == "pass")
+    timeline = timing.Timeline(timing.medium_clocks(config, maps, area))
     apertures = _clear_apertures(config, states)
-    outcomes: list[StepOutcome] = []
-    records: list[StepRecord] = []
-    checks = [("the seed", optics.check_grid(beam))] if grid.diffraction else []
-    power_before = float(seed_power.max()) if seed_power.size else 0.0
-    with _progress(total_slices, progress) as bar:
-        tick = bar.update if bar is not None else None
+
+    def act(step: Step, beam, tick) -> StepOutcome:
+        """One step that is not a repeat, on the field path or the fluence path."""
+        if grid.diffraction and step.kind == "pass":
+            index = config.medium(step.medium).material.refractive_index
+            return optics.pass_medium_field(beam, states[step.medium], index, reverse=step.reverse, tick=tick)
+        if grid.diffraction:
+            return optics.FIELD_STEP_ACTIONS[step.kind](beam, step)
+        if step.kind == "pass":
+            return pass_medium(beam, states[step.medium], reverse=step.reverse, tick=tick)
+        return FLUENCE_ACTIONS[step.kind](beam, step)
+
+    def run_layout(beam, tick=None, record: bool = True):
+        """The steps in order on ``beam`` (each followed by its delay; repeats round trip by round
+        trip): their outcomes, the beam after each (``record``) and the grid checks."""
+        outcomes: list[StepOutcome] = []
+        records: list[StepRecord] = []
+        checks = [("the seed", optics.check_grid(beam))] if grid.diffraction and record else []
+        power_before = float(seed_power.max()) if seed_power.size else 0.0
         for step in config.steps:
-            if grid.diffraction and step.kind == "pass":
-                index = config.medium(step.medium).material.refractive_index
-                outcome = optics.pass_medium_field(beam, states[step.medium], index, reverse=step.reverse,
-                                                   tick=tick)
-            elif grid.diffraction:
-                outcome = optics.FIELD_STEP_ACTIONS[step.kind](beam, step)
-            elif step.kind == "pass":
-                outcome = pass_medium(beam, states[step.medium], reverse=step.reverse, tick=tick)
-            else:
-                outcome = FLUENCE_ACTIONS[step.kind](beam, step)
-            fluence = beam.fluence
-            fluence_map = fluence.sum(axis=0)
-            power = fluence.sum(axis=(1, 2)) * area / dt
-            if grid.diffraction:
-                checks.append((diagnostics.step_label(config, step.index), optics.check_grid(beam)))
-            outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
-            outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
-            power_before = float(power.max()) if power.size else 0.0
+            outcome = timing.run_step(step, beam, states, timeline, act, tick)
+            if record:
+                fluence = beam.fluence
+                fluence_map = fluence.sum(axis=0)
+                power = fluence.sum(axis=(1, 2)) * area / dt
+                if grid.diffraction:
+                    checks.append((diagnostics.step_label(config, step.index), optics.check_grid(beam)))
+                outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
+                outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
+                power_before = float(power.max()) if power.size else 0.0
+                records.append(timing.step_record(step, beam, outcome, fluence_map, power))
             outcomes.append(outcome)
-            records.append(StepRecord(
-                index=step.index, kind=step.kind, medium=step.medium,
-                fluence_J_m2=fluence_map, power_W=power, b_integral_rad=beam.b_integral.max(axis=0)))
+        return outcomes, records, checks
+
+    train = None
+    if seed.repetition_rate_Hz is not None:
+        with _progress(None, progress, unit="pulse", desc="pulse train") as bar:
+            train = trains.run_train(config, new_beam, run_layout, states, timeline, seed_map,
+                                     bar.update if bar is not None else None)
+        beam, outcomes, records, checks = train.beam, train.outcomes, train.records, train.checks
+        initial_ln_gain, pumped, decayed = train.ln_gain_before, train.pumped_J, train.decayed_J
+    else:
+        initial_ln_gain = {name: s.ln_gain.copy() for name, s in states.items()}
+        with _progress(timing.slice_passes(config), progress) as bar:
+            outcomes, records, checks = run_layout(beam, tick=bar.update if bar is not None else None)
+        pumped = {n: c.pumped_J for n, c in timeline.clocks.items()}
+        decayed = {n: c.decayed_J for n, c in timeline.clocks.items()}
 
     media_records = {}
     for m in config.media:
@@ -162,15 +191,22 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
             gain_final_per_m=s.ln_gain / s.slice_length_m, slice_length_m=s.slice_length_m,
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
-            material=m.material.name, sources=dict(m.material.sources))
+            material=m.material.name, sources=dict(m.material.sources),
+            pumped_J=pumped[m.name], decayed_J=decayed[m.name])
     grid_warnings = optics.grid_warnings(checks, config.limits, grid.width_m, grid.points)
     seed_aperture = apertures[config.steps[0].index] if config.steps else np.ones_like(seed_map, dtype=bool)
     summary = diagnostics.summarise(config, beam, seed_map, outcomes, media_records, maps,
                                     seed_beam=beam_figures(seed_map, x, y, seed_aperture, area),
                                     extra_warnings=grid_warnings)
+    summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else timeline.elapsed_s) * 1e9
+    if train is not None:
+        summary["average_power_W"] = train.summary["average_power_W"]
+        summary["train"] = train.summary
+        summary["warnings"].extend(train.warnings)
     return Result(config=config, x_m=x, y_m=y, t_s=t, seed_fluence_J_m2=seed_map, seed_power_W=seed_power,
                   steps=records, media=media_records, summary=summary,
-                  output_field=beam.field if grid.diffraction else None)
+                  output_field=beam.field if grid.diffraction else None,
+                  train=train.datasets if train is not None else {})
 
 
 def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -187,13 +223,16 @@ def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 def _clear_apertures(config: Config, states: dict[str, MediumState]) -> dict[int, np.ndarray]:
     """The clear aperture each step's beam figures are taken over: a pass's own medium; any other
-    step the next medium the beam passes (after the last pass, the last one passed)."""
+    step the next medium the beam passes (after the last pass, the last one passed; a repeat: the
+    first medium of its round trip)."""
     out: dict[int, np.ndarray] = {}
-    passes = [s for s in config.steps if s.kind == "pass"]
+    # (index of the step, the pass): a repeat counts with the first pass of its round trip
+    passes = [(s.index, s if s.kind == "pass" else next(i for i in s.steps if i.kind == "pass"))
+              for s in config.steps if s.kind == "pass" or any(i.kind == "pass" for i in s.steps)]
     fallback = next(iter(states.values())).mask if states else None
     for step in config.steps:
-        ahead = [s for s in passes if s.index >= step.index]
-        chosen = ahead[0] if ahead else (passes[-1] if passes else None)
+        ahead = [p for index, p in passes if index >= step.index]
+        chosen = ahead[0] if ahead else (passes[-1][1] if passes else None)
         out[step.index] = states[chosen.medium].mask if chosen is not None else fallback
     return out
 
