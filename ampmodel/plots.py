@@ -628,9 +628,11 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
 
     Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
     ``gain_<medium>.png`` for each medium, ``b_integral.png`` when any step has a non-zero
-    B-integral, and ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
-    (``plots_beam.py``). A cw run writes ``intensity_maps.png``, ``power_per_step.png`` and
-    ``gain_<medium>.png`` (the steady-state gain along z and the intensity of each pass; plots_cw.py).
+    B-integral, ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
+    (``plots_beam.py``), ``round_trips.png`` for a repeat step (``round_trips_step<N>.png`` when
+    there are several) and ``train.png`` for a pulse train (``plots_time.py``). A cw run writes
+    ``intensity_maps.png``, ``power_per_step.png`` and ``gain_<medium>.png`` (the steady-state gain
+    along z and the intensity of each pass; plots_cw.py).
     A layout of fibres writes the maps (``intensity_maps.png`` and ``power_per_step.png``
     in cw) and the pulse, then per fibre ``fibre_<name>_powers.png``, ``gain_<name>.png`` (gain and
     inversion along it) and ``fibre_<name>_ase.png`` (plots_fibre.py).
@@ -671,4 +673,11 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     if result.steps and has_beam_figures(result):
         paths.append(plot_beam_steps(result, out / "beam_steps.png"))
         paths.append(plot_beam_size(result, out / "beam_size.png"))
+    from .plots_time import plot_round_trips, plot_train
+    repeats = [e for e in (result.summary or {}).get("steps", []) if isinstance(e, dict) and e.get("kind") == "repeat"]
+    for entry in repeats:
+        name = "round_trips.png" if len(repeats) == 1 else f"round_trips_step{entry.get('index')}.png"
+        paths.append(plot_round_trips(result, entry, out / name))
+    if isinstance((result.summary or {}).get("train"), dict):
+        paths.append(plot_train(result, out / "train.png"))
     return paths
