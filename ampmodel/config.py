@@ -383,13 +383,23 @@ def _timing(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tupl
     pump_s = max((m.pump.duration_s for m in media if m.name in passed and m.pump is not None
                   and not m.pump.continuous), default=0.0)
     if layout + pump_s > period:
-        parts = [f"the layout's longest time {layout * 1e9:.4g} ns (delays, spaces at length/c, repeats at "
-                 f"their most round trips)"]
+        parts = []
+        if layout > 0:
+            parts.append(f"the layout's longest time ({_duration(layout)}: delays, spaces at length/c, repeats "
+                         f"at their most round trips)")
         if pump_s:
-            parts.append(f"the pump pulse {pump_s * 1e6:.4g} us")
-        p.add("seed.repetition_rate_Hz", f"the period ({period * 1e9:.4g} ns) is shorter than "
+            parts.append(f"the pump pulse ({_duration(pump_s)})")
+        p.add("seed.repetition_rate_Hz", f"the period ({_duration(period)}) is shorter than "
                                          f"{' plus '.join(parts)}; lower the repetition rate (or a repeat's "
                                          f"max_count, or the pump's duration_us)", seed.repetition_rate_Hz)
+
+
+def _duration(seconds: float) -> str:
+    """A time in the unit that suits it: "12.5 ns", "250 us", "1 ms"."""
+    for scale, unit in ((1e-3, "ms"), (1e-6, "us"), (1e-9, "ns")):
+        if seconds >= scale:
+            return f"{seconds / scale:.4g} {unit}"
+    return f"{seconds / 1e-12:.4g} ps"
 
 
 def config_medium(media: list[Medium], name: str) -> Medium:

@@ -98,6 +98,21 @@ CASES: dict[str, tuple[list[str], int]] = {
                                 'seed.shape = "square"', "step[1].transmission = 0.0"], 7),
     "bad_empty.toml": (["missing section [grid]", "missing section [seed]", "medium: missing",
                         "step: missing"], 4),
+    "bad_repeat_nested_key.toml": (["step[0].steps[1].transmission = 1.5: out of range: must be a number > 0 "
+                                    "and <= 1"], 1),
+    "bad_repeat_count_and_until.toml": (["step[0]: both count and until given", 'until = "peak"'], 1),
+    "bad_repeat_inside_repeat.toml": (['step[0].steps[1].kind = "repeat"', "cannot hold another repeat"], 1),
+    "bad_repeat_until.toml": (['step[0].until = "peek"', "did you mean 'peak'?"], 1),
+    "bad_round_trip_short.toml": (["step[0].round_trip_ns = 5.0: shorter than the time the steps inside take "
+                                   "(10.0069 ns"], 1),
+    "bad_continuous_pump_duration.toml": (["medium[0] (rod).pump.duration_us = 250.0: a continuous pump has no "
+                                           "pulse length", "remove duration_us"], 1),
+    "bad_train_no_pump.toml": (["medium[0] (rod): a pulse train (seed.repetition_rate_Hz) needs a pump",
+                                "continuous = true"], 1),
+    "bad_train_period.toml": (["seed.repetition_rate_Hz = 1000000.0: the period (1 us) is shorter than the pump "
+                               "pulse (250 us)", "lower the repetition rate"], 1),
+    "bad_train_without_rate.toml": (["train: applies to pulse trains only", "give seed.repetition_rate_Hz"], 1),
+    "bad_delay_negative.toml": (["step[0].delay_ns = -5.0: out of range: must be a number >= 0"], 1),
 }
 FILES = sorted(CASES)
 
