@@ -472,6 +472,18 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
 # 4. gain cuts of each medium
 
 
+def _pass_count(result: Result, name: str) -> int:
+    """Passes through medium ``name``: the layout's pass steps, and those inside a repeat times the
+    round trips it kept (from the summary)."""
+    count = sum(1 for r in result.steps if r.kind == "pass" and r.medium == name)
+    entries = {e.get("index"): e for e in (result.summary or {}).get("steps", []) if isinstance(e, dict)}
+    for step in getattr(result.config, "steps", ()):
+        if getattr(step, "kind", None) == "repeat":
+            inner = sum(1 for s in step.steps if s.kind == "pass" and s.medium == name)
+            count += inner * int(entries.get(step.index, {}).get("round_trip_count", 0))
+    return count
+
+
 def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     """z–x cuts of a medium's gain coefficient before and after, and the on-axis gain along z.
 
@@ -518,7 +530,7 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
         medium_cfg = result.config.medium(name)
     except (KeyError, AttributeError):
         pass
-    passes = [r for r in result.steps if r.kind == "pass" and r.medium == name]
+    passes = _pass_count(result, name)
 
     fig = _figure(9.0, 8.6)
     gs = fig.add_gridspec(3, 1, height_ratios=[1.0, 1.0, 1.1])
@@ -558,7 +570,7 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     ax2.legend(loc="best", fontsize="small", framealpha=0.9)
 
     material = getattr(med, "material", "")
-    note = f"{len(passes)} pass{'es' if len(passes) != 1 else ''}" if passes else "not passed in this layout"
+    note = f"{passes} pass{'es' if passes != 1 else ''}" if passes else "not passed in this layout"
     fig.suptitle(f"Gain in medium '{name}'" + (f" ({material})" if material else "") + f": {note}"
                  + _title_suffix(result))
     return _save(fig, path)

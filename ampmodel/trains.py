@@ -180,6 +180,8 @@ def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str
     """Why the direct per-pixel solution does not apply to this config (None: it applies)."""
     if config.train.method == "iterate":
         return 'not used (train.method = "iterate")'
+    if config.grid.diffraction:
+        return "diffraction couples the pixels"
     media = passed_media(config.steps)
     if len(media) != 1:
         return "the layout passes through more than one medium"
