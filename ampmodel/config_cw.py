@@ -62,7 +62,8 @@ def pump_keys(p: Problems, table: dict, path: str, mode: str | None, material: M
         p.add(join_path(path, "energy_J"), "missing: the pump energy energy_J (or power_W), a number > 0")
     if "duration_us" not in table:
         p.add(join_path(path, "duration_us"), f"missing: {S.PUMP['duration_us'].meaning}, "
-                                              f"{expected(S.PUMP['duration_us'])}")
+                                              f"{expected(S.PUMP['duration_us'])}; or continuous = true "
+                                              "with power_W for a continuous pump")
 
 
 def step_keys(p: Problems, item: dict, path: str, mode: str | None) -> None:

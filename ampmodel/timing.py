@@ -95,7 +95,7 @@ def medium_clocks(config: Config, maps: dict[str, GainMap], pixel_area_m2: float
             absorption_offset_per_m=mat.absorption_cross_section_m2 * nt, lifetime_s=mat.upper_lifetime_s,
             photon_energy_J=mat.photon_energy_J, rate_per_m3_s=rate,
             continuous=m.pump is not None and m.pump.continuous,
-            pump_duration_s=m.pump.duration_s if m.pump is not None else 0.0,
+            pump_duration_s=(m.pump.duration_s or 0.0) if m.pump is not None else 0.0,
             n2_max_per_m3=gm.n2_max_per_m3 if mat.quasi_three_level else None)
     return clocks
 

@@ -145,7 +145,7 @@ def pumped(**pump) -> dict:
 
 def test_continuous_pump():
     (m,) = load_config(pumped(continuous=True, power_W=50.0)).media
-    assert m.pump.continuous and m.pump.power_W == 50.0 and m.pump.energy_J == 0.0
+    assert m.pump.continuous and m.pump.power_W == 50.0 and m.pump.energy_J is None and m.pump.duration_s is None
 
 
 @pytest.mark.parametrize("pump, expected", [
@@ -153,7 +153,8 @@ def test_continuous_pump():
      "medium[0] (rod).pump.duration_us = 100.0: a continuous pump has no pulse length"),
     ({"continuous": True, "energy_J": 1.0}, "medium[0] (rod).pump.energy_J = 1.0: a continuous pump takes power_W"),
     ({"continuous": True}, "medium[0] (rod).pump.power_W: missing: the power of the continuous pump"),
-    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length, a number > 0"),
+    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length (pulsed mode), a number > 0; "
+                        "or continuous = true with power_W"),
     ({"continuous": "yes", "power_W": 5.0}, 'medium[0] (rod).pump.continuous = "yes": must be true or false'),
 ])
 def test_pump_problems(pump, expected):
@@ -222,3 +223,35 @@ def test_nested_paths_for_set_and_sweep():
     swept["sweep"] = {"step.0.steps.1.transmission": [0.8, 1.9]}
     (line,) = problems_of(swept)
     assert 'sweep."step.0.steps.1.transmission"[1] = 1.9: out of range' in line
+
+
+def cw() -> dict:
+    raw = good()
+    raw["mode"] = "cw"
+    raw["seed"] = {"power_W": 10.0, "diameter_mm": 4.0}
+    return raw
+
+
+def test_cw_runs_take_no_time():
+    raw = cw()
+    raw["step"] += [{"kind": "space", "length_mm": 300.0}]
+    assert load_config(raw).steps[1].delay_s == 0.0          # a steady beam: no delays
+    raw["step"] += [{"kind": "loss", "transmission": 0.9, "delay_ns": 5.0},
+                    {"kind": "repeat", "count": 2, "steps": [{"kind": "pass", "medium": "rod"}]}]
+    problems = problems_of(raw)
+    assert any('step[2].delay_ns = 5.0: applies to mode = "pulsed" only' in line for line in problems), problems
+    assert any('step[3].kind = "repeat": applies to mode = "pulsed" only' in line for line in problems), problems
+    raw = cw()
+    raw["seed"]["repetition_rate_Hz"] = 1000.0
+    assert any("seed.repetition_rate_Hz = 1000.0: is a key of a pulsed seed" in line for line in problems_of(raw))
+
+
+def test_cw_pumps_are_continuous():
+    raw = cw()
+    del raw["medium"][0]["small_signal_gain"]
+    raw["medium"][0]["loss_per_cm"] = 0.0
+    raw["medium"][0]["pump"] = {"geometry": "side", "wavelength_nm": 808.0, "power_W": 50.0, "continuous": True}
+    assert load_config(raw).media[0].pump.continuous
+    raw["medium"][0]["pump"]["continuous"] = False
+    (line,) = problems_of(raw)
+    assert "medium[0] (rod).pump.continuous = false: a pump in a cw run is continuous" in line
