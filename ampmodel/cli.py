@@ -175,11 +175,15 @@ def _print_table(summary: dict) -> None:
                   f"dumped {rule}; build-up time {s['build_up_time_ns']:.4g} ns")
     train = summary.get("train")
     if train:
-        est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
+        n = train["pulses_to_steady_state"]
+        if n is None:
+            settle = "the pulses do not settle to it (see the warnings)"
+        else:
+            est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
+            settle = f"within {train['tolerance']:g} after {n} pulses{est}"
         print(f"pulse train at {_fmt(train['repetition_rate_Hz'], 'Hz')}: steady state {_fmt(train['pulse_energy_J'], 'J')} "
               f"per pulse, {_fmt(train['average_power_W'], 'W')} average; stored before each pulse "
-              f"{_fmt(train['stored_energy_before_pulse_J'], 'J')}; within {train['tolerance']:g} after "
-              f"{train['pulses_to_steady_state']} pulses{est}")
+              f"{_fmt(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
     print(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
           f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
           f"energy balance error {summary['energy_balance_error']:.1e}")

@@ -109,8 +109,14 @@ def plot_train(result: Result, path: Path) -> Path:
     ax_e.set_ylabel(f"pulse energy ({eu})")
     settled = train.get("pulses_to_steady_state")
     est = " (estimated)" if train.get("pulses_to_steady_state_estimated") else ""
-    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: within "
-                   f"{train.get('tolerance', 0):g} of the steady state after {settled} pulses{est}")
+    cycle = train.get("cycle_pulse_energies_J") or []
+    if settled is not None:
+        where = f"within {train.get('tolerance', 0):g} of the steady state after {settled} pulses{est}"
+    elif cycle:
+        where = f"not settling: a cycle of {len(cycle)} pulses (the steady state is unstable)"
+    else:
+        where = "not settled to the steady state"
+    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {where}")
     ax_e.grid(True, alpha=0.3)
     ax_e.legend(loc="best", fontsize="small")
     sf, su = _prefix(max(_finite_max(stored), steady_s if np.isfinite(steady_s) else 0.0), _ENERGY_UNITS)

@@ -49,6 +49,7 @@ from .timing import MediumClock, Timeline
 ANDERSON_DEPTH = 6
 FIXED_POINT_TOLERANCE = 1e-10
 MAX_FIXED_POINT_PULSES = 300
+STAGNATION_PULSES = 40
 
 
 @dataclass
@@ -141,12 +142,17 @@ def _anderson(phi: Callable[[np.ndarray], np.ndarray], u0: np.ndarray, tolerance
     dgs: list[np.ndarray] = []
     f_prev = g_prev = None
     best = (math.inf, u0)
+    best_at = 0
     for k in range(1, max_iter + 1):
         g = phi(x)
         f = g - x
         res = float(np.max(np.abs(f)) / max(float(np.max(np.abs(g))), 1e-300))
         if res < best[0]:
             best = (res, g)
+            best_at = k
+        elif k - best_at >= STAGNATION_PULSES:      # no progress (the map may have no fixed point,
+            # e.g. when the dump round trip of a repeat jumps from one pulse to the next)
+            return best[1], k, best[0]
         elif res > 10.0 * best[0]:        # the extrapolation went astray: restart from the best image
             dfs.clear()
             dgs.clear()
@@ -393,12 +399,26 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
             settled = k
             break
     estimated = False
+    cycle: list[float] = []
     if settled is None:
-        estimated = True
         settled = _estimate_settling(energies, e_out, tolerance)
-        warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
-                        f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
-                        f"estimated from the contraction per pulse")
+        cycle = _cycle(energies, tolerance)
+        if settled is not None:
+            estimated = True
+            warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
+                            f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
+                            f"estimated from the contraction per pulse")
+        elif cycle:
+            warnings.append(f"train: the pulses do not settle to one repeating pulse: after {len(energies)} pulses "
+                            f"they repeat every {len(cycle)} pulses ({', '.join(f'{e:.4g}' for e in cycle)} J); "
+                            f"the single-pulse steady state reported is unstable or absent (a pulse-to-pulse "
+                            f"bifurcation), and the "
+                            f"average power of the cycle is {sum(cycle) / len(cycle) * rate_Hz:.4g} W")
+        else:
+            warnings.append(f"train: the pulses do not settle within {len(energies)} pulses (train.max_pulses) "
+                            f"and do not approach the steady state steadily (the last ones spread over "
+                            f"{min(energies[-10:]):.4g} to {max(energies[-10:]):.4g} J): the steady state "
+                            f"reported may be unstable; raise train.max_pulses to see more of the train")
     for n, s in states.items():              # the pulse() calls above changed the media: restore
         np.copyto(s.ln_gain, after[n])
 
@@ -411,6 +431,7 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
         "stored_energy_before_pulse_J": stored_before,
         "pulses_to_steady_state": settled,
         "pulses_to_steady_state_estimated": estimated,
+        "cycle_pulse_energies_J": cycle,
         "tolerance": tolerance,
         "pulse_energies_J": energies,
         "stored_energy_before_each_pulse_J": stored,
@@ -422,8 +443,8 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
         "fixed_point_residual": residual,
         "pump_stored_power_W": pumped * rate_Hz,
         "decay_power_W": decayed * rate_Hz,
-        "extracted_power_W": extracted * rate_Hz,
-        "energy_balance_error": balance,
+        "extracted_power_W": float(extracted * rate_Hz),
+        "energy_balance_error": float(balance),
         "layout_time_s": layout_time_s,
     }
     datasets = {"pulse_energy": (np.asarray(energies), "J"),
@@ -433,13 +454,29 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
                     summary=summary, warnings=warnings, datasets=datasets, checks=checks)
 
 
-def _estimate_settling(energies: list[float], steady: float, tolerance: float) -> int:
-    """Pulses until |E_k − E*| <= tolerance·E*, extrapolated from the last two pulses' contraction."""
-    n = len(energies)
-    if n < 2:
-        return n + 1
-    d1, d0 = abs(energies[-1] - steady), abs(energies[-2] - steady)
-    if d0 <= 0.0 or d1 <= 0.0 or d1 >= d0:
-        return n + 1
-    ratio = d1 / d0
-    return n + max(1, math.ceil(math.log(tolerance * steady / d1) / math.log(ratio)))
+def _estimate_settling(energies: list[float], steady: float, tolerance: float) -> int | None:
+    """Pulses until |E_k − E*| <= tolerance·E*, extrapolated from the geometric decay of the last
+    pulses' distance to the steady state; None when they do not approach it steadily."""
+    d = np.abs(np.asarray(energies[-10:], dtype=float) - steady)
+    if d.size < 4 or np.any(d <= 0.0):
+        return None
+    k = np.arange(d.size)
+    slope, _ = np.polyfit(k, np.log(d), 1)
+    upper = np.maximum.accumulate(d[::-1])[::-1]          # each pulse's largest later distance
+    if slope >= 0.0 or d[-1] > 0.5 * d[0] or np.any(upper[1:] > 1.5 * d[:-1]):
+        return None
+    return len(energies) + max(1, math.ceil(math.log(tolerance * steady / d[-1]) / slope))
+
+
+def _cycle(energies: list[float], tolerance: float, longest: int = 8) -> list[float]:
+    """The last ``k`` pulse energies when the train repeats every k pulses (2 <= k <= ``longest``)
+    over the last 3k pulses, to 10 times the tolerance; [] when it does not."""
+    for k in range(2, longest + 1):
+        if len(energies) < 3 * k:
+            break
+        tail = np.asarray(energies[-3 * k:], dtype=float)
+        scale = float(np.abs(tail).max())
+        if np.all(np.abs(tail[k:] - tail[:-k]) <= 10 * tolerance * scale) \
+                and np.ptp(tail[-k:]) > 10 * tolerance * scale:
+            return [float(e) for e in tail[-k:]]
+    return []

@@ -178,3 +178,35 @@ def test_passive_loss_inside_rules_out_the_direct_solution_but_the_train_still_s
     assert train["fixed_point_residual"] <= 1e-10
     energies = train["pulse_energies_J"]
     assert abs(energies[-1] - train["pulse_energy_J"]) <= 1e-8 * train["pulse_energy_J"]
+
+
+def test_a_multipass_cell_in_a_train_direct_and_iterated_agree():
+    # a repeat with a count is per pixel too: the direct solution runs its round trips
+    pump, rate, *_ = CASES["cw 20 kHz"]
+    steps = [{"kind": "repeat", "count": 3, "round_trip_ns": 4.0,
+              "steps": [{"kind": "pass", "medium": "xtal"}, {"kind": "loss", "transmission": 0.9},
+                        {"kind": "pass", "medium": "xtal", "reverse": True}]}]
+    results = {}
+    for method in ("auto", "iterate"):
+        raw = flat_config(steps, tau_s=TAU, gain=pump, seed_J=SEED_J, rate_Hz=rate, train={"method": method},
+                          profile="gaussian")
+        results[method] = simulate(load_config(raw)).summary
+    auto, iterate = results["auto"]["train"], results["iterate"]["train"]
+    assert auto["direct_solution"] == "applied"
+    assert auto["direct_pulse_energy_J"] == pytest.approx(iterate["pulse_energy_J"], rel=1e-10)
+    assert auto["layout_time_s"] == pytest.approx(12e-9, rel=1e-12)
+    assert results["auto"]["steps"][0]["round_trip_count"] == 3
+
+
+def test_settling_estimate_and_cycle_detection():
+    from ampmodel.trains import _cycle, _estimate_settling
+    steady = 1.0
+    decaying = [steady + 0.1 * 0.5 ** k * (-1) ** k for k in range(12)]
+    # |E_k − E*| = 0.1·0.5^k: within 1e-6 once 0.5^k <= 1e-5, k >= 17, i.e. pulse 18
+    assert _estimate_settling(decaying, steady, 1e-6) == 18
+    assert _cycle(decaying, 1e-6) == []
+    three = [0.9, 1.1, 1.0] * 10
+    assert _cycle(three, 1e-6) == [0.9, 1.1, 1.0]
+    assert _estimate_settling(three, 1.0, 1e-6) is None
+    two = [1.0 + 0.01 * 0.3 ** k for k in range(5)] + [0.8, 1.2] * 8
+    assert _cycle(two, 1e-6) == [0.8, 1.2]
