@@ -180,7 +180,7 @@ def _print_table(summary: dict) -> None:
             settle = "the pulses do not settle to it (see the warnings)"
         else:
             est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
-            settle = f"within {train['tolerance']:g} after {n} pulses{est}"
+            settle = f"within {train['tolerance']:g} after {n} pulse{'s' if n != 1 else ''}{est}"
         print(f"pulse train at {_fmt(train['repetition_rate_Hz'], 'Hz')}: steady state {_fmt(train['pulse_energy_J'], 'J')} "
               f"per pulse, {_fmt(train['average_power_W'], 'W')} average; stored before each pulse "
               f"{_fmt(train['stored_energy_before_pulse_J'], 'J')}; {settle}")

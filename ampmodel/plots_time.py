@@ -111,7 +111,8 @@ def plot_train(result: Result, path: Path) -> Path:
     est = " (estimated)" if train.get("pulses_to_steady_state_estimated") else ""
     cycle = train.get("cycle_pulse_energies_J") or []
     if settled is not None:
-        where = f"within {train.get('tolerance', 0):g} of the steady state after {settled} pulses{est}"
+        where = (f"within {train.get('tolerance', 0):g} of the steady state after {settled} "
+                 f"pulse{'s' if settled != 1 else ''}{est}")
     elif cycle:
         where = f"not settling: a cycle of {len(cycle)} pulses (the steady state is unstable)"
     else:
