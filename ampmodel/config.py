@@ -341,10 +341,10 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
                 p.add(join_path("seed", key), 'applies to mode = "pulsed" only in this version (a cw seed is taken '
                                               "at its waist with a flat wavefront); remove it", raw["seed"][key])
     if grid is not None and not grid.diffraction and isinstance(raw.get("step"), list):
-        for i, item in enumerate(raw["step"]):
-            if isinstance(item, dict) and item.get("kind") in S.FIELD_ONLY_KINDS:
-                p.add(f"step[{i}].kind", f"a '{item['kind']}' step acts on the optical field: set "
-                                         "grid.diffraction = true (or remove the step)", item["kind"])
+        for path, item in config_timing.all_step_tables(raw["step"]):
+            if item.get("kind") in S.FIELD_ONLY_KINDS:
+                p.add(f"{path}.kind", f"a '{item['kind']}' step acts on the optical field: set "
+                                      "grid.diffraction = true (or remove the step)", item["kind"])
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     config_timing.check(p, raw, media, seed, tuple(steps))

@@ -13,6 +13,19 @@ from .description import Medium, Seed, Step, longest_layout_time_s, passed_media
 from .units import to_si
 
 
+def all_step_tables(items: list) -> list[tuple[str, dict]]:
+    """(key path, table) of every step table as read, those inside repeats included."""
+    out = []
+    for i, item in enumerate(items):
+        if isinstance(item, dict):
+            out.append((f"step[{i}]", item))
+            inner = item.get("steps") if item.get("kind") == "repeat" else None
+            for j, sub in enumerate(inner if isinstance(inner, list) else ()):
+                if isinstance(sub, dict):
+                    out.append((f"step[{i}].steps[{j}]", sub))
+    return out
+
+
 def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[Step, ...]) -> None:
     """Checks that involve time: a pulse train's pumps and period, and the ion density that a
     quasi-three-level medium needs once time passes between steps."""

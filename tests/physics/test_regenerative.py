@@ -133,3 +133,21 @@ def test_max_count_stops_a_build_up_that_still_rises():
     entry = result.summary["steps"][0]
     assert entry["round_trip_count"] == 4 and entry["peak_found"] is False
     assert any("still rose after max_count = 4" in w for w in result.summary["warnings"])
+
+
+def test_on_the_field_path_the_dump_keeps_the_state_of_the_peak_round_trip():
+    # grid.diffraction = true: the beam is a complex field; the copy kept each round trip must give
+    # back exactly the state of a run that stops there by count
+    def field_run(rule):
+        raw = flat_config(cavity(rule), seed_J=SEED_J, profile="gaussian")
+        raw["grid"].update(diffraction=True, points=32, width_mm=8.0, time_slices=2)
+        raw["seed"]["diameter_mm"] = 3.0
+        raw["medium"][0]["diameter_mm"] = 6.0
+        return simulate(load_config(raw))
+    peak = field_run({"until": "peak", "max_count": 200})
+    dump = peak.summary["steps"][0]["round_trip_count"]
+    fixed = field_run({"count": dump})
+    assert peak.summary["steps"][0]["peak_found"]
+    np.testing.assert_array_equal(peak.output_field, fixed.output_field)
+    np.testing.assert_array_equal(peak.media["xtal"].gain_final_per_m, fixed.media["xtal"].gain_final_per_m)
+    assert abs(peak.summary["energy_balance_error"]) < 1e-12

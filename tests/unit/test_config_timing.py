@@ -255,3 +255,13 @@ def test_cw_pumps_are_continuous():
     raw["medium"][0]["pump"]["continuous"] = False
     (line,) = problems_of(raw)
     assert "medium[0] (rod).pump.continuous = false: a pump in a cw run is continuous" in line
+
+
+def test_a_field_only_step_inside_a_repeat_needs_diffraction():
+    raw = with_repeat(count=2)
+    raw["step"][0]["steps"].append({"kind": "filter", "focal_mm": 500.0, "pinhole_diameter_mm": 0.5})
+    problems = problems_of(raw)
+    assert any("step[0].steps[2].kind = \"filter\": a 'filter' step acts on the optical field" in line
+               for line in problems), problems
+    raw["grid"]["diffraction"] = True
+    assert load_config(raw).steps[0].steps[2].kind == "filter"
