@@ -13,6 +13,9 @@ from .description import Medium, Seed, Step, longest_layout_time_s, passed_media
 from .units import to_si
 
 
+RATE_KEYS = ("repetition_rate_Hz", "repetition_rate_kHz")
+
+
 def all_step_tables(items: list) -> list[tuple[str, dict]]:
     """(key path, table) of every step table as read, those inside repeats included."""
     out = []
@@ -28,12 +31,21 @@ def all_step_tables(items: list) -> list[tuple[str, dict]]:
 
 def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[Step, ...]) -> None:
     """Checks that involve time: a pulse train's pumps and period, and the ion density that a
-    quasi-three-level medium needs once time passes between steps."""
+    quasi-three-level medium needs once time passes between steps. A layout of fibres solves its own
+    pulse train (fibre_pulsed.py, checked in config_fibre): its steps take no time here."""
     path_of = {m.name: f"medium[{i}] ({m.name})" for i, m in enumerate(media)}
     passed = passed_media(steps)
     train = seed.repetition_rate_Hz is not None
-    if "train" in raw and not train:
-        p.add("train", "applies to pulse trains only: give seed.repetition_rate_Hz, or remove the [train] table")
+    rate_key = next((k for k in RATE_KEYS if k in raw.get("seed", {})), RATE_KEYS[0])
+    if "train" in raw and not (train and not any(m.kind == "fibre" for m in media)):
+        p.add("train", "applies to pulse trains of bulk media only: give seed.repetition_rate_Hz, or remove the "
+                       "[train] table")
+    if any(m.kind == "fibre" for m in media):
+        for path, item in all_step_tables(raw.get("step", [])):
+            if "delay_ns" in item:
+                p.add(join_path(path, "delay_ns"), "applies to bulk media only: the passes of a fibre layout take "
+                                                   "no time of their own (remove it)", item["delay_ns"])
+        return
     time_passes = train or any(s.delay_s > 0 or s.round_trip_time_s > 0 for s in steps) \
         or any(i.delay_s > 0 for s in steps for i in s.steps)
     for m in media:
@@ -46,7 +58,7 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
         return
     for name in passed:
         if config_medium(media, name).pump is None:
-            p.add(path_of[name], "a pulse train (seed.repetition_rate_Hz) needs a pump that restores the gain "
+            p.add(path_of[name], f"a pulse train (seed.{rate_key}) needs a pump that restores the gain "
                                  "between pulses: give a [medium.pump] table (continuous = true for a CW pump)")
     period = 1.0 / seed.repetition_rate_Hz
     layout = longest_layout_time_s(steps)
@@ -59,9 +71,9 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
                          f"at their most round trips)")
         if pump_s:
             parts.append(f"the pump pulse ({_duration(pump_s)})")
-        p.add("seed.repetition_rate_Hz", f"the period ({_duration(period)}) is shorter than "
-                                         f"{' plus '.join(parts)}; lower the repetition rate (or a repeat's "
-                                         f"max_count, or the pump's duration_us)", seed.repetition_rate_Hz)
+        p.add(f"seed.{rate_key}", f"the period ({_duration(period)}) is shorter than "
+                                  f"{' plus '.join(parts)}; lower the repetition rate (or a repeat's "
+                                  f"max_count, or the pump's duration_us)", raw["seed"][rate_key])
 
 
 def _duration(seconds: float) -> str:

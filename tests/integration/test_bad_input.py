@@ -84,8 +84,8 @@ CASES: dict[str, tuple[list[str], int]] = {
                                         "fibre 'f1' (850 to 1150 nm)"], 1),
     "bad_fibre_with_bulk.toml": (['medium[1].kind = "bulk": a layout with a fibre is made of fibres only'], 1),
     "bad_fibre_solver.toml": (["solver = {max_iterations = 50}: the [solver] table sets the bulk cw iteration"], 1),
-    "bad_repetition_rate_bulk.toml": (["seed.repetition_rate_kHz = 10.0: the inversion between pulses is "
-                                       "modelled for fibre layouts only"], 1),
+    "bad_repetition_rate_bulk.toml": (["medium[0] (rod): a pulse train (seed.repetition_rate_kHz) needs a pump "
+                                       "that restores the gain between pulses"], 1),
     "bad_medium_table.toml": (["medium = {", "write [[medium]]"], 1),
     "bad_damage_pair.toml": (["step[1].damage_pulse_ns: missing"], 1),
     "bad_parabolic_end.toml": (['medium[0] (rod).pump.profile = "parabolic"', "side pumping only"], 1),
@@ -111,7 +111,8 @@ CASES: dict[str, tuple[list[str], int]] = {
                                 "continuous = true"], 1),
     "bad_train_period.toml": (["seed.repetition_rate_Hz = 1000000.0: the period (1 us) is shorter than the pump "
                                "pulse (250 us)", "lower the repetition rate"], 1),
-    "bad_train_without_rate.toml": (["train: applies to pulse trains only", "give seed.repetition_rate_Hz"], 1),
+    "bad_train_without_rate.toml": (["train: applies to pulse trains of bulk media only",
+                                     "give seed.repetition_rate_Hz"], 1),
     "bad_delay_negative.toml": (["step[0].delay_ns = -5.0: out of range: must be a number >= 0"], 1),
 }
 FILES = sorted(CASES)

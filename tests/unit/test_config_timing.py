@@ -184,7 +184,7 @@ def test_train_problems():
     raw = good()
     raw["train"] = {"tolerance": 1e-6}
     (line,) = problems_of(raw)
-    assert "train: applies to pulse trains only" in line
+    assert "train: applies to pulse trains of bulk media only" in line
     raw = train(1e9)
     raw["step"].append({"kind": "space", "length_mm": 600.0})
     (line,) = problems_of(raw)
@@ -243,7 +243,8 @@ def test_cw_runs_take_no_time():
     assert any('step[3].kind = "repeat": applies to mode = "pulsed" only' in line for line in problems), problems
     raw = cw()
     raw["seed"]["repetition_rate_Hz"] = 1000.0
-    assert any("seed.repetition_rate_Hz = 1000.0: is a key of a pulsed seed" in line for line in problems_of(raw))
+    assert any('seed.repetition_rate_Hz = 1000.0: applies to pulses (mode = "pulsed")' in line
+               for line in problems_of(raw))
 
 
 def test_cw_pumps_are_continuous():
@@ -265,3 +266,25 @@ def test_a_field_only_step_inside_a_repeat_needs_diffraction():
                for line in problems), problems
     raw["grid"]["diffraction"] = True
     assert load_config(raw).steps[0].steps[2].kind == "filter"
+
+
+def test_repetition_rate_in_kHz():
+    raw = pumped(continuous=True, power_W=50.0)
+    raw["seed"]["repetition_rate_kHz"] = 2.5
+    assert load_config(raw).seed.repetition_rate_Hz == pytest.approx(2500.0)
+    raw = good()
+    raw["seed"]["repetition_rate_kHz"] = 2.5
+    (line,) = problems_of(raw)
+    assert "medium[0] (rod): a pulse train (seed.repetition_rate_kHz) needs a pump" in line
+
+
+def test_fibre_layouts_keep_their_own_trains():
+    raw = tomllib.loads((ROOT / "tests" / "data" / "good_fibre.toml").read_text())
+    raw["mode"] = "pulsed"
+    raw["seed"] = {"energy_J": 1e-6, "duration_ns": 5.0, "repetition_rate_kHz": 50.0}
+    assert load_config(raw).seed.repetition_rate_Hz == pytest.approx(5e4)     # no bulk pump needed
+    raw["step"][0]["delay_ns"] = 3.0
+    raw["train"] = {"tolerance": 1e-6}
+    problems = problems_of(raw)
+    assert any("step[0].delay_ns = 3.0: applies to bulk media only" in line for line in problems), problems
+    assert any("train: applies to pulse trains of bulk media only" in line for line in problems), problems
