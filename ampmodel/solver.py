@@ -105,6 +105,16 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     grid, seed = config.grid, config.seed
     x = beams.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
+    # The gain maps first: their construction's temporaries are freed before the beam is allocated.
+    maps = {m.name: pumping.gain_map(m, x, y) for m in config.media}
+    states = {}
+    for m in config.media:
+        gm = maps[m.name]
+        states[m.name] = MediumState(
+            name=m.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
+            saturation_fluence_J_m2=m.material.saturation_fluence_J_m2, slice_length_m=gm.slice_length_m,
+            loss_per_m=m.loss_per_m, n2_m2_W=m.material.n2_m2_W)
+
     t, weights, dt = beams.time_slices(seed.shape, seed.duration_s, grid.time_slices)
     if grid.diffraction or seed.waist_m is not None:
         seed_field = _seed_field(config, x, y)
@@ -118,21 +128,13 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
             return optics.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m,
                                      grid.fft_workers)
         fluence = weights[:, None, None] * seed_map[None, :, :]
-        return BeamState(fluence=fluence, b_integral=np.zeros_like(fluence), x_m=x, y_m=y, dt_s=dt,
+        return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=x, y_m=y, dt_s=dt,
                          wavelength_m=seed.wavelength_m)
 
     beam = new_beam()
     area = beam.pixel_area_m2
     seed_power = weights * seed_map.sum() * area / dt
 
-    maps = {m.name: pumping.gain_map(m, x, y) for m in config.media}
-    states = {}
-    for m in config.media:
-        gm = maps[m.name]
-        states[m.name] = MediumState(
-            name=m.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
-            saturation_fluence_J_m2=m.material.saturation_fluence_J_m2, slice_length_m=gm.slice_length_m,
-            loss_per_m=m.loss_per_m, n2_m2_W=m.material.n2_m2_W)
     timeline = timing.Timeline(timing.medium_clocks(config, maps, area))
     apertures = _clear_apertures(config, states)
 
@@ -177,7 +179,7 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
         beam, outcomes, records, checks = train.beam, train.outcomes, train.records, train.checks
         initial_ln_gain, pumped, decayed = train.ln_gain_before, train.pumped_J, train.decayed_J
     else:
-        initial_ln_gain = {name: s.ln_gain.copy() for name, s in states.items()}
+        initial_ln_gain = None               # the gain maps as built (no copy)
         with _progress(timing.slice_passes(config), progress) as bar:
             outcomes, records, checks = run_layout(beam, tick=bar.update if bar is not None else None)
         pumped = {n: c.pumped_J for n, c in timeline.clocks.items()}
@@ -186,9 +188,11 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     media_records = {}
     for m in config.media:
         s = states[m.name]
+        final = np.divide(s.ln_gain, s.slice_length_m, out=s.ln_gain)      # the state is done: in place
+        initial = maps[m.name].gain_per_m if initial_ln_gain is None else initial_ln_gain[m.name] / s.slice_length_m
         media_records[m.name] = MediumRecord(
-            name=m.name, gain_initial_per_m=initial_ln_gain[m.name] / s.slice_length_m,
-            gain_final_per_m=s.ln_gain / s.slice_length_m, slice_length_m=s.slice_length_m,
+            name=m.name, gain_initial_per_m=initial, gain_final_per_m=final,
+            slice_length_m=s.slice_length_m,
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
             material=m.material.name, sources=dict(m.material.sources),

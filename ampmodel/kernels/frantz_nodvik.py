@@ -12,6 +12,11 @@ For a slice of fluence J_in (J/m²) through a slab of gain ln G (= g·dz) and sa
 Evaluated in the log domain, y = J_out/Fsat = log(1 + exp(a)) with a = ln G + x + log(1 − exp(−x)),
 x = J_in/Fsat: finite for x from 0 to beyond 1e4 and ln G from −70 to +70 (G from 1e-30 to 1e30), and
 exact energy bookkeeping, since the gain update is the fluence change itself.
+
+The same map is linear in u = exp(J/Fsat) − 1: 1 + u_out = 1 + G·(exp(x) − 1) gives u_out = G·u_in, and
+the gain left behind is G·exp(x_in − x_out) = G·(1 + u_in)/(1 + u_out). :func:`fn_slice_linear` evaluates
+this form: arithmetic only, no exponential or logarithm, for the hot loop of a pass (kernels/fn_pass.py,
+where its range of validity is checked before it is used).
 """
 from __future__ import annotations
 
@@ -53,6 +58,37 @@ def fn_slice(fluence_J_m2: np.ndarray, ln_gain: np.ndarray, saturation_fluence_J
     if out is None:
         out = a
     np.multiply(a, saturation_fluence_J_m2, out=out)
+    return out
+
+
+def fn_slice_linear(u: np.ndarray, gain: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
+    """Frantz–Nodvik for one time slice through one gain slice in the linear variable u = exp(J/Fsat) − 1.
+
+    u_out = G·u_in and G <- G·(1 + u_in)/(1 + u_out), both in place, arithmetic only. Exact in exact
+    arithmetic; in floating point each call costs a few ulp of G and u. Valid while G·u stays a normal
+    float: u_in below ~1e300 (J/Fsat < ~690) and above ~1e-290 where it is not zero.
+
+    Parameters
+    ----------
+    u : (C,) float64, exp(J_in/Fsat) − 1 of the slice entering (>= 0); not changed
+    gain : (C,) float64, G = exp(g·dz) of the gain slice (> 0); updated in place
+    out : (C,) float64, receives u_out (must not be ``u``)
+    scratch : (C,) float64 work array
+
+    Returns
+    -------
+    ``out``: u_out = exp(J_out/Fsat) − 1.
+
+    References
+    ----------
+    Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963): J_out = Fsat·ln[1 + G·(exp(J_in/Fsat) − 1)] and the
+    energy transfer Fsat·Δln G = −(J_out − J_in).
+    """
+    np.multiply(gain, u, out=out)
+    np.add(u, 1.0, out=scratch)
+    gain *= scratch
+    np.add(out, 1.0, out=scratch)
+    gain /= scratch
     return out
 
 
