@@ -158,7 +158,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         s0 = pumping.stored_energy_J(rec.gain_initial_per_m, rec.saturation_fluence_J_m2, voxel)
         s1 = pumping.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
         # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
-        ext = float(rec.saturation_fluence_J_m2 * voxel * (rec.gain_initial_per_m - rec.gain_final_per_m).sum())
+        ext = rec.saturation_fluence_J_m2 * voxel * sum(         # slice by slice: no (Nz, Ny, Nx) temporary
+            float((g0 - g1).sum()) for g0, g1 in zip(rec.gain_initial_per_m, rec.gain_final_per_m))
         stored_before, stored_after = stored_before + s0, stored_after + s1
         g0_axis = pumping.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
         entry = {"name": m.name, "material": m.material.name,

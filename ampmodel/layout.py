@@ -86,10 +86,11 @@ def _clip(beam: BeamState, mask: np.ndarray) -> float:
         clipped = float(beam.fluence[:, ~mask].sum() * beam.pixel_area_m2)
         beam.fluence[:, ~mask] = 0.0
         return clipped
-    clipped = float(np.take(rows, outside, axis=1).sum() * beam.pixel_area_m2)
-    for row in rows:
+    clipped = 0.0
+    for row in rows:                                    # row by row: no (Nt, outside) temporary
+        clipped += float(row[outside].sum())
         row[outside] = 0.0
-    return clipped
+    return clipped * beam.pixel_area_m2
 
 
 def _scatter(full: np.ndarray, idx: np.ndarray, block: np.ndarray) -> None:

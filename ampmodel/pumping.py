@@ -56,7 +56,10 @@ def storage_efficiency(upper_lifetime_s: float, pump_duration_s: float) -> float
 
 def stored_energy_J(gain_per_m: np.ndarray, saturation_fluence_J_m2: float, voxel_volume_m3: float) -> float:
     """Extractable stored energy down to transparency: Fsat·∫ g dV over the voxels where g > 0."""
-    return float(saturation_fluence_J_m2 * voxel_volume_m3 * np.clip(gain_per_m, 0.0, None).sum())
+    gain = np.asarray(gain_per_m)
+    slices = gain if gain.ndim >= 3 else (gain,)       # slice by slice: no temporary of the whole map
+    positive = sum(float(np.clip(g, 0.0, None).sum()) for g in slices)
+    return float(saturation_fluence_J_m2 * voxel_volume_m3 * positive)
 
 
 def on_axis_gain(gain_per_m: np.ndarray, slice_length_m: float) -> float:
