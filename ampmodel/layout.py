@@ -125,13 +125,11 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
     ----------
     Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963); B = (2 pi/lambda0)·∫ n2·I dz.
     """
-    e_in = beam.energy_J()
-    clipped = _clip(beam, medium.mask)
     fsat = medium.saturation_fluence_J_m2
     dz = medium.slice_length_m
+    area = beam.pixel_area_m2
     half_loss = float(np.exp(-0.5 * medium.loss_per_m * dz))
     b_coef = 2.0 * np.pi / beam.wavelength_m * medium.n2_m2_W * dz / beam.dt_s
-    peak_f, peak_i = _peaks(beam)
     nt, nz = beam.fluence.shape[0], medium.ln_gain.shape[0]
     beam.fluence = np.ascontiguousarray(beam.fluence)        # no copy unless a caller made a view
     beam.b_integral = np.ascontiguousarray(beam.b_integral)
@@ -139,12 +137,26 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
     fluence = beam.fluence.reshape(nt, -1)                     # views: the blocks are written back here
     ln_gain_all = medium.ln_gain.reshape(nz, -1)
     b_all = beam.b_integral.reshape(nt, -1)
-    active = np.flatnonzero(fluence.any(axis=0))
-    size = block_pixels(nt, nz)
-    passive = b_step = gained = 0.0
-    for start in range(0, len(active), size):
-        idx = active[start:start + size]
-        x = np.take(fluence, idx, axis=1)                   # (Nt, C), C-contiguous rows
+
+    # One sum over the time slices gives the energy in, the clipped energy, the peak fluence entering
+    # and the pixels that carry fluence (a sum of fluences >= 0 is > 0 where any of them is).
+    total = fluence.sum(axis=0)
+    e_in = float(total.sum()) * area
+    outside = np.flatnonzero(~medium.mask.ravel())
+    clipped = float(total[outside].sum()) * area
+    if clipped > 0.0:
+        for row in fluence:
+            row[outside] = 0.0
+        total[outside] = 0.0
+    peak_f = float(total.max()) if total.size else 0.0
+    active = np.flatnonzero(total > 0.0)
+    del total
+
+    peak_i = passive = b_step = gained = e_out = 0.0
+    blocks = -(-len(active) // block_pixels(nt, nz))             # equal blocks, none larger than that
+    for idx in (np.array_split(active, blocks) if blocks else []):
+        x = np.take(fluence, idx, axis=1)                       # (Nt, C), C-contiguous rows
+        peak_i = max(peak_i, float(x.max()) / beam.dt_s)       # entering
         x /= fsat
         ln_gain = np.take(ln_gain_all, idx, axis=1)
         order = ln_gain[::-1] if reverse else ln_gain
@@ -157,6 +169,7 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
             oc = fn_pass.amplify_block(x, order, half_loss, b_sum,
                                        linear=fn_pass.linear_form_valid(x, order, half_loss), tick=part)
         x *= fsat
+        e_out += float(x.sum())
         _scatter(fluence, idx, x)
         _scatter(ln_gain_all, idx, ln_gain)
         if b_sum is not None:
@@ -168,8 +181,7 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
         peak_i = max(peak_i, oc.peak_slice_fluence * fsat / beam.dt_s)
         passive += oc.passive_loss * fsat
         gained += oc.gained * fsat
-    area = beam.pixel_area_m2
-    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, passive_loss_J=passive * area,
+    return StepOutcome(e_in, e_out * area, clipped_J=clipped, passive_loss_J=passive * area,
                        extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
                        b_integral_step_rad=b_step)
 

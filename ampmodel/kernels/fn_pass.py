@@ -69,7 +69,7 @@ class BlockOutcome(NamedTuple):
 
 
 def log_mean_accumulate(acc: np.ndarray, a: np.ndarray, b: np.ndarray, work1: np.ndarray,
-                        work2: np.ndarray) -> np.ndarray:
+                        work2: np.ndarray, positive: bool = False) -> np.ndarray:
     """acc += (b − a)/ln(b/a), the logarithmic mean of a and b, elementwise, in place.
 
     Written as a·(r − 1)/ln r with r = b/a: r − 1 and ln r come from the same rounded r, so the mean is
@@ -81,13 +81,17 @@ def log_mean_accumulate(acc: np.ndarray, a: np.ndarray, b: np.ndarray, work1: np
     acc : (C,) accumulator, updated in place
     a, b : (C,) values >= 0 (fluence or intensity at the two ends of a slice)
     work1, work2 : (C,) work arrays
+    positive : the caller knows that every a is > 0 (skips the guard against a = 0)
 
     References
     ----------
     The mean of a·(b/a)^s over s in [0, 1], i.e. of an exponential between a and b: (b − a)/ln(b/a).
     """
-    np.add(a, _GUARD_ZERO, out=work2)
-    np.divide(b, work2, out=work1)           # r = b/a
+    if positive:
+        np.divide(b, a, out=work1)           # r = b/a
+    else:
+        np.add(a, _GUARD_ZERO, out=work2)
+        np.divide(b, work2, out=work1)
     np.log(work1, out=work2)                 # ln r (−inf where b = 0)
     work2 += _GUARD_EQUAL
     work1 -= 1.0
@@ -160,7 +164,8 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
 
     Returns
     -------
-    BlockOutcome (units of Fsat).
+    BlockOutcome (units of Fsat). Without passive loss and without absorbing slices the fluence of every
+    time slice grows along the column, so the peaks are those at the exit and are not tracked per slice.
 
     References
     ----------
@@ -169,16 +174,19 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
     nt, c = x.shape
     nz = ln_gain.shape[0]
     lossy = half_loss != 1.0
-    plane = np.zeros((nz, c))                      # Σ_t x after each gain slice (peak fluence per plane)
-    slice_max = np.zeros(c)
+    monotone = not lossy and composite_valid(ln_gain)
+    positive = linear and c > 0 and float(x.min()) > 0.0   # no zero fluence anywhere, ever (linear range)
+    total_in = float(x.sum())
+    plane = None if monotone else np.zeros((nz, c))      # Σ_t x after each gain slice (peak per plane)
+    slice_max = None if monotone else np.zeros(c)
     passive = np.zeros(c) if lossy else None
-    gained = np.zeros(c)
-    gain = np.exp(ln_gain) if linear else None     # G of each slice; ln_gain keeps the bookkeeping
+    gained = np.zeros(c) if lossy else None
+    gain = np.exp(ln_gain) if linear else None           # G of each slice; ln_gain keeps the bookkeeping
     xb, xo, xh = np.empty(c), np.empty(c), np.empty(c)
     u, v, w1, w2 = np.empty(c), np.empty(c), np.empty(c), np.empty(c)
     with np.errstate(divide="ignore"):
         for t in range(nt):
-            xb[...] = x[t]                         # fluence at the plane before gain slice k
+            xb[...] = x[t]                               # fluence at the plane before gain slice k
             if linear and not lossy:
                 np.expm1(xb, out=u)
             for k in range(nz):
@@ -194,27 +202,34 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
                     fn_slice_linear(u, gain[k], v, w1)
                     np.log1p(v, out=xo)
                     np.subtract(xo, slice_in, out=w1)
-                    ln_gain[k] -= w1               # Fsat·Δln G = −ΔJ
+                    ln_gain[k] -= w1                     # Fsat·Δln G = −ΔJ
                     u, v = v, u
                 else:
                     fn_slice(slice_in, ln_gain[k], 1.0, out=xo)
                     np.subtract(xo, slice_in, out=w1)
-                gained += w1
                 if lossy:
+                    gained += w1
                     passive += xo
                     xo *= half_loss
                 if b_sum is not None:
-                    log_mean_accumulate(b_sum[t], xb, xo, w1, w2)
-                plane[k] += xo
-                np.maximum(slice_max, xo, out=slice_max)
+                    log_mean_accumulate(b_sum[t], xb, xo, w1, w2, positive=positive)
+                if not monotone:
+                    plane[k] += xo
+                    np.maximum(slice_max, xo, out=slice_max)
                 xb, xo = xo, xb
             x[t] = xb
             if tick is not None:
                 tick(1.0 / nt)
     loss = float(passive.sum()) * (1.0 - half_loss) if lossy else 0.0
-    peak_plane = float(plane.max()) if plane.size else 0.0
-    peak_slice = float(slice_max.max()) if slice_max.size else 0.0
-    return BlockOutcome(peak_plane, peak_slice, loss, float(gained.sum()))
+    if c == 0:
+        return BlockOutcome(0.0, 0.0, loss, 0.0)
+    if monotone:
+        peak_plane, peak_slice = float(x.sum(axis=0).max()), float(x.max())
+    else:
+        peak_plane, peak_slice = float(plane.max()), float(slice_max.max())
+    # without loss the beam's gain is its own change (the per-update sum telescopes)
+    added = float(gained.sum()) if lossy else float(x.sum()) - total_in
+    return BlockOutcome(peak_plane, peak_slice, loss, added)
 
 
 def amplify_block_composite(x: np.ndarray, ln_gain: np.ndarray,

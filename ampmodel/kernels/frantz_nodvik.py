@@ -64,7 +64,7 @@ def fn_slice(fluence_J_m2: np.ndarray, ln_gain: np.ndarray, saturation_fluence_J
 def fn_slice_linear(u: np.ndarray, gain: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
     """Frantz–Nodvik for one time slice through one gain slice in the linear variable u = exp(J/Fsat) − 1.
 
-    u_out = G·u_in and G <- G·(1 + u_in)/(1 + u_out), both in place, arithmetic only. Exact in exact
+    u_out = G·u_in and G <- G·(1 + u_in)/(1 + u_out) = (G + u_out)/(1 + u_out), arithmetic only. Exact in exact
     arithmetic; in floating point each call costs a few ulp of G and u. Valid while G·u stays a normal
     float: u_in below ~1e300 (J/Fsat < ~690) and above ~1e-290 where it is not zero.
 
@@ -85,8 +85,7 @@ def fn_slice_linear(u: np.ndarray, gain: np.ndarray, out: np.ndarray, scratch: n
     energy transfer Fsat·Δln G = −(J_out − J_in).
     """
     np.multiply(gain, u, out=out)
-    np.add(u, 1.0, out=scratch)
-    gain *= scratch
+    gain += out                     # G·(1 + u_in) = G + u_out
     np.add(out, 1.0, out=scratch)
     gain /= scratch
     return out
