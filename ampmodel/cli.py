@@ -33,6 +33,10 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("config")
     c.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides")
     sub.add_parser("media", help="the built-in materials with their values and sources")
+    b = sub.add_parser("bench", help="speed and memory figures against their targets (a few minutes)")
+    b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
+    b.add_argument("--quick", action="store_true", help="small cases (seconds): checks that the benchmark runs")
+    b.add_argument("--quiet", action="store_true", help="no progress bar")
     return p
 
 
@@ -261,7 +265,29 @@ def cmd_media(args) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media}
+def cmd_bench(args) -> int:
+    from .config import ConfigError
+    out = Path(args.json) if args.json else None
+    if out is not None:
+        if out.exists():
+            raise ConfigError([f"{out}: exists; the benchmark never overwrites earlier figures: give --json "
+                               f"a new file name"])
+        if not out.parent.is_dir():
+            raise ConfigError([f"{out}: the folder {out.parent} does not exist: create it or give --json "
+                               f"another path"])
+    from .bench import run_bench, table_text, write_json
+    report = run_bench(quick=args.quick, progress=not args.quiet)
+    print(table_text(report))
+    if out is not None:
+        if out.exists():
+            raise ConfigError([f"{out}: was created while the benchmark ran; nothing was written: give --json "
+                               f"a new file name"])
+        write_json(report, out)
+        print(f"wrote {out}")
+    return EXIT_OK
+
+
+COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench}
 
 
 def main(argv: list[str] | None = None) -> int:
