@@ -32,7 +32,7 @@ import scipy.fft
 from . import beams
 from .description import Limits, Step
 from .kernels import diffraction as kd
-from .kernels.frantz_nodvik import fn_slice
+from .kernels import fn_pass
 from .layout import MediumState, StepOutcome
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
@@ -169,8 +169,9 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     (in the order the beam meets them) half a diffraction step, the gain and Kerr step, half a
     diffraction step (neighbouring half steps merged).
 
-    The gain step is Frantz–Nodvik on |E|² of each time slice in order (``fn_slice``, the kernel of
-    the fluence path, with the passive loss split around it); the amplitude is scaled by
+    The gain step is Frantz–Nodvik on |E|² of each time slice in order (``kernels.fn_pass``, the kernel
+    of the fluence path, inside the clear aperture, with the passive loss split around it;
+    :func:`_gain_kerr_step`); the amplitude is scaled by
     sqrt(J_out/J_in) and the phase kept. The Kerr step adds the phase k0·n2·I·dz, I the logarithmic
     mean of the slice's entering and leaving intensity, which is also the B-integral increment.
     Light diffracted outside the clear aperture inside the medium travels on without gain.
@@ -205,38 +206,16 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     energy = float(fluence_of(beam.field).sum())
     peak_f, peak_i = _peaks(fluence, beam.dt_s)
     gained = passive = edge_lost = 0.0
+    inside = np.flatnonzero(medium.mask.ravel())
     for j, k in enumerate(order):
         length = 0.5 * dz if j == 0 else dz
         advance(beam, length, index, n_sub)
-        f_in = fluence_of(beam.field)
-        e_a = float(f_in.sum())
-        edge_lost += energy - e_a
-        f = f_in * half_loss if half_loss != 1.0 else f_in.copy()
-        e_b = float(f.sum())
-        ln_gain = medium.ln_gain[k]
-        for t in range(f.shape[0]):
-            fn_slice(f[t], ln_gain, fsat, out=f[t])
-        e_c = float(f.sum())
-        gained += e_c - e_b
-        if half_loss != 1.0:
-            passive += e_b * (1.0 / half_loss - 1.0) + e_c * (1.0 - half_loss)
-            f *= half_loss
-        ratio = np.zeros_like(f)
-        np.divide(f, f_in, out=ratio, where=f_in > 0.0)
-        if b_coef > 0.0:
-            # logarithmic mean of f_in and f = f_in·(r − 1)/ln r, r = f/f_in (f_in where r = 1)
-            x = ratio - 1.0
-            with np.errstate(divide="ignore", invalid="ignore"):
-                mean = f_in * x / np.log1p(x)
-            np.copyto(mean, f_in, where=(x == 0.0))
-            mean *= b_coef
-            beam.b_integral += mean
-            beam.field *= kd.amplitude_phase(np.sqrt(ratio, out=ratio), mean)
-        else:
-            beam.field *= np.sqrt(ratio, out=ratio)
-        energy = float(f.sum())
-        pf, pi = _peaks(f, beam.dt_s)
-        peak_f, peak_i = max(peak_f, pf), max(peak_i, pi)
+        step = _gain_kerr_step(beam, medium.ln_gain[k], inside, fsat, half_loss, b_coef)
+        edge_lost += energy - step.energy_in
+        energy = step.energy_out
+        gained += step.gained
+        passive += step.passive
+        peak_f, peak_i = max(peak_f, step.peak_fluence), max(peak_i, step.peak_intensity)
         if tick is not None:
             tick()
     advance(beam, 0.5 * dz, index, n_sub)
@@ -247,6 +226,84 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
                        extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
                        b_integral_step_rad=b_step,
                        extras={"edge_absorbed_J": edge_lost * area, "substeps": n_sub})
+
+
+# Time slices per chunk of the gain and Kerr step: about this many pixel values at once, so that the
+# step's temporaries stay in the processor cache (DEVELOPERS.md, speed and memory).
+CHUNK_VALUES = 65536
+
+
+@dataclass
+class _StepSums:
+    energy_in: float          # Σ |E|² entering the step (J/m² summed over pixels and time slices)
+    energy_out: float         # Σ of the fluence leaving it
+    gained: float
+    passive: float
+    peak_fluence: float       # J/m²
+    peak_intensity: float     # W/m²
+
+
+def _gain_kerr_step(beam: FieldBeam, ln_gain: np.ndarray, inside: np.ndarray, fsat: float, half_loss: float,
+                    b_coef: float) -> _StepSums:
+    """The gain and Kerr step of one z-slice on the field, in place, a few time slices at a time.
+
+    Half the passive loss, Frantz–Nodvik on |E|² of each time slice in order, half the loss: inside
+    the clear aperture (``inside``, flat pixel indices) by kernels.fn_pass (the fluence path's kernel,
+    its gain row ``ln_gain`` (Ny, Nx) depleted in place), outside it the loss alone (no gain medium).
+    The amplitude is scaled by sqrt(J_out/J_in) and, with n2, the phase advanced by b_coef·I_mean,
+    I_mean the logarithmic mean of the entering and leaving fluence (also the B-integral increment).
+    """
+    beam.field = np.ascontiguousarray(beam.field)          # views below write into it
+    beam.b_integral = np.ascontiguousarray(beam.b_integral)
+    field = beam.field.reshape(beam.field.shape[0], -1)
+    b_all = beam.b_integral.reshape(field.shape)
+    nt, npix = field.shape
+    chunk = max(1, CHUNK_VALUES // max(npix, 1))
+    gain_row = ln_gain.reshape(-1)
+    gain_in = gain_row[inside][None, :].copy()             # (1, C): the slice's gain in the aperture
+    loss2 = half_loss * half_loss
+    energy_in = energy_out = gained = passive = peak_i = 0.0
+    plane = np.zeros(npix)                                 # Σ over time slices of the fluence leaving
+    for t0 in range(0, nt, chunk):
+        e = field[t0:t0 + chunk]
+        f_in = np.square(e.real)
+        f_in += np.square(e.imag)
+        total = float(f_in.sum())
+        energy_in += total
+        f = f_in * loss2 if half_loss != 1.0 else f_in.copy()   # outside the aperture: the loss alone
+        if inside.size:
+            x = np.take(f_in, inside, axis=1)
+            x /= fsat
+            lit_in = float(x.sum()) * fsat
+            oc = fn_pass.amplify_block(x, gain_in, half_loss, None,
+                                       linear=fn_pass.linear_form_valid(x, gain_in, half_loss))
+            x *= fsat
+            for row, values in zip(f, x):
+                row[inside] = values
+            gained += oc.gained * fsat
+            passive += oc.passive_loss * fsat + (total - lit_in) * (1.0 - loss2)
+        else:
+            passive += total * (1.0 - loss2)
+        ratio = np.zeros_like(f)
+        np.divide(f, f_in, out=ratio, where=f_in > 0.0)
+        if b_coef > 0.0:
+            # logarithmic mean of f_in and f = f_in·(r − 1)/ln r, r = f/f_in (f_in where r = 1)
+            x1 = ratio - 1.0
+            with np.errstate(divide="ignore", invalid="ignore"):
+                mean = f_in * x1 / np.log1p(x1)
+            np.copyto(mean, f_in, where=(x1 == 0.0))
+            mean *= b_coef
+            b_all[t0:t0 + chunk] += mean
+            e *= kd.amplitude_phase(np.sqrt(ratio, out=ratio), mean)
+        else:
+            e *= np.sqrt(ratio, out=ratio)
+        energy_out += float(f.sum())
+        plane += f.sum(axis=0)
+        peak_i = max(peak_i, float(f.max()) if f.size else 0.0)
+    if inside.size:
+        gain_row[inside] = gain_in[0]
+    return _StepSums(energy_in, energy_out, gained, passive, float(plane.max()) if plane.size else 0.0,
+                     peak_i / beam.dt_s)
 
 
 def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:
