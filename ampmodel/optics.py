@@ -203,7 +203,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     nz = medium.ln_gain.shape[0]
     order = range(nz - 1, -1, -1) if reverse else range(nz)
     n_sub = substeps(beam, dz, index)
-    energy = float(fluence_of(beam.field).sum())
+    energy = e_in / area - clipped / area                   # what entered, less what the aperture took
     peak_f, peak_i = _peaks(fluence, beam.dt_s)
     gained = passive = edge_lost = 0.0
     inside = np.flatnonzero(medium.mask.ravel())
@@ -262,6 +262,7 @@ def _gain_kerr_step(beam: FieldBeam, ln_gain: np.ndarray, inside: np.ndarray, fs
     gain_row = ln_gain.reshape(-1)
     gain_in = gain_row[inside][None, :].copy()             # (1, C): the slice's gain in the aperture
     loss2 = half_loss * half_loss
+    psi_out = (loss2 - 1.0) / math.log(loss2) if loss2 != 1.0 else 1.0   # (r − 1)/ln r at r = loss²
     energy_in = energy_out = gained = passive = peak_i = 0.0
     plane = np.zeros(npix)                                 # Σ over time slices of the fluence leaving
     for t0 in range(0, nt, chunk):
@@ -271,28 +272,30 @@ def _gain_kerr_step(beam: FieldBeam, ln_gain: np.ndarray, inside: np.ndarray, fs
         total = float(f_in.sum())
         energy_in += total
         f = f_in * loss2 if half_loss != 1.0 else f_in.copy()   # outside the aperture: the loss alone
+        # B-integral increment b_coef·I_mean: outside, the logarithmic mean of f_in and loss²·f_in;
+        # inside, the kernel's mean of each slice's entering and leaving fluence
+        mean = f_in * (b_coef * psi_out) if b_coef > 0.0 else None
         if inside.size:
             x = np.take(f_in, inside, axis=1)
             x /= fsat
             lit_in = float(x.sum()) * fsat
-            oc = fn_pass.amplify_block(x, gain_in, half_loss, None,
+            b_in = np.zeros_like(x) if mean is not None else None
+            oc = fn_pass.amplify_block(x, gain_in, half_loss, b_in,
                                        linear=fn_pass.linear_form_valid(x, gain_in, half_loss))
             x *= fsat
             for row, values in zip(f, x):
                 row[inside] = values
+            if b_in is not None:
+                b_in *= b_coef * fsat
+                for row, values in zip(mean, b_in):
+                    row[inside] = values
             gained += oc.gained * fsat
             passive += oc.passive_loss * fsat + (total - lit_in) * (1.0 - loss2)
         else:
             passive += total * (1.0 - loss2)
         ratio = np.zeros_like(f)
         np.divide(f, f_in, out=ratio, where=f_in > 0.0)
-        if b_coef > 0.0:
-            # logarithmic mean of f_in and f = f_in·(r − 1)/ln r, r = f/f_in (f_in where r = 1)
-            x1 = ratio - 1.0
-            with np.errstate(divide="ignore", invalid="ignore"):
-                mean = f_in * x1 / np.log1p(x1)
-            np.copyto(mean, f_in, where=(x1 == 0.0))
-            mean *= b_coef
+        if mean is not None:
             b_all[t0:t0 + chunk] += mean
             e *= kd.amplitude_phase(np.sqrt(ratio, out=ratio), mean)
         else:

@@ -348,19 +348,30 @@ def amplitude_phase(amplitude: np.ndarray, phase_rad: np.ndarray) -> np.ndarray:
 
     Kerr phases per slice are small: when every |phase| <= SMALL_PHASE the cosine and sine are summed
     from their Taylor series (Horner, exact to round-off there), several times faster than the complex
-    exponential; otherwise numpy's cos and sin are used.
+    exponential; otherwise numpy's cos and sin are used. The series stops at the first term that the
+    largest phase makes smaller than 1e-17 (for phases of 1e-3 rad, after φ⁴ and φ⁵).
     """
     out = np.empty(np.shape(phase_rad), dtype=np.complex128)
-    if phase_rad.size and float(np.max(np.abs(phase_rad))) <= SMALL_PHASE:
-        p2 = phase_rad * phase_rad
-        c = np.full_like(p2, _COS[-1])
-        s = np.full_like(p2, _SIN[-1])
-        for a, b in zip(_COS[-2::-1], _SIN[-2::-1]):
-            c *= p2
-            c += a
-            s *= p2
-            s += b
-        s *= phase_rad
+    largest = float(np.max(np.abs(phase_rad))) if phase_rad.size else 0.0
+    if largest <= SMALL_PHASE:
+        terms = len(_COS)
+        while terms > 1 and largest ** (2 * (terms - 1)) * abs(_COS[terms - 1]) < 1e-17:
+            terms -= 1                    # the last term kept is below 1e-17 of 1: drop it (sin alike)
+        if terms == 1:
+            c = np.ones(np.shape(phase_rad))
+            s = np.array(phase_rad, dtype=float)
+        else:
+            p2 = phase_rad * phase_rad
+            c = p2 * _COS[terms - 1]
+            s = p2 * _SIN[terms - 1]
+            for j in range(terms - 2, 0, -1):             # Horner: C0 + p2·(C1 + p2·(C2 + ...))
+                c += _COS[j]
+                c *= p2
+                s += _SIN[j]
+                s *= p2
+            c += _COS[0]
+            s += _SIN[0]
+            s *= phase_rad
     else:
         c, s = np.cos(phase_rad), np.sin(phase_rad)
     np.multiply(amplitude, c, out=out.real)

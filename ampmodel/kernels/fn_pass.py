@@ -126,6 +126,13 @@ def linear_form_valid(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0
     """
     if x.size == 0:
         return True
+    lowest = float(x.min())
+    if lowest > 0.0:                 # a quicker sufficient test: every slice carries fluence
+        pos = float(np.clip(ln_gain, 0.0, None).sum(axis=0).max())
+        neg = float(np.clip(ln_gain, None, 0.0).sum(axis=0).min()) + 2 * ln_gain.shape[0] * float(np.log(half_loss))
+        if (x.shape[0] * float(x.max()) + pos <= LINEAR_MAX_EXPONENT
+                and float(np.log(lowest)) + neg > LINEAR_MIN_LOG_FLUENCE):
+            return True
     gain_pos = np.clip(ln_gain, 0.0, None).sum(axis=0)
     if float((x.sum(axis=0) + gain_pos).max()) > LINEAR_MAX_EXPONENT:
         return False
