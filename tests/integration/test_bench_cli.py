@@ -31,7 +31,7 @@ def test_bench_quick_prints_the_table_and_writes_the_figures(tmp_path):
     assert report["mode"] == "quick" and report["machine"]["cpus"] >= 1
     for key, fig in report["figures"].items():
         assert {"label", "value", "unit", "target", "passed", "detail"} <= set(fig), key
-        assert isinstance(fig["value"], float) and fig["value"] > 0, key
+        assert isinstance(fig["value"], float) and fig["value"] >= 0, key
         assert isinstance(fig["passed"], bool), key
     assert report["figures"]["diffraction_ratio"]["numbers"]["transforms"] > 0
     # the reference loop and the solver computed the same thing
