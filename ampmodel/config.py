@@ -33,7 +33,8 @@ import tomli_w
 from . import config_cw, config_fibre, config_timing
 from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
-                            expected, item_names, join_path, leaf_schema, quoted_list, walk)
+                            expected, item_names, join_path, quoted_list, walk)
+from .config_sweep import check_spread, check_sweep
 from .description import Config, Grid, Limits, Medium, Pump, Seed, Step, Train
 from .materials import (MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, config_values,
                         material_from_values)
@@ -44,7 +45,7 @@ __all__ = ["ConfigError", "PathError", "load_config", "apply_overrides", "resolv
 STAND_IN_KEYS = frozenset(key for key, _, _ in SPECTRUM_STANDS_IN)
 
 # Tables that a --set may create when its path runs through one that is not there yet.
-_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "pump", "material", "train"})
+_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "spread", "pump", "material", "train"})
 
 
 class ConfigError(Exception):
@@ -308,8 +309,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     fibre_layout = config_fibre.any_fibre(raw)        # a layout with a fibre (checked to be fibres only)
     only_fibres = config_fibre.all_fibre(raw)
     top = check_table(p, raw, "", S.TOP, skip=("medium", "step", "grid", "seed", "limits", "solver", "sweep",
-                                              "train"))
-    for key in ("grid", "seed", "limits", "solver", "sweep", "train"):
+                                              "train", "spread"))
+    for key in ("grid", "seed", "limits", "solver", "sweep", "train", "spread"):
         if key in raw and not isinstance(raw[key], dict):
             p.add(key, f"must be a table [{key}], not {S.type_name(raw[key])}", raw[key])
     for key in ("grid", "seed"):
@@ -331,7 +332,9 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     train = Train(**check_table(p, raw["train"], "train", S.TRAIN)) \
         if isinstance(raw.get("train"), dict) else Train()
     if isinstance(raw.get("sweep"), dict):
-        _sweep(p, raw)
+        check_sweep(p, raw, _builtin)
+    if isinstance(raw.get("spread"), dict):
+        check_spread(p, raw)
     if mode == "cw" and grid is not None and grid.diffraction:
         p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
                                   "set grid.diffraction = false", True)
@@ -754,51 +757,3 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
         return None
     return Step(kind=kind, index=i, name=name, parent=parent[0] if parent else None, **fields)
 
-
-# --- sweep ------------------------------------------------------------------------------------
-
-def _sweep(p: Problems, raw: dict) -> None:
-    """The [sweep] table: paths that resolve to values, non-empty lists of valid values, combine."""
-    sweep = raw["sweep"]
-    lengths: dict[str, int] = {}
-    combine = "grid"
-    if "combine" in sweep:
-        combine, message = check_value(sweep["combine"], S.SWEEP_COMBINE)
-        if message:
-            p.add("sweep.combine", message, sweep["combine"])
-    for key, values in sweep.items():
-        if key == "combine":
-            continue
-        path = join_path("sweep", key)
-        try:
-            _, leaf, trail = walk(raw, key)
-        except PathError as exc:
-            p.add(path, f"not a value path of this config: {exc}", values)
-            continue
-        schema = leaf_schema(raw, trail) if trail[0] != "sweep" else None
-        if schema is None or leaf not in schema:
-            prefix = key.rsplit(".", 1)[0] + "." if "." in key else ""
-            hits = S.close_matches(leaf, schema) if schema else []
-            hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
-            p.add(path, f"not a value this config can sweep; give a path such as seed.energy_J or "
-                        f"medium.<name>.length_mm{hint}", values)
-            continue
-        if not isinstance(values, list) or not values:
-            p.add(path, "must be a non-empty array of values, e.g. [0.001, 0.01]", values)
-            continue
-        lengths[key] = len(values)
-        for j, value in enumerate(values):
-            _, message = check_value(value, schema[leaf])
-            if message:
-                p.add(f"{path}[{j}]", message, value)
-            elif schema[leaf].kind == "material" and isinstance(value, str):
-                _builtin(p, f"{path}[{j}]", value)
-            elif schema[leaf].kind == "ref" and value not in item_names(raw["medium"], "medium") \
-                    and not (isinstance(value, int) and 0 <= value < len(raw["medium"])):
-                p.add(f"{path}[{j}]", "no such medium; media: "
-                                      f"{', '.join(item_names(raw['medium'], 'medium'))}", value)
-    if not lengths and not any(k != "combine" for k in sweep):
-        p.add("sweep", 'empty: give at least one path with its values, e.g. "seed.energy_J" = [0.001, 0.01]')
-    if combine == "zip" and len(set(lengths.values())) > 1:
-        listing = ", ".join(f"{k}: {n}" for k, n in lengths.items())
-        p.add("sweep", f'combine = "zip" needs lists of equal length ({listing})')

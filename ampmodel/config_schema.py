@@ -35,8 +35,9 @@ class Key:
     ----------
     kind : str
         "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
-        "material" (a built-in name or a table), "ref" (a medium name or index) or "floats" (an array
-        of numbers, each within the bounds; ``size`` entries when given).
+        "material" (a built-in name or a table), "ref" (a medium name or index), "floats" (an array
+        of numbers, each within the bounds; ``size`` entries when given) or "bounds" (an array of two
+        numbers, lower < upper).
     meaning : str
         What the key means, in a few words (used in the problem messages).
     required : bool
@@ -111,6 +112,7 @@ TOP: dict[str, Key] = {
     "solver": Key("table", "settings of the cw steady-state iteration"),
     "sweep": Key("table", "values to sweep"),
     "train": Key("table", "how a pulse train is solved (with seed.repetition_rate_Hz)"),
+    "spread": Key("table", "distributions of values for a tolerance run"),
 }
 SECTION_HINTS = {
     "grid": "[grid] with width_mm (and optionally points, time_slices)",
@@ -297,6 +299,18 @@ SOLVER: dict[str, Key] = {
 COMBINES = ("grid", "zip")
 SWEEP_COMBINE = choice("how the swept lists combine", COMBINES, default="grid")
 
+# [spread]: its own keys, and one table per value path giving that value's distribution.
+SPREAD: dict[str, Key] = {
+    "samples": integer("number of random samples", 1, 100000, required=True),
+    "random_seed": Key("int", "seed of the random-number generator", ge=0, default=0),
+}
+DISTRIBUTIONS: dict[str, Key] = {
+    "normal": number("relative standard deviation of a normal distribution around the config's value",
+                     gt=0, le=0.5),
+    "uniform": Key("bounds", "lower and upper bound, in the unit of the value"),
+}
+SPREAD_HINT = '"seed.energy_J" = { normal = 0.05 } or "medium.rod.length_mm" = { uniform = [79.5, 80.5] }'
+
 
 # ----------------------------------------------------------------------------------------------
 # Helpers shared by every problem message
@@ -413,6 +427,8 @@ def expected(key: Key) -> str:
     if key.kind == "floats":
         count = f"{key.size} numbers" if key.size else "numbers"
         return f"an array of {count} {rule(key)}".strip()
+    if key.kind == "bounds":
+        return "an array of two numbers [lower, upper] with lower < upper"
     return key.kind
 
 
@@ -504,6 +520,17 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
     elif kind == "ref":
         if isinstance(value, bool) or not isinstance(value, (str, int)):
             return None, f"must be {want}, not {type_name(value)}"
+    elif kind == "bounds":
+        if not isinstance(value, list) or len(value) != 2:
+            return None, f"must be {want}, not {type_name(value)}" + (
+                f" of {len(value)} values" if isinstance(value, list) else "")
+        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
+            return None, f"must be {want}; both bounds must be numbers"
+        value = [float(v) for v in value]
+        if not all(math.isfinite(v) for v in value):
+            return None, f"must be {want}; nan and inf are not allowed"
+        if not value[0] < value[1]:
+            return None, f"must be {want}: the lower bound comes first and must be below the upper"
     msg = _unavailable(value, key)
     return (None, msg) if msg else (value, None)
 
@@ -713,6 +740,8 @@ def walk(raw: dict, path: str, create: frozenset = frozenset()) -> tuple[Any, An
 def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
     """The schema table the last key of a resolved value path belongs to (None: not a value path)."""
     sections = {"grid": GRID, "seed": SEED, "limits": LIMITS, "solver": SOLVER, "train": TRAIN}
+    if trail[0] in ("sweep", "spread"):
+        return None
     if len(trail) == 1:
         return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
     if len(trail) == 2 and trail[0] in sections:

@@ -68,3 +68,22 @@ LIGHT_SPEED_M_S = 299792458.0
 def photon_energy_J(wavelength_m: float) -> float:
     """Photon energy h·c/λ in J for a vacuum wavelength in m."""
     return PLANCK_J_S * LIGHT_SPEED_M_S / wavelength_m
+
+
+# How each suffix reads as a unit (axis labels, HDF5 ``units`` attributes of tables kept in config units).
+UNIT_TEXT: dict[str, str] = {
+    "_J_cm2": "J/cm^2", "_W_cm2": "W/cm^2", "_m2_W": "m^2/W", "_per_cm": "1/cm", "_per_m3": "1/m^3",
+    "_per_m": "1/m", "_cm2": "cm^2", "_m": "m", "_cm": "cm", "_mm": "mm", "_um": "um", "_nm": "nm",
+    "_s": "s", "_us": "us", "_ns": "ns", "_ps": "ps", "_fs": "fs", "_mJ": "mJ", "_J": "J", "_W": "W",
+    "_kHz": "kHz", "_Hz": "Hz", "_rad": "rad", "_dB": "dB",
+}
+
+
+def unit_of(key: str) -> str:
+    """The unit a key's suffix names, as plain text (``peak_fluence_J_cm2`` -> "J/cm^2"); "1" without one.
+
+    ``gain_dB`` (summary.json of fibre runs) reads as "dB".
+    """
+    if key.endswith("_dB") and len(key) > 3:
+        return "dB"
+    return UNIT_TEXT.get(split_unit(key)[1], "1")
