@@ -11,7 +11,7 @@ import tempfile
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -176,8 +176,11 @@ def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
     return ds
 
 
-def write_hdf5(result: Result, path: Path) -> None:
-    """Write result.h5 in SPEC section 4's layout (SI units, a ``units`` attribute on every dataset)."""
+def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None) -> None:
+    """Write result.h5 in SPEC section 4's layout (SI units, a ``units`` attribute on every dataset).
+
+    ``attrs``: further root attributes (a sweep's point files record their index and values).
+    """
     import h5py
 
     fd, tmp = _atomic_target(path)
@@ -190,6 +193,8 @@ def write_hdf5(result: Result, path: Path) -> None:
             f.attrs["title"] = result.config.title
             f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
             f.attrs["summary"] = json.dumps(result.summary)
+            for key, value in (attrs or {}).items():
+                f.attrs[key] = value
             cw = result.config.mode == "cw"
             g = f.create_group("grid")
             _dataset(g, "x", result.x_m, "m")
