@@ -12,6 +12,8 @@ from pathlib import Path
 from . import __version__
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first
+EXIT_BACKEND = 4         # sweep, spread: the dask cluster cannot be used (unreachable, no ampmodel there)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -37,6 +39,44 @@ def _parser() -> argparse.ArgumentParser:
     b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
     b.add_argument("--quick", action="store_true", help="small cases (seconds): checks that the benchmark runs")
     b.add_argument("--quiet", action="store_true", help="no progress bar")
+    for name, what in (("sweep", "the sweep in the config's [sweep] table: in parallel, resumable"),
+                       ("spread", "a tolerance run: the samples of the config's [spread] table, with "
+                                  "percentiles and histograms")):
+        w = sub.add_parser(name, help=what)
+        w.add_argument("config", help=f"the run config (TOML) with a [{name}] table")
+        w.add_argument("--out", metavar="DIR", help=f"output folder (default runs/<config stem>-{name}); "
+                                                    "started again on it, only missing points are computed")
+        w.add_argument("--jobs", metavar="N", type=int, help="worker processes (default: every core); with "
+                                                             "--backend dask and no --scheduler: local dask workers")
+        w.add_argument("--backend", choices=("loky", "dask"), help="loky: processes on this machine (default); "
+                                                                    "dask: a dask.distributed cluster")
+        w.add_argument("--scheduler", metavar="ADDRESS", help="a running dask scheduler, tcp://host:port "
+                                                              "(implies --backend dask); without it the dask "
+                                                              "backend starts a local cluster on 127.0.0.1")
+        w.add_argument("--timeout", metavar="S", type=float, default=60.0,
+                       help="seconds the dask pre-flight check waits for the scheduler and workers (default 60)")
+        w.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
+                       help="change one value of the config first, like `run --set`")
+        w.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+        w.add_argument("--quiet", action="store_true", help="no progress bar" +
+                       (" and no table of the points" if name == "sweep" else ""))
+    z = sub.add_parser("size", help="find the value of one parameter that reaches a target figure, under limits")
+    z.add_argument("config", help="the run config (TOML)")
+    z.add_argument("--target", metavar="FIGURE=VALUE", required=True,
+                   help="a scalar of summary.json and the value to reach, e.g. output_energy_J=1.0")
+    z.add_argument("--vary", metavar="PATH", required=True,
+                   help="the value path to vary, e.g. medium.rod.small_signal_gain")
+    z.add_argument("--within", metavar="LOW,HIGH", required=True, help="the range to search, e.g. 2,50")
+    z.add_argument("--limit", metavar="FIGURE<=VALUE", action="append", default=[], dest="limits",
+                   help="a bound that must hold at the answer, e.g. peak_fluence_J_cm2<=5 or b_integral_rad<=3 "
+                        "(also >=); repeatable")
+    z.add_argument("--xtol", metavar="X", type=float,
+                   help="absolute tolerance on the value (default 1e-12 x the larger bound; relative 1e-10)")
+    z.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
+                   help="change one value of the config first, like `run --set`")
+    z.add_argument("--out", metavar="DIR", help="also write size.json and the run at the answer (result.h5, "
+                                                "summary.json, plots/) into DIR")
+    z.add_argument("--quiet", action="store_true", help="do not list the runs of the search")
     return p
 
 
@@ -287,7 +327,73 @@ def cmd_bench(args) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench}
+def _options(args, command: str) -> tuple[str, int | None]:
+    """Check the sweep/spread options; return (backend, jobs)."""
+    from .config import ConfigError
+    problems = []
+    if args.jobs is not None and args.jobs < 1:
+        problems.append(f"--jobs {args.jobs}: must be 1 or more")
+    if args.scheduler and args.backend == "loky":
+        problems.append(f"--scheduler {args.scheduler}: needs --backend dask (or leave --backend out)")
+    if args.scheduler and "://" not in args.scheduler:
+        problems.append(f"--scheduler {args.scheduler}: give the address as tcp://host:port")
+    if not args.timeout > 0:
+        problems.append(f"--timeout {args.timeout:g}: must be a number of seconds > 0")
+    if problems:
+        raise ConfigError([f"ampmodel {command}: {p}" for p in problems])
+    return ("dask" if args.scheduler else args.backend or "loky"), args.jobs
+
+
+def cmd_sweep(args) -> int:
+    from .sweeps import run_sweep
+    from .sweep_report import print_sweep
+    backend, jobs = _options(args, "sweep")
+    result = run_sweep(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
+                       overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
+                       timeout_s=args.timeout)
+    return print_sweep(result, quiet=args.quiet)
+
+
+def cmd_spread(args) -> int:
+    from .spread import run_spread
+    from .sweep_report import print_spread
+    backend, jobs = _options(args, "spread")
+    result = run_spread(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
+                        overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
+                        timeout_s=args.timeout)
+    return print_spread(result, quiet=args.quiet)
+
+
+def cmd_size(args) -> int:
+    from .sizing import parse_limit, parse_target, parse_within, size_to_target
+    from .sweep_report import print_sizing
+    target = parse_target(args.target)
+    within = parse_within(args.within)
+    limits = [parse_limit(text) for text in args.limits]
+    report = None if args.quiet else print
+    result = size_to_target(args.config, target, args.vary, within, limits, overrides=args.overrides,
+                            xtol=args.xtol, report=report, keep_result=bool(args.out))
+    code = print_sizing(result)
+    if args.out:
+        from .results import write_json
+        base = Path(args.out)
+        base.parent.mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{base.name}.", suffix=".partial", dir=base.parent))
+        try:
+            write_json(result.as_dict(), tmp / "size.json")
+            if result.result is not None:
+                result.result.save(tmp, plots=True)
+            out = _claim(tmp, base)
+        except BaseException:
+            import shutil
+            shutil.rmtree(tmp, ignore_errors=True)
+            raise
+        print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/)" if result.result else ")"))
+    return code
+
+
+COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench,
+            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size}
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -296,13 +402,27 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_BAD_INPUT
+    from .backends import BackendError
     from .config import ConfigError
+    from .sweep_store import FolderError
     try:
         return COMMANDS[args.command](args)
     except ConfigError as err:
         return _bad_input(err.problems)
+    except FolderError as err:
+        print(f"ampmodel {args.command}: {err}", file=sys.stderr)
+        print("nothing was run or written.", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except BackendError as err:
+        print(f"ampmodel {args.command}: {err}", file=sys.stderr)
+        print("nothing was run; the points already in the output folder are kept.", file=sys.stderr)
+        return EXIT_BACKEND
     except KeyboardInterrupt:
-        print("interrupted: nothing was written.", file=sys.stderr)
+        if args.command in ("sweep", "spread"):
+            print("interrupted: the points finished so far are kept; start the same command again to "
+                  "compute the rest.", file=sys.stderr)
+        else:
+            print("interrupted: nothing was written.", file=sys.stderr)
         return 130
     except OSError as err:
         print(f"ampmodel: cannot write or read a file: {err}", file=sys.stderr)

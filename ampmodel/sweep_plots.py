@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 import tempfile
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -383,10 +384,12 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
         bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
         ax.hist(data, bins=bins, color="#1f5fa8", alpha=0.8, edgecolor="white", linewidth=0.5)
         p = percentiles[key]
+        m = re.search(r"\(([^()]*)\)$", label)
+        unit = f" {m.group(1)}" if m and m.group(1) != "%" else "%" if m else ""
         for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
             value = p[name] * scale
             ax.axvline(value, color=WARN_COLOUR, ls=style, lw=1.4,
-                       label=f"{name[1:]} %: {value:.4g}")
+                       label=f"{name[1:]} %: {value:.4g}{unit}")
         ax.set_xlabel(label)
         ax.set_ylabel(f"samples (of {data.size})")
         ax.legend(fontsize=8, frameon=False, title="percentiles", title_fontsize=8)

@@ -9,6 +9,7 @@ from .config_schema import show
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
 TABLE_KEYS = ("output_energy_J", "gain", "extraction_efficiency", "peak_fluence_J_cm2", "b_integral_rad")
 MAX_ROWS = 40
+QUIET_FIGURES = ("energy_balance_error",)   # a numerical check: in the files, not in the terminal table
 
 
 def _num(v: Any) -> str:
@@ -105,7 +106,8 @@ def print_spread(result, quiet: bool = False) -> int:
     print(f"distributions (random_seed {result.random_seed}): " +
           "; ".join(f"{p}: {_dist(d)}" for p, d in result.distributions.items()))
     rows = [[k, p["unit"], _num(p["p5"]), _num(p["p50"]), _num(p["p95"]), _num(p["mean"]), _num(p["std"])]
-            for k, p in result.percentiles.items()]
+            for k, p in result.percentiles.items() if p["max"] > p["min"] and k not in QUIET_FIGURES]
+    print("the figures that vary (spread.csv and spread.json hold every figure):")
     _table(["figure", "unit", "5 %", "50 %", "95 %", "mean", "std"], rows)
     _warnings_and_failures(result, "sample")
     _safety()
@@ -137,7 +139,8 @@ def print_sizing(result) -> int:
         if result.margins:
             print("limits:")
             for m in result.margins:
-                state = "holds" if m["margin"] >= 0 else "CROSSED"
+                tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
+                state = "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
                 print(f"  {m['figure']} {m['op']} {m['limit']:g}: {m['value']:.6g}, margin {m['margin']:.4g} "
                       f"({100 * m['relative_margin']:.1f} % of the limit), {state}")
         if s.get("warnings"):

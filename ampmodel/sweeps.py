@@ -25,7 +25,7 @@ import time
 import traceback
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any, Callable, Mapping, Sequence
 
 from . import sweep_store as store
 from .backends import BACKENDS, BackendError, Cluster, cores, preflight, run_tasks, where
@@ -207,7 +207,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
                backend: str = "loky", jobs: int | None = None, scheduler: str | None = None,
                progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
                table_stem: str = "sweep", table_attrs: Mapping[str, Any] | None = None,
-               manifest_table: Any = None) -> SweepResult:
+               manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None) -> SweepResult:
     """Run the points of a sweep or a tolerance run into ``out``; compute only those it lacks.
 
     Parameters
@@ -220,6 +220,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     progress : show a tqdm bar (count and time left) on stderr
     timeout_s : dask pre-flight timeout
     table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
+    manifest_table : the [sweep] or [spread] table, recorded in the manifest
+    finish : called with the result while the folder is still locked (plots, statistics)
 
     Raises
     ------
@@ -268,10 +270,13 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
         attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
                  "paths": json.dumps(paths), **(table_attrs or {})}
         h5, csv = store.write_table(out, table_stem, kind, columns, done, attrs)
-    return SweepResult(out=out, kind=kind, paths=list(paths), values=[dict(v) for v in values],
-                       summaries=summaries, computed=[i for i in todo if i not in failed], reused=reused,
-                       failed=failed, table_h5=h5, table_csv=csv, seconds=time.perf_counter() - start,
-                       jobs=used, backend=backend, point_seconds=seconds, notes=notes)
+        result = SweepResult(out=out, kind=kind, paths=list(paths), values=[dict(v) for v in values],
+                             summaries=summaries, computed=[i for i in todo if i not in failed], reused=reused,
+                             failed=failed, table_h5=h5, table_csv=csv, seconds=time.perf_counter() - start,
+                             jobs=used, backend=backend, point_seconds=seconds, notes=notes)
+        if finish is not None:
+            finish(result)
+    return result
 
 
 def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, backend: str, jobs: int | None,
@@ -279,7 +284,7 @@ def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, b
          total: int, initial: int, kind: str, notes: list[str]) -> int:
     """Run ``tasks`` on the backend, filling ``summaries`` and ``failed``; return the worker count."""
     from tqdm import tqdm
-    bar = tqdm(total=total, initial=initial, unit="point", desc=kind, disable=not progress, file=sys.stderr,
+    bar = tqdm(total=total, initial=initial, unit="sample" if kind == "spread" else "point", desc=kind, disable=not progress, file=sys.stderr,
                dynamic_ncols=True, smoothing=0.2)
     try:
         if backend == "dask":
@@ -373,13 +378,16 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
                            '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps)'])
     paths, values = sweep_points(table)
     out = Path(out) if out is not None else default_folder(base, "sweep")
-    result = run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
-                        progress=progress, timeout_s=timeout_s, table_stem="sweep",
-                        table_attrs={"combine": table.get("combine", "grid")}, manifest_table=table)
-    if plots:
-        from .sweep_plots import plot_sweep
-        result.plots = plot_sweep(result, table.get("combine", "grid"), out / "plots")
-    return result
+    combine = table.get("combine", "grid")
+
+    def finish(result: SweepResult) -> None:
+        if plots:
+            from .sweep_plots import plot_sweep
+            result.plots = plot_sweep(result, combine, out / "plots")
+
+    return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
+                      progress=progress, timeout_s=timeout_s, table_stem="sweep",
+                      table_attrs={"combine": combine}, manifest_table=table, finish=finish)
 
 
 # ----------------------------------------------------------------------------------------------
