@@ -60,8 +60,12 @@ def _describe_values(values: dict) -> str:
 
 def _head(result, label: str) -> None:
     n = len(result.values)
-    where = f"{result.jobs} {result.backend} worker{'s' if result.jobs != 1 else ''}" if result.computed or \
-        result.failed else "nothing to compute"
+    if not (result.computed or result.failed):
+        where = "nothing to compute"
+    elif result.backend == "loky" and result.jobs == 1:
+        where = "one after another in this process"
+    else:
+        where = f"{result.jobs} {result.backend} worker{'s' if result.jobs != 1 else ''}"
     print(f"{n} {label}s: computed {len(result.computed)}, found {len(result.reused)} already done"
           + (f", {len(result.failed)} failed" if result.failed else "") + f" ({where}, {result.seconds:.1f} s)")
     for note in result.notes:

@@ -202,6 +202,19 @@ def folder_lock(out: Path) -> Iterator[None]:
         os.close(fd)
 
 
+def undo_new_folder(out: Path, created: bool) -> None:
+    """Remove what a start that computed nothing left in a folder that was new (or empty) before it."""
+    if any((out / POINTS).glob("*.h5")):
+        return
+    for name in (MANIFEST, LOCK):
+        (out / name).unlink(missing_ok=True)
+    for folder in ((out / POINTS, out) if created else (out / POINTS,)):
+        try:
+            folder.rmdir()
+        except OSError:
+            pass
+
+
 def remove_stale_parts(out: Path) -> int:
     """Delete temporary files left by writers that were killed (the caller holds the folder's lock)."""
     n = 0

@@ -169,7 +169,7 @@ def prepare(base: Config, values: Sequence[Mapping[str, Any]], kind: str) -> tup
     ------
     ConfigError
         Every problem of every point (up to 40 lines), each naming the point and its values."""
-    from .solver import memory_estimate_bytes
+    from .solver import check_memory
     raws, texts, problems, largest = [], [], [], 0
     label = "sample" if kind == "spread" else "point"
     for i, v in enumerate(values):
@@ -177,15 +177,20 @@ def prepare(base: Config, values: Sequence[Mapping[str, Any]], kind: str) -> tup
         name = f"{label} {store.point_name(i)} ({describe(v)})"
         try:
             config = load_config(raw)
+            need = check_memory(config)      # one point alone must fit; _fit_jobs then counts the workers
         except ConfigError as err:
             problems += _prefix_problems(err.problems, base.source, name)
             if len(problems) >= 40:
                 problems.append(f"{base.source}: ... (stopped after 40 problems)")
                 break
             continue
-        largest = max(largest, memory_estimate_bytes(config))
+        largest = max(largest, need)
         raws.append(raw)
         texts.append(f"# {kind} {label} {store.point_name(i)} of {base.source}: {describe(v)}\n" + dump_toml(raw))
+    if problems and kind == "spread":
+        problems.append(f"{base.source}: spread: {len(values) - len(raws)} of {len(values)} samples are not valid "
+                        "configs; narrow the distributions (a smaller normal relative std, or uniform bounds "
+                        "inside the allowed values)")
     if problems:
         raise ConfigError(problems)
     return raws, texts, largest
@@ -240,7 +245,22 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     previous = store.check_folder(out, kind, base.raw, base.source)
     hash_ = store.config_hash(base.raw)
     notes: list[str] = []
+    created = not out.exists()
+    try:
+        return _in_folder(kind, base, paths, values, out, raws, texts, per_point, previous, hash_, notes,
+                          start, backend=backend, jobs=jobs, scheduler=scheduler, progress=progress,
+                          timeout_s=timeout_s, table_stem=table_stem, table_attrs=table_attrs,
+                          manifest_table=manifest_table, finish=finish)
+    except BackendError:
+        if previous is None:
+            store.undo_new_folder(out, created)
+        raise
 
+
+def _in_folder(kind, base, paths, values, out, raws, texts, per_point, previous, hash_, notes, start, *,
+               backend, jobs, scheduler, progress, timeout_s, table_stem, table_attrs, manifest_table,
+               finish) -> SweepResult:
+    """run_points, once the folder may be used: lock it, find what is done, run the rest, write the table."""
     (out / store.POINTS).mkdir(parents=True, exist_ok=True)
     with store.folder_lock(out):
         store.remove_stale_parts(out)
