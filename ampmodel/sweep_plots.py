@@ -32,16 +32,24 @@ DPI = 110
 CMAP_LINES = "viridis"
 CMAP_MAP = "inferno"
 WARN_COLOUR = "#d62728"
-NOT_PLOTTED = ("energy_balance_error", "warning_count")   # a numerical check and a count: in the table only
-OVERVIEW = ("output_energy_J", "extraction_efficiency", "peak_fluence_J_cm2", "b_integral_rad")
+# Numerical checks and counts of the solver: in the table, not plotted.
+NOT_PLOTTED = ("energy_balance_error", "power_balance_error", "photon_balance_error", "cw_residual",
+               "cw_iterations", "cw_damping_final", "warning_count")
+# The overview's four panels: the first figure of each group that the summaries hold (pulsed, cw).
+OVERVIEW = (("output_energy_J", "output_power_W"), ("extraction_efficiency", "optical_efficiency"),
+            ("peak_fluence_J_cm2", "peak_intensity_W_cm2"), ("b_integral_rad",))
 
 LABELS = {
     "input_energy_J": "input energy (inside the grid)", "output_energy_J": "output energy",
-    "gain": "energy gain (output / input)", "stored_energy_J": "stored energy before the pulse",
+    "gain": "gain (output / input)", "stored_energy_J": "stored energy before the pulse",
     "stored_energy_final_J": "stored energy after the pulse", "extracted_energy_J": "extracted energy",
     "extraction_efficiency": "extraction efficiency", "lost_energy_J": "energy lost (clipping, passive loss)",
     "peak_fluence_J_cm2": "peak fluence", "peak_intensity_W_cm2": "peak intensity",
     "b_integral_rad": "B-integral", "pulse_duration_ns": "seed pulse duration", "time_slice_ns": "time slice",
+    "input_power_W": "input power (inside the grid)", "output_power_W": "output power",
+    "extracted_power_W": "extracted power", "lost_power_W": "power lost (clipping, passive loss)",
+    "absorbed_pump_power_W": "absorbed pump power", "pump_power_W": "pump power",
+    "optical_efficiency": "optical efficiency (extracted / pump)",
     "small_signal_gain": "small-signal gain G0", "loss_per_cm": "passive loss",
 }
 _PRETTY_UNITS = {"J/cm^2": "J/cm²", "W/cm^2": "W/cm²", "cm^2": "cm²", "m^2/W": "m²/W", "1/m^3": "1/m³",
@@ -198,8 +206,8 @@ def _scalar_view(key: str, data: Sequence[float]) -> tuple[np.ndarray, str, floa
     """Values of a summary scalar as plotted, the axis label, and the factor (plotted = value * factor)."""
     unit = unit_of(key)
     y = np.asarray(data, dtype=float)
-    if key == "extraction_efficiency":
-        return 100 * y, "extraction efficiency (%)", 100.0
+    if key in ("extraction_efficiency", "optical_efficiency"):
+        return 100 * y, f"{_human(key)} (%)", 100.0
     factor, shown = scale_for(unit, y.tolist())
     return y / factor, axis_label(_human(key), shown), 1.0 / factor
 
@@ -322,11 +330,12 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
         fig.suptitle(f"{_human(key)} against {' and '.join([x_path] + others) if combine != 'zip' else x_path}"
                      f"{along}", fontsize=10)
         written.append(_save(fig, folder / f"{key}.png"))
-    panels = [k for k in OVERVIEW if k in views]
+    panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
     if len(panels) >= 2:
-        fig = _figure(11.0, 7.6)
+        rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
+        fig = _figure(11.0 if cols == 2 else 5.2 * cols, 3.8 * rows + 0.4)
         for n, key in enumerate(panels):
-            ax = fig.add_subplot(2, 2, n + 1)
+            ax = fig.add_subplot(rows, cols, n + 1)
             shown, label, _ = views[key]
             _curves(ax, key, axes[x_path], groups, values, shown, warned)
             ax.set_ylabel(label)

@@ -7,9 +7,12 @@ from typing import Any, Sequence
 from .config_schema import show
 
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
-TABLE_KEYS = ("output_energy_J", "gain", "extraction_efficiency", "peak_fluence_J_cm2", "b_integral_rad")
+TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
+              "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad")
 MAX_ROWS = 40
-QUIET_FIGURES = ("energy_balance_error",)   # a numerical check: in the files, not in the terminal table
+# Numerical checks of the solver: in the files, not in the terminal table of a tolerance run.
+QUIET_FIGURES = ("energy_balance_error", "power_balance_error", "photon_balance_error", "cw_residual",
+                 "cw_iterations", "cw_damping_final")
 
 
 def _num(v: Any) -> str:
@@ -80,6 +83,8 @@ def print_sweep(result, quiet: bool = False) -> int:
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:
         keys = [k for k in TABLE_KEYS if k in scalar_keys(result.summaries)]
+        if "peak_fluence_J_cm2" in keys:        # pulsed: the fluence is the figure to watch
+            keys.remove("peak_intensity_W_cm2")
         rows = [[f"{i:04d}"] + [_num(v[p]) for p in result.paths] +
                 [_num(s.get(k)) if s else "FAILED" for k in keys] + [str(len(s["warnings"])) if s else "-"]
                 for i, (v, s) in enumerate(zip(result.values, result.summaries))]
@@ -136,7 +141,8 @@ def print_sizing(result) -> int:
     if result.summary is not None:
         s = result.summary
         print(f"figures at {result.vary} = {result.value:.10g}:")
-        for k in ("input_energy_J", "output_energy_J", "gain", "extraction_efficiency", "stored_energy_J",
+        for k in ("input_energy_J", "output_energy_J", "input_power_W", "output_power_W", "gain",
+                  "extraction_efficiency", "stored_energy_J", "optical_efficiency", "absorbed_pump_power_W",
                   "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad"):
             if k in s:
                 print(f"  {k} = {s[k]:.6g}")
