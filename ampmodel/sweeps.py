@@ -246,56 +246,49 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     hash_ = store.config_hash(base.raw)
     notes: list[str] = []
     created = not out.exists()
+    (out / store.POINTS).mkdir(parents=True, exist_ok=True)
     try:
-        return _in_folder(kind, base, paths, values, out, raws, texts, per_point, previous, hash_, notes,
-                          start, backend=backend, jobs=jobs, scheduler=scheduler, progress=progress,
-                          timeout_s=timeout_s, table_stem=table_stem, table_attrs=table_attrs,
-                          manifest_table=manifest_table, finish=finish)
+        with store.folder_lock(out):
+            store.remove_stale_parts(out)
+            store.write_manifest(out, kind, base.raw, base.source, manifest_table, len(values), previous)
+            summaries: list[dict | None] = [None] * len(values)
+            todo: list[int] = []
+            for i, v in enumerate(values):
+                path = store.point_path(out, i)
+                found = store.read_point(path) if path.exists() else None
+                if found and found["config_hash"] == hash_ and found["values"] == store.values_key(v):
+                    summaries[i] = found["summary"]
+                else:
+                    if path.exists():
+                        path.unlink()     # partial, or made for other values: computed again
+                    todo.append(i)
+            pending = set(todo)
+            reused = [i for i in range(len(values)) if i not in pending]
+            # absolute paths: workers on other machines have working directories of their own
+            tasks = [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
+                               store.point_attrs(kind, i, values[i], hash_)) for i in todo]
+            failed: dict[int, str] = {}
+            seconds: dict[int, float] = {}
+            used = 0
+            if tasks:
+                used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
+                            progress, timeout_s, len(values), len(reused), kind, notes)
+            done = [s is not None for s in summaries]
+            columns = store.table_columns(paths, list(values), summaries)
+            attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
+                     "paths": json.dumps(paths), **(table_attrs or {})}
+            h5, csv = store.write_table(out, table_stem, kind, columns, done, attrs)
+            result = SweepResult(out=out, kind=kind, paths=list(paths), values=[dict(v) for v in values],
+                                 summaries=summaries, computed=[i for i in todo if i not in failed],
+                                 reused=reused, failed=failed, table_h5=h5, table_csv=csv,
+                                 seconds=time.perf_counter() - start, jobs=used, backend=backend,
+                                 point_seconds=seconds, notes=notes)
+            if finish is not None:
+                finish(result)
     except BackendError:
-        if previous is None:
+        if previous is None:      # a new folder that the cluster never wrote into: leave nothing behind
             store.undo_new_folder(out, created)
         raise
-
-
-def _in_folder(kind, base, paths, values, out, raws, texts, per_point, previous, hash_, notes, start, *,
-               backend, jobs, scheduler, progress, timeout_s, table_stem, table_attrs, manifest_table,
-               finish) -> SweepResult:
-    """run_points, once the folder may be used: lock it, find what is done, run the rest, write the table."""
-    (out / store.POINTS).mkdir(parents=True, exist_ok=True)
-    with store.folder_lock(out):
-        store.remove_stale_parts(out)
-        store.write_manifest(out, kind, base.raw, base.source, manifest_table, len(values), previous)
-        summaries: list[dict | None] = [None] * len(values)
-        todo: list[int] = []
-        for i, v in enumerate(values):
-            path = store.point_path(out, i)
-            found = store.read_point(path) if path.exists() else None
-            if found and found["config_hash"] == hash_ and found["values"] == store.values_key(v):
-                summaries[i] = found["summary"]
-            else:
-                if path.exists():
-                    path.unlink()     # partial, or made for other values: computed again
-                todo.append(i)
-        reused = [i for i in range(len(values)) if i not in set(todo)]
-        tasks = [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out, i)),
-                           store.point_attrs(kind, i, values[i], hash_)) for i in todo]
-        failed: dict[int, str] = {}
-        seconds: dict[int, float] = {}
-        used = 0
-        if tasks:
-            used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out, progress,
-                        timeout_s, len(values), len(reused), kind, notes)
-        done = [s is not None for s in summaries]
-        columns = store.table_columns(paths, list(values), summaries)
-        attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
-                 "paths": json.dumps(paths), **(table_attrs or {})}
-        h5, csv = store.write_table(out, table_stem, kind, columns, done, attrs)
-        result = SweepResult(out=out, kind=kind, paths=list(paths), values=[dict(v) for v in values],
-                             summaries=summaries, computed=[i for i in todo if i not in failed], reused=reused,
-                             failed=failed, table_h5=h5, table_csv=csv, seconds=time.perf_counter() - start,
-                             jobs=used, backend=backend, point_seconds=seconds, notes=notes)
-        if finish is not None:
-            finish(result)
     return result
 
 
@@ -310,7 +303,7 @@ def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, b
         if backend == "dask":
             workers = min(jobs or cores(), len(tasks))
             with Cluster(scheduler, workers, timeout_s) as cluster:
-                answers = preflight(cluster.client, out / store.POINTS, timeout_s)
+                answers = preflight(cluster.client, out.absolute() / store.POINTS, timeout_s)
                 n = len(answers)
                 bar.set_postfix_str(f"{n} dask workers")
                 for outcome in run_tasks(run_point, tasks, "dask", client=cluster.client):
