@@ -221,7 +221,7 @@ def _curves(ax, key: str, x_axis: _Axis, groups: list[tuple[str, list[int]]], va
         colour = cmap(0.85 * g / max(1, len(groups) - 1)) if len(groups) > 1 else "#1f5fa8"
         idx = sorted(idx, key=lambda i: x_axis.position(values[i][x_axis.path]))
         xs = [x_axis.position(values[i][x_axis.path]) for i in idx]
-        ax.plot(xs, y[idx], "-o", color=colour, ms=4.5, lw=1.6, label=label or None)
+        ax.plot(xs, y[idx], "-o" if x_axis.numeric else ":o", color=colour, ms=4.5, lw=1.6, label=label or None)
         bad = [k for k, i in enumerate(idx) if warned[i]]
         if bad:
             ax.plot([xs[k] for k in bad], y[[idx[k] for k in bad]], "o", ms=11, mfc="none", mec=WARN_COLOUR,
@@ -275,7 +275,7 @@ def _choose_x(paths: Sequence[str], axes: Mapping[str, _Axis], combine: str) -> 
     """The path on the x axis: the first (zip), else the one with the most distinct values."""
     if combine == "zip":
         return paths[0]
-    return max(paths, key=lambda p: (len(axes[p].levels), -list(paths).index(p)))
+    return max(paths, key=lambda p: (axes[p].numeric, len(axes[p].levels), -list(paths).index(p)))
 
 
 def _varying(key: str, summaries: Sequence[Mapping | None]) -> np.ndarray | None:
@@ -307,7 +307,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
     groups = _groups(paths, values, x_path, axes, combine)
     warned = np.array([bool(s and s.get("warnings")) for s in summaries])
     two_grid = combine == "grid" and len(paths) == 2
-    along = f" ({', '.join(others)} varying with it)" if combine == "zip" and others else ""
+    along = f" ({_listing(others)} varying with it)" if combine == "zip" and others else ""
     written: list[Path] = []
     views: dict[str, tuple[np.ndarray, str, float]] = {}
     for key in scalar_keys(summaries):
@@ -318,7 +318,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
             continue
         views[key] = _scalar_view(key, y)
         shown, label, _ = views[key]
-        fig = _figure(11.0 if two_grid else 6.6, 4.4)
+        fig = _figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
         ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
         _curves(ax, key, axes[x_path], groups, values, shown, warned)
         ax.set_ylabel(label)
@@ -327,13 +327,14 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
         _legend(ax, groups, warned, axes, others, combine)
         if two_grid:
             _map(fig, fig.add_subplot(1, 2, 2), key, axes[x_path], axes[others[0]], values, shown, label)
-        fig.suptitle(f"{_human(key)} against {' and '.join([x_path] + others) if combine != 'zip' else x_path}"
+        fig.suptitle(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
                      f"{along}", fontsize=10)
         written.append(_save(fig, folder / f"{key}.png"))
     panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
     if len(panels) >= 2:
         rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
-        fig = _figure(11.0 if cols == 2 else 5.2 * cols, 3.8 * rows + 0.4)
+        beside = 3.2 if len(groups) > 3 else 0.0       # a long legend goes beside the panels
+        fig = _figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
         for n, key in enumerate(panels):
             ax = fig.add_subplot(rows, cols, n + 1)
             shown, label, _ = views[key]
@@ -342,14 +343,20 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
             if _log_axis(shown.tolist(), 100.0):
                 ax.set_yscale("log")
             if n == 0:
-                _legend(ax, groups, warned, axes, others, combine)
+                _legend(ax, groups, warned, axes, others, combine, figure=fig)
         title = next((s.get("title") for s in summaries if s and s.get("title")), result.out.name)
         fig.suptitle(f"{title}: sweep overview{along}", fontsize=10)
         written.append(_save(fig, folder / "overview.png"))
     return written
 
 
-def _legend(ax, groups, warned, axes, others, combine) -> None:
+def _listing(names: Sequence[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _legend(ax, groups, warned, axes, others, combine, figure=None) -> None:
+    """The curves' legend (and the warning ring): in the axes when short, beside them when long (for
+    the whole figure when ``figure`` is given)."""
     from matplotlib.lines import Line2D
     handles, labels = ax.get_legend_handles_labels()
     keep = [(h, lb) for h, lb in zip(handles, labels) if lb != "_warn"]
@@ -362,8 +369,14 @@ def _legend(ax, groups, warned, axes, others, combine) -> None:
         return
     title = axis_label(path_label(others[0]), axes[others[0]].unit) if len(others) == 1 and combine == "grid" \
         and len(groups) > 1 else None
-    ax.legend([h for h, _ in keep], [lb for _, lb in keep], title=title, fontsize=8, title_fontsize=8,
-              frameon=False)
+    args = ([h for h, _ in keep], [lb for _, lb in keep])
+    style = dict(title=title, fontsize=8, title_fontsize=8, frameon=False)
+    if len(keep) <= 4:
+        ax.legend(*args, **style)
+    elif figure is not None:
+        figure.legend(*args, loc="outside right upper", **style)
+    else:
+        ax.legend(*args, loc="upper left", bbox_to_anchor=(1.01, 1.0), **style)
 
 
 def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
