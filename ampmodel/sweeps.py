@@ -419,15 +419,23 @@ BENCH_CONFIG: dict[str, Any] = {
 """A config whose points take about a second each on one core (96 x 96 x 32 x 2 x 24 cells)."""
 
 
+def _warm_up(_: Any) -> str:
+    """A task that makes a worker import what a point needs (for time_sweep(warm=True))."""
+    from .backends import probe_import
+    return probe_import()["where"]
+
+
 def time_sweep(config: str | os.PathLike | Mapping | Config | None = None, points: int = 8,
                workers: Sequence[int] = (1, 2), path: str = "seed.energy_J", backend: str = "loky",
-               folder: str | os.PathLike | None = None) -> dict[str, Any]:
+               folder: str | os.PathLike | None = None, warm: bool = False) -> dict[str, Any]:
     """Wall time of a ``points``-point sweep on each worker count in ``workers`` (for ``ampmodel bench``).
 
     The sweep varies ``path`` over ``points`` values from half to twice the config's value; each
     worker count runs the whole sweep into a fresh folder (no resume, no plots), so the times include
     starting the worker processes, writing the point files and the table. One worker runs the points
-    in the calling process, one after another (what ``--jobs 1`` does).
+    in the calling process, one after another (what ``--jobs 1`` does). With ``warm`` (loky only), the
+    worker processes are started and have imported ampmodel before the clock starts (joblib keeps
+    them for the next sweep): the steady state of a long sweep rather than a fresh start.
 
     Returns
     -------
@@ -444,6 +452,8 @@ def time_sweep(config: str | os.PathLike | Mapping | Config | None = None, point
     point_seconds = float("nan")
     with tempfile.TemporaryDirectory(prefix="ampmodel-bench-", dir=folder) as tmp:
         for k in workers:
+            if warm and backend == "loky" and k > 1:
+                list(run_tasks(_warm_up, list(range(k)), "loky", k))
             t0 = time.perf_counter()
             r = run_points("sweep", base, [path], values, Path(tmp) / f"workers-{k}", backend=backend, jobs=k)
             seconds[k] = time.perf_counter() - t0
@@ -452,5 +462,5 @@ def time_sweep(config: str | os.PathLike | Mapping | Config | None = None, point
             if point_seconds != point_seconds:     # NaN: the first run
                 point_seconds = sum(r.point_seconds.values()) / len(r.point_seconds)
     first = seconds[workers[0]]
-    return {"points": points, "path": path, "backend": backend, "seconds": seconds,
+    return {"points": points, "path": path, "backend": backend, "warm": warm, "seconds": seconds,
             "speedup": {k: first / t for k, t in seconds.items()}, "point_seconds": point_seconds}

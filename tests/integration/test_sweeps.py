@@ -238,8 +238,8 @@ def test_default_folder_and_options(tmp_path):
 def test_time_sweep_for_the_benchmark(tmp_path):
     from ampmodel.sweeps import time_sweep
     config = write_config(tmp_path, "")
-    timing = time_sweep(config, points=3, workers=(1, 2))
-    assert timing["points"] == 3 and set(timing["seconds"]) == {1, 2}
+    timing = time_sweep(config, points=3, workers=(1, 2), warm=True)
+    assert timing["points"] == 3 and set(timing["seconds"]) == {1, 2} and timing["warm"]
     assert timing["speedup"][1] == 1.0 and timing["speedup"][2] > 0
     assert timing["point_seconds"] > 0
 
