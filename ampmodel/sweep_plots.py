@@ -344,8 +344,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
                 ax.set_yscale("log")
             if n == 0:
                 _legend(ax, groups, warned, axes, others, combine, figure=fig)
-        title = next((s.get("title") for s in summaries if s and s.get("title")), result.out.name)
-        fig.suptitle(f"{title}: sweep overview{along}", fontsize=10)
+        fig.suptitle(f"{result.title or result.out.name}: sweep overview{along}", fontsize=10)
         written.append(_save(fig, folder / "overview.png"))
     return written
 

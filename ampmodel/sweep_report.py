@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import re
+import sys
 from typing import Any, Sequence
 
 from .config_schema import show
@@ -55,6 +56,11 @@ def _warnings_and_failures(result, label: str) -> None:
                   f": {t if len(t) < 200 else t[:197] + '...'}")
     for i, err in sorted(result.failed.items()):
         print(f"{label} {i:04d} FAILED ({_describe_values(result.values[i])}): {err.splitlines()[0]}")
+    internal = [(i, err) for i, err in sorted(result.failed.items()) if "Traceback" in err]
+    if internal:
+        i, err = internal[0]
+        print(f"details of the first internal failure ({label} {i:04d}; please report it with the config):\n"
+              f"{err}", file=sys.stderr)
 
 
 def _describe_values(values: dict) -> str:
@@ -78,8 +84,7 @@ def _head(result, label: str) -> None:
 def print_sweep(result, quiet: bool = False) -> int:
     """Print a sweep's outcome: counts, a table of the points (up to 40), warnings, files."""
     from .sweep_store import scalar_keys
-    title = next((s.get("title") for s in result.summaries if s), "")
-    print(f"ampmodel sweep: {title}")
+    print(f"ampmodel sweep: {result.title}")
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:
         keys = [k for k in TABLE_KEYS if k in scalar_keys(result.summaries)]
@@ -109,8 +114,7 @@ def _files(result, extra: Sequence[str] = ()) -> None:
 
 def print_spread(result, quiet: bool = False) -> int:
     """Print a tolerance run's outcome: counts, the percentile table, warnings, files."""
-    title = next((s.get("title") for s in result.summaries if s), "")
-    print(f"ampmodel spread: {title}")
+    print(f"ampmodel spread: {result.title}")
     _head(result, "sample")
     print(f"distributions (random_seed {result.random_seed}): " +
           "; ".join(f"{p}: {_dist(d)}" for p, d in result.distributions.items()))

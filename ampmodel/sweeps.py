@@ -110,9 +110,12 @@ def run_point(task: PointTask) -> PointOutcome:
         write_hdf5(result, Path(task.path), attrs=task.attrs)
         return PointOutcome(task.index, result.summary, time.perf_counter() - start, None, where())
     except Exception as exc:   # noqa: BLE001 - reported by the parent, point by point
-        detail = "".join(traceback.format_exception_only(type(exc), exc)).strip()
-        return PointOutcome(task.index, None, time.perf_counter() - start,
-                            f"{detail}\n{traceback.format_exc()}", where())
+        if isinstance(exc, ConfigError):          # e.g. a cw iteration that does not converge here
+            error = "; ".join(line.replace("<dict>: ", f"{task.source}: ", 1) for line in exc.problems)
+        else:                                     # an internal failure: keep the traceback for a report
+            detail = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            error = f"{detail}\n{traceback.format_exc()}"
+        return PointOutcome(task.index, None, time.perf_counter() - start, error, where())
 
 
 # ----------------------------------------------------------------------------------------------
@@ -123,7 +126,7 @@ def run_point(task: PointTask) -> PointOutcome:
 class SweepResult:
     """What a sweep (or a tolerance run) produced.
 
-    out : the output folder; kind : "sweep" or "spread"
+    out : the output folder; kind : "sweep" or "spread"; title : the config's title
     paths : the value paths; values : one {path: value} per point (config units)
     summaries : one summary.json dict per point (None for a point that failed)
     computed : indices computed by this start; reused : indices found done in the folder
@@ -134,6 +137,7 @@ class SweepResult:
 
     out: Path
     kind: str
+    title: str
     paths: list[str]
     values: list[dict[str, Any]]
     summaries: list[dict | None]
@@ -278,7 +282,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
             attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
                      "paths": json.dumps(paths), **(table_attrs or {})}
             h5, csv = store.write_table(out, table_stem, kind, columns, done, attrs)
-            result = SweepResult(out=out, kind=kind, paths=list(paths), values=[dict(v) for v in values],
+            result = SweepResult(out=out, kind=kind, title=base.title, paths=list(paths), values=[dict(v) for v in values],
                                  summaries=summaries, computed=[i for i in todo if i not in failed],
                                  reused=reused, failed=failed, table_h5=h5, table_csv=csv,
                                  seconds=time.perf_counter() - start, jobs=used, backend=backend,

@@ -348,3 +348,23 @@ def test_a_cw_sweep_runs_through_the_same_machinery(tmp_path):
         assert f["summary/output_power_W"].attrs["units"] == "W"
     assert (tmp_path / "cw" / "plots" / "output_power_W.png").is_file()
     assert not (tmp_path / "cw" / "plots" / "cw_residual.png").exists()       # a solver check: table only
+
+
+def test_a_failed_point_is_listed_kept_out_of_the_table_and_retried(tmp_path):
+    config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
+    if not config.exists():
+        pytest.skip("no cw example config")
+    sets = ["--set", "grid.points=16", "--set", 'sweep."solver.max_iterations"=[2, 1000]']
+    out = tmp_path / "out"
+    proc = ampmodel("sweep", str(config), "--out", str(out), "--jobs", "1", "--quiet", *sets, cwd=tmp_path)
+    assert proc.returncode == 1, proc.stderr
+    assert "2 points: computed 1, found 0 already done, 1 failed" in proc.stdout
+    assert "point 0000 FAILED (solver.max_iterations = 2)" in proc.stdout and "did not converge" in proc.stdout
+    assert "Traceback" not in proc.stdout + proc.stderr          # bad input of that point, not a crash
+    rows = read_csv(out / "sweep.csv")
+    assert rows[0]["point_file"] == "" and rows[0]["output_power_W"] == "nan" and rows[0]["warning_count"] == "-1"
+    assert rows[1]["point_file"] == "points/0001.h5" and float(rows[1]["output_power_W"]) > 0
+    with h5py.File(out / "sweep.h5", "r") as f:
+        assert sorted(f["points"]) == ["0001"]
+    again = api.run_sweep(config, out, jobs=1, plots=False, overrides=sets[1::2])
+    assert again.computed == [] and sorted(again.failed) == [0] and again.reused == [1]
