@@ -106,12 +106,6 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
 
     address = client.scheduler.address
     try:
-        _with_timeout(lambda: client.wait_for_workers(1, timeout=timeout_s), timeout_s + 5,
-                      f"waiting for dask workers at {address}")
-    except (BackendError, DaskTimeout, TimeoutError, OSError):
-        raise BackendError(f"the dask scheduler at {address} has no workers (waited {timeout_s:g} s); "
-                           f"start workers with `dask worker {address}`") from None
-    try:
         _with_timeout(lambda: client.run_on_scheduler(probe_import), timeout_s,
                       f"the dask scheduler at {address}")
     except BackendError as exc:
@@ -123,6 +117,12 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
                            f"install it where the scheduler runs (pip install ampmodel) or set its "
                            f"PYTHONPATH") from None
 
+    try:
+        _with_timeout(lambda: client.wait_for_workers(1, timeout=timeout_s), timeout_s + 5,
+                      f"waiting for dask workers at {address}")
+    except (BackendError, DaskTimeout, TimeoutError, OSError):
+        raise BackendError(f"the dask scheduler at {address} has no workers (waited {timeout_s:g} s); "
+                           f"start workers with `dask worker {address}`") from None
     workers = list(client.scheduler_info()["workers"])
     token = uuid.uuid4().hex[:12]
     folder.mkdir(parents=True, exist_ok=True)

@@ -309,6 +309,9 @@ def test_a_cluster_without_ampmodel_is_refused_in_time(blocked, tmp_path):
     worker = _start(tmp_path, "worker", address, "--no-nanny", "--nthreads", "1", "--host", "127.0.0.1",
                     "--no-dashboard", block=blocked == "worker")
     try:
+        import distributed
+        with distributed.Client(address, timeout=60) as client:     # both up before the clock starts
+            client.wait_for_workers(1, timeout=60)
         config = write_config(tmp_path)
         out = tmp_path / "out"
         start = time.perf_counter()
