@@ -234,9 +234,13 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         beam_fig = oc.extras.get("beam", {})
         radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
         z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
+        length = config.medium(name).length_m
         collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
-                    f"the {config.medium(name).length_m * 1e3:g} mm medium (an estimate)"
+                    f"the {length * 1e3:g} mm medium (an estimate)"
                     if np.isfinite(z_sf) and radius > 0 else "")
+        if collapse and z_sf > 10.0 * length:
+            collapse += (": whole-beam collapse is far off, and the small-scale self-focusing of beam ripples "
+                         "is what the B-integral measures")
         passes = f" ({count} passes above it)" if count > 1 else ""
         warnings.append(
             f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config, index)}, "
