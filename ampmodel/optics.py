@@ -210,14 +210,14 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     pixels = beam.field.shape[1] * beam.field.shape[2]
     field = beam.field.reshape(nt, pixels)
     mask = medium.mask.ravel()
-    inside, outside = np.flatnonzero(mask), np.flatnonzero(~mask)
+    outside = np.flatnonzero(~mask)
     rows = chunk_rows(nt, pixels)
     starts = list(range(0, nt, rows))
 
     # entering: energy and peaks, then the clipping, chunk by chunk; each slice's energy after it
     entry = np.zeros(pixels)                                 # Σ_t |E|² per pixel
     slice_energy = np.empty(nt)
-    f_work, scratch = np.empty((rows, pixels)), np.empty((rows, pixels))
+    f_work, scratch = np.empty((rows, pixels)), np.empty((rows, 2 * pixels))
     peak_i = 0.0
     for t0 in starts:
         e = field[t0:t0 + rows]
@@ -244,7 +244,8 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     n_sub = substeps(beam, dz, index, spectral_reach(beam, energies=slice_energy))
     half, full = beam.transfer(0.5 * dz / n_sub, index), beam.transfer(dz / n_sub, index)
     threads = chunks.thread_count(beam.workers)
-    works = [fs.ChunkWork(rows, pixels, inside.size) for _ in range(min(threads, len(starts)))]
+    constants = fs.slice_constants(medium.mask, fsat, half_loss, b_coef, beam.edge)
+    works = [fs.ChunkWork(rows, pixels, constants.inside.size) for _ in range(min(threads, len(starts)))]
     plane = np.zeros((nz, pixels))                           # Σ_t of the fluence leaving each gain step
     sums = np.zeros((len(starts), nz, 5))                    # ChunkSums of each chunk and z-slice
     final = np.zeros(len(starts))                            # Σ|E|² of each chunk at the exit
@@ -258,13 +259,13 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
         inc = work.b_increment[:len(e)] if kerr else None
         if j == 0 and kerr:
             inc[...] = 0.0
-        fs.propagate_chunk(e, half if j in (0, nz) else full, beam.edge, n_sub)
+        # the edge of the last sub-step before a gain step is applied by the gain step
+        fs.propagate_chunk(e, half if j in (0, nz) else full, beam.edge, n_sub, last_edge=j == nz)
         flat = e.reshape(len(e), pixels)
         if j < nz:
-            sums[c, j] = fs.gain_kerr_chunk(flat, gain_rows[order[j]], inside, outside, fsat, half_loss, b_coef,
-                                            work, plane[j], inc)
+            sums[c, j] = fs.gain_kerr_chunk(flat, gain_rows[order[j]], constants, work, plane[j], inc)
             return
-        f = fs.fluence_into(flat, work.f[:len(e)], work.acc[:len(e)])
+        f = fs.fluence_into(flat, work.f[:len(e)], work.factor[:len(e)].view(np.float64))
         final[c] = float(f.sum())
         if kerr:
             b_all[t0:t0 + len(e)] += inc

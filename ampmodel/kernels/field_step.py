@@ -51,11 +51,11 @@ class ChunkWork:
         self.v = np.empty((rows, inside))
         self.r = np.empty((rows, inside))
         self.w = np.empty((rows, inside))
-        self.z = np.empty((rows, inside), dtype=np.complex128)
         self.gain = np.empty(inside)
         self.ln_gain = np.empty(inside)
         self.one = np.empty(inside)
         self.plane = np.empty(pixels)
+        self.amp = np.empty((rows, pixels))           # the amplitude factor of the step
 
 
 class ChunkSums(NamedTuple):
@@ -74,14 +74,15 @@ class ChunkSums(NamedTuple):
 
 
 def fluence_into(e: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
-    """out = |E|² = Re² + Im² of a complex array (out and scratch real, of E's shape)."""
-    np.multiply(e.real, e.real, out=out)
-    np.multiply(e.imag, e.imag, out=scratch)
-    out += scratch
+    """out = |E|² = Re² + Im² of a complex (c, P) array (out real (c, P); scratch real (c, 2P))."""
+    parts = e.view(np.float64)
+    np.square(parts, out=scratch)
+    np.add(scratch[:, 0::2], scratch[:, 1::2], out=out)
     return out
 
 
-def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None, steps: int = 1) -> None:
+def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None, steps: int = 1,
+                    last_edge: bool = True) -> None:
     """``steps`` angular-spectrum steps of a chunk, each IFFT2[FFT2[E]·H] then the edge mask, in place.
 
     Parameters
@@ -90,12 +91,14 @@ def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None
     transfer : (Ny, Nx) complex transfer function of one step (kernels.diffraction.transfer_function)
     edge : (Ny, Nx) real amplitude mask of the absorbing window edge, or None
     steps : number of steps
+    last_edge : False leaves the edge of the last step to the caller (:func:`gain_kerr_chunk` folds it
+        into its factor)
 
     References
     ----------
     Goodman, Introduction to Fourier Optics, section 3.10 (angular spectrum propagation).
     """
-    for _ in range(steps):
+    for i in range(steps):
         out = scipy.fft.fft2(e, axes=(-2, -1), workers=1, overwrite_x=True)
         if out.ctypes.data != e.ctypes.data:          # not transformed in place: copy back
             e[...] = out
@@ -103,7 +106,7 @@ def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None
         out = scipy.fft.ifft2(e, axes=(-2, -1), workers=1, overwrite_x=True)
         if out.ctypes.data != e.ctypes.data:
             e[...] = out
-        if edge is not None:
+        if edge is not None and (last_edge or i < steps - 1):
             e *= edge
 
 
@@ -115,63 +118,109 @@ def _taylor_terms(largest: float) -> int:
     return terms
 
 
-def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: np.ndarray) -> np.ndarray:
-    """out = exp(i·phase), elementwise, into a complex array (p2, acc: real scratch of phase's shape).
+def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: np.ndarray, acc2: np.ndarray,
+                      amplitude: np.ndarray | None = None, largest: float | None = None) -> np.ndarray:
+    """out = amplitude·exp(i·phase), elementwise, into a complex array (p2, acc, acc2: real scratch of
+    phase's shape; amplitude real of that shape, or None for 1).
 
     Phases up to SMALL_PHASE: the cosine and sine from their Taylor series, cut at the first term below
-    1e-17 for the largest phase (as kernels.diffraction.amplitude_phase, exact to round-off there); larger
-    phases: numpy's cos and sin.
+    1e-17 for the largest |phase| (as kernels.diffraction.amplitude_phase, exact to round-off there);
+    larger phases: numpy's cos and sin. ``largest``: a bound on |phase| that the caller knows (else the
+    phases are searched).
     """
-    largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
-    if largest > SMALL_PHASE:
-        np.cos(phase, out=out.real)
-        np.sin(phase, out=out.imag)
-        return out
-    terms = _taylor_terms(largest)
-    if terms == 1:
-        out.real[...] = 1.0
-        out.imag[...] = phase
-        return out
-    np.multiply(phase, phase, out=p2)
-    for coefs, part, is_sin in ((_COS, out.real, False), (_SIN, out.imag, True)):
-        np.multiply(p2, coefs[terms - 1], out=acc)
-        for j in range(terms - 2, 0, -1):           # Horner: C0 + p2·(C1 + p2·(C2 + ...))
-            acc += coefs[j]
+    if largest is None:
+        largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
+    terms = _taylor_terms(largest) if largest <= SMALL_PHASE else 0
+    if terms == 0:
+        np.cos(phase, out=acc)
+        np.sin(phase, out=p2)
+        cos, sin = acc, p2
+    elif terms == 1:
+        acc[...] = 1.0
+        cos, sin = acc, phase
+    else:
+        np.multiply(phase, phase, out=p2)
+        sin = acc2
+        np.multiply(p2, _SIN[terms - 1], out=sin)
+        np.multiply(p2, _COS[terms - 1], out=acc)
+        for j in range(terms - 2, 0, -1):                   # Horner: C0 + p2·(C1 + p2·(C2 + ...))
+            acc += _COS[j]
             acc *= p2
-        if is_sin:
-            acc += coefs[0]
-            np.multiply(acc, phase, out=part)       # sin = φ·(S0 + p2·(...))
-        else:
-            np.add(acc, coefs[0], out=part)
+            sin += _SIN[j]
+            sin *= p2
+        acc += _COS[0]
+        sin += _SIN[0]
+        np.multiply(sin, phase, out=p2)                     # sin = φ·(S0 + p2·(...))
+        cos, sin = acc, p2
+    if amplitude is None:
+        out.real[...] = cos
+        out.imag[...] = sin
+    else:
+        np.multiply(cos, amplitude, out=out.real)
+        np.multiply(sin, amplitude, out=out.imag)
     return out
 
 
-def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, inside: np.ndarray, outside: np.ndarray, fsat: float,
-                    half_loss: float, b_coef: float, work: ChunkWork, plane: np.ndarray,
+class SliceConstants(NamedTuple):
+    """What the gain and Kerr step of a medium needs besides the field (made once per pass).
+
+    inside, outside : flat pixel indices inside and outside the clear aperture
+    fsat : saturation fluence (J/m²); half_loss : transmission of half a slice, exp(−α·dz/2)
+    b_coef : k0·n2·dz/dt (rad per J/m² of fluence); 0 without n2
+    edge : (P,) amplitude mask of the absorbing window edge that the step applies first (the
+        propagation before it left it out), or None
+    edge2, edge_inside : edge², edge at the inside pixels
+    amp_outside : (P,) the amplitude factor outside the aperture, edge·half_loss
+    """
+
+    inside: np.ndarray
+    outside: np.ndarray
+    fsat: float
+    half_loss: float
+    b_coef: float
+    edge: np.ndarray | None
+    edge2: np.ndarray | None
+    edge_inside: np.ndarray | None
+    amp_outside: np.ndarray
+
+
+def slice_constants(mask: np.ndarray, fsat: float, half_loss: float, b_coef: float,
+                    edge: np.ndarray | None) -> SliceConstants:
+    """SliceConstants from the clear aperture (Ny, Nx) bool and the edge mask (Ny, Nx) (or None)."""
+    flat = mask.ravel()
+    inside, outside = np.flatnonzero(flat), np.flatnonzero(~flat)
+    if edge is None:
+        return SliceConstants(inside, outside, fsat, half_loss, b_coef, None, None, None,
+                              np.full(flat.size, half_loss))
+    edge = np.ascontiguousarray(edge, dtype=float).ravel()
+    return SliceConstants(inside, outside, fsat, half_loss, b_coef, edge, edge * edge, edge[inside],
+                          edge * half_loss)
+
+
+def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work: ChunkWork, plane: np.ndarray,
                     b_increment: np.ndarray | None) -> ChunkSums:
     """The gain and Kerr step of one z-slice on a chunk of time slices, in place.
 
-    Half the passive loss, Frantz–Nodvik on |E|² of each time slice in order, half the loss: inside the
-    clear aperture (flat pixel indices ``inside``) with the gain row ``ln_gain`` depleted in place;
-    outside it (``outside``) the loss alone (no gain medium). The amplitude is scaled by
-    sqrt(J_out/J_in) and, with n2 (``b_coef`` > 0), the phase advanced by b_coef·J_mean, J_mean the
-    logarithmic mean of the entering and leaving fluence, which is also the B-integral increment.
+    First the absorbing edge (``k.edge``, if the propagation left it to this step). Then half the
+    passive loss, Frantz–Nodvik on |E|² of each time slice in order, half the loss: inside the clear
+    aperture (``k.inside``) with the gain row ``ln_gain`` depleted in place; outside it the loss alone
+    (no gain medium). The amplitude is scaled by sqrt(J_out/J_in) and, with n2 (``k.b_coef`` > 0), the
+    phase advanced by b_coef·J_mean, J_mean the logarithmic mean of the entering and leaving fluence,
+    which is also the B-integral increment. The edge, the amplitude and the phase are one factor, and
+    the field is multiplied once.
 
     Parameters
     ----------
     e : (c, P) complex128 field of the chunk's time slices (P = Ny·Nx pixels); changed in place
     ln_gain : (P,) g·dz of the gain slice, depleted in place inside the aperture
-    inside, outside : flat pixel indices inside and outside the clear aperture
-    fsat : saturation fluence (J/m²)
-    half_loss : transmission of half a slice, exp(−α·dz/2)
-    b_coef : k0·n2·dz/dt (rad per J/m²); 0 without n2
+    k : SliceConstants of the medium
     work : the thread's scratch arrays (:class:`ChunkWork`, at least c rows)
     plane : (P,) += Σ over the chunk's time slices of the fluence leaving (the peak fluence per plane)
     b_increment : (c, P) += the Kerr phase (rad), or None without n2
 
     Returns
     -------
-    ChunkSums
+    ChunkSums (the energy entering is counted after the edge)
 
     References
     ----------
@@ -180,19 +229,28 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, inside: np.ndarray, outs
     a·(r − 1)/ln r, r = b/a (kernels/fn_pass.py).
     """
     rows = e.shape[0]
+    inside, fsat, half_loss, b_coef = k.inside, k.fsat, k.half_loss, k.b_coef
     lossy = half_loss != 1.0
     loss2 = half_loss * half_loss
     kerr = b_coef > 0.0
-    f = fluence_into(e, work.f[:rows], work.acc[:rows])
+    f = fluence_into(e, work.f[:rows], work.factor[:rows].view(float))
+    if k.edge2 is not None:
+        f *= k.edge2
     row = f.sum(axis=0, out=work.plane)                    # Σ_t |E|² per pixel
     energy_in = float(row.sum())
     f_max = float(f.max()) if f.size else 0.0
     gained = passive = 0.0
+    n_in = inside.size
+    amp = None                                              # the amplitude factor, where not 1
+    if lossy or n_in or k.edge is not None:
+        amp = work.amp[:rows]
+        amp[...] = k.amp_outside
     phase = None
     if kerr:
         psi = (loss2 - 1.0) / math.log(loss2) if lossy else 1.0     # (r − 1)/ln r at r = loss²
         phase = np.multiply(f, b_coef * psi, out=work.phase[:rows])   # outside: the loss alone
-    n_in = inside.size
+    largest = f_max * psi if kerr else 0.0                  # bounds the phase, over b_coef
+    peak = f_max * loss2
     if n_in:
         x = np.take(f, inside, axis=1, out=work.x[:rows], mode="clip")
         x /= fsat
@@ -219,8 +277,10 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, inside: np.ndarray, outs
             if lossy:
                 gained, passive = oc.gained * fsat, oc.passive_loss * fsat
         ln_gain[inside] = g
+        out_sum = xo.sum(axis=0, out=work.one)
         if not lossy:
-            gained = (float(xo.sum()) - lit_in) * fsat
+            gained = (float(out_sum.sum()) - lit_in) * fsat
+        x_high = float(xo.max())
         r = work.r[:rows]                                   # J_out/J_in (0 where nothing entered)
         if lowest > 0.0:
             np.divide(xo, x, out=r)
@@ -233,38 +293,35 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, inside: np.ndarray, outs
             mean *= b_coef * fsat
             for prow, values in zip(phase, mean):
                 prow[inside] = values
+            # the logarithmic mean lies between J_in and J_out
+            largest = max(largest, max(x_high, float(x.max())) * fsat)
         np.sqrt(r, out=r)                                   # the amplitude factor inside
+        if k.edge_inside is not None:
+            r *= k.edge_inside
+        for arow, values in zip(amp, r):
+            arow[inside] = values
         if lossy:
             passive += (energy_in - lit_in * fsat) * (1.0 - loss2)
-    elif lossy:
-        passive = energy_in * (1.0 - loss2)
-    # the factor exp(i·phase) (or 1) times the amplitude: sqrt(J_out/J_in) inside, the loss outside
-    if kerr:
-        b_increment += phase
-        target = phase_factor_into(phase, work.factor[:rows], work.p2[:rows], work.acc[:rows])
-    else:
-        target = e
-    if n_in:
-        z = np.take(target, inside, axis=1, out=work.z[:rows], mode="clip")
-        z *= r
-    if lossy:
-        target *= half_loss
-    if n_in:
-        for trow, values in zip(target, z):
-            trow[inside] = values
-    if kerr:
-        e *= target
-    # what leaves: Σ_t per pixel, the total, the largest slice fluence
-    row *= loss2
-    peak = f_max * loss2
-    if n_in:
-        out_sum = xo.sum(axis=0, out=work.one)
+        # what leaves, per pixel Σ_t, and the largest slice fluence (outside: the entering times loss²)
+        row *= loss2
         out_sum *= fsat
         row[inside] = out_sum
-        peak_in = float(xo.max()) * fsat
+        peak_in = x_high * fsat
         if peak > peak_in:                                  # the largest may be outside the aperture
-            peak = float(np.take(f, outside, axis=1, mode="clip").max()) * loss2 if outside.size else 0.0
+            peak = float(np.take(f, k.outside, axis=1, mode="clip").max()) * loss2 if k.outside.size else 0.0
         peak = max(peak, peak_in)
+    else:
+        if lossy:
+            passive = energy_in * (1.0 - loss2)
+        row *= loss2
+    # one factor: amplitude·exp(i·phase)
+    if kerr:
+        b_increment += phase
+        factor = phase_factor_into(phase, work.factor[:rows], work.p2[:rows], work.acc[:rows], f, amp,
+                                   largest * b_coef)
+        e *= factor
+    elif amp is not None:
+        e *= amp
     plane += row
     return ChunkSums(energy_in, float(row.sum()), gained, passive, peak)
 
