@@ -29,10 +29,10 @@ from typing import Callable
 import numpy as np
 import scipy.fft
 
-from . import beams
+from . import beams, chunks
 from .description import Limits, Step
 from .kernels import diffraction as kd
-from .kernels import fn_pass
+from .kernels import field_step as fs
 from .layout import MediumState, StepOutcome
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
@@ -120,10 +120,11 @@ def _tail_wavenumber(power: np.ndarray, k: np.ndarray, tail: float) -> float:
     return float(np.abs(k[order][min(i, len(k) - 1)]))
 
 
-def spectral_reach(beam: FieldBeam, tail: float = SPECTRAL_TAIL) -> float:
+def spectral_reach(beam: FieldBeam, tail: float = SPECTRAL_TAIL, energies: np.ndarray | None = None) -> float:
     """Largest of |kx|, |ky| (rad/m) outside which lies less than ``tail`` of the power of the most
-    energetic time slice (one 2-D FFT)."""
-    energies = fluence_of(beam.field).sum(axis=(1, 2))
+    energetic time slice (one 2-D FFT); ``energies``: each slice's Σ|E|², if the caller has them."""
+    if energies is None:
+        energies = fluence_of(beam.field).sum(axis=(1, 2))
     t = int(np.argmax(energies))
     spec = fluence_of(scipy.fft.fft2(beam.field[t], workers=beam.workers))
     return max(_tail_wavenumber(spec.sum(axis=0), beam.kx, tail), _tail_wavenumber(spec.sum(axis=1), beam.ky, tail))
@@ -145,12 +146,19 @@ def substeps(beam: FieldBeam, length_m: float, index: float, reach: float | None
 
 def advance(beam: FieldBeam, length_m: float, index: float, steps: int = 1) -> None:
     """Propagate the whole field by ``length_m`` in index n, in ``steps`` equal angular-spectrum steps,
-    each followed by the absorbing window edge (in place)."""
+    each followed by the absorbing window edge (in place, a chunk of time slices at a time, in
+    ``beam.workers`` threads: the time slices diffract independently)."""
     transfer = beam.transfer(length_m / steps, index)
-    for _ in range(steps):
-        beam.field = kd.propagate(beam.field, transfer, beam.workers)
-        beam.field *= beam.edge
-        beam.fft_count += 2 * beam.field.shape[0]
+    beam.field = np.ascontiguousarray(beam.field)
+    nt = beam.field.shape[0]
+    rows = chunk_rows(nt, beam.field.shape[1] * beam.field.shape[2])
+    starts = list(range(0, nt, rows))
+
+    def stage(thread: int, c: int, j: int) -> None:
+        fs.propagate_chunk(beam.field[starts[c]:starts[c] + rows], transfer, beam.edge, steps)
+
+    chunks.run_chunks(len(starts), 1, stage, chunks.thread_count(beam.workers), ordered=False)
+    beam.fft_count += 2 * nt * steps
 
 
 def _peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:
@@ -169,12 +177,17 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     (in the order the beam meets them) half a diffraction step, the gain and Kerr step, half a
     diffraction step (neighbouring half steps merged).
 
-    The gain step is Frantz–Nodvik on |E|² of each time slice in order (``kernels.fn_pass``, the kernel
-    of the fluence path, inside the clear aperture, with the passive loss split around it;
-    :func:`_gain_kerr_step`); the amplitude is scaled by
-    sqrt(J_out/J_in) and the phase kept. The Kerr step adds the phase k0·n2·I·dz, I the logarithmic
-    mean of the slice's entering and leaving intensity, which is also the B-integral increment.
-    Light diffracted outside the clear aperture inside the medium travels on without gain.
+    The gain step is Frantz–Nodvik on |E|² of each time slice in order (the linear form of the fluence
+    path's kernel, inside the clear aperture, with the passive loss split around it; outside it the
+    loss alone); the amplitude is scaled by sqrt(J_out/J_in) and the phase kept. The Kerr step adds
+    the phase k0·n2·I·dz, I the logarithmic mean of the slice's entering and leaving intensity, which
+    is also the B-integral increment (kernels.field_step.gain_kerr_chunk). Light diffracted outside the
+    clear aperture inside the medium travels on without gain.
+
+    The time slices go through the medium a chunk at a time (:func:`chunk_rows` slices, which stay in
+    the processor cache through the transforms and the gain step), in ``beam.workers`` threads as a
+    wavefront (ampmodel/chunks.py): a chunk meets each z-slice after the chunk before it has left it,
+    so the gain is depleted in time order, as by the whole field slice after slice.
 
     Parameters
     ----------
@@ -182,7 +195,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     medium : MediumState; its ln G is depleted in place
     index : the medium's refractive index n (diffraction in the medium: k = 2π·n/λ0)
     reverse : traverse the slices from the far end
-    tick : called after each z-slice (progress)
+    tick : called after each z-slice's worth of work (progress)
 
     References
     ----------
@@ -190,123 +203,113 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     Nonlinear Fiber Optics, section 2.4 (split-step Fourier method).
     """
     area = beam.pixel_area_m2
-    fluence = fluence_of(beam.field)
-    e_in = float(fluence.sum() * area)
-    outside = ~medium.mask
-    clipped = float(fluence[:, outside].sum() * area)
-    beam.field[:, outside] = 0.0
+    beam.field = np.ascontiguousarray(beam.field)            # chunks below are views into it
+    beam.b_integral = np.ascontiguousarray(beam.b_integral)
+    medium.ln_gain = np.ascontiguousarray(medium.ln_gain)
+    nt = beam.field.shape[0]
+    pixels = beam.field.shape[1] * beam.field.shape[2]
+    field = beam.field.reshape(nt, pixels)
+    mask = medium.mask.ravel()
+    outside = np.flatnonzero(~mask)
+    rows = chunk_rows(nt, pixels)
+    starts = list(range(0, nt, rows))
+
+    # entering: energy and peaks, then the clipping, chunk by chunk; each slice's energy after it
+    entry = np.zeros(pixels)                                 # Σ_t |E|² per pixel
+    slice_energy = np.empty(nt)
+    f_work, scratch = np.empty((rows, pixels)), np.empty((rows, 2 * pixels))
+    peak_i = 0.0
+    for t0 in starts:
+        e = field[t0:t0 + rows]
+        f = fs.fluence_into(e, f_work[:len(e)], scratch[:len(e)])
+        entry += f.sum(axis=0)
+        peak_i = max(peak_i, float(f.max()) if f.size else 0.0)
+        if outside.size:
+            np.copyto(e, 0.0, where=~mask)
+            np.copyto(f, 0.0, where=~mask)
+        f.sum(axis=1, out=slice_energy[t0:t0 + len(e)])
+    del f_work, scratch
+    e_in = float(entry.sum())
+    clipped = float(entry[outside].sum())
+    peak_f = float(entry.max()) if entry.size else 0.0
+
     fsat = medium.saturation_fluence_J_m2
     dz = medium.slice_length_m
     half_loss = float(np.exp(-0.5 * medium.loss_per_m * dz))
     b_coef = 2.0 * np.pi / beam.wavelength_m * medium.n2_m2_W * dz / beam.dt_s
-    b_start = beam.b_integral.copy() if b_coef > 0.0 else None
+    kerr = b_coef > 0.0
     nz = medium.ln_gain.shape[0]
-    order = range(nz - 1, -1, -1) if reverse else range(nz)
-    n_sub = substeps(beam, dz, index)
-    energy = e_in / area - clipped / area                   # what entered, less what the aperture took
-    peak_f, peak_i = _peaks(fluence, beam.dt_s)
-    gained = passive = edge_lost = 0.0
-    inside = np.flatnonzero(medium.mask.ravel())
-    for j, k in enumerate(order):
-        length = 0.5 * dz if j == 0 else dz
-        advance(beam, length, index, n_sub)
-        step = _gain_kerr_step(beam, medium.ln_gain[k], inside, fsat, half_loss, b_coef)
-        edge_lost += energy - step.energy_in
-        energy = step.energy_out
-        gained += step.gained
-        passive += step.passive
-        peak_f, peak_i = max(peak_f, step.peak_fluence), max(peak_i, step.peak_intensity)
-        if tick is not None:
-            tick()
-    advance(beam, 0.5 * dz, index, n_sub)
-    fluence = fluence_of(beam.field)
-    edge_lost += energy - float(fluence.sum())
-    b_step = float((beam.b_integral - b_start).max()) if b_start is not None else 0.0
-    return StepOutcome(e_in, float(fluence.sum() * area), clipped_J=clipped, passive_loss_J=passive * area,
-                       extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
-                       b_integral_step_rad=b_step,
+    order = list(range(nz - 1, -1, -1)) if reverse else list(range(nz))
+    gain_rows = medium.ln_gain.reshape(nz, pixels)
+    n_sub = substeps(beam, dz, index, spectral_reach(beam, energies=slice_energy))
+    half, full = beam.transfer(0.5 * dz / n_sub, index), beam.transfer(dz / n_sub, index)
+    threads = chunks.thread_count(beam.workers)
+    constants = fs.slice_constants(medium.mask, fsat, half_loss, b_coef, beam.edge)
+    works = [fs.ChunkWork(rows, pixels, constants.inside.size) for _ in range(min(threads, len(starts)))]
+    plane = np.zeros((nz, pixels))                           # Σ_t of the fluence leaving each gain step
+    sums = np.zeros((len(starts), nz, 5))                    # ChunkSums of each chunk and z-slice
+    final = np.zeros(len(starts))                            # Σ|E|² of each chunk at the exit
+    b_step = np.zeros(len(starts))
+    b_all = beam.b_integral.reshape(nt, pixels)
+
+    def stage(thread: int, c: int, j: int) -> None:
+        t0 = starts[c]
+        e = beam.field[t0:t0 + rows]
+        work = works[thread]
+        inc = work.b_increment[:len(e)] if kerr else None
+        if j == 0 and kerr:
+            inc[...] = 0.0
+        # the edge of the last sub-step before a gain step is applied by the gain step
+        fs.propagate_chunk(e, half if j in (0, nz) else full, beam.edge, n_sub, last_edge=j == nz)
+        flat = e.reshape(len(e), pixels)
+        if j < nz:
+            sums[c, j] = fs.gain_kerr_chunk(flat, gain_rows[order[j]], constants, work, plane[j], inc)
+            return
+        f = fs.fluence_into(flat, work.f[:len(e)], work.factor[:len(e)].view(np.float64))
+        final[c] = float(f.sum())
+        if kerr:
+            b_all[t0:t0 + len(e)] += inc
+            b_step[c] = float(inc.max()) if inc.size else 0.0
+
+    done = [0]
+
+    def progress(j: int) -> None:                            # a z-slice's worth: every chunk through one
+        if j < nz:
+            done[0] += 1
+            if done[0] % len(starts) == 0:
+                tick()
+
+    chunks.run_chunks(len(starts), nz + 1, stage, threads, ordered=True,
+                      after_stage=progress if tick is not None else None)
+    beam.fft_count += 2 * nt * n_sub * (nz + 1)
+
+    edge_lost = gained = passive = 0.0
+    for c, t0 in enumerate(starts):                         # in order: the same sums whatever the threads
+        energy = float(slice_energy[t0:t0 + rows].sum())
+        for j in range(nz):
+            s_in, s_out, s_gained, s_passive, s_peak = sums[c, j]
+            edge_lost += energy - s_in
+            energy = s_out
+            gained += s_gained
+            passive += s_passive
+            peak_i = max(peak_i, s_peak)
+        edge_lost += energy - final[c]
+    if nz:
+        peak_f = max(peak_f, float(plane.max()) if plane.size else 0.0)
+    return StepOutcome(e_in * area, float(final.sum()) * area, clipped_J=clipped * area,
+                       passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
+                       peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
                        extras={"edge_absorbed_J": edge_lost * area, "substeps": n_sub})
 
 
-# Time slices per chunk of the gain and Kerr step: about this many pixel values at once, so that the
-# step's temporaries stay in the processor cache (DEVELOPERS.md, speed and memory).
-CHUNK_VALUES = 65536
+# Time slices per chunk of the field path: about this many pixel values, so that a chunk (16 bytes a
+# value) and the gain step's scratch stay in the processor cache (DEVELOPERS.md, speed and memory).
+CHUNK_VALUES = 32768
 
 
-@dataclass
-class _StepSums:
-    energy_in: float          # Σ |E|² entering the step (J/m² summed over pixels and time slices)
-    energy_out: float         # Σ of the fluence leaving it
-    gained: float
-    passive: float
-    peak_fluence: float       # J/m²
-    peak_intensity: float     # W/m²
-
-
-def _gain_kerr_step(beam: FieldBeam, ln_gain: np.ndarray, inside: np.ndarray, fsat: float, half_loss: float,
-                    b_coef: float) -> _StepSums:
-    """The gain and Kerr step of one z-slice on the field, in place, a few time slices at a time.
-
-    Half the passive loss, Frantz–Nodvik on |E|² of each time slice in order, half the loss: inside
-    the clear aperture (``inside``, flat pixel indices) by kernels.fn_pass (the fluence path's kernel,
-    its gain row ``ln_gain`` (Ny, Nx) depleted in place), outside it the loss alone (no gain medium).
-    The amplitude is scaled by sqrt(J_out/J_in) and, with n2, the phase advanced by b_coef·I_mean,
-    I_mean the logarithmic mean of the entering and leaving fluence (also the B-integral increment).
-    """
-    beam.field = np.ascontiguousarray(beam.field)          # views below write into it
-    beam.b_integral = np.ascontiguousarray(beam.b_integral)
-    field = beam.field.reshape(beam.field.shape[0], -1)
-    b_all = beam.b_integral.reshape(field.shape)
-    nt, npix = field.shape
-    chunk = max(1, CHUNK_VALUES // max(npix, 1))
-    gain_row = ln_gain.reshape(-1)
-    gain_in = gain_row[inside][None, :].copy()             # (1, C): the slice's gain in the aperture
-    loss2 = half_loss * half_loss
-    psi_out = (loss2 - 1.0) / math.log(loss2) if loss2 != 1.0 else 1.0   # (r − 1)/ln r at r = loss²
-    energy_in = energy_out = gained = passive = peak_i = 0.0
-    plane = np.zeros(npix)                                 # Σ over time slices of the fluence leaving
-    for t0 in range(0, nt, chunk):
-        e = field[t0:t0 + chunk]
-        f_in = np.square(e.real)
-        f_in += np.square(e.imag)
-        total = float(f_in.sum())
-        energy_in += total
-        f = f_in * loss2 if half_loss != 1.0 else f_in.copy()   # outside the aperture: the loss alone
-        # B-integral increment b_coef·I_mean: outside, the logarithmic mean of f_in and loss²·f_in;
-        # inside, the kernel's mean of each slice's entering and leaving fluence
-        mean = f_in * (b_coef * psi_out) if b_coef > 0.0 else None
-        if inside.size:
-            x = np.take(f_in, inside, axis=1)
-            x /= fsat
-            lit_in = float(x.sum()) * fsat
-            b_in = np.zeros_like(x) if mean is not None else None
-            oc = fn_pass.amplify_block(x, gain_in, half_loss, b_in,
-                                       linear=fn_pass.linear_form_valid(x, gain_in, half_loss))
-            x *= fsat
-            for row, values in zip(f, x):
-                row[inside] = values
-            if b_in is not None:
-                b_in *= b_coef * fsat
-                for row, values in zip(mean, b_in):
-                    row[inside] = values
-            gained += oc.gained * fsat
-            passive += oc.passive_loss * fsat + (total - lit_in) * (1.0 - loss2)
-        else:
-            passive += total * (1.0 - loss2)
-        ratio = np.zeros_like(f)
-        np.divide(f, f_in, out=ratio, where=f_in > 0.0)
-        if mean is not None:
-            b_all[t0:t0 + chunk] += mean
-            e *= kd.amplitude_phase(np.sqrt(ratio, out=ratio), mean)
-        else:
-            e *= np.sqrt(ratio, out=ratio)
-        energy_out += float(f.sum())
-        plane += f.sum(axis=0)
-        peak_i = max(peak_i, float(f.max()) if f.size else 0.0)
-    if inside.size:
-        gain_row[inside] = gain_in[0]
-    return _StepSums(energy_in, energy_out, gained, passive, float(plane.max()) if plane.size else 0.0,
-                     peak_i / beam.dt_s)
+def chunk_rows(time_slices: int, pixels: int) -> int:
+    """Time slices per chunk: CHUNK_VALUES // pixels, at least 1, at most all of them."""
+    return int(max(1, min(time_slices, CHUNK_VALUES // max(pixels, 1))))
 
 
 def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:

@@ -1,0 +1,376 @@
+"""The split-step field pass on a chunk of time slices: pure numpy/scipy, in place, single-threaded.
+
+A chunk is a few consecutive time slices of the field, ``e`` (c, Ny, Nx) complex128 (|E|² the fluence of
+each slice, J/m²), small enough that its transforms and the gain and Kerr step run in the processor
+cache. The caller (optics.pass_medium_field) takes each chunk through the medium's slices, and runs
+several chunks at once in threads; everything here writes only into the chunk, the gain row it is
+given and the scratch arrays of its :class:`ChunkWork`.
+
+* :func:`propagate_chunk`: the angular-spectrum step, FFT2, times the transfer function, inverse FFT2,
+  in the chunk's own memory, then the absorbing window edge;
+* :func:`gain_kerr_chunk`: the gain and Kerr step of one z-slice, fused: |E|² once, Frantz–Nodvik in
+  its linear form inside the clear aperture (the time slices in order, the gain row depleted in place),
+  one ratio J_out/J_in giving both the amplitude factor sqrt(J_out/J_in) and the logarithmic mean of
+  the entering and leaving fluence (the Kerr phase and the B-integral increment), the phase factor from
+  its Taylor series, one complex product.
+
+References
+----------
+Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963); J. W. Goodman, Introduction to Fourier Optics,
+section 3.10 (angular spectrum); B = (2π/λ0)·∫ n2·I dz (e.g. W. Koechner, Solid-State Laser
+Engineering) with the logarithmic mean of the intensity entering and leaving a slice.
+"""
+from __future__ import annotations
+
+import math
+from typing import NamedTuple
+
+import numpy as np
+import scipy.fft
+
+from . import fn_pass
+from .diffraction import SMALL_PHASE, _COS, _SIN
+
+_GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_accumulate)
+_NEGLIGIBLE = 1e-17       # Taylor terms of the phase factor below this are dropped
+
+
+class ChunkWork:
+    """Scratch arrays of one thread for chunks of up to ``rows`` time slices of ``pixels`` pixels, of
+    which ``inside`` lie in the clear aperture: made once per pass, reused for every chunk and slice."""
+
+    def __init__(self, rows: int, pixels: int, inside: int):
+        self.f = np.empty((rows, pixels))            # |E|² entering the step
+        self.phase = np.empty((rows, pixels))        # Kerr phase of the step (rad)
+        self.p2 = np.empty((rows, pixels))
+        self.acc = np.empty((rows, pixels))          # Taylor sums
+        self.factor = np.empty((rows, pixels), dtype=np.complex128)
+        self.b_increment = np.empty((rows, pixels))  # B-integral gathered over the pass (rad)
+        self.x = np.empty((rows, inside))            # J/Fsat entering, inside the aperture
+        self.u = np.empty((rows, inside))
+        self.v = np.empty((rows, inside))
+        self.r = np.empty((rows, inside))
+        self.w = np.empty((rows, inside))
+        self.gain = np.empty(inside)
+        self.ln_gain = np.empty(inside)
+        self.one = np.empty(inside)
+        self.plane = np.empty(pixels)
+        self.amp = np.empty((rows, pixels))           # the amplitude factor of the step
+
+
+class ChunkSums(NamedTuple):
+    """What a gain and Kerr step of one chunk adds up (fluences in J/m², summed over pixels and slices).
+
+    energy_in, energy_out : Σ|E|² entering and leaving the step
+    gained : fluence the gain added (negative where it absorbed); passive : removed by passive loss
+    peak_slice_fluence : the largest fluence of one time slice leaving the step (J/m²)
+    """
+
+    energy_in: float
+    energy_out: float
+    gained: float
+    passive: float
+    peak_slice_fluence: float
+
+
+def fluence_into(e: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
+    """out = |E|² = Re² + Im² of a complex (c, P) array (out real (c, P); scratch real (c, 2P))."""
+    parts = e.view(np.float64)
+    np.square(parts, out=scratch)
+    np.add(scratch[:, 0::2], scratch[:, 1::2], out=out)
+    return out
+
+
+def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None, steps: int = 1,
+                    last_edge: bool = True) -> None:
+    """``steps`` angular-spectrum steps of a chunk, each IFFT2[FFT2[E]·H] then the edge mask, in place.
+
+    Parameters
+    ----------
+    e : (c, Ny, Nx) complex128, C-contiguous (a slice of the field along its first axis)
+    transfer : (Ny, Nx) complex transfer function of one step (kernels.diffraction.transfer_function)
+    edge : (Ny, Nx) real amplitude mask of the absorbing window edge, or None
+    steps : number of steps
+    last_edge : False leaves the edge of the last step to the caller (:func:`gain_kerr_chunk` folds it
+        into its factor)
+
+    References
+    ----------
+    Goodman, Introduction to Fourier Optics, section 3.10 (angular spectrum propagation).
+    """
+    for i in range(steps):
+        out = scipy.fft.fft2(e, axes=(-2, -1), workers=1, overwrite_x=True)
+        if out.ctypes.data != e.ctypes.data:          # not transformed in place: copy back
+            e[...] = out
+        e *= transfer
+        out = scipy.fft.ifft2(e, axes=(-2, -1), workers=1, overwrite_x=True)
+        if out.ctypes.data != e.ctypes.data:
+            e[...] = out
+        if edge is not None and (last_edge or i < steps - 1):
+            e *= edge
+
+
+def _taylor_terms(largest: float) -> int:
+    """Terms of the cos and sin series kept for phases up to ``largest`` (kernels.diffraction.amplitude_phase)."""
+    terms = len(_COS)
+    while terms > 1 and largest ** (2 * (terms - 1)) * abs(_COS[terms - 1]) < _NEGLIGIBLE:
+        terms -= 1
+    return terms
+
+
+def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: np.ndarray, acc2: np.ndarray,
+                      amplitude: np.ndarray | None = None, largest: float | None = None) -> np.ndarray:
+    """out = amplitude·exp(i·phase), elementwise, into a complex array (p2, acc, acc2: real scratch of
+    phase's shape; amplitude real of that shape, or None for 1).
+
+    Phases up to SMALL_PHASE: the cosine and sine from their Taylor series, cut at the first term below
+    1e-17 for the largest |phase| (as kernels.diffraction.amplitude_phase, exact to round-off there);
+    larger phases: numpy's cos and sin. ``largest``: a bound on |phase| that the caller knows (else the
+    phases are searched).
+    """
+    if largest is None:
+        largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
+    terms = _taylor_terms(largest) if largest <= SMALL_PHASE else 0
+    if terms == 0:
+        np.cos(phase, out=acc)
+        np.sin(phase, out=p2)
+        cos, sin = acc, p2
+    elif terms == 1:
+        acc[...] = 1.0
+        cos, sin = acc, phase
+    else:
+        np.multiply(phase, phase, out=p2)
+        sin = acc2
+        np.multiply(p2, _SIN[terms - 1], out=sin)
+        np.multiply(p2, _COS[terms - 1], out=acc)
+        for j in range(terms - 2, 0, -1):                   # Horner: C0 + p2·(C1 + p2·(C2 + ...))
+            acc += _COS[j]
+            acc *= p2
+            sin += _SIN[j]
+            sin *= p2
+        acc += _COS[0]
+        sin += _SIN[0]
+        np.multiply(sin, phase, out=p2)                     # sin = φ·(S0 + p2·(...))
+        cos, sin = acc, p2
+    if amplitude is None:
+        out.real[...] = cos
+        out.imag[...] = sin
+    else:
+        np.multiply(cos, amplitude, out=out.real)
+        np.multiply(sin, amplitude, out=out.imag)
+    return out
+
+
+class SliceConstants(NamedTuple):
+    """What the gain and Kerr step of a medium needs besides the field (made once per pass).
+
+    inside, outside : flat pixel indices inside and outside the clear aperture
+    fsat : saturation fluence (J/m²); half_loss : transmission of half a slice, exp(−α·dz/2)
+    b_coef : k0·n2·dz/dt (rad per J/m² of fluence); 0 without n2
+    edge : (P,) amplitude mask of the absorbing window edge that the step applies first (the
+        propagation before it left it out), or None
+    edge2, edge_inside : edge², edge at the inside pixels
+    amp_outside : (P,) the amplitude factor outside the aperture, edge·half_loss
+    """
+
+    inside: np.ndarray
+    outside: np.ndarray
+    fsat: float
+    half_loss: float
+    b_coef: float
+    edge: np.ndarray | None
+    edge2: np.ndarray | None
+    edge_inside: np.ndarray | None
+    amp_outside: np.ndarray
+
+
+def slice_constants(mask: np.ndarray, fsat: float, half_loss: float, b_coef: float,
+                    edge: np.ndarray | None) -> SliceConstants:
+    """SliceConstants from the clear aperture (Ny, Nx) bool and the edge mask (Ny, Nx) (or None)."""
+    flat = mask.ravel()
+    inside, outside = np.flatnonzero(flat), np.flatnonzero(~flat)
+    if edge is None:
+        return SliceConstants(inside, outside, fsat, half_loss, b_coef, None, None, None,
+                              np.full(flat.size, half_loss))
+    edge = np.ascontiguousarray(edge, dtype=float).ravel()
+    return SliceConstants(inside, outside, fsat, half_loss, b_coef, edge, edge * edge, edge[inside],
+                          edge * half_loss)
+
+
+def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work: ChunkWork, plane: np.ndarray,
+                    b_increment: np.ndarray | None) -> ChunkSums:
+    """The gain and Kerr step of one z-slice on a chunk of time slices, in place.
+
+    First the absorbing edge (``k.edge``, if the propagation left it to this step). Then half the
+    passive loss, Frantz–Nodvik on |E|² of each time slice in order, half the loss: inside the clear
+    aperture (``k.inside``) with the gain row ``ln_gain`` depleted in place; outside it the loss alone
+    (no gain medium). The amplitude is scaled by sqrt(J_out/J_in) and, with n2 (``k.b_coef`` > 0), the
+    phase advanced by b_coef·J_mean, J_mean the logarithmic mean of the entering and leaving fluence,
+    which is also the B-integral increment. The edge, the amplitude and the phase are one factor, and
+    the field is multiplied once.
+
+    Parameters
+    ----------
+    e : (c, P) complex128 field of the chunk's time slices (P = Ny·Nx pixels); changed in place
+    ln_gain : (P,) g·dz of the gain slice, depleted in place inside the aperture
+    k : SliceConstants of the medium
+    work : the thread's scratch arrays (:class:`ChunkWork`, at least c rows)
+    plane : (P,) += Σ over the chunk's time slices of the fluence leaving (the peak fluence per plane)
+    b_increment : (c, P) += the Kerr phase (rad), or None without n2
+
+    Returns
+    -------
+    ChunkSums (the energy entering is counted after the edge)
+
+    References
+    ----------
+    Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963): the linear form u = exp(J/Fsat) − 1, u_out = G·u,
+    G <- (G + u_out)/(1 + u_out) (kernels/frantz_nodvik.py); the logarithmic mean (b − a)/ln(b/a) =
+    a·(r − 1)/ln r, r = b/a (kernels/fn_pass.py).
+    """
+    rows = e.shape[0]
+    inside, fsat, half_loss, b_coef = k.inside, k.fsat, k.half_loss, k.b_coef
+    lossy = half_loss != 1.0
+    loss2 = half_loss * half_loss
+    kerr = b_coef > 0.0
+    f = fluence_into(e, work.f[:rows], work.factor[:rows].view(float))
+    if k.edge2 is not None:
+        f *= k.edge2
+    row = f.sum(axis=0, out=work.plane)                    # Σ_t |E|² per pixel
+    energy_in = float(row.sum())
+    f_max = float(f.max()) if f.size else 0.0
+    gained = passive = 0.0
+    n_in = inside.size
+    amp = None                                              # the amplitude factor, where not 1
+    if lossy or n_in or k.edge is not None:
+        amp = work.amp[:rows]
+        amp[...] = k.amp_outside
+    phase = None
+    if kerr:
+        psi = (loss2 - 1.0) / math.log(loss2) if lossy else 1.0     # (r − 1)/ln r at r = loss²
+        phase = np.multiply(f, b_coef * psi, out=work.phase[:rows])   # outside: the loss alone
+    largest = f_max * psi if kerr else 0.0                  # bounds the phase, over b_coef
+    peak = f_max * loss2
+    if n_in:
+        x = np.take(f, inside, axis=1, out=work.x[:rows], mode="clip")
+        x /= fsat
+        lit_in = float(x.sum())
+        g = np.take(ln_gain, inside, out=work.ln_gain, mode="clip")
+        lowest = float(x.min())
+        mean = None
+        if _linear_valid(x, g, half_loss, lowest):
+            xo = _fn_linear(x, g, half_loss, work, rows)   # J_out/Fsat before the second half loss
+            d = work.u[:rows]                               # with loss: J_in·half_loss (the map's input)
+            np.subtract(xo, d if lossy else x, out=d)       # J_out − J_in of each update
+            g -= d.sum(axis=0)                              # Fsat·Δln G = −ΔJ
+            if lossy:
+                gained = float(d.sum()) * fsat
+                passive = (lit_in + float(xo.sum())) * (1.0 - half_loss) * fsat
+                xo *= half_loss
+        else:                                               # the log-domain kernel (any fluence and gain)
+            xo = work.v[:rows]
+            xo[...] = x
+            if kerr:
+                mean = work.w[:rows]
+                mean[...] = 0.0
+            oc = fn_pass.amplify_block(xo, g[None, :], half_loss, mean, linear=False)
+            if lossy:
+                gained, passive = oc.gained * fsat, oc.passive_loss * fsat
+        ln_gain[inside] = g
+        out_sum = xo.sum(axis=0, out=work.one)
+        if not lossy:
+            gained = (float(out_sum.sum()) - lit_in) * fsat
+        x_high = float(xo.max())
+        r = work.r[:rows]                                   # J_out/J_in (0 where nothing entered)
+        if lowest > 0.0:
+            np.divide(xo, x, out=r)
+        else:
+            r[...] = 0.0
+            np.divide(xo, x, out=r, where=x > 0.0)
+        if kerr:
+            if mean is None:
+                mean = _log_mean(x, r, work.u[:rows], work.w[:rows])
+            mean *= b_coef * fsat
+            for prow, values in zip(phase, mean):
+                prow[inside] = values
+            # the logarithmic mean lies between J_in and J_out
+            largest = max(largest, max(x_high, float(x.max())) * fsat)
+        np.sqrt(r, out=r)                                   # the amplitude factor inside
+        if k.edge_inside is not None:
+            r *= k.edge_inside
+        for arow, values in zip(amp, r):
+            arow[inside] = values
+        if lossy:
+            passive += (energy_in - lit_in * fsat) * (1.0 - loss2)
+        # what leaves, per pixel Σ_t, and the largest slice fluence (outside: the entering times loss²)
+        row *= loss2
+        out_sum *= fsat
+        row[inside] = out_sum
+        peak_in = x_high * fsat
+        if peak > peak_in:                                  # the largest may be outside the aperture
+            peak = float(np.take(f, k.outside, axis=1, mode="clip").max()) * loss2 if k.outside.size else 0.0
+        peak = max(peak, peak_in)
+    else:
+        if lossy:
+            passive = energy_in * (1.0 - loss2)
+        row *= loss2
+    # one factor: amplitude·exp(i·phase)
+    if kerr:
+        b_increment += phase
+        factor = phase_factor_into(phase, work.factor[:rows], work.p2[:rows], work.acc[:rows], f, amp,
+                                   largest * b_coef)
+        e *= factor
+    elif amp is not None:
+        e *= amp
+    plane += row
+    return ChunkSums(energy_in, float(row.sum()), gained, passive, peak)
+
+
+def _linear_valid(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, lowest: float) -> bool:
+    """fn_pass.linear_form_valid for one gain slice, its quick sufficient test first (every slice
+    carries fluence: the largest possible x and the smallest attenuated one stay in range)."""
+    if x.size == 0:
+        return True
+    if lowest > 0.0:
+        pos = max(float(ln_gain.max()), 0.0)
+        neg = min(float(ln_gain.min()), 0.0) + 2.0 * math.log(half_loss)
+        if x.shape[0] * float(x.max()) + pos <= fn_pass.LINEAR_MAX_EXPONENT \
+                and math.log(lowest) + neg > fn_pass.LINEAR_MIN_LOG_FLUENCE:
+            return True
+    return fn_pass.linear_form_valid(x, ln_gain[None, :], half_loss)
+
+
+def _fn_linear(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, work: ChunkWork, rows: int) -> np.ndarray:
+    """Frantz–Nodvik in the linear form, the time slices of the chunk in order, for one gain slice.
+
+    x : (c, C) J/Fsat entering; ln_gain : (C,) (not changed here: the caller books the energy).
+    Returns J_out/Fsat before the second half loss (work.v); with loss, work.u holds x·half_loss."""
+    u, v, out = work.u[:rows], work.v[:rows], work.r[:rows]
+    if half_loss != 1.0:
+        np.multiply(x, half_loss, out=u)
+        np.expm1(u, out=v)
+    else:
+        np.expm1(x, out=v)
+    gain, one = work.gain, work.one
+    np.exp(ln_gain, out=gain)
+    for t in range(rows):                                   # u_out = G·u, G <- (G + u_out)/(1 + u_out)
+        np.multiply(gain, v[t], out=out[t])
+        gain += out[t]
+        np.add(out[t], 1.0, out=one)
+        gain /= one
+    return np.log1p(out, out=v)
+
+
+def _log_mean(x: np.ndarray, r: np.ndarray, work1: np.ndarray, work2: np.ndarray) -> np.ndarray:
+    """x·(r − 1)/ln r, the logarithmic mean of x and r·x (x where r = 1, 0 where r = 0), into work2.
+
+    r − 1 and ln r come from the same rounded r (accurate to a few ulp even where r is within 1e-16
+    of 1); the guard makes r = 1 give x (fn_pass.log_mean_accumulate)."""
+    with np.errstate(divide="ignore"):
+        np.log(r, out=work1)
+    work1 += _GUARD_EQUAL
+    np.subtract(r, 1.0, out=work2)
+    work2 += _GUARD_EQUAL
+    np.divide(work2, work1, out=work2)
+    work2 *= x
+    return work2
