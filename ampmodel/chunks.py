@@ -2,12 +2,16 @@
 
 The field's time slices diffract independently of each other, but in a gain medium slice t meets a
 z-slice after slice t − 1 has left it (Frantz–Nodvik depletes the gain in time order). A pass therefore
-runs as a wavefront: chunk c (consecutive time slices) goes through the stages (the z-slices) in order,
-and stage s of chunk c starts only after stage s of chunk c − 1 is done. Thread i takes chunks i,
-i + T, i + 2T, ... (T threads), so that on two cores one chunk trails the other by a stage and both
-cores work, on the transforms and on the gain step alike. Every element sees the same operations in the
-same order whatever the number of threads, so the results do not depend on it. The numpy ufuncs and
-scipy.fft release the interpreter lock while they compute.
+runs as a wavefront: chunk c (consecutive time slices) goes through the stages (a diffraction step, a
+gain step, the next diffraction step, ...) in order, and a gain step of chunk c starts only after
+chunk c − 1 has done the same gain step. Thread i takes chunks i, i + T, i + 2T, ... (T threads). Every
+element sees the same operations in the same order whatever the number of threads, so the results do
+not depend on it.
+
+On two cores the two threads settle out of phase: one thread's gain step (many short numpy calls, which
+hold the interpreter lock between them) runs while the other thread transforms (scipy.fft releases the
+lock for the whole transform), so the gain steps do not compete for the lock as long as a gain step
+takes less time than a diffraction step.
 """
 from __future__ import annotations
 
@@ -25,14 +29,17 @@ def thread_count(workers: int) -> int:
 
 
 def run_chunks(chunks: int, stages: int, work: Callable[[int, int, int], None], threads: int,
-               ordered: bool = True, after_stage: Callable[[int], None] | None = None) -> None:
+               ordered: bool | Callable[[int], bool] = True,
+               after_stage: Callable[[int], None] | None = None) -> None:
     """Call ``work(thread, chunk, stage)`` for every chunk and stage, in ``threads`` threads.
 
-    Each chunk's stages run in order in one thread (thread i takes chunks i, i + T, ...). With
-    ``ordered``, stage s of chunk c also waits for stage s of chunk c − 1 (a wavefront); otherwise the
-    chunks are independent. ``after_stage(stage)`` is called after each, one call at a time. The first
-    exception raised by ``work`` stops the other threads at their next stage and is raised here.
+    Each chunk's stages run in order in one thread (thread i takes chunks i, i + T, ...). An ordered
+    stage s of chunk c also waits for stage s of chunk c − 1 (a wavefront); ``ordered`` says which
+    stages are (True: all, False: none, or a function of the stage). ``after_stage(stage)`` is called
+    after each, one call at a time. The first exception raised by ``work`` stops the other threads at
+    their next stage and is raised here.
     """
+    is_ordered = ordered if callable(ordered) else (lambda s: bool(ordered))
     threads = max(1, min(threads, chunks))
     if threads == 1:
         for c in range(chunks):
@@ -49,8 +56,9 @@ def run_chunks(chunks: int, stages: int, work: Callable[[int, int, int], None], 
         try:
             for c in range(i, chunks, threads):
                 for s in range(stages):
+                    wait = c > 0 and is_ordered(s)
                     with cond:
-                        while ordered and c and done[c - 1] <= s and not failed:
+                        while wait and done[c - 1] <= s and not failed:
                             cond.wait()
                         if failed:
                             return

@@ -186,8 +186,8 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
 
     The time slices go through the medium a chunk at a time (:func:`chunk_rows` slices, which stay in
     the processor cache through the transforms and the gain step), in ``beam.workers`` threads as a
-    wavefront (ampmodel/chunks.py): a chunk meets each z-slice after the chunk before it has left it,
-    so the gain is depleted in time order, as by the whole field slice after slice.
+    wavefront (ampmodel/chunks.py): a chunk's gain step in a z-slice follows the chunk before it, so the
+    gain is depleted in time order, as by the whole field slice after slice.
 
     Parameters
     ----------
@@ -252,20 +252,25 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     b_step = np.zeros(len(starts))
     b_all = beam.b_integral.reshape(nt, pixels)
 
-    def stage(thread: int, c: int, j: int) -> None:
+    def stage(thread: int, c: int, s: int) -> None:
+        """Stage 2j: the diffraction step before gain step j (or the last half step, j = nz);
+        stage 2j + 1: gain step j (the ordered one)."""
+        j = s // 2
         t0 = starts[c]
         e = beam.field[t0:t0 + rows]
         work = works[thread]
         inc = work.b_increment[:len(e)] if kerr else None
-        if j == 0 and kerr:
+        if s % 2:
+            sums[c, j] = fs.gain_kerr_chunk(e.reshape(len(e), pixels), gain_rows[order[j]], constants, work,
+                                            plane[j], inc)
+            return
+        if s == 0 and kerr:
             inc[...] = 0.0
         # the edge of the last sub-step before a gain step is applied by the gain step
         fs.propagate_chunk(e, half if j in (0, nz) else full, beam.edge, n_sub, last_edge=j == nz)
-        flat = e.reshape(len(e), pixels)
         if j < nz:
-            sums[c, j] = fs.gain_kerr_chunk(flat, gain_rows[order[j]], constants, work, plane[j], inc)
             return
-        f = fs.fluence_into(flat, work.f[:len(e)], work.factor[:len(e)].view(np.float64))
+        f = fs.fluence_into(e.reshape(len(e), pixels), work.f[:len(e)], work.factor[:len(e)].view(np.float64))
         final[c] = float(f.sum())
         if kerr:
             b_all[t0:t0 + len(e)] += inc
@@ -273,13 +278,13 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
 
     done = [0]
 
-    def progress(j: int) -> None:                            # a z-slice's worth: every chunk through one
-        if j < nz:
+    def progress(s: int) -> None:                            # a z-slice's worth: every chunk through one
+        if s % 2:
             done[0] += 1
             if done[0] % len(starts) == 0:
                 tick()
 
-    chunks.run_chunks(len(starts), nz + 1, stage, threads, ordered=True,
+    chunks.run_chunks(len(starts), 2 * nz + 1, stage, threads, ordered=lambda s: s % 2 == 1,
                       after_stage=progress if tick is not None else None)
     beam.fft_count += 2 * nt * n_sub * (nz + 1)
 
