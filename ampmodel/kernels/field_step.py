@@ -56,6 +56,7 @@ class ChunkWork:
         self.one = np.empty(inside)
         self.plane = np.empty(pixels)
         self.amp = np.empty((rows, pixels))           # the amplitude factor of the step
+        self.amp_outside = None                       # the outside values amp holds (set by a step)
 
 
 class ChunkSums(NamedTuple):
@@ -243,8 +244,10 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     n_in = inside.size
     amp = None                                              # the amplitude factor, where not 1
     if lossy or n_in or k.edge is not None:
-        amp = work.amp[:rows]
-        amp[...] = k.amp_outside
+        if work.amp_outside is not k.amp_outside:           # the outside values: once per pass
+            work.amp[...] = k.amp_outside
+            work.amp_outside = k.amp_outside
+        amp = work.amp[:rows]                               # inside values: set below, every step
     phase = None
     if kerr:
         psi = (loss2 - 1.0) / math.log(loss2) if lossy else 1.0     # (r − 1)/ln r at r = loss²
