@@ -93,8 +93,18 @@ class FieldBeam:
 
 
 def fluence_of(field: np.ndarray) -> np.ndarray:
-    """|E|² of a complex field (real array of the same shape)."""
-    return field.real ** 2 + field.imag ** 2
+    """|E|² = Re² + Im² of a complex field (real array of the same shape; a C-contiguous complex128 field
+    a few rows at a time, without whole-field temporaries)."""
+    if field.dtype != np.complex128 or field.ndim < 2 or not field.flags.c_contiguous:
+        return field.real ** 2 + field.imag ** 2
+    flat = field.reshape(-1, field.shape[-1])
+    out = np.empty(flat.shape)
+    rows = max(1, CHUNK_VALUES // flat.shape[1])
+    scratch = np.empty((min(rows, len(flat)), 2 * flat.shape[1]))
+    for r0 in range(0, len(flat), rows):
+        part = flat[r0:r0 + rows]
+        fs.fluence_into(part, out[r0:r0 + rows], scratch[:len(part)])
+    return out.reshape(field.shape)
 
 
 def start_beam(seed_field: np.ndarray, weights: np.ndarray, x_m: np.ndarray, y_m: np.ndarray, dt_s: float,
@@ -541,16 +551,17 @@ class GridCheck:
     saturated_spectrum: bool = False
 
 
-def check_grid(beam: FieldBeam, tail: float = 1e-5) -> GridCheck:
+def check_grid(beam: FieldBeam, tail: float = 1e-5, fluence: np.ndarray | None = None) -> GridCheck:
     """Measure where the beam and its angular spectrum are against the window and the sampling limit.
 
     The window figure uses the time-integrated fluence; the spectrum that of the most energetic time
     slice (one 2-D FFT). The suggested grid holds all but ``tail`` of the energy inside its clear
-    region (80 % of the window, of the sampling limit).
+    region (80 % of the window, of the sampling limit). ``fluence``: the beam's |E|², if the caller
+    has it.
     """
     n = len(beam.x_m)
     dx = float(beam.x_m[1] - beam.x_m[0])
-    f = fluence_of(beam.field)
+    f = fluence_of(beam.field) if fluence is None else fluence
     ft = f.sum(axis=0)
     px, py = ft.sum(axis=0), ft.sum(axis=1)
     half_clear = kd.CLEAR_FRACTION * beam.width_m / 2.0

@@ -210,7 +210,8 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
                 fluence_map = fluence.sum(axis=0)
                 power = fluence.sum(axis=(1, 2)) * area / dt
                 if grid.diffraction:
-                    checks.append((diagnostics.step_label(config, step.index), optics.check_grid(beam)))
+                    label = diagnostics.step_label(config, step.index)
+                    checks.append((label, optics.check_grid(beam, fluence=fluence)))
                 outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
                 outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
                 power_before = float(power.max()) if power.size else 0.0
