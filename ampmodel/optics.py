@@ -319,7 +319,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
 
 # Time slices per chunk of the field path: about this many pixel values, so that a chunk (16 bytes a
 # value) and the gain step's scratch stay in the processor cache (DEVELOPERS.md, speed and memory).
-CHUNK_VALUES = 32768
+CHUNK_VALUES = 65536
 
 
 def chunk_rows(time_slices: int, pixels: int) -> int:
