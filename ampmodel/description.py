@@ -16,7 +16,7 @@ class Grid:
     """Transverse window (square, ``points`` x ``points`` pixels) and time slicing.
 
     ``diffraction``: True carries the beam as a complex field (split-step angular spectrum);
-    ``fft_workers``: threads of each batched FFT (−1: all cores).
+    ``fft_workers``: threads of the field path, its transforms and gain steps (−1: all cores).
     """
 
     points: int = 128

@@ -318,7 +318,8 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
 
 
 # Time slices per chunk of the field path: about this many pixel values, so that a chunk (16 bytes a
-# value) and the gain step's scratch stay in the processor cache (DEVELOPERS.md, speed and memory).
+# value) and its scratch stay in the processor's cache and each numpy call of the gain step is long
+# enough to leave the interpreter lock to the other thread most of its time (DEVELOPERS.md, speed).
 CHUNK_VALUES = 65536
 
 
