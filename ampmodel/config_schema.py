@@ -126,7 +126,8 @@ GRID: dict[str, Key] = {
     "width_mm": number("full width of the square transverse window", gt=0, required=True),
     "time_slices": integer("slices across the pulse", 1, 100000, default=64),
     "diffraction": flag("split-step diffraction", default=False),
-    "fft_workers": integer("threads of the field path (FFTs and gain steps); -1: all cores", -1, 4096, nonzero=True, default=-1),
+    "fft_workers": integer("threads of the field path (FFTs and gain steps); -1: all cores", -1, 4096,
+                           nonzero=True, default=-1),
 }
 
 MEDIUM_KINDS = ("bulk", "fibre")
