@@ -200,18 +200,19 @@ def bare_transforms(field, pairs: int, workers: int, chunked: bool) -> None:
     the transforms (scipy.fft, overwrite_x).
 
     ``chunked=False``: each pair is one batched transform of the whole array with ``workers`` threads.
-    ``chunked=True``: the way the field path runs them: chunks of ``optics.chunk_rows`` time slices, each
-    transformed ``pairs`` times in a row while it is in the processor cache, the chunks split over
+    ``chunked=True``: the way the field path runs them: chunks of ``field_step.chunk_rows`` time slices,
+    each transformed ``pairs`` times in a row while it is in the processor cache, the chunks split over
     ``chunks.thread_count(workers)`` threads, one thread per transform."""
     import scipy.fft
-    from . import chunks, optics
+    from . import chunks
+    from .kernels import field_step
     if not chunked:
         for _ in range(pairs):
             scipy.fft.fft2(field, axes=(-2, -1), workers=workers, overwrite_x=True)
             scipy.fft.ifft2(field, axes=(-2, -1), workers=workers, overwrite_x=True)
         return
     nt = field.shape[0]
-    rows = optics.chunk_rows(nt, field.shape[1] * field.shape[2])
+    rows = field_step.chunk_rows(nt, field.shape[1] * field.shape[2])
     starts = list(range(0, nt, rows))
 
     def work(thread: int, c: int, stage: int) -> None:

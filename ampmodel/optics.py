@@ -99,7 +99,7 @@ def fluence_of(field: np.ndarray) -> np.ndarray:
         return field.real ** 2 + field.imag ** 2
     flat = field.reshape(-1, field.shape[-1])
     out = np.empty(flat.shape)
-    rows = max(1, CHUNK_VALUES // flat.shape[1])
+    rows = fs.chunk_rows(len(flat), flat.shape[1])
     scratch = np.empty((min(rows, len(flat)), 2 * flat.shape[1]))
     for r0 in range(0, len(flat), rows):
         part = flat[r0:r0 + rows]
@@ -161,7 +161,7 @@ def advance(beam: FieldBeam, length_m: float, index: float, steps: int = 1) -> N
     transfer = beam.transfer(length_m / steps, index)
     beam.field = np.ascontiguousarray(beam.field)
     nt = beam.field.shape[0]
-    rows = chunk_rows(nt, beam.field.shape[1] * beam.field.shape[2])
+    rows = fs.chunk_rows(nt, beam.field.shape[1] * beam.field.shape[2])
     starts = list(range(0, nt, rows))
 
     def stage(thread: int, c: int, j: int) -> None:
@@ -194,10 +194,10 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     is also the B-integral increment (kernels.field_step.gain_kerr_chunk). Light diffracted outside the
     clear aperture inside the medium travels on without gain.
 
-    The time slices go through the medium a chunk at a time (:func:`chunk_rows` slices, which stay in
-    the processor cache through the transforms and the gain step), in ``beam.workers`` threads as a
-    wavefront (ampmodel/chunks.py): a chunk's gain step in a z-slice follows the chunk before it, so the
-    gain is depleted in time order, as by the whole field slice after slice.
+    The time slices go through the medium a chunk at a time (kernels.field_step.chunk_rows slices,
+    which stay in the processor cache through the transforms and the gain step), in ``beam.workers``
+    threads as a wavefront (ampmodel/chunks.py): a chunk's gain step in a z-slice follows the chunk
+    before it, so the gain is depleted in time order, as by the whole field slice after slice.
 
     Parameters
     ----------
@@ -221,7 +221,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     field = beam.field.reshape(nt, pixels)
     mask = medium.mask.ravel()
     outside = np.flatnonzero(~mask)
-    rows = chunk_rows(nt, pixels)
+    rows = fs.chunk_rows(nt, pixels)
     starts = list(range(0, nt, rows))
 
     # entering: energy and peaks, then the clipping, chunk by chunk; each slice's energy after it
@@ -315,17 +315,6 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
                        passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
                        peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
                        extras={"edge_absorbed_J": edge_lost * area, "substeps": n_sub})
-
-
-# Time slices per chunk of the field path: about this many pixel values, so that a chunk (16 bytes a
-# value) and its scratch stay in the processor's cache and each numpy call of the gain step is long
-# enough to leave the interpreter lock to the other thread most of its time (DEVELOPERS.md, speed).
-CHUNK_VALUES = 65536
-
-
-def chunk_rows(time_slices: int, pixels: int) -> int:
-    """Time slices per chunk: CHUNK_VALUES // pixels, at least 1, at most all of them."""
-    return int(max(1, min(time_slices, CHUNK_VALUES // max(pixels, 1))))
 
 
 def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:

@@ -35,6 +35,17 @@ _GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_ac
 _NEGLIGIBLE = 1e-17       # Taylor terms of the phase factor below this are dropped
 
 
+# Time slices per chunk: about this many pixel values, so that a chunk (16 bytes a value) and its
+# scratch stay in the processor's cache and each numpy call of the gain step is long enough to leave
+# the interpreter lock to the other thread most of its time (DEVELOPERS.md, speed and memory).
+CHUNK_VALUES = 65536
+
+
+def chunk_rows(time_slices: int, pixels: int) -> int:
+    """Time slices per chunk: CHUNK_VALUES // pixels, at least 1, at most all of them."""
+    return int(max(1, min(time_slices, CHUNK_VALUES // max(pixels, 1))))
+
+
 class ChunkWork:
     """Scratch arrays of one thread for chunks of up to ``rows`` time slices of ``pixels`` pixels, of
     which ``inside`` lie in the clear aperture: made once per pass, reused for every chunk and slice."""

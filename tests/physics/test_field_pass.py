@@ -19,6 +19,7 @@ import pytest
 
 from ampmodel import optics
 from ampmodel.kernels import diffraction as kd
+from ampmodel.kernels import field_step
 from ampmodel.layout import MediumState
 
 N, NT, NZ, WIDTH, WAVELENGTH, DT = 32, 7, 3, 6e-3, 1.064e-6, 1e-9
@@ -92,7 +93,7 @@ def plain_pass(beam, medium, substeps, reverse):
 def test_pass_in_chunks_and_threads_matches_the_plain_split_step(monkeypatch, reverse, substeps):
     """Chunks of 2 time slices (the last one shorter) on 2 threads: field, gain, B-integral and the
     bookkeeping as the plain model to 1e-12."""
-    monkeypatch.setattr(optics, "CHUNK_VALUES", 2 * N * N)
+    monkeypatch.setattr(field_step, "CHUNK_VALUES", 2 * N * N)
     monkeypatch.setattr(optics, "substeps", lambda *args, **kwargs: substeps)
     beam, medium = make(workers=2)
     ref_e, ref_g, ref_b, ref = plain_pass(beam, medium, substeps, reverse)
@@ -115,7 +116,7 @@ def test_pass_in_chunks_and_threads_matches_the_plain_split_step(monkeypatch, re
 def test_one_thread_and_two_give_the_same_numbers(monkeypatch):
     """The wavefront keeps every operation on every number in the same order: results are identical,
     not merely close, on 1 and 2 threads."""
-    monkeypatch.setattr(optics, "CHUNK_VALUES", 2 * N * N)
+    monkeypatch.setattr(field_step, "CHUNK_VALUES", 2 * N * N)
     runs = []
     for workers in (1, 2):
         beam, medium = make(workers)
