@@ -36,8 +36,8 @@ def run_chunks(chunks: int, stages: int, work: Callable[[int, int, int], None], 
     Each chunk's stages run in order in one thread (thread i takes chunks i, i + T, ...). An ordered
     stage s of chunk c also waits for stage s of chunk c − 1 (a wavefront); ``ordered`` says which
     stages are (True: all, False: none, or a function of the stage). ``after_stage(stage)`` is called
-    after each, one call at a time. The first exception raised by ``work`` stops the other threads at
-    their next stage and is raised here.
+    after each, one call at a time. The first exception raised by ``work`` (or an interrupt of the
+    caller) stops the other threads at their next stage and is raised here.
     """
     is_ordered = ordered if callable(ordered) else (lambda s: bool(ordered))
     threads = max(1, min(threads, chunks))
@@ -74,7 +74,14 @@ def run_chunks(chunks: int, stages: int, work: Callable[[int, int, int], None], 
                 cond.notify_all()
 
     with ThreadPoolExecutor(max_workers=threads, thread_name_prefix="ampmodel-chunk") as pool:
-        for future in [pool.submit(run, i) for i in range(threads)]:
-            future.result()
+        futures = [pool.submit(run, i) for i in range(threads)]
+        try:
+            for future in futures:
+                future.result()
+        except BaseException as exc:        # an interrupt here: the threads stop at their next stage
+            with cond:
+                failed.append(exc)
+                cond.notify_all()
+            raise
     if failed:
         raise failed[0]
