@@ -55,6 +55,21 @@ _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
                "pass": "the clear aperture clips"}
 
 
+def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, width_m: float, limits) -> list[str]:
+    """The grid's two warnings about the seed: too few pixels across its diameter, and a seed map
+    (fluence or intensity, (Ny, Nx)) with more than 1e-3 of its peak at the window's edge."""
+    warnings = []
+    pixels = diameter_m / dx_m
+    if pixels < limits.pixels_across_beam:
+        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
+                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
+    edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
+    if edge > 1e-3 * seed_map.max():
+        warnings.append(f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm window "
+                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+    return warnings
+
+
 def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
     """A step's summary entry: SPEC section 4's keys and more; a repeat adds its round trips and the
     entries of its steps in the dump round trip."""
@@ -252,14 +267,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     if b_total > limits.b_integral_total_rad:
         warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
                         f"in total (common practice)")
-    pixels = seed.diameter_m / dx
-    if pixels < limits.pixels_across_beam:
-        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
-                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
-    edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
-    if edge > 1e-3 * seed_map.max():
-        warnings.append(f"grid: the seed reaches the edge of the {config.grid.width_m * 1e3:g} mm window "
-                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+    warnings.extend(seed_grid_warnings(seed.diameter_m, dx, seed_map, config.grid.width_m, limits))
     warnings.extend(extra_warnings or ())
     if seed.shape != "flat" and config.grid.time_slices < 16:
         warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "

@@ -15,7 +15,7 @@ import numpy as np
 from . import cw_pump, pumping
 from .cw import CwMedium, Sweep
 from .description import Config
-from .diagnostics import SAFETY_NOTE, W_CM2, _step_label
+from .diagnostics import SAFETY_NOTE, W_CM2, _step_label, seed_grid_warnings
 from .results import MediumRecord
 
 
@@ -119,14 +119,7 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
                             f"{100 * limits.damage_fraction:g} % of the cw damage intensity of {what} "
                             f"({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are estimates: "
                             f"verify with your optics' data")
-    pixels = seed_cfg.diameter_m / dx
-    if pixels < limits.pixels_across_beam:
-        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
-                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
-    edge = max(seed[0, :].max(), seed[-1, :].max(), seed[:, 0].max(), seed[:, -1].max())
-    if edge > 1e-3 * seed.max():
-        warnings.append(f"grid: the seed reaches the edge of the {config.grid.width_m * 1e3:g} mm window "
-                        f"({edge / seed.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+    warnings.extend(seed_grid_warnings(seed_cfg.diameter_m, dx, seed, config.grid.width_m, limits))
 
     balance = (p_in + extracted - p_out - lost) / p_out if p_out > 0 else 0.0
     summary: dict[str, Any] = {
