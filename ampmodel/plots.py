@@ -12,9 +12,7 @@ shows power, and there is no pulse figure.
 from __future__ import annotations
 
 import math
-import os
 import re
-import tempfile
 from pathlib import Path
 from typing import Sequence
 
@@ -22,6 +20,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from .atomic import target
 from .results import Result, StepRecord
 
 DPI = 110
@@ -50,14 +49,9 @@ def _figure(width_in: float, height_in: float) -> Figure:
 
 def _save(fig: Figure, path: Path) -> Path:
     """Write ``fig`` as PNG to ``path`` atomically (temporary name, then rename) and release it."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    os.close(fd)
     try:
-        fig.savefig(tmp, format="png", dpi=DPI)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        with target(path) as tmp:
+            fig.savefig(tmp, format="png", dpi=DPI)
     finally:
         fig.clear()
     return path

@@ -1,13 +1,13 @@
 """The Result of a run, and its files: result.h5 (SPEC section 4), summary.json, plots.
 
-Files are written atomically (temporary name in the same folder, then rename) so that a folder never
-holds a file that looks complete but is not.
+Files are written through ``atomic.target`` (temporary name in the same folder, flushed, then
+renamed) so that a folder never holds a file that looks complete but is not; result.h5 carries the
+root attribute ``complete = True``, written last.
 """
 from __future__ import annotations
 
 import json
 import os
-import tempfile
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -16,6 +16,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from . import __version__
+from .atomic import COMPLETE_ATTR, target
 from .description import Config
 
 
@@ -150,21 +151,12 @@ class Result:
         return out
 
 
-def _atomic_target(path: Path) -> tuple[int, str]:
-    return tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-
-
 def write_json(data: dict[str, Any], path: Path) -> None:
-    """Write ``data`` as indented JSON, atomically."""
-    fd, tmp = _atomic_target(path)
-    try:
-        with os.fdopen(fd, "w") as fh:
+    """Write ``data`` as indented JSON, atomically (``atomic.target``)."""
+    with target(path) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
             json.dump(data, fh, indent=2, allow_nan=False)
             fh.write("\n")
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
@@ -180,12 +172,12 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
     """Write result.h5 in SPEC section 4's layout (SI units, a ``units`` attribute on every dataset).
 
     ``attrs``: further root attributes (a sweep's point files record their index and values).
+    The file is written under a temporary name and renamed when whole (``atomic.target``); its last
+    write is the root attribute ``complete = True``.
     """
     import h5py
 
-    fd, tmp = _atomic_target(path)
-    os.close(fd)
-    try:
+    with target(path) as tmp:
         with h5py.File(tmp, "w") as f:
             f.attrs["software_version"] = __version__
             f.attrs["config"] = result.config.text
@@ -251,10 +243,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 tg = f.create_group("train")
                 for name, (data, units) in result.train.items():
                     _dataset(tg, name, np.asarray(data), units)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+            f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
 
 
 _BEAM_KEYS = (("d4sigma_x", "d4sigma_x_mm", 1e-3, "m"), ("d4sigma_y", "d4sigma_y_mm", 1e-3, "m"),

@@ -16,9 +16,7 @@ more than a factor of 20 (swept values) or 100 (results) of positive values is l
 from __future__ import annotations
 
 import math
-import os
 import re
-import tempfile
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
@@ -26,6 +24,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from .atomic import target
 from .units import unit_of
 
 DPI = 110
@@ -129,14 +128,9 @@ def _figure(width_in: float, height_in: float) -> Figure:
 
 def _save(fig: Figure, path: Path) -> Path:
     """Write ``fig`` as PNG atomically and release it."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    os.close(fd)
     try:
-        fig.savefig(tmp, format="png", dpi=DPI)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        with target(path) as tmp:
+            fig.savefig(tmp, format="png", dpi=DPI)
     finally:
         fig.clear()
     return path

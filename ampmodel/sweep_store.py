@@ -32,12 +32,13 @@ from typing import Any, Iterator, Mapping, Sequence
 
 import numpy as np
 
-from . import __version__
+from . import __version__, atomic
 from .units import unit_of
 
 MANIFEST = "manifest.json"
 LOCK = ".lock"
 POINTS = "points"
+PLOTS = "plots"
 # Keys of a run config that do not change what a point computes (the point's values are stored with it).
 NOT_HASHED = ("sweep", "spread")
 # summary.json entries that are not scalars of the table.
@@ -116,17 +117,6 @@ def _now() -> str:
     return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
-def _write_text_atomic(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
 def check_folder(out: Path, kind: str, raw: Mapping[str, Any], source: str) -> dict | None:
     """Check that ``out`` may hold this run; nothing is written.
 
@@ -175,7 +165,7 @@ def write_manifest(out: Path, kind: str, raw: Mapping[str, Any], source: str, ta
         "updated_utc": _now(), "points": points, "table": table,
         "config": normalised_config(raw),
     }
-    _write_text_atomic(out / MANIFEST, json.dumps(manifest, indent=2, default=str) + "\n")
+    atomic.write_text(out / MANIFEST, json.dumps(manifest, indent=2, default=str) + "\n")
 
 
 @contextmanager
@@ -216,14 +206,9 @@ def undo_new_folder(out: Path, created: bool) -> None:
 
 
 def remove_stale_parts(out: Path) -> int:
-    """Delete temporary files left by writers that were killed (the caller holds the folder's lock)."""
-    n = 0
-    for folder in (out, out / POINTS):
-        if folder.is_dir():
-            for part in folder.glob(".*.part"):
-                part.unlink(missing_ok=True)
-                n += 1
-    return n
+    """Delete temporary files left by writers that were killed (the caller holds the folder's lock):
+    in the folder, its points/ and its plots/."""
+    return atomic.remove_parts(out, out / POINTS, out / PLOTS)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -242,11 +227,12 @@ def point_attrs(kind: str, index: int, values: Mapping[str, Any], hash_: str) ->
 
 
 def read_point(path: Path) -> dict | None:
-    """The identity and summary of a point file, or None when it is missing, partial or not a point file."""
+    """The identity and summary of a point file, or None when it is missing, partial (no root attribute
+    ``complete = True``, which the writer sets last) or not a point file."""
     import h5py
     try:
         with h5py.File(path, "r") as f:
-            if "steps" not in f or "grid" not in f:
+            if not f.attrs.get(atomic.COMPLETE_ATTR, False) or "steps" not in f or "grid" not in f:
                 return None
             return {"values": str(f.attrs["sweep_values"]), "config_hash": str(f.attrs["sweep_config_hash"]),
                     "summary": json.loads(f.attrs["summary"])}
@@ -317,9 +303,7 @@ def write_table(out: Path, stem: str, kind: str, columns: Sequence[Column], done
     import h5py
     n = len(done)
     h5_path, csv_path = out / f"{stem}.h5", out / f"{stem}.csv"
-    fd, tmp = tempfile.mkstemp(prefix=f".{h5_path.name}.", suffix=".part", dir=out)
-    os.close(fd)
-    try:
+    with atomic.target(h5_path) as tmp:
         with h5py.File(tmp, "w") as f:
             f.attrs["software_version"] = __version__
             f.attrs["kind"] = kind
@@ -340,14 +324,13 @@ def write_table(out: Path, stem: str, kind: str, columns: Sequence[Column], done
             for i in range(n):
                 if done[i]:
                     links[point_name(i)] = h5py.ExternalLink(f"{POINTS}/{point_name(i)}.h5", "/")
-        os.replace(tmp, h5_path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+            f.attrs["points_done"] = int(sum(bool(d) for d in done))
+            f.attrs["points_total"] = n
+            f.attrs["all_points_done"] = bool(all(done))
+            f.attrs[atomic.COMPLETE_ATTR] = True      # last: the file is whole (not: every point is done)
 
-    fd, tmp = tempfile.mkstemp(prefix=f".{csv_path.name}.", suffix=".part", dir=out)
-    try:
-        with os.fdopen(fd, "w", newline="") as fh:
+    with atomic.target(csv_path) as tmp:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["index"] + [c.name for c in columns] + ["point_file"])
             for i in range(n):
@@ -359,10 +342,6 @@ def write_table(out: Path, stem: str, kind: str, columns: Sequence[Column], done
                                json.dumps(v, default=str))
                 row.append(f"{POINTS}/{point_name(i)}.h5" if done[i] else "")
                 w.writerow(row)
-        os.replace(tmp, csv_path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
     return h5_path, csv_path
 
 
