@@ -30,6 +30,11 @@ class BackendError(Exception):
     """The compute backend cannot be used (scheduler unreachable, workers without ampmodel, ...)."""
 
 
+class WorkerLost(RuntimeError):
+    """A worker process died while it ran a task (killed from outside, or by the system when memory
+    ran out); the tasks that finished before are not affected."""
+
+
 def cores() -> int:
     """The cores this process may use (joblib's count: affinity and container limits respected)."""
     from joblib import cpu_count
@@ -241,4 +246,9 @@ def run_tasks(function: Callable[[Any], Any], tasks: Sequence[Any], backend: str
         for t in tasks:
             yield function(t)
         return
-    yield from Parallel(n_jobs=n, backend="loky", return_as="generator_unordered")(calls)
+    from joblib.externals.loky.process_executor import TerminatedWorkerError
+    try:
+        yield from Parallel(n_jobs=n, backend="loky", return_as="generator_unordered")(calls)
+    except TerminatedWorkerError as exc:
+        raise WorkerLost(f"a worker process died while it computed ({exc}); killed from outside, or by "
+                         f"the system when memory ran out (fewer --jobs need less memory)") from None

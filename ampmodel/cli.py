@@ -4,8 +4,9 @@ from __future__ import annotations
 import argparse
 import math
 import os
+import shlex
+import signal
 import sys
-import tempfile
 import traceback
 from pathlib import Path
 
@@ -14,6 +15,9 @@ from . import __version__
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first
 EXIT_BACKEND = 4         # sweep, spread: the dask cluster cannot be used (unreachable, no ampmodel there)
+EXIT_MISMATCH = 5        # rerun: the figures of the new run differ from the stored ones
+EXIT_CANNOT_WRITE = 6    # an output cannot be written: no permission, a full disk, a read-only file system
+EXIT_INTERRUPTED = 130   # Ctrl-C or SIGTERM
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -94,29 +98,6 @@ def _load(path: str, overrides: list[str]):
         from .config import ConfigError
         raise ConfigError([f"{path}: no such config file"])
     return load_config(path, overrides)
-
-
-def _free_name(base: Path) -> Path:
-    """``base`` if free, else base-2, base-3, ...: a run never overwrites another."""
-    if not base.exists():
-        return base
-    n = 2
-    while Path(f"{base}-{n}").exists():
-        n += 1
-    return Path(f"{base}-{n}")
-
-
-def _claim(tmp: Path, base: Path) -> Path:
-    """Move the finished temporary folder to the first free name, atomically."""
-    while True:
-        target = _free_name(base)
-        try:
-            os.rename(tmp, target)
-            return target
-        except OSError:
-            if not target.exists():
-                raise
-            # someone took the name in between: try the next one
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -235,21 +216,21 @@ def _print_table(summary: dict) -> None:
 
 def cmd_run(args) -> int:
     from .solver import simulate
-    from .diagnostics import SAFETY_NOTE
+    from .run_folder import claim, partial_folder
     config = _load(args.config, args.overrides)
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
-    result = simulate(config, progress=False if args.quiet else None)
-    base.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{base.name}.", suffix=".partial", dir=base.parent))
-    try:
+    with partial_folder(base) as tmp:          # before the computation: an unwritable place fails now
+        result = simulate(config, progress=False if args.quiet else None)
         result.save(tmp, plots=not args.no_plots)
-        out = _claim(tmp, base)
-    except BaseException:
-        import shutil
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    s = result.summary
+        out = claim(tmp, base)
     print(f"ampmodel run: {config.title}")
+    _report_run(result.summary, out, plots=not args.no_plots)
+    return EXIT_OK
+
+
+def _report_run(s: dict, out: Path, plots: bool) -> None:
+    """The table of a run, its warnings, the safety note and the folder written."""
+    from .diagnostics import SAFETY_NOTE
     if s.get("layout") == "fibre":
         _print_fibre(s)
     else:
@@ -260,8 +241,7 @@ def cmd_run(args) -> int:
         for w in s["warnings"]:
             print(f"  - {w}")
     print(SAFETY_NOTE)
-    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if not args.no_plots else ")"))
-    return EXIT_OK
+    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if plots else ")"))
 
 
 def cmd_check(args) -> int:
@@ -367,28 +347,25 @@ def cmd_spread(args) -> int:
 def cmd_size(args) -> int:
     from .sizing import parse_limit, parse_target, parse_within, size_to_target
     from .sweep_report import print_sizing
+    from contextlib import nullcontext
+    from .run_folder import claim, partial_folder
     target = parse_target(args.target)
     within = parse_within(args.within)
     limits = [parse_limit(text) for text in args.limits]
     report = None if args.quiet else print
-    result = size_to_target(args.config, target, args.vary, within, limits, overrides=args.overrides,
-                            xtol=args.xtol, report=report, keep_result=bool(args.out))
-    code = print_sizing(result)
-    if args.out:
-        from .results import write_json
-        base = Path(args.out)
-        base.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{base.name}.", suffix=".partial", dir=base.parent))
-        try:
+    base = Path(args.out) if args.out else None
+    # the output folder first: an unwritable place is reported before the search
+    with (partial_folder(base) if base is not None else nullcontext(None)) as tmp:
+        result = size_to_target(args.config, target, args.vary, within, limits, overrides=args.overrides,
+                                xtol=args.xtol, report=report, keep_result=bool(args.out))
+        code = print_sizing(result)
+        if tmp is not None:
+            from .results import write_json
             write_json(result.as_dict(), tmp / "size.json")
             if result.result is not None:
                 result.result.save(tmp, plots=True)
-            out = _claim(tmp, base)
-        except BaseException:
-            import shutil
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise
-        print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/)" if result.result else ")"))
+            out = claim(tmp, base)
+            print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/)" if result.result else ")"))
     return code
 
 
@@ -396,15 +373,79 @@ COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd
             "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size}
 
 
+_MAIN_PID = os.getpid()
+
+
+def _terminate(signum, frame) -> None:
+    """SIGTERM (a batch system ending a job, `kill`) stops a command as Ctrl-C does: the same clean-up,
+    the same message. Only in the process that runs the command (not in a worker it started)."""
+    if os.getpid() == _MAIN_PID:
+        raise KeyboardInterrupt
+
+
+def _install_signal_handlers():
+    """Handle SIGTERM like Ctrl-C; return the handler it replaces (None: none was installed)."""
+    global _MAIN_PID
+    _MAIN_PID = os.getpid()
+    try:
+        return signal.signal(signal.SIGTERM, _terminate)
+    except (ValueError, OSError):      # not the main thread (an embedding program): leave it alone
+        return None
+
+
+def _prog() -> str:
+    """How the user started ampmodel: `python3 -m ampmodel` or `ampmodel`."""
+    if Path(sys.argv[0]).name == "__main__.py":
+        return f"{Path(sys.executable).name} -m ampmodel"
+    return "ampmodel"
+
+
+def resume_command(argv: list[str], out: Path | None) -> str:
+    """The command that starts a stopped sweep or spread again on the same folder: the one given, with
+    ``--out`` added when the folder was the default one."""
+    words = list(argv)
+    if out is not None and not any(w == "--out" or w.startswith("--out=") for w in words):
+        words += ["--out", str(out)]
+    return f"{_prog()} {shlex.join(words)}"
+
+
+def _stopped(command: str, err: BaseException, argv: list[str], why: str) -> None:
+    """What a stopped sweep or spread prints: how far it got and the exact command that resumes it."""
+    progress = getattr(err, "progress", None)
+    label = "samples" if command == "spread" else "points"
+    if progress is not None and progress.done is not None:
+        kept = (f"{progress.done} of {progress.total} {label} are done and kept in {progress.out}/ "
+                f"(the {'samples' if command == 'spread' else 'sweep'} table lists them)")
+    elif progress is not None:
+        kept = f"the {label} done so far are kept in {progress.out}/"
+    else:
+        kept = f"the {label} done so far are kept"
+    print(f"{why}: {kept}; to compute the rest, run the same command again:", file=sys.stderr)
+    print(f"  {resume_command(argv, progress.out if progress is not None else None)}", file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = _parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()
         return EXIT_BAD_INPUT
-    from .backends import BackendError
+    previous = _install_signal_handlers()
+    try:
+        return _dispatch(args, argv)
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+
+
+def _dispatch(args, argv: list[str]) -> int:
+    """Run the command; turn every kind of failure into its message and exit code."""
+    from .atomic import OutputError, describe_write_error, is_write_error
+    from .backends import BackendError, WorkerLost
     from .config import ConfigError
     from .sweep_store import FolderError
+    resumable = args.command in ("sweep", "spread")
     try:
         return COMMANDS[args.command](args)
     except ConfigError as err:
@@ -417,15 +458,26 @@ def main(argv: list[str] | None = None) -> int:
         print(f"ampmodel {args.command}: {err}", file=sys.stderr)
         print("nothing was run; the points already in the output folder are kept.", file=sys.stderr)
         return EXIT_BACKEND
-    except KeyboardInterrupt:
-        if args.command in ("sweep", "spread"):
-            print("interrupted: the points finished so far are kept; start the same command again to "
-                  "compute the rest.", file=sys.stderr)
+    except KeyboardInterrupt as err:
+        if resumable:
+            _stopped(args.command, err, argv, "interrupted")
         else:
-            print("interrupted: nothing was written.", file=sys.stderr)
-        return 130
-    except OSError as err:
-        print(f"ampmodel: cannot write or read a file: {err}", file=sys.stderr)
+            print("interrupted: nothing was written (the unfinished output was removed).", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except (OutputError, OSError) as err:
+        if isinstance(err, OSError) and not is_write_error(err):
+            print(f"ampmodel {args.command}: cannot write or read a file: {err}", file=sys.stderr)
+            return EXIT_INTERNAL
+        print(f"ampmodel {args.command}: {err if isinstance(err, OutputError) else describe_write_error(err)}",
+              file=sys.stderr)
+        if resumable and getattr(err, "progress", None) is not None:
+            _stopped(args.command, err, argv, "stopped")
+        else:
+            print("nothing was kept (an unfinished output is removed).", file=sys.stderr)
+        return EXIT_CANNOT_WRITE
+    except WorkerLost as err:
+        print(f"ampmodel {args.command}: {err}", file=sys.stderr)
+        _stopped(args.command, err, argv, "stopped")
         return EXIT_INTERNAL
     except Exception:  # an internal failure: say so, with the details for a bug report
         print("ampmodel: internal error (please report it with the config and this message):", file=sys.stderr)

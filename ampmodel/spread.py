@@ -119,19 +119,14 @@ def _write_stats(out: Path, result: SpreadResult, base: Config) -> None:
                 "samples_ran": len(result.values) - len(result.failed),
                 "failed": sorted(result.failed), "percentile_method": "numpy.percentile, linear (type 7)",
                 "percentiles": result.percentiles}, out / "spread.json")
-    import tempfile
-    fd, tmp = tempfile.mkstemp(prefix=".spread.csv.", suffix=".part", dir=out)
-    try:
-        with os.fdopen(fd, "w", newline="") as fh:
+    from .atomic import target
+    with target(out / "spread.csv") as tmp:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             cols = ["p5", "p50", "p95", "mean", "std", "min", "max", "count"]
             w.writerow(["figure", "unit"] + cols)
             for key, st in result.percentiles.items():
                 w.writerow([key, st["unit"]] + [repr(st[c]) if c != "count" else st[c] for c in cols])
-        os.replace(tmp, out / "spread.csv")
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
     result.spread_json, result.spread_csv = out / "spread.json", out / "spread.csv"
 
 
@@ -179,5 +174,6 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
 
     run_points("spread", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                progress=progress, timeout_s=timeout_s, table_stem="samples",
-               table_attrs={"random_seed": seed, "samples": samples}, manifest_table=table, finish=finish)
+               table_attrs={"random_seed": seed, "samples": samples}, manifest_table=table, finish=finish,
+               derived=("spread.json", "spread.csv"))
     return box["result"]

@@ -28,7 +28,8 @@ from pathlib import Path
 from typing import Any, Callable, Mapping, Sequence
 
 from . import sweep_store as store
-from .backends import BACKENDS, BackendError, Cluster, cores, preflight, run_tasks, where
+from .atomic import OutputError, describe_write_error, is_write_error
+from .backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks, where
 from .config import ConfigError, dump_toml, load_config, resolve_path
 from .description import Config
 
@@ -94,6 +95,7 @@ class PointOutcome:
     seconds: float
     error: str | None = None
     where: str = ""
+    write_error: bool = False     # the point file could not be written (full disk, no permission)
 
 
 def run_point(task: PointTask) -> PointOutcome:
@@ -110,6 +112,9 @@ def run_point(task: PointTask) -> PointOutcome:
         write_hdf5(result, Path(task.path), attrs=task.attrs)
         return PointOutcome(task.index, result.summary, time.perf_counter() - start, None, where())
     except Exception as exc:   # noqa: BLE001 - reported by the parent, point by point
+        if is_write_error(exc):                   # the folder or the disk, not the point: the parent stops
+            return PointOutcome(task.index, None, time.perf_counter() - start,
+                                describe_write_error(exc, task.path), where(), write_error=True)
         if isinstance(exc, ConfigError):          # e.g. a cw iteration that does not converge here
             error = "; ".join(line.replace("<dict>: ", f"{task.source}: ", 1) for line in exc.problems)
         else:                                     # an internal failure: keep the traceback for a report
@@ -216,7 +221,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
                backend: str = "loky", jobs: int | None = None, scheduler: str | None = None,
                progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
                table_stem: str = "sweep", table_attrs: Mapping[str, Any] | None = None,
-               manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None) -> SweepResult:
+               manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None,
+               derived: Sequence[str] = ()) -> SweepResult:
     """Run the points of a sweep or a tolerance run into ``out``; compute only those it lacks.
 
     Parameters
@@ -231,11 +237,16 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
     manifest_table : the [sweep] or [spread] table, recorded in the manifest
     finish : called with the result while the folder is still locked (plots, statistics)
+    derived : further files made from the table (removed at the start with the table, written by
+        ``finish``)
 
     Raises
     ------
     ConfigError (a point's config is invalid), FolderError (the folder cannot be used),
     BackendError (the dask cluster cannot be used); nothing is written in these cases.
+    KeyboardInterrupt (Ctrl-C, or SIGTERM through the command line), OutputError (a file cannot be
+    written: full disk, no permission), WorkerLost (a worker process died): the points done so far
+    are kept, the table lists them, and ``exc.progress`` (a :class:`Progress`) says how far it got.
     """
     if backend not in BACKENDS:
         raise ValueError(f"backend must be one of {BACKENDS}, not {backend!r}")
@@ -250,10 +261,19 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     hash_ = store.config_hash(base.raw)
     notes: list[str] = []
     created = not out.exists()
-    (out / store.POINTS).mkdir(parents=True, exist_ok=True)
+    try:
+        (out / store.POINTS).mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        if is_write_error(exc):
+            raise OutputError(describe_write_error(exc, out), out) from None
+        raise
     try:
         with store.folder_lock(out):
             store.remove_stale_parts(out)
+            # the table and what is derived from it are written again at the end: until then no
+            # earlier table may stand for this start's points
+            for name in (f"{table_stem}.h5", f"{table_stem}.csv", *derived):
+                (out / name).unlink(missing_ok=True)
             store.write_manifest(out, kind, base.raw, base.source, manifest_table, len(values), previous)
             summaries: list[dict | None] = [None] * len(values)
             todo: list[int] = []
@@ -274,14 +294,22 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
             failed: dict[int, str] = {}
             seconds: dict[int, float] = {}
             used = 0
-            if tasks:
-                used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
-                            progress, timeout_s, len(values), len(reused), kind, notes)
-            done = [s is not None for s in summaries]
-            columns = store.table_columns(paths, list(values), summaries)
             attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
                      "paths": json.dumps(paths), **(table_attrs or {})}
-            h5, csv = store.write_table(out, table_stem, kind, columns, done, attrs)
+
+            def table() -> tuple[Path, Path]:
+                done = [s is not None for s in summaries]
+                return store.write_table(out, table_stem, kind, store.table_columns(paths, list(values), summaries),
+                                         done, attrs)
+
+            if tasks:
+                try:
+                    used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
+                                progress, timeout_s, len(values), len(reused), kind, notes)
+                except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
+                    _stop(exc, table, out, kind, sum(s is not None for s in summaries), len(values))
+                    raise
+            h5, csv = table()
             result = SweepResult(out=out, kind=kind, title=base.title, paths=list(paths), values=[dict(v) for v in values],
                                  summaries=summaries, computed=[i for i in todo if i not in failed],
                                  reused=reused, failed=failed, table_h5=h5, table_csv=csv,
@@ -293,7 +321,33 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
         if previous is None:      # a new folder that the cluster never wrote into: leave nothing behind
             store.undo_new_folder(out, created)
         raise
+    except OSError as exc:
+        if is_write_error(exc):   # the manifest, the table or the plots: the folder or the disk
+            error = OutputError(describe_write_error(exc, out), out)
+            error.progress = getattr(exc, "progress", None) or Progress(out, kind, None, len(values))
+            raise error from None
+        raise
     return result
+
+
+@dataclass
+class Progress:
+    """How far a sweep or spread got before it stopped (attached to the exception as ``progress``)."""
+
+    out: Path
+    kind: str
+    done: int | None      # points done and kept (None: not known)
+    total: int
+
+
+def _stop(exc: BaseException, table: Callable[[], Any], out: Path, kind: str, done: int, total: int) -> None:
+    """A start that stops early: write the table of the points done so far (best effort: the disk may
+    be full, or a second Ctrl-C may come) and attach how far it got to ``exc`` (``exc.progress``)."""
+    try:
+        table()
+    except (OSError, KeyboardInterrupt):
+        pass
+    exc.progress = Progress(out, kind, done, total)
 
 
 def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, backend: str, jobs: int | None,
@@ -322,6 +376,8 @@ def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, b
 
 
 def _collect(outcome: PointOutcome, summaries: list, failed: dict, seconds: dict, bar) -> None:
+    if outcome.write_error:       # every later point would fail the same way: stop
+        raise OutputError(outcome.error or "cannot write a point file")
     seconds[outcome.index] = outcome.seconds
     if outcome.error is None:
         summaries[outcome.index] = outcome.summary
