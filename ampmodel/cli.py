@@ -64,6 +64,16 @@ def _parser() -> argparse.ArgumentParser:
         w.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
         w.add_argument("--quiet", action="store_true", help="no progress bar" +
                        (" and no table of the points" if name == "sweep" else ""))
+    e = sub.add_parser("rerun", help="repeat a run from its result file and say whether the figures match")
+    e.add_argument("result", help="the result.h5 of a run (or a sweep's points/NNNN.h5)")
+    e.add_argument("--out", metavar="DIR", help="the new run's folder (default: <run folder>-rerun beside the "
+                                                "run; never overwritten)")
+    e.add_argument("--rtol", metavar="X", type=float, default=1e-9,
+                   help="relative tolerance of the comparison (default 1e-9)")
+    e.add_argument("--current-materials", action="store_true",
+                   help="use today's material files instead of the material data stored with the run")
+    e.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+    e.add_argument("--quiet", action="store_true", help="no progress bar")
     z = sub.add_parser("size", help="find the value of one parameter that reaches a target figure, under limits")
     z.add_argument("config", help="the run config (TOML)")
     z.add_argument("--target", metavar="FIGURE=VALUE", required=True,
@@ -244,6 +254,35 @@ def _report_run(s: dict, out: Path, plots: bool) -> None:
     print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if plots else ")"))
 
 
+def cmd_rerun(args) -> int:
+    from .config import ConfigError
+    from .rerun import rerun
+    if not (args.rtol >= 0 and math.isfinite(args.rtol)):
+        raise ConfigError([f"ampmodel rerun: --rtol {args.rtol:g}: must be a number >= 0, e.g. 1e-9"])
+    report, result = rerun(args.result, args.out, rtol=args.rtol, plots=not args.no_plots,
+                           progress=False if args.quiet else None, current_materials=args.current_materials)
+    print(f"ampmodel rerun: {result.config.title} (from {report.original}, written by ampmodel "
+          f"{report.stored_version})")
+    for note in report.notes:
+        print(f"note: {note}")
+    for what, lines in report.material_differences.items():
+        print(f"material data of {what} differ from today's {'files' if what.startswith('built-in') else 'reading'} "
+              f"(the rerun uses the {report.used} data):")
+        for line in lines:
+            print(f"  {line}")
+    print(f"wrote {report.out}/ (result.h5, summary.json, rerun.json" + (", plots/)" if not args.no_plots else ")"))
+    if report.matched:
+        print(f"the figures match: {report.compared} compared, within a relative {report.rtol:g} "
+              f"(round-off figures such as energy_balance_error within {report.rtol:g} absolute)")
+        return EXIT_OK
+    print(f"the figures DIFFER: {len(report.differences)} of {report.compared} outside a relative {report.rtol:g}:")
+    for d in report.differences[:40]:
+        print(f"  {d.text()}")
+    if len(report.differences) > 40:
+        print(f"  ... {len(report.differences) - 40} more (rerun.json lists them all)")
+    return EXIT_MISMATCH
+
+
 def cmd_check(args) -> int:
     from . import beams, pumping
     from .solver import check_memory
@@ -370,7 +409,7 @@ def cmd_size(args) -> int:
 
 
 COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench,
-            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size}
+            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size, "rerun": cmd_rerun}
 
 
 _MAIN_PID = os.getpid()

@@ -30,7 +30,7 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 import tomli_w
 
-from . import config_cw, config_fibre, config_timing
+from . import config_cw, config_fibre, config_files, config_timing
 from . import config_schema as S
 from .config_schema import (PathError, Problems, array_of_tables, check_table, check_value, did_you_mean,
                             expected, item_names, join_path, quoted_list, walk)
@@ -237,7 +237,9 @@ def dump_toml(raw: dict) -> str:
 # Loading
 # ----------------------------------------------------------------------------------------------
 
-def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = ()) -> Config:
+def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
+                folder: str | os.PathLike | None = None,
+                builtin_materials: Mapping[str, Material] | None = None) -> Config:
     """Read, override and validate a run config.
 
     Parameters
@@ -246,12 +248,20 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
         A path to a TOML file, or the config as a dict (shown as ``<dict>`` in problems).
     overrides : sequence of str
         ``"PATH=VALUE"`` strings (``--set``), applied before validation.
+    folder : str or os.PathLike, optional
+        Where relative paths of data files in the config are taken from; default the config file's
+        folder (for a dict: the working directory).
+    builtin_materials : mapping of name -> Material, optional
+        Built-in materials to use instead of the material files (a rerun uses the data its result
+        file recorded).
 
     Returns
     -------
     Config
         Every quantity SI. ``text`` is the file text (after overrides: the modified config as TOML,
-        headed by a comment listing them), ``raw`` the (modified) dict, ``source`` the path.
+        headed by a comment listing them), ``raw`` the (modified) dict, ``source`` the path,
+        ``folder`` the folder of relative paths, ``builtin_materials`` the built-in materials it
+        used and ``data_files`` the data files it read (path as written -> text).
 
     Raises
     ------
@@ -261,12 +271,14 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     overrides = [overrides] if isinstance(overrides, str) else list(overrides)
     if isinstance(source, Mapping):
         name, title, text = "<dict>", "untitled", None
-        problems = Problems(name)
+        base = Path(folder) if folder is not None else Path.cwd()
+        problems = Problems(name, base.absolute(), builtin_materials)
         raw = _plain(source, "", problems)
     elif isinstance(source, (str, os.PathLike)):
         path = Path(source)
         name, title = str(source), path.stem
-        problems = Problems(name)
+        base = Path(folder) if folder is not None else path.parent
+        problems = Problems(name, base.absolute(), builtin_materials)
         try:
             text = path.read_bytes().decode("utf-8-sig")
         except FileNotFoundError:
@@ -297,7 +309,9 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
             text = dump_toml(raw)
         except (TypeError, ValueError) as exc:
             raise ConfigError([f"{name}: cannot write the config as TOML: {exc}"]) from None
-    return dataclasses.replace(config, text=text, source=name, raw=raw)
+    return dataclasses.replace(config, text=text, source=name, raw=raw, folder=str(problems.folder),
+                               builtin_materials=MappingProxyType(dict(problems.used_builtin)),
+                               data_files=MappingProxyType(dict(problems.data_files)))
 
 
 # ----------------------------------------------------------------------------------------------
@@ -452,8 +466,14 @@ def _builtin(p: Problems, path: str, name: str) -> Material | None:
         p.add(path, "the built-in materials cannot be loaded in this installation; give a "
                     "[medium.material] table instead", name)
         return None
+    for known, material in p.builtin.items():        # a rerun: the data its result file recorded
+        if known.casefold() == name.casefold():
+            p.used_builtin[known] = material
+            return material
     try:
-        return registry.get(name)
+        material = registry.get(name)
+        p.used_builtin[material.name] = material
+        return material
     except KeyError:
         close = registry.closest(name)
         hint = f"; did you mean {quoted_list(close)}?" if close else ""
@@ -517,7 +537,9 @@ def _material(p: Problems, item: dict, path: str, medium_name: str) -> Material 
 
 
 def _spectrum(p: Problems, table: Any, path: str):
-    """A [medium.material.spectrum] table; each problem names its key."""
+    """A [medium.material.spectrum] table (its arrays inline or in a file); each problem names its key."""
+    if isinstance(table, dict) and "file" in table:
+        return config_files.spectrum_from_file(p, table, path)
     spectrum, problems = check_spectrum(table, need_source=False)
     for key, value, message in problems:
         where = join_path(path, key) if key else path

@@ -548,11 +548,28 @@ class PathError(KeyError):
 
 
 class Problems:
-    """Collects problem lines for one source."""
+    """Collects problem lines for one source, and what the config brought in besides its own text.
 
-    def __init__(self, source: str):
+    Parameters
+    ----------
+    source : the file name shown at the start of each problem line
+    folder : the folder that relative paths in the config (data files) are taken from
+    builtin : built-in materials to use instead of the material files, by name (a rerun uses the
+        material data its result file recorded)
+
+    Attributes
+    ----------
+    used_builtin : the built-in materials the config referred to, by name, as used
+    data_files : the data files the config read, path as written -> their text
+    """
+
+    def __init__(self, source: str, folder: Any = None, builtin: Mapping[str, Any] | None = None):
         self.source = source
         self.lines: list[str] = []
+        self.folder = folder
+        self.builtin = dict(builtin or {})
+        self.used_builtin: dict[str, Any] = {}
+        self.data_files: dict[str, str] = {}
 
     def add(self, path: str, message: str, value: Any = NO_VALUE) -> None:
         head = path if value is NO_VALUE else f"{path} = {show(value)}"

@@ -257,6 +257,9 @@ class Config:
     text: str = ""                    # the TOML text as run (after --set)
     source: str = "<dict>"            # the file it came from
     raw: Mapping[str, Any] = field(default_factory=dict)
+    folder: str = ""                  # relative paths of data files are taken from here
+    builtin_materials: Mapping[str, Any] = field(default_factory=dict)   # name -> Material, as used
+    data_files: Mapping[str, str] = field(default_factory=dict)          # path as written -> text read
 
     def medium(self, name: str) -> Medium:
         for m in self.media:

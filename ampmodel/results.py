@@ -185,6 +185,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
             f.attrs["title"] = result.config.title
             f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
             f.attrs["summary"] = json.dumps(result.summary)
+            _provenance(f, result.config)
             for key, value in (attrs or {}).items():
                 f.attrs[key] = value
             cw = result.config.mode == "cw"
@@ -244,6 +245,63 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in result.train.items():
                     _dataset(tg, name, np.asarray(data), units)
             f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
+
+
+def environment() -> dict[str, str]:
+    """The versions of Python and of the libraries that compute a run, and the platform."""
+    import platform
+
+    import h5py
+    import scipy
+    return {"ampmodel": __version__, "python": platform.python_version(), "numpy": np.__version__,
+            "scipy": scipy.__version__, "h5py": h5py.__version__, "platform": platform.platform()}
+
+
+def provenance(config: Config) -> dict[str, str]:
+    """What, with the root attributes ``config`` and ``software_version``, reproduces a run (README,
+    "Reproducing a run"), each as JSON text (written as the text datasets ``/provenance/<name>``: they
+    may exceed the 64 kB an HDF5 attribute holds).
+
+    materials : medium name -> the material data it used (``materials.material_to_dict``: every value
+        in SI, its sources, the spectrum)
+    builtin_materials : the built-in materials the config named (``material = "..."`` or ``base``), as
+        read from the material files, so that ``ampmodel rerun`` can use them again
+    data_files : data files the config read (path as written -> their text)
+    environment : versions of Python and the libraries, the platform
+    config_source : the config file's path as given
+    """
+    from .materials import material_to_dict
+    return {
+        "materials": json.dumps({m.name: material_to_dict(m.material) for m in config.media}),
+        "builtin_materials": json.dumps({name: material_to_dict(m) for name, m in config.builtin_materials.items()}),
+        "data_files": json.dumps(dict(config.data_files)),
+        "environment": json.dumps(environment()),
+        "config_source": json.dumps(config.source),
+    }
+
+
+def _provenance(f, config: Config) -> None:
+    import h5py
+    g = f.create_group("provenance")
+    g.attrs["meaning"] = "what reproduces the run besides /config: JSON texts (README, Reproducing a run)"
+    for name, text in provenance(config).items():
+        ds = g.create_dataset(name, data=text, dtype=h5py.string_dtype())
+        ds.attrs["units"] = ""
+
+
+def read_provenance(path: str | os.PathLike) -> dict[str, Any]:
+    """The root attributes (``config``, ``summary`` parsed, ``software_version``, ``complete``, ...) and
+    the ``/provenance`` entries (parsed) of a result file; entries it lacks are absent."""
+    import h5py
+    with h5py.File(path, "r") as f:
+        out: dict[str, Any] = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
+        if "summary" in out:
+            out["summary"] = json.loads(out["summary"])
+        if "provenance" in f:
+            for name, ds in f["provenance"].items():
+                value = ds[()]
+                out[name] = json.loads(value.decode() if isinstance(value, bytes) else value)
+    return out
 
 
 _BEAM_KEYS = (("d4sigma_x", "d4sigma_x_mm", 1e-3, "m"), ("d4sigma_y", "d4sigma_y_mm", 1e-3, "m"),

@@ -179,7 +179,7 @@ class _Runs:
         from .sweeps import point_raw
         raw = point_raw(self.config.raw, {self.vary: x}, self.config.title)
         try:
-            config = load_config(raw)
+            config = load_config(raw, folder=self.config.folder or None)
         except ConfigError as err:
             raise ConfigError([line.replace("<dict>: ", f"{self.config.source}: at {self.vary} = {x:g}: ", 1)
                                for line in err.problems]) from None
@@ -208,7 +208,8 @@ class _Runs:
             return self.last[1]
         from .solver import simulate
         from .sweeps import point_raw
-        return simulate(load_config(point_raw(self.config.raw, {self.vary: x}, self.config.title)))
+        return simulate(load_config(point_raw(self.config.raw, {self.vary: x}, self.config.title),
+                                    folder=self.config.folder or None))
 
 
 def _margins(runs: _Runs, s: Mapping[str, Any], limits: Sequence[Limit]) -> list[dict]:

@@ -31,6 +31,7 @@ from . import sweep_store as store
 from .atomic import OutputError, describe_write_error, is_write_error
 from .backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks, where
 from .config import ConfigError, dump_toml, load_config, resolve_path
+from .config_files import inline_files
 from .description import Config
 
 __all__ = ["run_sweep", "SweepResult", "sweep_points", "run_points", "time_sweep", "BackendError",
@@ -84,6 +85,7 @@ class PointTask:
     source: str
     path: str
     attrs: dict
+    parent_pid: int = 0       # the process that started the sweep (0: do not check)
 
 
 @dataclass
@@ -102,7 +104,11 @@ def run_point(task: PointTask) -> PointOutcome:
     """Run one point and write its file (``points/NNNN.h5``: result.h5's content, its summary, and
     root attributes ``sweep_index``, ``sweep_values``, ``sweep_config_hash``), atomically.
 
-    Runs in a worker process; never raises: a failure comes back as ``PointOutcome.error``."""
+    Runs in a worker process; never raises: a failure comes back as ``PointOutcome.error``. A local
+    worker whose parent is gone (the sweep was killed outright) leaves instead of computing the
+    points still queued for nobody."""
+    if task.parent_pid and os.getpid() != task.parent_pid and os.getppid() != task.parent_pid:
+        os._exit(0)
     start = time.perf_counter()
     try:
         from .results import write_hdf5
@@ -182,7 +188,8 @@ def prepare(base: Config, values: Sequence[Mapping[str, Any]], kind: str) -> tup
     raws, texts, problems, largest = [], [], [], 0
     label = "sample" if kind == "spread" else "point"
     for i, v in enumerate(values):
-        raw = point_raw(base.raw, v, base.title)
+        # data files inline: a worker need not see them (the same data as the base config read)
+        raw = inline_files(point_raw(base.raw, v, base.title), base.folder or None)
         name = f"{label} {store.point_name(i)} ({describe(v)})"
         try:
             config = load_config(raw)
@@ -257,8 +264,9 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     start = time.perf_counter()
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
-    previous = store.check_folder(out, kind, base.raw, base.source)
-    hash_ = store.config_hash(base.raw)
+    hashed = inline_files(base.raw, base.folder or None)     # a changed data file is another config
+    previous = store.check_folder(out, kind, hashed, base.source)
+    hash_ = store.config_hash(hashed)
     notes: list[str] = []
     created = not out.exists()
     try:
@@ -274,7 +282,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
             # earlier table may stand for this start's points
             for name in (f"{table_stem}.h5", f"{table_stem}.csv", *derived):
                 (out / name).unlink(missing_ok=True)
-            store.write_manifest(out, kind, base.raw, base.source, manifest_table, len(values), previous)
+            store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
             summaries: list[dict | None] = [None] * len(values)
             todo: list[int] = []
             for i, v in enumerate(values):
@@ -290,7 +298,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
             reused = [i for i in range(len(values)) if i not in pending]
             # absolute paths: workers on other machines have working directories of their own
             tasks = [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
-                               store.point_attrs(kind, i, values[i], hash_)) for i in todo]
+                               store.point_attrs(kind, i, values[i], hash_),
+                               parent_pid=os.getpid() if backend == "loky" else 0) for i in todo]
             failed: dict[int, str] = {}
             seconds: dict[int, float] = {}
             used = 0
@@ -405,7 +414,7 @@ def load(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str] 
     """A validated Config from a path, a dict or a Config (``overrides``: --set strings)."""
     if isinstance(config, Config):
         if overrides:
-            return load_config(dict(config.raw), overrides)
+            return load_config(dict(config.raw), overrides, folder=config.folder or None)
         return config
     return load_config(config, overrides)
 

@@ -255,3 +255,65 @@ def material_from_values(values: Mapping[str, object], name: str, description: s
     return Material(name=name, description=description,
                     sources=MappingProxyType(sources),
                     notes=MappingProxyType(dict(notes or {})), **kwargs)
+
+
+# ----------------------------------------------------------------------------------------------
+# A material as plain data (result files record the material data each run used)
+# ----------------------------------------------------------------------------------------------
+
+_TEXT_FIELDS = ("name", "broadening", "description")
+
+
+def material_to_dict(material: Material) -> dict[str, Any]:
+    """The material as JSON-ready data: every value in SI (exact: floats survive JSON unchanged), its
+    sources and notes, the spectrum, and the values in config units for people reading the file.
+
+    Returns
+    -------
+    dict with ``name``, ``broadening``, ``description``, ``si`` {field: value or None},
+    ``spectrum`` ({wavelength_m, emission_m2, absorption_m2, source} or None), ``sources``, ``notes``,
+    ``config_units`` {config key: value}
+    """
+    from dataclasses import fields
+    si: dict[str, Any] = {}
+    for f in fields(Material):
+        if f.name in _TEXT_FIELDS or f.name in ("spectrum", "sources", "notes"):
+            continue
+        si[f.name] = getattr(material, f.name)
+    sp = material.spectrum
+    spectrum = None if sp is None else {"wavelength_m": list(sp.wavelength_m), "emission_m2": list(sp.emission_m2),
+                                        "absorption_m2": list(sp.absorption_m2), "source": sp.source}
+    return {"name": material.name, "broadening": material.broadening, "description": material.description,
+            "si": si, "spectrum": spectrum, "sources": dict(material.sources), "notes": dict(material.notes),
+            "config_units": config_values(material)}
+
+
+def material_from_dict(data: Mapping[str, Any]) -> Material:
+    """The Material that :func:`material_to_dict` wrote (the same values, bit for bit)."""
+    sp = data.get("spectrum")
+    spectrum = None if not sp else Spectrum(wavelength_m=tuple(sp["wavelength_m"]), emission_m2=tuple(sp["emission_m2"]),
+                                            absorption_m2=tuple(sp["absorption_m2"]), source=sp.get("source", ""))
+    return Material(name=data["name"], broadening=data.get("broadening", "homogeneous"),
+                    description=data.get("description", ""), spectrum=spectrum,
+                    sources=MappingProxyType(dict(data.get("sources", {}))),
+                    notes=MappingProxyType(dict(data.get("notes", {}))), **data["si"])
+
+
+def material_differences(stored: Mapping[str, Any], current: Mapping[str, Any]) -> list[str]:
+    """Lines "key: stored -> current" between two :func:`material_to_dict` records (values in config
+    units where the key has one; the spectrum and the sources compared as a whole)."""
+    lines = []
+    a, b = stored.get("si", {}), current.get("si", {})
+    units_a, units_b = stored.get("config_units", {}), current.get("config_units", {})
+    for name in sorted(set(a) | set(b)):
+        if a.get(name) != b.get(name):
+            key = next((k for k in MATERIAL_KEYS if si_name(k) == name), name)
+            lines.append(f"{key}: {units_a.get(key, a.get(name))!r} -> {units_b.get(key, b.get(name))!r}")
+    for name in ("broadening", "spectrum"):
+        if stored.get(name) != current.get(name):
+            lines.append(f"{name}: " + ("differs" if name == "spectrum" else f"{stored.get(name)!r} -> {current.get(name)!r}"))
+    for key in sorted(set(stored.get("sources", {})) | set(current.get("sources", {}))):
+        if stored.get("sources", {}).get(key) != current.get("sources", {}).get(key):
+            lines.append(f"source of {key}: {stored.get('sources', {}).get(key)!r} -> "
+                         f"{current.get('sources', {}).get(key)!r}")
+    return lines

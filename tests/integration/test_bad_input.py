@@ -126,6 +126,17 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_train_without_rate.toml": (["train: applies to pulse trains of bulk media only",
                                      "give seed.repetition_rate_Hz"], 1),
     "bad_delay_negative.toml": (["step[0].delay_ns = -5.0: out of range: must be a number >= 0"], 1),
+    # data files (paths relative to the config file's folder)
+    "bad_spectrum_file_missing.toml": (['medium[0] (f1).material.spectrum.file = "no_such_spectrum.csv": no such '
+                                        "file", "a relative path is taken from the config file's folder"], 1),
+    "bad_spectrum_file_row.toml": (['medium[0] (f1).material.spectrum.file = "spectrum_bad_row.csv": line 4: '
+                                    "expected 3 numbers separated by commas", "got 2 fields"], 1),
+    "bad_spectrum_file_units.toml": (['spectrum.file = "spectrum_bad_units.csv": line 2: the header',
+                                      "wavelength_nm, emission_cm2, absorption_cm2 (wavelengths in nm, "
+                                      'cross-sections in cm2), not "wavelength_um'], 1),
+    "bad_spectrum_file_order.toml": (['spectrum.file = "spectrum_bad_order.csv": column wavelength_nm: must be '
+                                      "strictly increasing"], 1),
+    "bad_spectrum_file_and_arrays.toml": (["medium[0] (f1).material.spectrum: both file and wavelength_nm given"], 1),
 }
 FILES = sorted(CASES)
 
