@@ -61,6 +61,17 @@ class ConfigError(Exception):
 # ----------------------------------------------------------------------------------------------
 
 _AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+# What some parser messages usually mean in a config (the parser's own words stay first).
+_TOML_HINTS = (
+    ("Cannot overwrite a value", " (a key given twice in one table, or a table given twice)"),
+    ("Expected newline or end of document after a statement", " (something after the value: units belong in "
+                                                              "the key's name, e.g. length_mm = 100.0; comments "
+                                                              "start with #)"),
+    ("Cannot declare", " (a table given twice)"),
+    ("Illegal character '\\n'", " (perhaps a string without its closing quote)"),
+    ("Invalid value", " (a value TOML cannot read: numbers without units or expressions, strings in "
+                      "double quotes, true/false)"),
+)
 
 
 def _parse_toml(text: str, problems: Problems) -> dict | None:
@@ -76,7 +87,8 @@ def _parse_toml(text: str, problems: Problems) -> dict | None:
         else:
             where = "the end of the file" if "end of document" in message else "an unknown place"
             message = re.sub(r"\s*\(at end of document\)\s*$", "", message)
-        problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}")
+        hint = next((h for start, h in _TOML_HINTS if message.startswith(start)), "")
+        problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}{hint}")
         return None
 
 
@@ -280,14 +292,18 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
         base = Path(folder) if folder is not None else path.parent
         problems = Problems(name, base.absolute(), builtin_materials)
         try:
-            text = path.read_bytes().decode("utf-8-sig")
+            data = path.read_bytes()
+            text = data.decode("utf-8-sig")
         except FileNotFoundError:
             raise ConfigError([f"{name}: no such config file"]) from None
         except IsADirectoryError:
             raise ConfigError([f"{name}: cannot read the config: it is a directory, not a TOML file"]) from None
         except UnicodeDecodeError as exc:
-            raise ConfigError([f"{name}: cannot read the config: not UTF-8 text ({exc.reason} at byte "
-                               f"{exc.start})"]) from None
+            start = exc.start + (3 if data.startswith(b"\xef\xbb\xbf") else 0)
+            line = data[:start].count(b"\n") + 1
+            column = start - (data.rfind(b"\n", 0, start) + 1) + 1
+            raise ConfigError([f"{name}: cannot read the config: not UTF-8 text ({exc.reason} at line {line}, "
+                               f"column {column}, byte {start}); save the file as UTF-8"]) from None
         except OSError as exc:
             raise ConfigError([f"{name}: cannot read the config: {exc.strerror or exc}"]) from None
         raw = _parse_toml(text, problems)

@@ -21,6 +21,7 @@ from typing import Any, Iterable, Mapping
 from .description import Limits, Solver
 from .materials import BROADENINGS, MATERIAL_KEYS
 
+PLAUSIBLE_NOTE = "; a plausible range: a value outside it is usually a slip of unit"
 ANY = object()
 """Marks an ``unavailable`` entry that applies whatever the value is."""
 NO_VALUE = object()
@@ -54,6 +55,9 @@ class Key:
         For strings: the allowed values.
     unavailable : tuple of (value, message)
         Values that are valid names but not available in this version (``ANY``: every value).
+    plausible : bool
+        The bounds are a plausible range of a physical quantity rather than a definition (a value
+        outside it is almost always a slip of unit): the message says so.
     """
 
     kind: str
@@ -69,11 +73,18 @@ class Key:
     choices: tuple[str, ...] = ()
     unavailable: tuple[tuple[Any, str], ...] = ()
     size: int | None = None
+    plausible: bool = False
 
 
 def number(meaning: str, **bounds: Any) -> Key:
     """A float key (ints accepted); ``bounds`` are the other :class:`Key` fields."""
     return Key("float", meaning, **bounds)
+
+
+def quantity(meaning: str, **bounds: Any) -> Key:
+    """A physical quantity: a float key whose bounds are its plausible range (README, "Plausible
+    ranges"; common practice, wide enough for any laboratory or facility amplifier)."""
+    return Key("float", meaning, plausible=True, **bounds)
 
 
 def integer(meaning: str, low: int, high: int, **more: Any) -> Key:
@@ -123,7 +134,7 @@ SECTION_HINTS = {
 
 GRID: dict[str, Key] = {
     "points": integer("transverse points per axis", 8, 4096, default=128),
-    "width_mm": number("full width of the square transverse window", gt=0, required=True),
+    "width_mm": quantity("full width of the square transverse window", gt=0, le=1e4, required=True),
     "time_slices": integer("slices across the pulse", 1, 100000, default=64),
     "diffraction": flag("split-step diffraction", default=False),
     "fft_workers": integer("threads of the field path (FFTs and gain steps); -1: all cores", -1, 4096,
@@ -140,14 +151,14 @@ MEDIUM: dict[str, Key] = {
     "kind": choice("medium kind (fibre media take the keys of config_fibre.FIBRE_MEDIUM)", MEDIUM_KINDS,
                    default="bulk"),
     "material": Key("material", 'a built-in material name or a [medium.material] table', required=True),
-    "length_mm": number("length along the beam", gt=0, required=True),
-    "diameter_mm": number("clear-aperture diameter (round)", gt=0),
-    "width_mm": number("clear-aperture side (square)", gt=0),
+    "length_mm": quantity("length along the beam", gt=0, le=1e4, required=True),
+    "diameter_mm": quantity("clear-aperture diameter (round)", gt=0, le=1e4),
+    "width_mm": quantity("clear-aperture side (square)", gt=0, le=1e4),
     "slices": integer("slices along z", 1, 100000, default=20),
-    "loss_per_cm": number("passive loss coefficient", ge=0, default=0.0),
-    "doping_per_m3": number("active-ion density", ge=_DOPING.low, le=_DOPING.high),
+    "loss_per_cm": quantity("passive loss coefficient", ge=0, le=100, default=0.0),
+    "doping_per_m3": quantity("active-ion density", ge=_DOPING.low, le=_DOPING.high),
     "small_signal_gain": number("single-pass small-signal gain G0", ge=1, lt=1e30),
-    "stored_energy_J": number("extractable stored energy", gt=0),
+    "stored_energy_J": quantity("extractable stored energy", gt=0, le=1e6),
     "pump": Key("table", "a pump description that builds the gain map"),
 }
 
@@ -155,15 +166,15 @@ GEOMETRIES = ("end", "side")
 PUMP_PROFILES = ("flat", "gaussian", "supergaussian", "parabolic")
 PUMP: dict[str, Key] = {
     "geometry": choice("pump geometry", GEOMETRIES, required=True),
-    "energy_J": number("pump energy in one pump pulse", gt=0),
-    "power_W": number("pump power during the pump pulse", gt=0),
-    "duration_us": number("pump pulse length (pulsed mode)", gt=0),
+    "energy_J": quantity("pump energy in one pump pulse", gt=0, le=1e7),
+    "power_W": quantity("pump power during the pump pulse", gt=0, le=1e9),
+    "duration_us": quantity("pump pulse length (pulsed mode)", gt=0, le=1e7),
     "continuous": flag("a CW pump, on all the time (give power_W)", default=False),
-    "wavelength_nm": number("pump wavelength", ge=150.0, le=20000.0),
+    "wavelength_nm": quantity("pump wavelength", ge=150.0, le=20000.0),
     "profile": choice("transverse pump profile", PUMP_PROFILES, default="flat"),
-    "diameter_mm": number("pumped diameter", gt=0),
-    "order": number("supergaussian order", ge=2, default=8.0),
-    "absorption_per_cm": number("pump absorption coefficient", gt=0),
+    "diameter_mm": quantity("pumped diameter", gt=0, le=1e4),
+    "order": number("supergaussian order", ge=2, le=1000, default=8.0),
+    "absorption_per_cm": quantity("pump absorption coefficient", gt=0, le=1e4),
     "back_reflectance": number("end pumping: fraction of the transmitted pump sent back", ge=0, le=1),
     "absorbed_fraction": number("side pumping: fraction of the pump absorbed", gt=0, le=1),
     "transfer_efficiency": number("pump delivery efficiency", gt=0, le=1, default=1.0),
@@ -173,7 +184,7 @@ END_ONLY = ("back_reflectance", "absorption_per_cm")
 SIDE_ONLY = ("absorbed_fraction",)
 
 MATERIAL_TABLE: dict[str, Key] = {
-    key: number(spec.meaning, required=spec.required, ge=spec.low, le=spec.high, zero_ok=spec.allow_zero)
+    key: quantity(spec.meaning, required=spec.required, ge=spec.low, le=spec.high, zero_ok=spec.allow_zero)
     for key, spec in MATERIAL_KEYS.items()
 }
 MATERIAL_TABLE.update({
@@ -186,24 +197,28 @@ MATERIAL_TABLE.update({
 PULSE_SHAPES = ("gaussian", "flat", "sech2")
 BEAM_PROFILES = ("gaussian", "flat", "supergaussian")
 DURATION_KEYS = ("duration_ns", "duration_ps", "duration_fs", "duration_us")
+DURATION_RANGES = {"duration_ns": (1e-6, 1e7), "duration_ps": (1e-3, 1e10), "duration_fs": (1.0, 1e13),
+                   "duration_us": (1e-9, 1e4)}        # 1 fs to 10 ms in each unit
 PULSED_SEED_KEYS = ("energy_J", "shape") + DURATION_KEYS
 CW_SEED_KEYS = ("power_W",)
 SEED: dict[str, Key] = {
-    "wavelength_nm": number("seed wavelength", ge=150.0, le=20000.0),
-    "energy_J": number("pulse energy", gt=0),
-    "power_W": number("beam power", gt=0),
-    **{key: number("pulse duration (FWHM; full width for a flat pulse)", gt=0) for key in DURATION_KEYS},
+    "wavelength_nm": quantity("seed wavelength", ge=150.0, le=20000.0),
+    "energy_J": quantity("pulse energy", gt=0, le=1e6),
+    "power_W": quantity("beam power", gt=0, le=1e9),
+    **{key: quantity("pulse duration (FWHM; full width for a flat pulse), 1 fs to 10 ms", ge=low, le=high)
+       for key, (low, high) in DURATION_RANGES.items()},
     "shape": choice("temporal pulse shape", PULSE_SHAPES, default="gaussian"),
     "profile": choice("transverse profile", BEAM_PROFILES, default="gaussian"),
-    "order": number("supergaussian order", ge=2, default=8.0),
-    "diameter_mm": number("beam diameter 2w (1/e^2 intensity)", gt=0),
-    "waist_mm": number("distance from the start plane to the seed's waist (> 0: downstream)"),
-    "curvature_mm": number("wavefront radius at the start plane (> 0 diverging, < 0 converging)",
-                           nonzero=True),
+    "order": number("supergaussian order", ge=2, le=1000, default=8.0),
+    "diameter_mm": quantity("beam diameter 2w (1/e^2 intensity)", gt=0, le=1e4),
+    "waist_mm": quantity("distance from the start plane to the seed's waist (> 0: downstream)", ge=-1e8, le=1e8),
+    "curvature_mm": quantity("wavefront radius at the start plane (> 0 diverging, < 0 converging)",
+                             nonzero=True, ge=-1e9, le=1e9),
     "m_squared": number("beam quality factor M^2", ge=1, le=50, default=1.0),
     "phase_screen_seed": integer("random seed of the M^2 phase screen", 0, 2**31 - 1, default=0),
-    "repetition_rate_Hz": number("pulses per second: a pulse train (bulk or fibre layouts)", gt=0),
-    "repetition_rate_kHz": number("thousands of pulses per second: a pulse train (bulk or fibre layouts)", gt=0),
+    "repetition_rate_Hz": quantity("pulses per second: a pulse train (bulk or fibre layouts)", gt=0, le=1e10),
+    "repetition_rate_kHz": quantity("thousands of pulses per second: a pulse train (bulk or fibre layouts)", gt=0,
+                                    le=1e7),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
@@ -223,15 +238,17 @@ STEP_COMMON: dict[str, Key] = {
     "name": text("step name"),
 }
 STEP_TIME: dict[str, Key] = {   # every step kind takes these, after its own keys
-    "delay_ns": number("time the step takes before the next step (the media are pumped and decay)", ge=0),
+    "delay_ns": quantity("time the step takes before the next step (the media are pumped and decay)", ge=0,
+                         le=1e10),
 }
 INNER_STEP_KIND = choice("step kind inside a repeat", INNER_STEP_KIND_NAMES, required=True)
 UNTIL_RULES = ("peak",)
 MAX_COUNT_DEFAULT = 1000
 _DAMAGE: dict[str, Key] = {
-    "damage_fluence_J_cm2": number("damage fluence of the optic (pulsed mode)", gt=0),
-    "damage_pulse_ns": number("pulse length the damage fluence was quoted at (pulsed mode)", gt=0),
-    "damage_intensity_W_cm2": number("cw damage intensity of the optic (cw mode)", gt=0),
+    key: quantity(meaning, ge=MATERIAL_KEYS[key].low, le=MATERIAL_KEYS[key].high) for key, meaning in (
+        ("damage_fluence_J_cm2", "damage fluence of the optic (pulsed mode)"),
+        ("damage_pulse_ns", "pulse length the damage fluence was quoted at (pulsed mode)"),
+        ("damage_intensity_W_cm2", "cw damage intensity of the optic (cw mode)"))
 }
 APERTURE_SHAPES = ("round", "square")
 STEP_KINDS: dict[str, dict[str, Key]] = {
@@ -245,16 +262,16 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
     },
     "aperture": {
         "shape": choice("aperture shape", APERTURE_SHAPES),
-        "diameter_mm": number("aperture diameter (round)", gt=0),
-        "width_mm": number("aperture side (square)", gt=0),
+        "diameter_mm": quantity("aperture diameter (round)", gt=0, le=1e4),
+        "width_mm": quantity("aperture side (square)", gt=0, le=1e4),
         "order": number("super-Gaussian order of a soft edge; leave it out for a hard edge", ge=2, le=1000),
         **_DAMAGE,
     },
-    "space": {"length_mm": number("free-space length", ge=0, required=True)},
-    "lens": {"focal_mm": number("focal length", nonzero=True, required=True)},
+    "space": {"length_mm": quantity("free-space length", ge=0, le=1e7, required=True)},
+    "lens": {"focal_mm": quantity("focal length", nonzero=True, ge=-1e8, le=1e8, required=True)},
     "filter": {
-        "focal_mm": number("focal length of the filter's two lenses", gt=0, required=True),
-        "pinhole_diameter_mm": number("pinhole diameter in the focal plane", gt=0, required=True),
+        "focal_mm": quantity("focal length of the filter's two lenses", gt=0, le=1e5, required=True),
+        "pinhole_diameter_mm": quantity("pinhole diameter in the focal plane", gt=0, le=1e3, required=True),
         **_DAMAGE,
     },
     "relay": {
@@ -265,7 +282,7 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
         "count": integer("number of round trips", 1, 1_000_000),
         "until": choice("stop rule: 'peak' dumps after the round trip of largest energy", UNTIL_RULES),
         "max_count": integer("safety limit on the round trips with until = 'peak'", 1, 1_000_000),
-        "round_trip_ns": number("time of one round trip", gt=0),
+        "round_trip_ns": quantity("time of one round trip", gt=0, le=1e9),
     },
 }
 
@@ -384,7 +401,8 @@ def did_you_mean(word: Any, choices: Iterable[Any]) -> str:
 
 
 def _fmt(x: float) -> str:
-    return f"{x:g}"
+    """1e6, 0.5, 1e-24: the shortest form that reads back (and as one writes it in TOML)."""
+    return re.sub(r"e([+-])0*(\d)", lambda m: "e" + ("-" if m.group(1) == "-" else "") + m.group(2), f"{x:g}")
 
 
 def rule(key: Key) -> str:
@@ -407,10 +425,9 @@ def rule(key: Key) -> str:
 def expected(key: Key) -> str:
     """What a key takes, in words: "a number > 0", "an integer from 8 to 4096", "one of 'a', 'b'"."""
     if key.kind == "float":
-        r = rule(key)
-        if key.nonzero and r == "non-zero":
-            return "a non-zero number"
-        return f"a number {r}".strip()
+        if key.nonzero:
+            return f"a non-zero number {rule(dataclasses.replace(key, nonzero=False))}".strip()
+        return f"a number {rule(key)}".strip()
     if key.kind == "int":
         return f"an integer {rule(key)}".strip()
     if key.kind == "bool":
@@ -456,6 +473,12 @@ def _looks_numeric(s: str) -> bool:
     return True
 
 
+def _looks_like_expression(s: str) -> bool:
+    """"2 * 0.005", "1e-3/2", "(3+4)": arithmetic written where a number belongs."""
+    return (re.fullmatch(r"[\s\d.eE+\-*/()^%]+", s) is not None
+            and re.search(r"[\d)]\s*[*/+\-^%]+\s*[\d(.]", s) is not None)
+
+
 def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
     """Check the type and range of one value.
 
@@ -486,7 +509,7 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
         if not all(math.isfinite(v) for v in value):
             return None, f"must be {want}; nan and inf are not allowed"
         if not all(_in_range(float(v), key) for v in value):
-            return None, f"out of range: must be {want} ({key.meaning})"
+            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
         return [float(v) for v in value], None
     if kind in ("float", "int"):
         if isinstance(value, bool):
@@ -495,14 +518,18 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
             return None, f"must be {want}: write {int(value)}, without a decimal point"
         ok_types = (int,) if kind == "int" else (int, float)
         if not isinstance(value, ok_types):
-            hint = "; write the number without quotes" if isinstance(value, str) and _looks_numeric(value) else ""
+            hint = ""
+            if isinstance(value, str) and _looks_numeric(value):
+                hint = "; write the number without quotes"
+            elif isinstance(value, str) and _looks_like_expression(value):
+                hint = "; a config is data: expressions are not evaluated, write the number itself"
             return None, f"must be {want}, not {type_name(value)}{hint}"
         if kind == "float":
             value = float(value)
             if not math.isfinite(value):
                 return None, f"must be {want}; nan and inf are not allowed"
         if not _in_range(value, key):
-            return None, f"out of range: must be {want} ({key.meaning})"
+            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
         return value, None
     if kind == "bool":
         if not isinstance(value, bool):

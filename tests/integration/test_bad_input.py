@@ -19,11 +19,12 @@ DATA = ROOT / "tests" / "data"
 
 # file -> (substrings the problem lines must hold, number of problems)
 CASES: dict[str, tuple[list[str], int]] = {
-    "bad_toml_syntax.toml": (["TOML syntax error at line 9, column"], 1),
+    "bad_toml_syntax.toml": (["TOML syntax error at line 9, column 19", "units belong in the key's name"], 1),
     "bad_unknown_top_key.toml": (['titel = "broken": unknown key', "did you mean 'title'?"], 1),
     "bad_unknown_medium_key.toml": (["medium[0] (rod).slice = 20: unknown key", "did you mean 'slices'?"], 1),
-    "bad_wrong_type.toml": (['medium[0] (rod).length_mm = "100": must be a number > 0, not a string'], 1),
-    "bad_bool_number.toml": (["seed.energy_J = true: must be a number > 0, not a boolean"], 1),
+    "bad_wrong_type.toml": (['medium[0] (rod).length_mm = "100": must be a number > 0 and <= 10000, not a string',
+                             "write the number without quotes"], 1),
+    "bad_bool_number.toml": (["seed.energy_J = true: must be a number > 0 and <= 1e6, not a boolean"], 1),
     "bad_nan.toml": (["grid.width_mm = nan:", "nan and inf are not allowed"], 1),
     "bad_negative_length.toml": (["medium[0] (rod).length_mm = -100.0: out of range: must be a number > 0"], 1),
     "bad_transmission.toml": (["step[1].transmission = 1.2: out of range: must be a number > 0 and <= 1"], 1),
@@ -125,7 +126,35 @@ CASES: dict[str, tuple[list[str], int]] = {
                                "pulse (250 us)", "lower the repetition rate"], 1),
     "bad_train_without_rate.toml": (["train: applies to pulse trains of bulk media only",
                                      "give seed.repetition_rate_Hz"], 1),
-    "bad_delay_negative.toml": (["step[0].delay_ns = -5.0: out of range: must be a number >= 0"], 1),
+    "bad_delay_negative.toml": (["step[0].delay_ns = -5.0: out of range: must be a number from 0 to 1e10",
+                                 "a plausible range"], 1),
+    # values outside their plausible range: the message names the range (README, "Plausible ranges")
+    "bad_wavelength_unit.toml": (["seed.wavelength_nm = 1.064: out of range: must be a number from 150 to 20000",
+                                  "seed wavelength; a plausible range"], 1),
+    "bad_duration_range.toml": (["seed.duration_ns = 5000000000.0: out of range: must be a number from 1e-6 to 1e7",
+                                 "1 fs to 10 ms"], 1),
+    "bad_energy_range.toml": (["seed.energy_J = 20000000.0: out of range: must be a number > 0 and <= 1e6",
+                               "a slip of unit"], 1),
+    "bad_length_range.toml": (["medium[0] (rod).length_mm = 100000.0: out of range: must be a number > 0 and "
+                               "<= 10000"], 1),
+    "bad_loss_range.toml": (["medium[0] (rod).loss_per_cm = 250.0: out of range: must be a number from 0 to 100"], 1),
+    "bad_lifetime_range.toml": (["medium[0] (rod).material.upper_lifetime_us = 230000000.0: out of range: must be "
+                                 "a number from 0.0001 to 100000"], 1),
+    "bad_damage_fluence_range.toml": (["step[1].damage_fluence_J_cm2 = 50000.0: out of range: must be a number from "
+                                       "0.001 to 10000"], 1),
+    "bad_space_length_range.toml": (["step[1].length_mm = 50000000.0: out of range: must be a number from 0 to 1e7"], 1),
+    "bad_repetition_rate_range.toml": (["seed.repetition_rate_Hz = 1000000000000.0: out of range: must be a number "
+                                        "> 0 and <= 1e10"], 1),
+    # config files are data
+    "bad_expression.toml": (['seed.energy_J = "2 * 0.005": must be a number > 0 and <= 1e6, not a string',
+                             "expressions are not evaluated"], 1),
+    "bad_date_for_number.toml": (["seed.energy_J = 2024-01-01: must be a number > 0 and <= 1e6, not a date/time"], 1),
+    "bad_toml_duplicate_key.toml": (["TOML syntax error at line 11, column 18: Cannot overwrite a value",
+                                     "a key given twice"], 1),
+    "bad_toml_unclosed_table.toml": (["TOML syntax error at line 20, column 6: Expected ']' at the end of a table "
+                                      "declaration"], 1),
+    "bad_toml_unclosed_string.toml": (["TOML syntax error at line 2, column 17", "without its closing quote"], 1),
+    "bad_not_utf8.toml": (["cannot read the config: not UTF-8 text", "at line 2, column 15", "save the file as UTF-8"], 1),
     # data files (paths relative to the config file's folder)
     "bad_spectrum_file_missing.toml": (['medium[0] (f1).material.spectrum.file = "no_such_spectrum.csv": no such '
                                         "file", "a relative path is taken from the config file's folder"], 1),
@@ -180,23 +209,49 @@ def needs_cli():
         pytest.skip("the command line (ampmodel/cli.py) is not there yet")
 
 
-@pytest.mark.parametrize("name", FILES)
-def test_command_line_rejects_with_exit_code_2(name, tmp_path):
-    needs_cli()
+def _rejects(name: str, tmp_path: Path, call) -> None:
+    """``check`` and ``run`` of a broken config: exit code 2, the problem lines on stderr naming the
+    file, no traceback, nothing written (neither --out nor anything in the working folder)."""
     path = DATA / name
     work = tmp_path / "work"
     work.mkdir()
     out = tmp_path / "out"
     expected, _ = CASES[name]
     for args in (["check", str(path)], ["run", str(path), "--out", str(out)]):
-        proc = run_cli(*args, cwd=work)
-        assert proc.returncode == 2, (args, proc.stdout, proc.stderr)
-        assert "Traceback" not in proc.stderr + proc.stdout
-        assert str(path) in proc.stderr
+        code, stdout, stderr = call(args, work)
+        assert code == 2, (args, stdout, stderr)
+        assert "Traceback" not in stderr + stdout
+        assert str(path) in stderr
         for part in expected:
-            assert part in proc.stderr, (args, part, proc.stderr)
+            assert part in stderr, (args, part, stderr)
     assert not out.exists()
     assert list(work.iterdir()) == []                       # nothing written where it ran
+
+
+@pytest.mark.parametrize("name", FILES)
+def test_command_line_rejects_with_exit_code_2(name, tmp_path, monkeypatch, capsys):
+    """Through ``cli.main`` in this process (the entry point itself: test_entry_point_rejects)."""
+    needs_cli()
+    from ampmodel.cli import main
+
+    def call(args, cwd):
+        monkeypatch.chdir(cwd)
+        code = main(args)
+        captured = capsys.readouterr()
+        return code, captured.out, captured.err
+    _rejects(name, tmp_path, call)
+
+
+@pytest.mark.parametrize("name", ["bad_toml_syntax.toml", "bad_not_utf8.toml", "bad_spectrum_file_row.toml",
+                                  "bad_many_problems.toml", "bad_energy_range.toml"])
+def test_entry_point_rejects(name, tmp_path):
+    """The same through ``python -m ampmodel`` in a child process, for a few of the files."""
+    needs_cli()
+
+    def call(args, cwd):
+        proc = run_cli(*args, cwd=cwd)
+        return proc.returncode, proc.stdout, proc.stderr
+    _rejects(name, tmp_path, call)
 
 
 def test_command_line_rejects_a_bad_set_path(tmp_path):

@@ -80,7 +80,7 @@ transmission = 0.8
     ({}, "step[0].count: missing: the number of round trips"),
     ({"count": 2, "max_count": 9}, 'step[0].max_count = 9: applies with until = "peak" only'),
     ({"until": "peek"}, "step[0].until = \"peek\": must be one of 'peak'; did you mean 'peak'?"),
-    ({"count": 0}, "step[0].count = 0: out of range: must be an integer from 1 to 1e+06"),
+    ({"count": 0}, "step[0].count = 0: out of range: must be an integer from 1 to 1e6"),
     ({"count": 2, "round_trip_ns": -1.0}, "step[0].round_trip_ns = -1.0: out of range"),
 ])
 def test_repeat_problems(repeat, expected):
@@ -153,7 +153,7 @@ def test_continuous_pump():
      "medium[0] (rod).pump.duration_us = 100.0: a continuous pump has no pulse length"),
     ({"continuous": True, "energy_J": 1.0}, "medium[0] (rod).pump.energy_J = 1.0: a continuous pump takes power_W"),
     ({"continuous": True}, "medium[0] (rod).pump.power_W: missing: the power of the continuous pump"),
-    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length (pulsed mode), a number > 0; "
+    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length (pulsed mode), a number > 0 and <= 1e7; "
                         "or continuous = true with power_W"),
     ({"continuous": "yes", "power_W": 5.0}, 'medium[0] (rod).pump.continuous = "yes": must be true or false'),
 ])
