@@ -503,6 +503,9 @@ def _dispatch(args, argv: list[str]) -> int:
         else:
             print("interrupted: nothing was written (the unfinished output was removed).", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:              # `ampmodel ... | head`: the reader left; the files are written
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
     except (OutputError, OSError) as err:
         if isinstance(err, OSError) and not is_write_error(err):
             print(f"ampmodel {args.command}: cannot write or read a file: {err}", file=sys.stderr)

@@ -316,6 +316,12 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
                     used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
                                 progress, timeout_s, len(values), len(reused), kind, notes)
                 except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
+                    # points a worker finished while the news was on its way: in the folder, so in the table
+                    for i in todo:
+                        if summaries[i] is None and i not in failed:
+                            found = store.read_point(store.point_path(out, i))
+                            if found and found["config_hash"] == hash_ and found["values"] == store.values_key(values[i]):
+                                summaries[i] = found["summary"]
                     _stop(exc, table, out, kind, sum(s is not None for s in summaries), len(values))
                     raise
             h5, csv = table()
