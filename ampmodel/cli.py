@@ -225,9 +225,10 @@ def _print_table(summary: dict) -> None:
 
 
 def cmd_run(args) -> int:
-    from .solver import simulate
+    from .solver import check_memory, simulate
     from .run_folder import claim, partial_folder
     config = _load(args.config, args.overrides)
+    check_memory(config)                       # a grid too large: refused before anything is made
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
     with partial_folder(base) as tmp:          # before the computation: an unwritable place fails now
         result = simulate(config, progress=False if args.quiet else None)

@@ -128,9 +128,13 @@ def check_memory(config: Config) -> int:
     need, have = memory_estimate_bytes(config), available_memory_bytes()
     if have is not None and need > 0.8 * have:
         from .config import ConfigError
-        raise ConfigError([f"{config.source}: grid: the run needs about {need / 2**30:.1f} GiB of arrays but "
-                           f"{have / 2**30:.1f} GiB are available; lower grid.points, grid.time_slices or "
-                           f"the media's slices"])
+        sizes = [f"grid.points = {config.grid.points}"]
+        if config.mode == "pulsed":
+            sizes.append(f"grid.time_slices = {config.grid.time_slices}")
+        sizes.append(f"slices = {max(m.slices for m in config.media)} (largest medium)")
+        raise ConfigError([f"{config.source}: grid: {', '.join(sizes)}: the run needs about {need / 2**30:.1f} GiB "
+                           f"of arrays but {have / 2**30:.1f} GiB are available (the limit is 80 % of it); lower "
+                           f"grid.points, grid.time_slices or the media's slices (nothing was allocated)"])
     return need
 
 

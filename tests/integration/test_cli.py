@@ -216,7 +216,8 @@ def test_a_grid_too_large_for_memory_is_refused_before_allocating(command, tmp_p
     extra = ["--out", str(tmp_path / "o")] if command == "run" else []
     proc = ampmodel(command, str(config), *extra, "--set", "grid.points=4096", "--set", "grid.time_slices=4096")
     assert proc.returncode == 2
-    assert "grid" in proc.stderr and "GiB" in proc.stderr
+    assert "grid: grid.points = 4096, grid.time_slices = 4096, slices = " in proc.stderr and "GiB" in proc.stderr
+    assert "lower grid.points, grid.time_slices or the media's slices" in proc.stderr
     assert "Traceback" not in proc.stderr
     assert not (tmp_path / "o").exists()
 
