@@ -286,7 +286,7 @@ def _provenance(f, config: Config) -> None:
     g.attrs["meaning"] = "what reproduces the run besides /config: JSON texts (README, Reproducing a run)"
     for name, text in provenance(config).items():
         ds = g.create_dataset(name, data=text, dtype=h5py.string_dtype())
-        ds.attrs["units"] = ""
+        ds.attrs["units"] = "text"          # JSON text, not a quantity
 
 
 def read_provenance(path: str | os.PathLike) -> dict[str, Any]:

@@ -57,7 +57,7 @@ def test_the_result_file_records_what_reproduces_the_run(run_dir):
     for name in ("python", "numpy", "scipy", "h5py", "platform"):
         assert stored["environment"][name]
     with h5py.File(run_dir / "result.h5") as f:
-        assert f["provenance/materials"].attrs["units"] == ""
+        assert f["provenance/materials"].attrs["units"] == "text"
 
 
 def test_rerun_reproduces_the_figures(run_dir, tmp_path, capsys, monkeypatch):
