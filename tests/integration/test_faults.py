@@ -348,3 +348,38 @@ def test_a_killed_run_leaves_only_a_hidden_partial_folder_that_a_later_run_remov
         os.close(fd)
     assert [Path(p).name for p in removed] == [dead.name]
     assert not dead.exists() and alive.exists()
+
+
+def _die(task):
+    """A task whose worker process dies (as one killed by the system for lack of memory would)."""
+    if task == 1:
+        os._exit(3)
+    return task
+
+
+def test_a_worker_that_dies_is_named_not_a_traceback():
+    from ampmodel.backends import WorkerLost, run_tasks
+    with pytest.raises(WorkerLost) as info:
+        list(run_tasks(_die, [0, 1, 2, 3], "loky", 2))
+    assert "a worker process died" in str(info.value) and "fewer --jobs" in str(info.value)
+
+
+def test_the_atomic_writer(tmp_path):
+    from ampmodel import atomic
+    target = tmp_path / "table.csv"
+    atomic.write_text(target, "a,b\n")
+    assert target.read_text() == "a,b\n"
+    assert target.stat().st_mode & 0o777 == atomic.default_mode()     # not the private mode of a temp file
+    with pytest.raises(KeyboardInterrupt):
+        with atomic.target(target) as tmp:
+            tmp.write_text("half")
+            raise KeyboardInterrupt
+    assert target.read_text() == "a,b\n" and sorted(p.name for p in tmp_path.iterdir()) == ["table.csv"]
+    (tmp_path / ".table.csv.x1.part").write_text("left by a killed writer")
+    assert atomic.remove_parts(tmp_path) == 1 and sorted(p.name for p in tmp_path.iterdir()) == ["table.csv"]
+    error = OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), "/data/runs/x/result.h5")
+    assert atomic.is_write_error(error) and not atomic.is_write_error(OSError(errno.EIO, "I/O error"))
+    assert atomic.describe_write_error(error) == (
+        "cannot write /data/runs/x/result.h5: the disk is full (no space left on device): free some space, or give "
+        "--out a folder on another disk (ENOSPC: No space left on device)")
+    assert not atomic.is_complete_hdf5(target)
