@@ -19,6 +19,7 @@ import itertools
 import json
 import os
 import re
+import signal
 import sys
 import tempfile
 import time
@@ -100,6 +101,16 @@ class PointOutcome:
     write_error: bool = False     # the point file could not be written (full disk, no permission)
 
 
+def _leave_interrupts_to_the_parent() -> None:
+    """In a local worker: ignore SIGINT. Ctrl-C in a terminal reaches the whole process group; the
+    parent stops the sweep and ends its workers, and a worker interrupted on its own could print a
+    stray traceback (an interrupt that lands in a clean-up callback) over the parent's message."""
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:        # not the worker's main thread: nothing to change
+        pass
+
+
 def run_point(task: PointTask) -> PointOutcome:
     """Run one point and write its file (``points/NNNN.h5``: result.h5's content, its summary, and
     root attributes ``sweep_index``, ``sweep_values``, ``sweep_config_hash``), atomically.
@@ -107,8 +118,10 @@ def run_point(task: PointTask) -> PointOutcome:
     Runs in a worker process; never raises: a failure comes back as ``PointOutcome.error``. A local
     worker whose parent is gone (the sweep was killed outright) leaves instead of computing the
     points still queued for nobody."""
-    if task.parent_pid and os.getpid() != task.parent_pid and os.getppid() != task.parent_pid:
-        os._exit(0)
+    if task.parent_pid and os.getpid() != task.parent_pid:
+        if os.getppid() != task.parent_pid:
+            os._exit(0)
+        _leave_interrupts_to_the_parent()
     start = time.perf_counter()
     try:
         from .results import write_hdf5
