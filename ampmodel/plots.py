@@ -17,106 +17,12 @@ from pathlib import Path
 from typing import Sequence
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from .atomic import target
+from .plot_common import (ENERGY_UNITS, LOSS_COLOUR, MAP_CMAP, OUTPUT_COLOUR, POWER_UNITS, SEED_COLOUR, TIME_UNITS,
+                          block_mean, centre_index, finite_max, finite_min, new_figure, pixel_extent, pixel_pitch,
+                          save_png, unit_prefix)
 from .results import Result, StepRecord
-
-DPI = 110
-MAX_IMAGE_PIXELS = 512          # larger maps are block-averaged down to at most this many pixels per axis
-SEED_COLOUR = "#1f5fa8"
-OUTPUT_COLOUR = "#c8432b"
-LOSS_COLOUR = "0.6"
-MAP_CMAP = "inferno"
-
-_ENERGY_UNITS = [(1e-12, "pJ"), (1e-9, "nJ"), (1e-6, "µJ"), (1e-3, "mJ"), (1.0, "J"), (1e3, "kJ")]
-_POWER_UNITS = [(1e-6, "µW"), (1e-3, "mW"), (1.0, "W"), (1e3, "kW"), (1e6, "MW"), (1e9, "GW"),
-                (1e12, "TW")]
-_TIME_UNITS = [(1e-15, "fs"), (1e-12, "ps"), (1e-9, "ns"), (1e-6, "µs"), (1e-3, "ms"), (1.0, "s")]
-
-
-# ----------------------------------------------------------------------------------------------
-# small helpers
-
-
-def _figure(width_in: float, height_in: float) -> Figure:
-    """A new figure with its own Agg canvas and constrained layout."""
-    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained")
-    FigureCanvasAgg(fig)
-    return fig
-
-
-def _save(fig: Figure, path: Path) -> Path:
-    """Write ``fig`` as PNG to ``path`` atomically (temporary name, then rename) and release it."""
-    try:
-        with target(path) as tmp:
-            fig.savefig(tmp, format="png", dpi=DPI)
-    finally:
-        fig.clear()
-    return path
-
-
-def _finite_max(a: np.ndarray, default: float = 0.0) -> float:
-    """Largest finite value of ``a``, or ``default`` when it has none (no warning)."""
-    a = np.asarray(a, dtype=float)
-    ok = np.isfinite(a)
-    return float(a[ok].max()) if ok.any() else default
-
-
-def _finite_min(a: np.ndarray, default: float = 0.0) -> float:
-    """Smallest finite value of ``a``, or ``default`` when it has none (no warning)."""
-    a = np.asarray(a, dtype=float)
-    ok = np.isfinite(a)
-    return float(a[ok].min()) if ok.any() else default
-
-
-def _prefix(value: float, table: list[tuple[float, str]]) -> tuple[float, str]:
-    """The (factor, unit) of ``table`` whose factor is the largest not above ``|value|``.
-
-    Falls back to the smallest entry for tiny values and to the base unit (factor 1) for zero or
-    non-finite values.
-    """
-    value = abs(value)
-    if not np.isfinite(value) or value == 0.0:
-        return next((f, u) for f, u in table if f == 1.0)
-    chosen = table[0]
-    for f, u in table:
-        if f <= value * (1 + 1e-9):
-            chosen = (f, u)
-    return chosen
-
-
-def _block_mean(a: np.ndarray, axis: int, limit: int = MAX_IMAGE_PIXELS) -> np.ndarray:
-    """Average ``a`` over blocks of neighbouring pixels along ``axis`` until it has at most ``limit``."""
-    n = a.shape[axis]
-    k = math.ceil(n / limit)
-    if k <= 1:
-        return a
-    m = (n // k) * k
-    a = np.moveaxis(np.take(a, np.arange(m), axis=axis), axis, 0)
-    a = a.reshape((m // k, k) + a.shape[1:]).mean(axis=1)
-    return np.moveaxis(a, 0, axis)
-
-
-def _extent(centres: np.ndarray) -> tuple[float, float]:
-    """Outer edges (first - d/2, last + d/2) of uniformly spaced pixel ``centres``."""
-    c = np.asarray(centres, dtype=float)
-    d = float(c[1] - c[0]) if c.size > 1 else 1.0
-    return float(c[0] - d / 2), float(c[-1] + d / 2)
-
-
-def _pixel(coords: np.ndarray) -> float:
-    """Pixel pitch of uniformly spaced ``coords`` (m); 1 for a single point."""
-    c = np.asarray(coords, dtype=float)
-    return float(abs(c[1] - c[0])) if c.size > 1 else 1.0
-
-
-def _centre_index(coords: np.ndarray) -> int:
-    """Index of the pixel centre closest to 0 (the optical axis)."""
-    c = np.asarray(coords, dtype=float)
-    return int(np.argmin(np.abs(c))) if c.size else 0
-
 
 def _safe_name(name: str) -> str:
     """``name`` reduced to characters that are safe in a file name."""
@@ -176,7 +82,7 @@ def _energies(result: Result) -> tuple[float, np.ndarray]:
     """
     cw = _is_cw(result)
     in_key, out_key = ("power_in_W", "power_out_W") if cw else ("energy_in_J", "energy_out_J")
-    area = _pixel(result.x_m) * _pixel(result.y_m)
+    area = pixel_pitch(result.x_m) * pixel_pitch(result.y_m)
     seed = float(np.sum(np.nan_to_num(seed_map(result))) * area)
     after = np.array([float(np.sum(np.nan_to_num(step_map(result, r))) * area) for r in result.steps])
     summary = result.summary or {}
@@ -230,13 +136,13 @@ def _draw_map(fig: Figure, ax, image_J_m2: np.ndarray, x_m: np.ndarray, y_m: np.
     """Draw one transverse map (SI per m², shown per cm²) with its own colour bar."""
     img = np.nan_to_num(np.asarray(image_J_m2, dtype=float)) / 1e4
     x, y = np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float)
-    img = _block_mean(_block_mean(img, 0), 1)
-    x = _block_mean(x, 0)
-    y = _block_mean(y, 0)
-    peak = _finite_max(img)
+    img = block_mean(block_mean(img, 0), 1)
+    x = block_mean(x, 0)
+    y = block_mean(y, 0)
+    peak = finite_max(img)
     scale, unit_x = _length_unit(x)
-    x0, x1 = _extent(x * scale)
-    y0, y1 = _extent(y * scale)
+    x0, x1 = pixel_extent(x * scale)
+    y0, y1 = pixel_extent(y * scale)
     im = ax.imshow(img, origin="lower", extent=(x0, x1, y0, y1), cmap=MAP_CMAP,
                    vmin=0.0, vmax=peak if peak > 0 else 1.0, interpolation="nearest")
     ax.set_xlabel(f"x ({unit_x})")
@@ -256,7 +162,7 @@ def _lineout_axis(ax, coord_m: np.ndarray, seed: np.ndarray, out: np.ndarray, ax
     c = np.asarray(coord_m, dtype=float) * scale
     s = np.nan_to_num(seed) / 1e4
     o = np.nan_to_num(out) / 1e4
-    ps, po = _finite_max(s), _finite_max(o)
+    ps, po = finite_max(s), finite_max(o)
     ratio = po / ps if ps > 0 and po > 0 else 1.0
     twin = ratio > 10 or ratio < 0.1
     kw = dict(marker=".", markersize=3) if c.size <= 48 else {}
@@ -299,19 +205,19 @@ def plot_fluence_maps(result: Result, path: Path) -> Path:
         out_label = f"output after step {result.steps[-1].index}"
     else:
         out, out_label = seed, "output (no steps)"
-    fig = _figure(11.0, 8.2)
+    fig = new_figure(11.0, 8.2)
     gs = fig.add_gridspec(2, 2, height_ratios=[1.35, 1.0])
     ax_s, ax_o = fig.add_subplot(gs[0, 0]), fig.add_subplot(gs[0, 1])
-    ps, po = _finite_max(seed) / 1e4, _finite_max(out) / 1e4
+    ps, po = finite_max(seed) / 1e4, finite_max(out) / 1e4
     _draw_map(fig, ax_s, seed, result.x_m, result.y_m, f"seed: peak {ps:.3g} {unit}", quantity, unit)
     _draw_map(fig, ax_o, out, result.x_m, result.y_m, f"{out_label}: peak {po:.3g} {unit}", quantity, unit)
-    iy, ix = _centre_index(result.y_m), _centre_index(result.x_m)
+    iy, ix = centre_index(result.y_m), centre_index(result.x_m)
     _lineout_axis(fig.add_subplot(gs[1, 0]), result.x_m, seed[iy, :], out[iy, :], "x", "y",
                   out_label, quantity, unit)
     _lineout_axis(fig.add_subplot(gs[1, 1]), result.y_m, seed[:, ix], out[:, ix], "y", "x",
                   out_label, quantity, unit)
     fig.suptitle(f"Transverse {quantity}: seed and output" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def _title_suffix(result: Result) -> str:
@@ -341,11 +247,11 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     values = np.concatenate(([seed], after))
     labels = ["seed"] + [step_label(result, r) for r in result.steps]
     pos = np.arange(values.size, dtype=float)
-    factor, unit = _prefix(_finite_max(values), _POWER_UNITS if cw else _ENERGY_UNITS)
+    factor, unit = unit_prefix(finite_max(values), POWER_UNITS if cw else ENERGY_UNITS)
     shown = values / factor
     n = values.size
     width_in = max(6.8, 0.5 * n + 3.0)
-    fig = _figure(width_in, 7.0)
+    fig = new_figure(width_in, 7.0)
     gs = fig.add_gridspec(2, 1, height_ratios=[1.3, 1.0])
     ax_e = fig.add_subplot(gs[0])
     ax_g = fig.add_subplot(gs[1], sharex=ax_e)
@@ -359,7 +265,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     if log_e:
         ax_e.set_yscale("log")
     else:
-        ax_e.set_ylim(bottom=0, top=max(_finite_max(shown) * 1.15, 1e-30) if _finite_max(shown) > 0 else 1.0)
+        ax_e.set_ylim(bottom=0, top=max(finite_max(shown) * 1.15, 1e-30) if finite_max(shown) > 0 else 1.0)
     if n <= 14:
         for p, v in zip(pos, shown):
             if np.isfinite(v) and (v > 0 or not log_e):
@@ -385,7 +291,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
                  color=[c for c, k in zip(colours, keep) if k])
     elif gval_ok.size:
         ax_g.bar(gpos_ok, gval_ok, width=0.6, color=colours)
-        ax_g.set_ylim(bottom=0, top=max(1.0, _finite_max(gval_ok)) * 1.18)
+        ax_g.set_ylim(bottom=0, top=max(1.0, finite_max(gval_ok)) * 1.18)
     else:
         ax_g.set_ylim(0, 2)
     ax_g.axhline(1.0, color="0.3", linestyle=":", linewidth=1.0)
@@ -401,7 +307,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     ax_g.set_xlabel("step")
     _step_ticks(ax_g, labels, pos, width_in)
     fig.suptitle(f"{what.capitalize()} through the layout" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -424,17 +330,17 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
     seed = np.nan_to_num(np.asarray(result.seed_power_W, dtype=float).ravel())
     out = np.nan_to_num(np.asarray(result.steps[-1].power_W, dtype=float).ravel()) if result.steps else seed
     span = float(t.max() - t.min()) if t.size > 1 else (abs(float(t[0])) if t.size else 0.0)
-    tf, tu = _prefix(span if span > 0 else 1e-9, _TIME_UNITS)
-    ps, po = _finite_max(seed), _finite_max(out)
-    pf, pu = _prefix(max(ps, po), _POWER_UNITS)
+    tf, tu = unit_prefix(span if span > 0 else 1e-9, TIME_UNITS)
+    ps, po = finite_max(seed), finite_max(out)
+    pf, pu = unit_prefix(max(ps, po), POWER_UNITS)
     ratio = po / ps if ps > 0 and po > 0 else 1.0
     shapes = ratio > 5 or ratio < 0.2
-    fig = _figure(8.0, 7.0 if shapes else 4.6)
+    fig = new_figure(8.0, 7.0 if shapes else 4.6)
     axes = fig.subplots(2, 1, sharex=True) if shapes else [fig.subplots(1, 1)]
     ax = axes[0]
     kw = dict(marker="o", markersize=4) if t.size <= 24 else {}
     seed_e, after = _energies(result)
-    eu = _prefix(max(seed_e, _finite_max(after)), _ENERGY_UNITS)
+    eu = unit_prefix(max(seed_e, finite_max(after)), ENERGY_UNITS)
     out_e = after[-1] if after.size else seed_e
     out_name = f"output after step {result.steps[-1].index}" if result.steps else "output"
     ax.plot(t / tf, seed / pf, color=SEED_COLOUR, label=f"seed, {seed_e / eu[0]:.3g} {eu[1]}", **kw)
@@ -459,7 +365,7 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
     if t.size == 1:
         axes[-1].set_xlim(t[0] / tf - 1.0, t[0] / tf + 1.0)
     fig.suptitle("Seed and output pulses" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -502,17 +408,17 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     x_m = np.asarray(result.x_m, dtype=float)
     y_m = np.asarray(result.y_m, dtype=float)
     if x_m.size != nx:  # a medium on its own grid: spread its pixels over the window
-        width = getattr(getattr(result.config, "grid", None), "width_m", None) or _pixel(result.x_m) * nx
+        width = getattr(getattr(result.config, "grid", None), "width_m", None) or pixel_pitch(result.x_m) * nx
         x_m = (np.arange(nx) - (nx - 1) / 2) * (width / nx)
     if y_m.size != ny:
         y_m = np.zeros(ny)
-    iy, ix = _centre_index(y_m), _centre_index(x_m)
+    iy, ix = centre_index(y_m), centre_index(x_m)
     cut0, cut1 = g0[:, iy, :].T, g1[:, iy, :].T       # (Nx, Nz): x vertical, z horizontal
-    cut0, cut1 = (_block_mean(_block_mean(c, 0), 1) for c in (cut0, cut1))
-    xs = _block_mean(x_m, 0) * 1e3
-    x0, x1 = _extent(xs)
-    lo = min(_finite_min(cut0), _finite_min(cut1))
-    hi = max(_finite_max(cut0), _finite_max(cut1))
+    cut0, cut1 = (block_mean(block_mean(c, 0), 1) for c in (cut0, cut1))
+    xs = block_mean(x_m, 0) * 1e3
+    x0, x1 = pixel_extent(xs)
+    lo = min(finite_min(cut0), finite_min(cut1))
+    hi = max(finite_max(cut0), finite_max(cut1))
     if lo < -1e-3 * max(abs(hi), 1e-30):   # real absorption (quasi-three-level), not round-off
         m = max(abs(lo), abs(hi), 1e-30)
         cmap, vmin, vmax = "RdBu_r", -m, m
@@ -526,7 +432,7 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
         pass
     passes = _pass_count(result, name)
 
-    fig = _figure(9.0, 8.6)
+    fig = new_figure(9.0, 8.6)
     gs = fig.add_gridspec(3, 1, height_ratios=[1.0, 1.0, 1.1])
     ax0 = fig.add_subplot(gs[0])
     ax1 = fig.add_subplot(gs[1], sharex=ax0, sharey=ax0)
@@ -557,8 +463,8 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     ax2.set_ylabel("on-axis g (1/cm)")
     ax2.set_title("on-axis gain coefficient along z")
     ax2.set_xlim(0.0, length_mm if length_mm > 0 else 1.0)
-    glo = min(_finite_min(on0), _finite_min(on1), 0.0)
-    ghi = max(_finite_max(on0), _finite_max(on1))
+    glo = min(finite_min(on0), finite_min(on1), 0.0)
+    ghi = max(finite_max(on0), finite_max(on1))
     ax2.set_ylim(glo * 1.1, ghi * 1.2 if ghi > 0 else 1.0)
     ax2.grid(True, alpha=0.3)
     ax2.legend(loc="best", fontsize="small", framealpha=0.9)
@@ -567,7 +473,7 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     note = f"{passes} pass{'es' if passes != 1 else ''}" if passes else "not passed in this layout"
     fig.suptitle(f"Gain in medium '{name}'" + (f" ({material})" if material else "") + f": {note}"
                  + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -580,8 +486,8 @@ def _b_integrals(result: Result) -> tuple[np.ndarray, np.ndarray]:
     prev = np.zeros_like(np.asarray(result.seed_fluence_J_m2, dtype=float))
     for r in result.steps:
         b = np.nan_to_num(np.asarray(r.b_integral_rad, dtype=float))
-        total.append(_finite_max(b))
-        step.append(_finite_max(b - prev) if b.shape == prev.shape else _finite_max(b))
+        total.append(finite_max(b))
+        step.append(finite_max(b - prev) if b.shape == prev.shape else finite_max(b))
         prev = b
     return np.array(total), np.maximum(np.array(step), 0.0)
 
@@ -605,7 +511,7 @@ def plot_b_integral(result: Result, path: Path) -> Path:
     lim_step = getattr(limits, "b_integral_step_rad", None)
     lim_total = getattr(limits, "b_integral_total_rad", None)
     width_in = max(6.8, 0.5 * len(labels) + 3.0)
-    fig = _figure(width_in, 5.0)
+    fig = new_figure(width_in, 5.0)
     ax = fig.add_subplot()
     ax.bar(pos, per_step, width=0.6, color="#9ab8d8", label="added in the step")
     ax.plot(pos, total, color=OUTPUT_COLOUR, marker="o", label="accumulated after the step")
@@ -615,7 +521,7 @@ def plot_b_integral(result: Result, path: Path) -> Path:
     if lim_total is not None:
         ax.axhline(lim_total, color=OUTPUT_COLOUR, linestyle="--", linewidth=1.2,
                    label=f"total limit {lim_total:g} rad")
-    top = max(_finite_max(total), lim_step or 0.0, lim_total or 0.0)
+    top = max(finite_max(total), lim_step or 0.0, lim_total or 0.0)
     ax.set_ylim(0, top * 1.15 if top > 0 else 1.0)
     ax.set_ylabel("B-integral, largest over the beam (rad)")
     ax.set_xlabel("step")
@@ -623,7 +529,7 @@ def plot_b_integral(result: Result, path: Path) -> Path:
     ax.grid(True, axis="y", alpha=0.3)
     ax.legend(loc="upper left", fontsize="small", framealpha=0.9)
     _step_ticks(ax, labels, pos, width_in)
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -673,7 +579,7 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
             paths.append(plot_cw_gain(result, name, out / f"gain_{stem}.png"))
         else:
             paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
-    if not cw and result.steps and _finite_max(_b_integrals(result)[0]) > 0:
+    if not cw and result.steps and finite_max(_b_integrals(result)[0]) > 0:
         paths.append(plot_b_integral(result, out / "b_integral.png"))
     from .plots_beam import has_beam_figures, plot_beam_size, plot_beam_steps
     if result.steps and has_beam_figures(result):

@@ -11,8 +11,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .plots import (MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, _block_mean, _centre_index, _extent, _figure,
-                    _finite_max, _save, _step_ticks, _title_suffix, step_label)
+from .plot_common import (MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, block_mean, centre_index, finite_max, new_figure,
+                          pixel_extent, save_png)
+from .plots import _step_ticks, _title_suffix, step_label
 from .results import Result
 
 BEAM_KEYS = ("d4sigma_x_mm", "d4sigma_y_mm", "modulation_peak_to_mean", "fill_factor")
@@ -43,22 +44,22 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
     n = len(maps)
     cols = min(n, MAX_PANELS_PER_ROW)
     rows = math.ceil(n / cols)
-    fig = _figure(2.7 * cols + 0.6, 4.3 * rows + 0.5)
+    fig = new_figure(2.7 * cols + 0.6, 4.3 * rows + 0.5)
     gs = fig.add_gridspec(2 * rows, cols, height_ratios=[1.0, 0.62] * rows)
     x_mm = np.asarray(result.x_m, dtype=float) * 1e3
     y_mm = np.asarray(result.y_m, dtype=float) * 1e3
-    xs, ys = _block_mean(x_mm, 0), _block_mean(y_mm, 0)
-    x0, x1 = _extent(xs)
-    y0, y1 = _extent(ys)
-    iy, ix = _centre_index(result.y_m), _centre_index(result.x_m)
+    xs, ys = block_mean(x_mm, 0), block_mean(y_mm, 0)
+    x0, x1 = pixel_extent(xs)
+    y0, y1 = pixel_extent(ys)
+    iy, ix = centre_index(result.y_m), centre_index(result.x_m)
     summary_steps = (result.summary or {}).get("steps", [])
     figures = [(result.summary or {}).get("seed_beam", {})] + list(summary_steps)
     for i, (img, label) in enumerate(zip(maps, labels)):
         r, c = divmod(i, cols)
         ax = fig.add_subplot(gs[2 * r, c])
         shown = np.nan_to_num(img) / 1e4
-        peak = _finite_max(shown)
-        ax.imshow(_block_mean(_block_mean(shown, 0), 1), origin="lower", extent=(x0, x1, y0, y1),
+        peak = finite_max(shown)
+        ax.imshow(block_mean(block_mean(shown, 0), 1), origin="lower", extent=(x0, x1, y0, y1),
                   cmap=MAP_CMAP, vmin=0.0, vmax=peak if peak > 0 else 1.0, interpolation="nearest")
         ax.set_title(f"{label}\npeak {peak:.3g} J/cm²", fontsize="small")
         ax.tick_params(labelsize="x-small")
@@ -81,7 +82,7 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
         if i == 0:
             lo.legend(fontsize="x-small", loc="upper right")
     fig.suptitle("Fluence at each step (maps, and lineouts through the axis)" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def plot_beam_size(result: Result, path: Path) -> Path:
@@ -102,13 +103,13 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     mod = np.array([r["modulation_peak_to_mean"] for r in rows])
     fill = np.array([r["fill_factor"] for r in rows])
     width_in = max(6.8, 0.5 * len(rows) + 3.0)
-    fig = _figure(width_in, 7.0)
+    fig = new_figure(width_in, 7.0)
     gs = fig.add_gridspec(2, 1, height_ratios=[1.2, 1.0])
     ax = fig.add_subplot(gs[0])
     ax2 = fig.add_subplot(gs[1], sharex=ax)
     ax.plot(pos, dx, color=OUTPUT_COLOUR, marker="o", label="D4σ along x")
     ax.plot(pos, dy, color=SEED_COLOUR, marker="s", linestyle="--", label="D4σ along y")
-    top = max(_finite_max(dx), _finite_max(dy))
+    top = max(finite_max(dx), finite_max(dy))
     ax.set_ylim(0, top * 1.15 if top > 0 else 1.0)
     ax.set_ylabel("second-moment diameter D4σ (mm)")
     ax.set_title("Beam size along the layout")
@@ -117,7 +118,7 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     ax.tick_params(axis="x", labelbottom=False)
     ax2.plot(pos, mod, color="#7a3f9d", marker="o", label="peak-to-mean modulation (left)")
     ax2.set_ylabel("peak-to-mean modulation")
-    ax2.set_ylim(0, max(2.2, _finite_max(mod) * 1.1))
+    ax2.set_ylim(0, max(2.2, finite_max(mod) * 1.1))
     ax2.axhline(1.0, color="0.5", linestyle=":", linewidth=1.0)
     ax3 = ax2.twinx()
     ax3.plot(pos, fill, color="#2a8a4a", marker="^", linestyle="--", label="fill factor (right)")
@@ -130,4 +131,4 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     ax2.set_xlabel("step")
     _step_ticks(ax2, labels, pos, width_in)
     fig.suptitle("Beam figures through the layout" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)

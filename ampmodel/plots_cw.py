@@ -13,8 +13,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .plots import (MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, _block_mean, _centre_index, _extent, _figure,
-                    _finite_max, _finite_min, _save, _title_suffix)
+from .plot_common import (MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, block_mean, centre_index, finite_max, finite_min,
+                          new_figure, pixel_extent, save_png)
+from .plots import _title_suffix
 from .results import Result
 
 PASS_COLOURS = ["#c8432b", "#1f5fa8", "#2b8c3e", "#8a4fb0", "#d08a1a", "#3a9aa8", "#7a6a55", "#b03a78"]
@@ -45,22 +46,22 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     dz_mm = med.slice_length_m * 1e3
     length_mm = nz * dz_mm
     x_m, y_m = np.asarray(result.x_m, dtype=float), np.asarray(result.y_m, dtype=float)
-    iy, ix = _centre_index(y_m), _centre_index(x_m)
+    iy = centre_index(y_m)
     # the on-axis pixel of the solver (the one at index N//2) for the profiles along z
     ay, ax = g0.shape[1] // 2, g0.shape[2] // 2
     passes = [r for r in result.steps if r.kind == "pass" and r.medium == name]
     steps = {s.index: s for s in getattr(result.config, "steps", ())}
 
-    fig = _figure(9.0, 10.0)
+    fig = new_figure(9.0, 10.0)
     gs = fig.add_gridspec(3, 1, height_ratios=[1.0, 1.0, 1.2])
     ax0 = fig.add_subplot(gs[0])
     ax1 = fig.add_subplot(gs[1], sharex=ax0)
     ax2 = fig.add_subplot(gs[2], sharex=ax0)
 
-    cut = _block_mean(_block_mean(g1[:, iy, :].T, 0), 1)
-    xs = _block_mean(x_m, 0) * 1e3
-    x0, x1 = _extent(xs)
-    lo, hi = _finite_min(cut), _finite_max(cut)
+    cut = block_mean(block_mean(g1[:, iy, :].T, 0), 1)
+    xs = block_mean(x_m, 0) * 1e3
+    x0, x1 = pixel_extent(xs)
+    lo, hi = finite_min(cut), finite_max(cut)
     if lo < -1e-3 * max(abs(hi), 1e-30):
         m = max(abs(lo), abs(hi), 1e-30)
         cmap, vmin, vmax = "RdBu_r", -m, m
@@ -86,8 +87,8 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
         ax1.plot(edges, np.append(g, g[-1:]), drawstyle="steps-post", color=colour, linestyle=ls, linewidth=1.6,
                  label=f"{what}: single pass exp(∫g dz) = {single:.3g}")
     ax1.axhline(0.0, color="0.5", linewidth=0.8)
-    ghi = max(_finite_max(g0[:, ay, ax]), _finite_max(g1[:, ay, ax]), 0.0)
-    glo = min(_finite_min(g0[:, ay, ax]), _finite_min(g1[:, ay, ax]), 0.0)
+    ghi = max(finite_max(g0[:, ay, ax]), finite_max(g1[:, ay, ax]), 0.0)
+    glo = min(finite_min(g0[:, ay, ax]), finite_min(g1[:, ay, ax]), 0.0)
     ax1.set_ylim(glo * 1.15, ghi * 1.35 if ghi > 0 else 1.0)
     ax1.set_ylabel("on-axis g (1/cm)")
     ax1.set_title("on-axis gain coefficient along z")
@@ -95,7 +96,7 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     ax1.legend(loc="upper right", fontsize="small", framealpha=0.9)
     ax1.tick_params(axis="x", labelbottom=False)
 
-    peak = max([_finite_max(r.axis_intensity_W_m2) for r in passes if r.axis_intensity_W_m2 is not None] + [0.0]) / 1e4
+    peak = max([finite_max(r.axis_intensity_W_m2) for r in passes if r.axis_intensity_W_m2 is not None] + [0.0]) / 1e4
     factor, unit = _intensity_unit(peak)
     handles = []
     for n, rec in enumerate(passes):
@@ -125,7 +126,7 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
                        label="pump, mean over each slice (right axis)")
         twin.set_ylabel("on-axis pump intensity (kW/cm²)", color=PUMP_COLOUR)
         twin.tick_params(axis="y", colors=PUMP_COLOUR)
-        twin.set_ylim(bottom=0.0, top=max(_finite_max(pump_axis), 1e-30) * 1.45)
+        twin.set_ylim(bottom=0.0, top=max(finite_max(pump_axis), 1e-30) * 1.45)
         handles.append(h)
     if handles:
         ax2.legend(handles=handles, loc="upper center", ncol=3, fontsize="small", framealpha=0.9)
@@ -135,7 +136,7 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     fig.suptitle(f"Steady-state gain in medium '{name}'" + (f" ({material})" if material else "")
                  + f": {len(passes)} pass{'es' if len(passes) != 1 else ''} saturating together"
                  + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 __all__ = ["plot_cw_gain", "MAP_CMAP"]

@@ -2,7 +2,7 @@
 
 Drawn from a Result's FibreRecords (SI), shown in the units a laser engineer reads: z in m, powers in
 W on a logarithmic axis (they span decades), ASE as spectral density in dBm/nm, inversion as N2/Nt.
-Each figure has its own Agg canvas and is written atomically (plots.py's helpers).
+Each figure has its own Agg canvas and is written atomically (the helpers of plot_common.py).
 """
 from __future__ import annotations
 
@@ -10,7 +10,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .plots import _ENERGY_UNITS, _POWER_UNITS, OUTPUT_COLOUR, SEED_COLOUR, _figure, _prefix, _save, _title_suffix
+from .plot_common import ENERGY_UNITS, OUTPUT_COLOUR, POWER_UNITS, SEED_COLOUR, new_figure, save_png, unit_prefix
+from .plots import _title_suffix
 from .results import FibreRecord, Result
 
 PUMP_COLOUR = "#2a9d3a"
@@ -28,7 +29,7 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
     """Signal (or pulse energy), pump in each direction and total ASE each way along the fibre."""
     z = rec.z_m
     cw = rec.mode == "cw"
-    fig = _figure(8.5, 5.2 if cw else 8.0)
+    fig = new_figure(8.5, 5.2 if cw else 8.0)
     ax = fig.add_subplot(2 if not cw else 1, 1, 1)
     shown = []
     if cw:
@@ -68,11 +69,11 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
         ax2.set_title(f"pulse energy along the fibre: {energy[0] / scale:.3g} {unit} in, "
                       f"{energy[-1] / scale:.3g} {unit} out")
     fig.suptitle(f"Fibre {rec.name}" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def _energy_unit(value: float) -> tuple[float, str]:
-    return _prefix(value, _ENERGY_UNITS)
+    return unit_prefix(value, ENERGY_UNITS)
 
 
 def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
@@ -82,7 +83,7 @@ def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
     mid = 0.5 * (z[1:] + z[:-1])
     cw = rec.mode == "cw"
     recovery = rec.recovery_t_s is not None
-    fig = _figure(8.5, 9.6 if recovery else 7.4)
+    fig = new_figure(8.5, 9.6 if recovery else 7.4)
     rows = 3 if recovery else 2
     ax = fig.add_subplot(rows, 1, 1)
     ax.plot(mid, rec.modal_gain_per_m * 10 / np.log(10), color=OUTPUT_COLOUR, lw=2)
@@ -123,7 +124,7 @@ def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
         ax.grid(True, alpha=0.3)
         ax.set_title("the pump restoring the inversion between pulses (fibre average)")
     fig.suptitle(f"Fibre {rec.name}: gain and inversion" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def _ring_colours(n: int) -> list:
@@ -138,7 +139,7 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     width_nm = rec.ase_bin_width_m * 1e9
     fwd = rec.ase_forward_W[:, -1] / width_nm
     bwd = rec.ase_backward_W[:, 0] / width_nm
-    fig = _figure(8.5, 5.2)
+    fig = new_figure(8.5, 5.2)
     ax = fig.add_subplot(1, 1, 1)
     with np.errstate(divide="ignore"):
         dbm = lambda w: 10 * np.log10(np.maximum(w, 1e-30) / 1e-3)  # noqa: E731
@@ -158,12 +159,12 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     what = "steady state" if rec.mode == "cw" else "between pulses, just before a pulse"
     ax.set_title(f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
     fig.suptitle("ASE spectra" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def _watts(value: float) -> str:
-    """A power with the prefix that suits its size (plots._prefix)."""
-    scale, unit = _prefix(value, _POWER_UNITS)
+    """A power with the prefix that suits its size (plot_common.unit_prefix)."""
+    scale, unit = unit_prefix(value, POWER_UNITS)
     return f"{value / scale:.3g} {unit}"
 
 

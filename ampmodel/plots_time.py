@@ -8,8 +8,9 @@ from pathlib import Path
 import numpy as np
 from matplotlib.ticker import MaxNLocator
 
-from .plots import (LOSS_COLOUR, OUTPUT_COLOUR, SEED_COLOUR, _ENERGY_UNITS, _figure, _finite_max, _prefix,
-                    _save, _title_suffix)
+from .plot_common import (ENERGY_UNITS, LOSS_COLOUR, OUTPUT_COLOUR, SEED_COLOUR, finite_max, new_figure, save_png,
+                          unit_prefix)
+from .plots import _title_suffix
 from .results import Result
 
 
@@ -33,8 +34,8 @@ def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
     dump = int(entry.get("round_trip_count", n))
     seed = float(entry.get("energy_in_J", 0.0))
     rt_ns = float(entry.get("round_trip_ns", 0.0))
-    factor, unit = _prefix(max(_finite_max(energies), seed), _ENERGY_UNITS)
-    fig = _figure(8.0, 7.0)
+    factor, unit = unit_prefix(max(finite_max(energies), seed), ENERGY_UNITS)
+    fig = new_figure(8.0, 7.0)
     ax, ax_g = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
     kept = k <= dump
     positive = energies > 0
@@ -72,12 +73,12 @@ def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
     ax_g.axhline(1.0, color="0.3", linestyle=":", linewidth=1.0)
     ax_g.set_ylabel("round-trip gain (out / in)")
     ax_g.set_xlabel("round trip")
-    ax_g.set_ylim(bottom=0, top=max(1.2, _finite_max(gains) * 1.1))
+    ax_g.set_ylim(bottom=0, top=max(1.2, finite_max(gains) * 1.1))
     ax_g.grid(True, axis="y", alpha=0.3)
     ax_g.set_xlim(-0.6, n + 0.6)
     ax_g.xaxis.set_major_locator(MaxNLocator(integer=True))
     fig.suptitle("Build-up of the pulse, round trip by round trip" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)
 
 
 def plot_train(result: Result, path: Path) -> Path:
@@ -99,9 +100,9 @@ def plot_train(result: Result, path: Path) -> Path:
     k = np.arange(1, energies.size + 1)
     steady_e = float(train.get("pulse_energy_J", np.nan))
     steady_s = float(train.get("stored_energy_before_pulse_J", np.nan))
-    fig = _figure(8.0, 7.0)
+    fig = new_figure(8.0, 7.0)
     ax_e, ax_s = fig.subplots(2, 1, sharex=True)
-    ef, eu = _prefix(max(_finite_max(energies), steady_e if np.isfinite(steady_e) else 0.0), _ENERGY_UNITS)
+    ef, eu = unit_prefix(max(finite_max(energies), steady_e if np.isfinite(steady_e) else 0.0), ENERGY_UNITS)
     kw = dict(marker="o", markersize=4) if k.size <= 60 else {}
     ax_e.plot(k, energies / ef, color=OUTPUT_COLOUR, label="output pulse energy", **kw)
     ax_e.axhline(steady_e / ef, color="0.3", linestyle="--", linewidth=1.0,
@@ -120,7 +121,7 @@ def plot_train(result: Result, path: Path) -> Path:
     ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {where}")
     ax_e.grid(True, alpha=0.3)
     ax_e.legend(loc="best", fontsize="small")
-    sf, su = _prefix(max(_finite_max(stored), steady_s if np.isfinite(steady_s) else 0.0), _ENERGY_UNITS)
+    sf, su = unit_prefix(max(finite_max(stored), steady_s if np.isfinite(steady_s) else 0.0), ENERGY_UNITS)
     ax_s.plot(k, stored / sf, color=SEED_COLOUR, label="stored energy before the pulse", **kw)
     ax_s.axhline(steady_s / sf, color="0.3", linestyle="--", linewidth=1.0,
                  label=f"steady state {steady_s / sf:.4g} {su}")
@@ -136,4 +137,4 @@ def plot_train(result: Result, path: Path) -> Path:
     if k.size:
         ax_s.set_xlim(0.5, k.size + 0.5)
     fig.suptitle("Pulse train from its start to the periodic steady state" + _title_suffix(result))
-    return _save(fig, path)
+    return save_png(fig, path)

@@ -21,13 +21,10 @@ from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 
-from .atomic import target
+from .plot_common import new_figure, save_png
 from .units import unit_of
 
-DPI = 110
 CMAP_LINES = "viridis"
 CMAP_MAP = "inferno"
 WARN_COLOUR = "#d62728"
@@ -119,22 +116,6 @@ def _text(value: Any) -> str:
 # ----------------------------------------------------------------------------------------------
 # Figures
 # ----------------------------------------------------------------------------------------------
-
-def _figure(width_in: float, height_in: float) -> Figure:
-    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained")
-    FigureCanvasAgg(fig)
-    return fig
-
-
-def _save(fig: Figure, path: Path) -> Path:
-    """Write ``fig`` as PNG atomically and release it."""
-    try:
-        with target(path) as tmp:
-            fig.savefig(tmp, format="png", dpi=DPI)
-    finally:
-        fig.clear()
-    return path
-
 
 class _Axis:
     """A swept path as an axis: its values (scaled), label, positions and ticks."""
@@ -312,7 +293,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
             continue
         views[key] = _scalar_view(key, y)
         shown, label, _ = views[key]
-        fig = _figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
+        fig = new_figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
         ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
         _curves(ax, key, axes[x_path], groups, values, shown, warned)
         ax.set_ylabel(label)
@@ -323,12 +304,12 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
             _map(fig, fig.add_subplot(1, 2, 2), key, axes[x_path], axes[others[0]], values, shown, label)
         fig.suptitle(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
                      f"{along}", fontsize=10)
-        written.append(_save(fig, folder / f"{key}.png"))
+        written.append(save_png(fig, folder / f"{key}.png"))
     panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
     if len(panels) >= 2:
         rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
         beside = 3.2 if len(groups) > 3 else 0.0       # a long legend goes beside the panels
-        fig = _figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
+        fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
         for n, key in enumerate(panels):
             ax = fig.add_subplot(rows, cols, n + 1)
             shown, label, _ = views[key]
@@ -339,7 +320,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
             if n == 0:
                 _legend(ax, groups, warned, axes, others, combine, figure=fig)
         fig.suptitle(f"{result.title or result.out.name}: sweep overview{along}", fontsize=10)
-        written.append(_save(fig, folder / "overview.png"))
+        written.append(save_png(fig, folder / "overview.png"))
     return written
 
 
@@ -394,7 +375,7 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
             continue
         shown, label, scale = _scalar_view(key, y)
         data = shown[np.isfinite(shown)]
-        fig = _figure(6.6, 4.2)
+        fig = new_figure(6.6, 4.2)
         ax = fig.add_subplot(1, 1, 1)
         bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
         ax.hist(data, bins=bins, color="#1f5fa8", alpha=0.8, edgecolor="white", linewidth=0.5)
@@ -411,5 +392,5 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
         ax.grid(True, alpha=0.3)
         fig.suptitle(f"{_human(key)}: spread over {data.size} samples" + (f" ({title})" if title else ""),
                      fontsize=10)
-        written.append(_save(fig, folder / f"hist_{key}.png"))
+        written.append(save_png(fig, folder / f"hist_{key}.png"))
     return written

@@ -23,7 +23,6 @@ import csv
 import hashlib
 import json
 import os
-import tempfile
 from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timezone
