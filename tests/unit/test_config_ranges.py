@@ -13,6 +13,7 @@ except ModuleNotFoundError:  # Python < 3.11
 
 import pytest
 
+from ampmodel import config_checks
 from ampmodel import config_schema as S
 from ampmodel.config import ConfigError, load_config
 from ampmodel.config_fibre import FIBRE_MEDIUM, FIBRE_PUMP
@@ -118,7 +119,7 @@ def test_a_value_beyond_the_range_names_the_key_and_the_range(table, key, spec):
     assert len(lines) == 1, info.value.problems
     line = lines[0]
     assert f": out of range: must be {S.expected(spec)} (" in line     # the allowed range, as the schema states it
-    assert S._fmt(spec.le if spec.le is not None else spec.lt) in line
+    assert config_checks._fmt(spec.le if spec.le is not None else spec.lt) in line
     assert "a plausible range" in line
 
 

@@ -1,0 +1,446 @@
+"""What every config check shares: :class:`Key` (type, range, default and meaning of one key),
+:class:`Problems` (the collected problem lines), :func:`show` (a value as it reads in TOML),
+:func:`did_you_mean`, :func:`check_value` (type and range of one value) and :func:`check_table` (one
+table against its schema). The tables themselves are in ``config_schema.py``.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime
+import difflib
+import json
+import math
+import re
+from dataclasses import dataclass
+from typing import Any, Iterable, Mapping, Sequence
+
+PLAUSIBLE_NOTE = "; a plausible range: a value outside it is usually a slip of unit"
+ANY = object()
+"""Marks an ``unavailable`` entry that applies whatever the value is."""
+NO_VALUE = object()
+"""Marks a problem that has no value to show (a missing key)."""
+
+
+@dataclass(frozen=True)
+class Key:
+    """One config key.
+
+    Parameters
+    ----------
+    kind : str
+        "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
+        "material" (a built-in name or a table), "ref" (a medium name or index), "floats" (an array
+        of numbers, each within the bounds; ``size`` entries when given) or "bounds" (an array of two
+        numbers, lower < upper).
+    meaning : str
+        What the key means, in a few words (used in the problem messages).
+    required : bool
+        The key must be given (where the table itself is given).
+    default : object
+        The value used when the key is absent (config units); None: no default.
+    gt, ge, lt, le : float or None
+        Bounds (config units): greater than, greater or equal, less than, less or equal.
+    nonzero : bool
+        Zero is not allowed (any sign otherwise).
+    zero_ok : bool
+        Zero is allowed besides the range ``ge .. le``.
+    choices : tuple of str
+        For strings: the allowed values.
+    unavailable : tuple of (value, message)
+        Values that are valid names but not available in this version (``ANY``: every value).
+    plausible : bool
+        The bounds are a plausible range of a physical quantity rather than a definition (a value
+        outside it is almost always a slip of unit): the message says so.
+    """
+
+    kind: str
+    meaning: str = ""
+    required: bool = False
+    default: Any = None
+    gt: float | None = None
+    ge: float | None = None
+    lt: float | None = None
+    le: float | None = None
+    nonzero: bool = False
+    zero_ok: bool = False
+    choices: tuple[str, ...] = ()
+    unavailable: tuple[tuple[Any, str], ...] = ()
+    size: int | None = None
+    plausible: bool = False
+
+
+def number(meaning: str, **bounds: Any) -> Key:
+    """A float key (ints accepted); ``bounds`` are the other :class:`Key` fields."""
+    return Key("float", meaning, **bounds)
+
+
+def quantity(meaning: str, **bounds: Any) -> Key:
+    """A physical quantity: a float key whose bounds are its plausible range (README, "Plausible
+    ranges"; common practice, wide enough for any laboratory or facility amplifier)."""
+    return Key("float", meaning, plausible=True, **bounds)
+
+
+def integer(meaning: str, low: int, high: int, **more: Any) -> Key:
+    """An integer key in ``low .. high``."""
+    return Key("int", meaning, ge=low, le=high, **more)
+
+
+def choice(meaning: str, choices: tuple[str, ...], **more: Any) -> Key:
+    """A string key that takes one of ``choices``."""
+    return Key("str", meaning, choices=choices, **more)
+
+
+def flag(meaning: str, **more: Any) -> Key:
+    """A boolean key."""
+    return Key("bool", meaning, **more)
+
+
+def text(meaning: str, **more: Any) -> Key:
+    """A free string key."""
+    return Key("str", meaning, **more)
+
+
+# ----------------------------------------------------------------------------------------------
+# Helpers shared by every problem message
+# ----------------------------------------------------------------------------------------------
+
+def show(value: Any, limit: int = 70) -> str:
+    """A value as it reads in a TOML file, shortened to about ``limit`` characters."""
+    if isinstance(value, bool):
+        out = "true" if value else "false"
+    elif isinstance(value, str):
+        out = json.dumps(value, ensure_ascii=False)
+    elif isinstance(value, float):
+        out = "nan" if math.isnan(value) else ("inf" if value > 0 else "-inf") if math.isinf(value) else repr(value)
+    elif isinstance(value, int):
+        out = str(value)
+    elif isinstance(value, dict):
+        items = [f"{k} = {show(v, 20)}" for k, v in list(value.items())[:4]]
+        out = "{" + ", ".join(items) + (", ...}" if len(value) > 4 else "}")
+    elif isinstance(value, list):
+        out = "[" + ", ".join(show(v, 20) for v in value[:5]) + (", ...]" if len(value) > 5 else "]")
+    elif value is None:
+        out = "nothing"
+    else:
+        out = str(value)
+    return out if len(out) <= limit else out[: limit - 3] + "..."
+
+
+def type_name(value: Any) -> str:
+    """'a string', 'an integer', ... for the problem messages."""
+    if isinstance(value, bool):
+        return "a boolean"
+    if isinstance(value, int):
+        return "an integer"
+    if isinstance(value, float):
+        return "a number"
+    if isinstance(value, str):
+        return "a string"
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, (datetime.date, datetime.time)):
+        return "a date/time"
+    if value is None:
+        return "nothing"
+    return f"a {type(value).__name__}"
+
+
+def quoted_list(names: Iterable[Any]) -> str:
+    """"'a', 'b' or 'c'"."""
+    names = [f"'{n}'" for n in names]
+    if len(names) <= 1:
+        return "".join(names)
+    return ", ".join(names[:-1]) + " or " + names[-1]
+
+
+def close_matches(word: Any, choices: Iterable[Any], n: int = 3) -> list[str]:
+    """The choices closest to ``word`` (case-insensitive), best first."""
+    lowered: dict[str, str] = {}
+    for c in choices:
+        lowered.setdefault(str(c).lower(), str(c))
+    hits = difflib.get_close_matches(str(word).lower(), list(lowered), n=n, cutoff=0.6)
+    return [lowered[h] for h in hits]
+
+
+def did_you_mean(word: Any, choices: Iterable[Any]) -> str:
+    """"; did you mean 'x'?" for the closest of ``choices``, or "" when none is close."""
+    hits = close_matches(word, choices)
+    return f"; did you mean {quoted_list(hits)}?" if hits else ""
+
+
+def _fmt(x: float) -> str:
+    """1e6, 0.5, 1e-24: the shortest form that reads back (and as one writes it in TOML)."""
+    return re.sub(r"e([+-])0*(\d)", lambda m: "e" + ("-" if m.group(1) == "-" else "") + m.group(2), f"{x:g}")
+
+
+def rule(key: Key) -> str:
+    """The allowed values of a number key, in words: "> 0 and <= 1", "from 8 to 4096"."""
+    if key.ge is not None and key.le is not None:
+        text_ = f"from {_fmt(key.ge)} to {_fmt(key.le)}"
+    else:
+        parts = [f"{op} {_fmt(v)}" for op, v in ((">", key.gt), (">=", key.ge), ("<", key.lt), ("<=", key.le))
+                 if v is not None]
+        if key.gt is not None and key.le is not None and key.ge is None and key.lt is None:
+            parts = [f"> {_fmt(key.gt)} and <= {_fmt(key.le)}"]
+        text_ = " and ".join(parts)
+    if key.nonzero:
+        text_ = ("non-zero " + text_).strip()
+    if key.zero_ok:
+        text_ = "0 or " + text_
+    return text_
+
+
+def expected(key: Key) -> str:
+    """What a key takes, in words: "a number > 0", "an integer from 8 to 4096", "one of 'a', 'b'"."""
+    if key.kind == "float":
+        if key.nonzero:
+            return f"a non-zero number {rule(dataclasses.replace(key, nonzero=False))}".strip()
+        return f"a number {rule(key)}".strip()
+    if key.kind == "int":
+        return f"an integer {rule(key)}".strip()
+    if key.kind == "bool":
+        return "true or false"
+    if key.kind == "str":
+        return "one of " + ", ".join(f"'{c}'" for c in key.choices) if key.choices else "a string"
+    if key.kind == "table":
+        return "a table"
+    if key.kind == "tables":
+        return "an array of tables"
+    if key.kind == "material":
+        return "a built-in material name (string) or a [medium.material] table"
+    if key.kind == "ref":
+        return "a medium name (string) or index (integer from 0)"
+    if key.kind == "floats":
+        count = f"{key.size} numbers" if key.size else "numbers"
+        return f"an array of {count} {rule(key)}".strip()
+    if key.kind == "bounds":
+        return "an array of two numbers [lower, upper] with lower < upper"
+    return key.kind
+
+
+def _unavailable(value: Any, key: Key) -> str | None:
+    for v, message in key.unavailable:
+        if v is ANY or (type(value) is type(v) and value == v):
+            return message
+    return None
+
+
+def _in_range(x: float, key: Key) -> bool:
+    if key.zero_ok and x == 0:
+        return True
+    return not ((key.gt is not None and not x > key.gt) or (key.ge is not None and not x >= key.ge)
+                or (key.lt is not None and not x < key.lt) or (key.le is not None and not x <= key.le)
+                or (key.nonzero and x == 0))
+
+
+def _looks_numeric(s: str) -> bool:
+    try:
+        float(s)
+    except ValueError:
+        return False
+    return True
+
+
+def _looks_like_expression(s: str) -> bool:
+    """"2 * 0.005", "1e-3/2", "(3+4)": arithmetic written where a number belongs."""
+    return (re.fullmatch(r"[\s\d.eE+\-*/()^%]+", s) is not None
+            and re.search(r"[\d)]\s*[*/+\-^%]+\s*[\d(.]", s) is not None)
+
+
+def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
+    """Check the type and range of one value.
+
+    Parameters
+    ----------
+    value : object
+        The value as read from the config.
+    key : Key
+        Its schema entry.
+
+    Returns
+    -------
+    (value, problem) : tuple
+        ``value`` normalised (ints given for floats become floats) and None, or (None, message)
+        where ``message`` says what is wrong and what is allowed.
+    """
+    kind = key.kind
+    if kind == "table" and (msg := _unavailable(value, key)):
+        return None, msg
+    want = expected(key)
+    if kind == "floats":
+        numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                                  for v in value)
+        if not numbers:
+            return None, f"must be {want}, not {type_name(value)}"
+        if key.size is not None and len(value) != key.size:
+            return None, f"must be {want}, not {len(value)}"
+        if not all(math.isfinite(v) for v in value):
+            return None, f"must be {want}; nan and inf are not allowed"
+        if not all(_in_range(float(v), key) for v in value):
+            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+        return [float(v) for v in value], None
+    if kind in ("float", "int"):
+        if isinstance(value, bool):
+            return None, f"must be {want}, not a boolean (true/false)"
+        if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
+            return None, f"must be {want}: write {int(value)}, without a decimal point"
+        ok_types = (int,) if kind == "int" else (int, float)
+        if not isinstance(value, ok_types):
+            hint = ""
+            if isinstance(value, str) and _looks_numeric(value):
+                hint = "; write the number without quotes"
+            elif isinstance(value, str) and _looks_like_expression(value):
+                hint = "; a config is data: expressions are not evaluated, write the number itself"
+            return None, f"must be {want}, not {type_name(value)}{hint}"
+        if kind == "float":
+            value = float(value)
+            if not math.isfinite(value):
+                return None, f"must be {want}; nan and inf are not allowed"
+        if not _in_range(value, key):
+            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+        return value, None
+    if kind == "bool":
+        if not isinstance(value, bool):
+            return None, f"must be true or false, not {type_name(value)}"
+    elif kind == "str":
+        if not isinstance(value, str):
+            return None, f"must be {want}, not {type_name(value)}"
+        if key.choices and value not in key.choices:
+            return None, f"must be {want}{did_you_mean(value, key.choices)}"
+    elif kind == "table":
+        if not isinstance(value, dict):
+            return None, f"must be a table, not {type_name(value)}"
+    elif kind == "material":
+        if not isinstance(value, (str, dict)):
+            return None, f"must be {want}, not {type_name(value)}"
+    elif kind == "ref":
+        if isinstance(value, bool) or not isinstance(value, (str, int)):
+            return None, f"must be {want}, not {type_name(value)}"
+    elif kind == "bounds":
+        if not isinstance(value, list) or len(value) != 2:
+            return None, f"must be {want}, not {type_name(value)}" + (
+                f" of {len(value)} values" if isinstance(value, list) else "")
+        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
+            return None, f"must be {want}; both bounds must be numbers"
+        value = [float(v) for v in value]
+        if not all(math.isfinite(v) for v in value):
+            return None, f"must be {want}; nan and inf are not allowed"
+        if not value[0] < value[1]:
+            return None, f"must be {want}: the lower bound comes first and must be below the upper"
+    msg = _unavailable(value, key)
+    return (None, msg) if msg else (value, None)
+
+
+# ----------------------------------------------------------------------------------------------
+# Problems, tables and value paths
+# ----------------------------------------------------------------------------------------------
+
+class ConfigError(Exception):
+    """A config with problems. ``problems`` holds one line per problem, each naming file and key."""
+
+    def __init__(self, problems: Sequence[str] | str):
+        self.problems: list[str] = [problems] if isinstance(problems, str) else list(problems)
+        super().__init__("\n".join(self.problems))
+
+
+class PathError(KeyError):
+    """A dotted value path that does not resolve; the message says why (with a "did you mean")."""
+
+    def __str__(self) -> str:
+        return str(self.args[0]) if self.args else ""
+
+
+class Problems:
+    """Collects problem lines for one source, and what the config brought in besides its own text.
+
+    Parameters
+    ----------
+    source : the file name shown at the start of each problem line
+    folder : the folder that relative paths in the config (data files) are taken from
+    builtin : built-in materials to use instead of the material files, by name (a rerun uses the
+        material data its result file recorded)
+
+    Attributes
+    ----------
+    used_builtin : the built-in materials the config referred to, by name, as used
+    data_files : the data files the config read, path as written -> their text
+    """
+
+    def __init__(self, source: str, folder: Any = None, builtin: Mapping[str, Any] | None = None):
+        self.source = source
+        self.lines: list[str] = []
+        self.folder = folder
+        self.builtin = dict(builtin or {})
+        self.used_builtin: dict[str, Any] = {}
+        self.data_files: dict[str, str] = {}
+
+    def add(self, path: str, message: str, value: Any = NO_VALUE) -> None:
+        head = path if value is NO_VALUE else f"{path} = {show(value)}"
+        self.lines.append(f"{self.source}: {head}: {message}")
+
+    def __len__(self) -> int:
+        return len(self.lines)
+
+
+def join_path(path: str, key: Any) -> str:
+    """``path.key`` as shown in problems (a key that is not a bare TOML key is quoted)."""
+    key = str(key)
+    part = key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+    return f"{path}.{part}" if path else part
+
+
+def check_table(p: Problems, table: dict, path: str, schema: Mapping[str, Key], *,
+                 require: bool = True, skip: tuple = (), unknown=None) -> dict:
+    """Check every key of ``table`` against ``schema``, adding a problem for each bad one.
+
+    Parameters
+    ----------
+    p : Problems
+        Where the problems go.
+    table : dict
+        The table as read.
+    path : str
+        Its key path in the problem lines (``medium[0] (rod)``).
+    schema : mapping of str -> Key
+        The allowed keys.
+    require : bool
+        Report missing required keys (False: a base supplies them).
+    skip : tuple of str
+        Keys checked elsewhere.
+    unknown : callable or None
+        ``unknown(key) -> message`` for a key not in ``schema`` (default: "did you mean").
+
+    Returns
+    -------
+    dict
+        The good values (config units; ints for floats made floats) plus the defaults of the
+        absent keys.
+    """
+    out: dict[str, Any] = {}
+    for key, value in table.items():
+        if key in skip:
+            continue
+        spec = schema.get(key)
+        if spec is None:
+            message = unknown(key) if unknown else f"unknown key{did_you_mean(key, schema) or allowed_keys(schema)}"
+            p.add(join_path(path, key), message, value)
+            continue
+        good, message = check_value(value, spec)
+        if message:
+            p.add(join_path(path, key), message, value)
+        else:
+            out[key] = good
+    for key, spec in schema.items():
+        if key not in table and key not in skip:
+            if spec.required and require:
+                p.add(join_path(path, key), f"missing: {spec.meaning}, {expected(spec)}")
+            elif spec.default is not None:
+                out[key] = spec.default
+    return out
+
+
+def allowed_keys(schema: Mapping[str, Any]) -> str:
+    """"; keys: a, b, c" for an unknown key with no close match."""
+    return "; keys: " + ", ".join(schema)
