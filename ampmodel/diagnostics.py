@@ -55,6 +55,17 @@ _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
                "pass": "the clear aperture clips"}
 
 
+def transverse_gain_warnings(name: str, gain_per_m: np.ndarray, diameter_m: float, limits) -> list[str]:
+    """A warning when the transverse gain-length product g0·D of a medium is above the limit (the
+    risk of parasitic oscillation across the rod; common practice)."""
+    g_peak = float(np.max(gain_per_m)) if np.size(gain_per_m) else 0.0
+    if g_peak * diameter_m > limits.transverse_gain_length:
+        return [f"medium {name}: transverse gain-length product g0·D = {g_peak * diameter_m:.2g} "
+                f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
+                f"oscillation; consider edge cladding or a lower gain"]
+    return []
+
+
 def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, width_m: float, limits) -> list[str]:
     """The grid's two warnings about the seed: too few pixels across its diameter, and a seed map
     (fluence or intensity, (Ny, Nx)) with more than 1e-3 of its peak at the window's edge."""
@@ -202,11 +213,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                 warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
                                 f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
         media_summary.append(entry)
-        g_peak = float(rec.gain_initial_per_m.max())
-        if g_peak * m.diameter_m > limits.transverse_gain_length:
-            warnings.append(f"medium {m.name}: transverse gain-length product g0·D = {g_peak * m.diameter_m:.2g} "
-                            f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
-                            f"oscillation; consider edge cladding or a lower gain")
+        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, limits))
 
     steps = []
     self_focusing: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)

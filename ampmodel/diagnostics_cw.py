@@ -15,7 +15,7 @@ import numpy as np
 from . import cw_pump, pumping
 from .cw import CwMedium, Sweep
 from .description import Config
-from .diagnostics import SAFETY_NOTE, W_CM2, _step_label, seed_grid_warnings
+from .diagnostics import SAFETY_NOTE, W_CM2, _step_label, seed_grid_warnings, transverse_gain_warnings
 from .results import MediumRecord
 
 
@@ -86,11 +86,7 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
                           "pump_power_transmitted_W": field.transmitted_W,
                           "pump_settling_iterations": st.initial_iterations, **balance})
         media_summary.append(entry)
-        g_peak = float(rec.gain_initial_per_m.max())
-        if g_peak * m.diameter_m > limits.transverse_gain_length:
-            warnings.append(f"medium {m.name}: transverse gain-length product g0·D = {g_peak * m.diameter_m:.2g} "
-                            f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
-                            f"oscillation; consider edge cladding or a lower gain")
+        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, limits))
 
     steps, lost, peak = [], 0.0, float(seed.max())
     for step, oc in zip(config.steps, sweep.outcomes):
