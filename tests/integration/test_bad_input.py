@@ -204,11 +204,6 @@ def run_cli(*args: str, cwd: Path) -> subprocess.CompletedProcess:
                           cwd=cwd, env=env, timeout=300)
 
 
-def needs_cli():
-    if not (ROOT / "ampmodel" / "cli.py").exists():
-        pytest.skip("the command line (ampmodel/cli.py) is not there yet")
-
-
 def _rejects(name: str, tmp_path: Path, call) -> None:
     """``check`` and ``run`` of a broken config: exit code 2, the problem lines on stderr naming the
     file, no traceback, nothing written (neither --out nor anything in the working folder)."""
@@ -231,7 +226,6 @@ def _rejects(name: str, tmp_path: Path, call) -> None:
 @pytest.mark.parametrize("name", FILES)
 def test_command_line_rejects_with_exit_code_2(name, tmp_path, monkeypatch, capsys):
     """Through ``cli.main`` in this process (the entry point itself: test_entry_point_rejects)."""
-    needs_cli()
     from ampmodel.cli import main
 
     def call(args, cwd):
@@ -246,7 +240,6 @@ def test_command_line_rejects_with_exit_code_2(name, tmp_path, monkeypatch, caps
                                   "bad_many_problems.toml", "bad_energy_range.toml"])
 def test_entry_point_rejects(name, tmp_path):
     """The same through ``python -m ampmodel`` in a child process, for a few of the files."""
-    needs_cli()
 
     def call(args, cwd):
         proc = run_cli(*args, cwd=cwd)
@@ -255,7 +248,6 @@ def test_entry_point_rejects(name, tmp_path):
 
 
 def test_command_line_rejects_a_bad_set_path(tmp_path):
-    needs_cli()
     out = tmp_path / "out"
     proc = run_cli("run", str(DATA / "good_minimal.toml"), "--out", str(out),
                     "--set", "medium.rdo.length_mm=50", "--set", "seed.energy_J=-1", cwd=tmp_path)
@@ -267,7 +259,6 @@ def test_command_line_rejects_a_bad_set_path(tmp_path):
 
 
 def test_good_minimal_passes_the_check(tmp_path):
-    needs_cli()
     proc = run_cli("check", str(DATA / "good_minimal.toml"), cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     assert list(tmp_path.iterdir()) == []

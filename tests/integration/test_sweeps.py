@@ -339,8 +339,6 @@ def test_a_cluster_without_ampmodel_is_refused_in_time(blocked, tmp_path):
 
 def test_a_cw_sweep_runs_through_the_same_machinery(tmp_path):
     config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
-    if not config.exists():
-        pytest.skip("no cw example config")
     small = ["grid.points=16", 'sweep."seed.power_W"=[0.5, 2.0]']
     result = api.run_sweep(config, tmp_path / "cw", jobs=1, overrides=small, plots=True)
     assert result.computed == [0, 1] and not result.failed
@@ -355,8 +353,6 @@ def test_a_cw_sweep_runs_through_the_same_machinery(tmp_path):
 
 def test_a_failed_point_is_listed_kept_out_of_the_table_and_retried(tmp_path):
     config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
-    if not config.exists():
-        pytest.skip("no cw example config")
     sets = ["--set", "grid.points=16", "--set", 'sweep."solver.max_iterations"=[2, 1000]']
     out = tmp_path / "out"
     proc = ampmodel("sweep", str(config), "--out", str(out), "--jobs", "1", "--quiet", *sets, cwd=tmp_path)
