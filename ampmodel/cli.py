@@ -364,24 +364,25 @@ def _options(args, command: str) -> tuple[str, int | None]:
     return ("dask" if args.scheduler else args.backend or "loky"), args.jobs
 
 
+def _many_points(args, command: str, runner, printer) -> int:
+    """`sweep` and `spread`: the same options, run in parallel, then the report."""
+    backend, jobs = _options(args, command)
+    result = runner(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
+                    overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
+                    timeout_s=args.timeout)
+    return printer(result, quiet=args.quiet)
+
+
 def cmd_sweep(args) -> int:
     from .sweeps import run_sweep
     from .sweep_report import print_sweep
-    backend, jobs = _options(args, "sweep")
-    result = run_sweep(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
-                       overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
-                       timeout_s=args.timeout)
-    return print_sweep(result, quiet=args.quiet)
+    return _many_points(args, "sweep", run_sweep, print_sweep)
 
 
 def cmd_spread(args) -> int:
     from .spread import run_spread
     from .sweep_report import print_spread
-    backend, jobs = _options(args, "spread")
-    result = run_spread(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
-                        overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
-                        timeout_s=args.timeout)
-    return print_spread(result, quiet=args.quiet)
+    return _many_points(args, "spread", run_spread, print_spread)
 
 
 def cmd_size(args) -> int:
