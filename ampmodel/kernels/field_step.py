@@ -139,37 +139,43 @@ def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: n
     1e-17 for the largest |phase| (as kernels.diffraction.amplitude_phase, exact to round-off there);
     larger phases: numpy's cos and sin. ``largest``: a bound on |phase| that the caller knows (else the
     phases are searched).
+
+    With a = amplitude, φ² = p2 and t = a·p2, the series are summed as a·cos φ = a + t·(C1 + p2·(C2 + ...))
+    and a·sin φ = φ·(a + t·(S1 + p2·(S2 + ...))), each written into the complex array by its last
+    operation (a write into the real or imaginary part of a complex array costs about three
+    multiplications of contiguous ones).
     """
     if largest is None:
         largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
     terms = _taylor_terms(largest) if largest <= SMALL_PHASE else 0
+    a = 1.0 if amplitude is None else amplitude
     if terms == 0:
         np.cos(phase, out=acc)
         np.sin(phase, out=p2)
-        cos, sin = acc, p2
-    elif terms == 1:
-        acc[...] = 1.0
-        cos, sin = acc, phase
-    else:
-        np.multiply(phase, phase, out=p2)
-        sin = acc2
-        np.multiply(p2, _SIN[terms - 1], out=sin)
-        np.multiply(p2, _COS[terms - 1], out=acc)
-        for j in range(terms - 2, 0, -1):                   # Horner: C0 + p2·(C1 + p2·(C2 + ...))
-            acc += _COS[j]
-            acc *= p2
-            sin += _SIN[j]
-            sin *= p2
-        acc += _COS[0]
-        sin += _SIN[0]
-        np.multiply(sin, phase, out=p2)                     # sin = φ·(S0 + p2·(...))
-        cos, sin = acc, p2
-    if amplitude is None:
-        out.real[...] = cos
-        out.imag[...] = sin
-    else:
-        np.multiply(cos, amplitude, out=out.real)
-        np.multiply(sin, amplitude, out=out.imag)
+        np.multiply(acc, a, out=out.real)
+        np.multiply(p2, a, out=out.imag)
+        return out
+    if terms == 1:                                          # cos φ = 1, sin φ = φ to round-off
+        out.real[...] = a
+        np.multiply(phase, a, out=out.imag)
+        return out
+    np.multiply(phase, phase, out=p2)
+    t = p2 if amplitude is None else np.multiply(p2, amplitude, out=acc2)
+    for coefs, part in ((_COS, out.real), (_SIN, out.imag)):
+        if terms == 2:
+            np.multiply(t, coefs[1], out=acc)
+        else:
+            np.multiply(p2, coefs[terms - 1], out=acc)
+            for j in range(terms - 2, 1, -1):               # Horner: C1 + p2·(C2 + p2·(...))
+                acc += coefs[j]
+                acc *= p2
+            acc += coefs[1]
+            acc *= t
+        if coefs is _COS:
+            np.add(acc, a, out=part)                        # a·cos φ
+        else:
+            acc += a
+            np.multiply(acc, phase, out=part)               # a·sin φ
     return out
 
 

@@ -186,3 +186,18 @@ def test_thread_count_reads_workers_as_scipy_fft_does():
     assert chunks.thread_count(3) == 3
     assert chunks.thread_count(-1) == cpus
     assert chunks.thread_count(-cpus - 5) == 1
+
+
+@pytest.mark.parametrize("largest", [1e-10, 3e-7, 2e-3, 0.02, 0.09])
+def test_phase_factor_each_series_length_matches_the_complex_exponential(largest):
+    """Phases below ``largest`` (1 to 5 Taylor terms kept), with and without an amplitude, against
+    a·exp(iφ) by numpy's complex exponential, to a few ulp."""
+    rng = np.random.default_rng(5)
+    phase = (2.0 * rng.random((3, 400)) - 1.0) * largest
+    phase[0, 0] = largest
+    amp = rng.random((3, 400)) + 0.5
+    scratch = [np.empty((3, 400)) for _ in range(3)]
+    for a in (amp, None):
+        out = fs.phase_factor_into(phase, np.empty((3, 400), complex), *scratch, a, largest=largest)
+        ref = (1.0 if a is None else a) * np.exp(1j * phase)
+        assert np.max(np.abs(out - ref)) < 4e-16 * 2
