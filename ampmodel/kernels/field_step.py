@@ -307,15 +307,18 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         else:
             r[...] = 0.0
             np.divide(xo, x, out=r, where=x > 0.0)
+        rooted = False
         if kerr:
-            if mean is None:
-                mean = _log_mean(x, r, work.u[:rows], work.w[:rows])
+            if mean is None:                                # r <- sqrt(r) from the mean's ln r
+                mean = _log_mean_root(x, r, work.u[:rows], work.w[:rows])
+                rooted = True
             mean *= b_coef * fsat
             for prow, values in zip(phase, mean):
                 prow[inside] = values
             # the logarithmic mean lies between J_in and J_out
             largest = max(largest, max(x_high, float(x.max())) * fsat)
-        np.sqrt(r, out=r)                                   # the amplitude factor inside
+        if not rooted:
+            np.sqrt(r, out=r)                               # the amplitude factor inside
         if k.edge_inside is not None:
             r *= k.edge_inside
         for arow, values in zip(amp, r):
@@ -381,16 +384,20 @@ def _fn_linear(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, work: Chunk
     return np.log1p(out, out=v)
 
 
-def _log_mean(x: np.ndarray, r: np.ndarray, work1: np.ndarray, work2: np.ndarray) -> np.ndarray:
-    """x·(r − 1)/ln r, the logarithmic mean of x and r·x (x where r = 1, 0 where r = 0), into work2.
+def _log_mean_root(x: np.ndarray, r: np.ndarray, work1: np.ndarray, work2: np.ndarray) -> np.ndarray:
+    """x·(r − 1)/ln r, the logarithmic mean of x and r·x (x where r = 1, 0 where r = 0), into work2; and
+    r replaced by sqrt(r), computed as exp(ln r / 2) from the mean's ln r (an exp and a product cost
+    less than numpy's sqrt; within about |ln r|·1e-16 relative of it; r = 0 gives 0).
 
     r − 1 and ln r come from the same rounded r (accurate to a few ulp even where r is within 1e-16
     of 1); the guard makes r = 1 give x (fn_pass.log_mean_accumulate)."""
     with np.errstate(divide="ignore"):
         np.log(r, out=work1)
-    work1 += _GUARD_EQUAL
     np.subtract(r, 1.0, out=work2)
     work2 += _GUARD_EQUAL
+    np.multiply(work1, 0.5, out=r)
+    np.exp(r, out=r)
+    work1 += _GUARD_EQUAL
     np.divide(work2, work1, out=work2)
     work2 *= x
     return work2

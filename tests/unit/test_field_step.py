@@ -201,3 +201,29 @@ def test_phase_factor_each_series_length_matches_the_complex_exponential(largest
         out = fs.phase_factor_into(phase, np.empty((3, 400), complex), *scratch, a, largest=largest)
         ref = (1.0 if a is None else a) * np.exp(1j * phase)
         assert np.max(np.abs(out - ref)) < 4e-16 * 2
+
+
+def test_log_mean_and_root_match_the_plain_formulas():
+    """_log_mean_root: the logarithmic mean (b − a)/ln(b/a) of a = x and b = r·x from its definition
+    (x where r = 1, 0 where r = 0; its Taylor series next to r = 1) and sqrt(r) by numpy, for ratios
+    from 0 to e^40 and within 1e-9 of 1."""
+    rng = np.random.default_rng(6)
+    x = 10.0 ** rng.uniform(-8, 1, (3, 300))
+    r = np.exp(rng.uniform(-3.0, 40.0, (3, 300)))
+    r[0, :50] = 1.0 + rng.uniform(-1e-9, 1e-9, 50)
+    r[1, :5] = 1.0
+    r[2, :5] = 0.0
+    got_r, work1, work2 = r.copy(), np.empty_like(r), np.empty_like(r)
+    mean = fs._log_mean_root(x, got_r, work1, work2)
+    assert mean is work2
+    assert np.max(np.abs(got_r - np.sqrt(r)) / np.maximum(np.sqrt(r), 1e-300)) < 1e-14
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b = r * x
+        plain = np.where(r == 1.0, x, (b - x) / np.log(b / x))
+    plain[r == 0.0] = 0.0
+    near = np.abs(r - 1.0) < 1e-6                     # there the series in δ = r − 1 (exact for such r):
+    d = r - 1.0                                       # (r − 1)/ln r = 1 + δ/2 − δ²/12 + δ³/24 − ...
+    plain[near] = (x * (1.0 + d / 2 - d * d / 12 + d ** 3 / 24))[near]
+    lit = r > 0.0
+    assert np.max(np.abs(mean - plain)[lit] / plain[lit]) < 1e-14
+    assert np.array_equal(mean[1, :5], x[1, :5]) and np.all(mean[2, :5] == 0.0)
