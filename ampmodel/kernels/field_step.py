@@ -274,17 +274,19 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     if n_in:
         x = np.take(f, inside, axis=1, out=work.x[:rows], mode="clip")
         x /= fsat
-        lit_in = float(x.sum())
+        lit_in = float(x.sum()) if lossy else 0.0
         g = np.take(ln_gain, inside, out=work.ln_gain, mode="clip")
         lowest = float(x.min())
         mean = None
-        if _linear_valid(x, g, half_loss, lowest):
+        linear = _linear_valid(x, g, half_loss, lowest, f_max / fsat)
+        if linear:
             xo = _fn_linear(x, g, half_loss, work, rows)   # J_out/Fsat before the second half loss
             d = work.u[:rows]                               # with loss: J_in·half_loss (the map's input)
             np.subtract(xo, d if lossy else x, out=d)       # J_out − J_in of each update
-            g -= d.sum(axis=0)                              # Fsat·Δln G = −ΔJ
+            spent = d.sum(axis=0, out=work.gain)
+            g -= spent                                      # Fsat·Δln G = −ΔJ
+            gained = float(spent.sum()) * fsat
             if lossy:
-                gained = float(d.sum()) * fsat
                 passive = (lit_in + float(xo.sum())) * (1.0 - half_loss) * fsat
                 xo *= half_loss
         else:                                               # the log-domain kernel (any fluence and gain)
@@ -298,8 +300,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
                 gained, passive = oc.gained * fsat, oc.passive_loss * fsat
         ln_gain[inside] = g
         out_sum = xo.sum(axis=0, out=work.one)
-        if not lossy:
-            gained = (float(out_sum.sum()) - lit_in) * fsat
+        if not (linear or lossy):                           # the log-domain kernel
+            gained = (float(out_sum.sum()) - float(x.sum())) * fsat
         x_high = float(xo.max())
         r = work.r[:rows]                                   # J_out/J_in (0 where nothing entered)
         if lowest > 0.0:
@@ -316,7 +318,7 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
             for prow, values in zip(phase, mean):
                 prow[inside] = values
             # the logarithmic mean lies between J_in and J_out
-            largest = max(largest, max(x_high, float(x.max())) * fsat)
+            largest = max(largest, x_high * fsat, f_max)
         if not rooted:
             np.sqrt(r, out=r)                               # the amplitude factor inside
         if k.edge_inside is not None:
@@ -326,7 +328,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         if lossy:
             passive += (energy_in - lit_in * fsat) * (1.0 - loss2)
         # what leaves, per pixel Σ_t, and the largest slice fluence (outside: the entering times loss²)
-        row *= loss2
+        if lossy:
+            row *= loss2
         out_sum *= fsat
         row[inside] = out_sum
         peak_in = x_high * fsat
@@ -349,15 +352,16 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     return ChunkSums(energy_in, float(row.sum()), gained, passive, peak)
 
 
-def _linear_valid(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, lowest: float) -> bool:
+def _linear_valid(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, lowest: float, highest: float) -> bool:
     """fn_pass.linear_form_valid for one gain slice, its quick sufficient test first (every slice
-    carries fluence: the largest possible x and the smallest attenuated one stay in range)."""
+    carries fluence: the largest possible x and the smallest attenuated one stay in range; ``highest``
+    bounds x from above)."""
     if x.size == 0:
         return True
     if lowest > 0.0:
         pos = max(float(ln_gain.max()), 0.0)
         neg = min(float(ln_gain.min()), 0.0) + 2.0 * math.log(half_loss)
-        if x.shape[0] * float(x.max()) + pos <= fn_pass.LINEAR_MAX_EXPONENT \
+        if x.shape[0] * highest + pos <= fn_pass.LINEAR_MAX_EXPONENT \
                 and math.log(lowest) + neg > fn_pass.LINEAR_MIN_LOG_FLUENCE:
             return True
     return fn_pass.linear_form_valid(x, ln_gain[None, :], half_loss)
@@ -378,6 +382,8 @@ def _fn_linear(x: np.ndarray, ln_gain: np.ndarray, half_loss: float, work: Chunk
     np.exp(ln_gain, out=gain)
     for t in range(rows):                                   # u_out = G·u, G <- (G + u_out)/(1 + u_out)
         np.multiply(gain, v[t], out=out[t])
+        if t == rows - 1:                                   # the caller depletes ln G from the energy
+            break
         gain += out[t]
         np.add(out[t], 1.0, out=one)
         gain /= one
