@@ -68,6 +68,8 @@ class ChunkWork:
         self.plane = np.empty(pixels)
         self.amp = np.empty((rows, pixels))           # the amplitude factor of the step
         self.amp_outside = None                       # the outside values amp holds (set by a step)
+        self.selected = np.empty((rows, pixels), dtype=bool)    # the inside pixels of every row
+        self.selected_of = None                       # the inside indices it marks (set by a step)
 
 
 class ChunkSums(NamedTuple):
@@ -272,6 +274,11 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     largest = f_max * psi if kerr else 0.0                  # bounds the phase, over b_coef
     peak = f_max * loss2
     if n_in:
+        if work.selected_of is not inside:                  # a boolean mask of the (rows, P) block: a
+            work.selected[...] = False                      # scatter into it costs less than row by row
+            work.selected[:, inside] = True
+            work.selected_of = inside
+        selected = work.selected[:rows]
         x = np.take(f, inside, axis=1, out=work.x[:rows], mode="clip")
         x /= fsat
         lit_in = float(x.sum()) if lossy else 0.0
@@ -315,16 +322,14 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
                 mean = _log_mean_root(x, r, work.u[:rows], work.w[:rows])
                 rooted = True
             mean *= b_coef * fsat
-            for prow, values in zip(phase, mean):
-                prow[inside] = values
+            phase[selected] = mean.reshape(-1)
             # the logarithmic mean lies between J_in and J_out
             largest = max(largest, x_high * fsat, f_max)
         if not rooted:
             np.sqrt(r, out=r)                               # the amplitude factor inside
         if k.edge_inside is not None:
             r *= k.edge_inside
-        for arow, values in zip(amp, r):
-            arow[inside] = values
+        amp[selected] = r.reshape(-1)
         if lossy:
             passive += (energy_in - lit_in * fsat) * (1.0 - loss2)
         # what leaves, per pixel Σ_t, and the largest slice fluence (outside: the entering times loss²)
