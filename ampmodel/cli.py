@@ -290,8 +290,8 @@ def cmd_check(args) -> int:
     config = _load(args.config, args.overrides)
     need = check_memory(config)
     x = beams.pixel_centres(config.grid.points, config.grid.width_m)
-    nm = len(config.media)
-    print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {len(config.steps)} steps, mode {config.mode}, "
+    nm, ns = len(config.media), len(config.steps)
+    print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {ns} step{'' if ns == 1 else 's'}, mode {config.mode}, "
           f"about {_fmt(need, 'B')} of arrays)")
     if any(m.kind == "fibre" for m in config.media):
         from .fibre_run import describe_fibres
