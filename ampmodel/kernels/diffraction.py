@@ -341,39 +341,72 @@ def self_focusing_length_m(wavelength_m: float, index: float, beam_radius_m: flo
 SMALL_PHASE = 0.1
 _COS = (1.0, -1.0 / 2, 1.0 / 24, -1.0 / 720, 1.0 / 40320)
 _SIN = (1.0, -1.0 / 6, 1.0 / 120, -1.0 / 5040, 1.0 / 362880)
+_NEGLIGIBLE = 1e-17       # Taylor terms of the phase factor below this are dropped
 
 
 def amplitude_phase(amplitude: np.ndarray, phase_rad: np.ndarray) -> np.ndarray:
-    """Complex factor amplitude·exp(i·phase), elementwise.
+    """Complex factor amplitude·exp(i·phase), elementwise, in a new array (:func:`phase_factor_into`)."""
+    phase = np.asarray(phase_rad, dtype=float)
+    amp = np.broadcast_to(np.asarray(amplitude, dtype=float), phase.shape)
+    scratch = [np.empty(phase.shape) for _ in range(3)]
+    return phase_factor_into(phase, np.empty(phase.shape, dtype=np.complex128), *scratch, amp)
+
+
+def _taylor_terms(largest: float) -> int:
+    """Terms of the cos and sin series kept for phases up to ``largest`` (<= SMALL_PHASE): the last term
+    kept is the first whose size at ``largest`` is not below _NEGLIGIBLE of 1."""
+    terms = len(_COS)
+    while terms > 1 and largest ** (2 * (terms - 1)) * abs(_COS[terms - 1]) < _NEGLIGIBLE:
+        terms -= 1
+    return terms
+
+
+def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: np.ndarray, acc2: np.ndarray,
+                      amplitude: np.ndarray | None = None, largest: float | None = None) -> np.ndarray:
+    """out = amplitude·exp(i·phase), elementwise, into a complex array (p2, acc, acc2: real scratch of
+    phase's shape; amplitude real of that shape, or None for 1).
 
     Kerr phases per slice are small: when every |phase| <= SMALL_PHASE the cosine and sine are summed
-    from their Taylor series (Horner, exact to round-off there), several times faster than the complex
-    exponential; otherwise numpy's cos and sin are used. The series stops at the first term that the
-    largest phase makes smaller than 1e-17 (for phases of 1e-3 rad, after φ⁴ and φ⁵).
+    from their Taylor series (Horner, exact to round-off there, several times faster than the complex
+    exponential), cut at the first term below 1e-17 for the largest |phase| (for phases of 1e-3 rad,
+    after φ⁴ and φ⁵); larger phases: numpy's cos and sin. ``largest``: a bound on |phase| that the
+    caller knows (else the phases are searched).
+
+    With a = amplitude, φ² = p2 and t = a·p2, the series are summed as a·cos φ = a + t·(C1 + p2·(C2 + ...))
+    and a·sin φ = φ·(a + t·(S1 + p2·(S2 + ...))), each written into the complex array by its last
+    operation (a write into the real or imaginary part of a complex array costs about three
+    multiplications of contiguous ones).
     """
-    out = np.empty(np.shape(phase_rad), dtype=np.complex128)
-    largest = float(np.max(np.abs(phase_rad))) if phase_rad.size else 0.0
-    if largest <= SMALL_PHASE:
-        terms = len(_COS)
-        while terms > 1 and largest ** (2 * (terms - 1)) * abs(_COS[terms - 1]) < 1e-17:
-            terms -= 1                    # the last term kept is below 1e-17 of 1: drop it (sin alike)
-        if terms == 1:
-            c = np.ones(np.shape(phase_rad))
-            s = np.array(phase_rad, dtype=float)
+    if largest is None:
+        largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
+    terms = _taylor_terms(largest) if largest <= SMALL_PHASE else 0
+    a = 1.0 if amplitude is None else amplitude
+    if terms == 0:
+        np.cos(phase, out=acc)
+        np.sin(phase, out=p2)
+        np.multiply(acc, a, out=out.real)
+        np.multiply(p2, a, out=out.imag)
+        return out
+    if terms == 1:                                          # cos φ = 1, sin φ = φ to round-off
+        out.real[...] = a
+        np.multiply(phase, a, out=out.imag)
+        return out
+    np.multiply(phase, phase, out=p2)
+    t = p2 if amplitude is None else np.multiply(p2, amplitude, out=acc2)
+    for coefs, part in ((_COS, out.real), (_SIN, out.imag)):
+        if terms == 2:
+            np.multiply(t, coefs[1], out=acc)
         else:
-            p2 = phase_rad * phase_rad
-            c = p2 * _COS[terms - 1]
-            s = p2 * _SIN[terms - 1]
-            for j in range(terms - 2, 0, -1):             # Horner: C0 + p2·(C1 + p2·(C2 + ...))
-                c += _COS[j]
-                c *= p2
-                s += _SIN[j]
-                s *= p2
-            c += _COS[0]
-            s += _SIN[0]
-            s *= phase_rad
-    else:
-        c, s = np.cos(phase_rad), np.sin(phase_rad)
-    np.multiply(amplitude, c, out=out.real)
-    np.multiply(amplitude, s, out=out.imag)
+            np.multiply(p2, coefs[terms - 1], out=acc)
+            for j in range(terms - 2, 1, -1):               # Horner: C1 + p2·(C2 + p2·(...))
+                acc += coefs[j]
+                acc *= p2
+            acc += coefs[1]
+            acc *= t
+        if coefs is _COS:
+            np.add(acc, a, out=part)                        # a·cos φ
+        else:
+            acc += a
+            np.multiply(acc, phase, out=part)               # a·sin φ
     return out
+

@@ -29,10 +29,9 @@ import numpy as np
 import scipy.fft
 
 from . import fn_pass
-from .diffraction import SMALL_PHASE, _COS, _SIN
+from .diffraction import phase_factor_into
 
 _GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_accumulate)
-_NEGLIGIBLE = 1e-17       # Taylor terms of the phase factor below this are dropped
 
 
 # Time slices per chunk: about this many pixel values, so that a chunk (16 bytes a value) and its
@@ -122,63 +121,6 @@ def propagate_chunk(e: np.ndarray, transfer: np.ndarray, edge: np.ndarray | None
             e[...] = out
         if edge is not None and (last_edge or i < steps - 1):
             e *= edge
-
-
-def _taylor_terms(largest: float) -> int:
-    """Terms of the cos and sin series kept for phases up to ``largest`` (kernels.diffraction.amplitude_phase)."""
-    terms = len(_COS)
-    while terms > 1 and largest ** (2 * (terms - 1)) * abs(_COS[terms - 1]) < _NEGLIGIBLE:
-        terms -= 1
-    return terms
-
-
-def phase_factor_into(phase: np.ndarray, out: np.ndarray, p2: np.ndarray, acc: np.ndarray, acc2: np.ndarray,
-                      amplitude: np.ndarray | None = None, largest: float | None = None) -> np.ndarray:
-    """out = amplitude·exp(i·phase), elementwise, into a complex array (p2, acc, acc2: real scratch of
-    phase's shape; amplitude real of that shape, or None for 1).
-
-    Phases up to SMALL_PHASE: the cosine and sine from their Taylor series, cut at the first term below
-    1e-17 for the largest |phase| (as kernels.diffraction.amplitude_phase, exact to round-off there);
-    larger phases: numpy's cos and sin. ``largest``: a bound on |phase| that the caller knows (else the
-    phases are searched).
-
-    With a = amplitude, φ² = p2 and t = a·p2, the series are summed as a·cos φ = a + t·(C1 + p2·(C2 + ...))
-    and a·sin φ = φ·(a + t·(S1 + p2·(S2 + ...))), each written into the complex array by its last
-    operation (a write into the real or imaginary part of a complex array costs about three
-    multiplications of contiguous ones).
-    """
-    if largest is None:
-        largest = float(max(phase.max(), -phase.min())) if phase.size else 0.0
-    terms = _taylor_terms(largest) if largest <= SMALL_PHASE else 0
-    a = 1.0 if amplitude is None else amplitude
-    if terms == 0:
-        np.cos(phase, out=acc)
-        np.sin(phase, out=p2)
-        np.multiply(acc, a, out=out.real)
-        np.multiply(p2, a, out=out.imag)
-        return out
-    if terms == 1:                                          # cos φ = 1, sin φ = φ to round-off
-        out.real[...] = a
-        np.multiply(phase, a, out=out.imag)
-        return out
-    np.multiply(phase, phase, out=p2)
-    t = p2 if amplitude is None else np.multiply(p2, amplitude, out=acc2)
-    for coefs, part in ((_COS, out.real), (_SIN, out.imag)):
-        if terms == 2:
-            np.multiply(t, coefs[1], out=acc)
-        else:
-            np.multiply(p2, coefs[terms - 1], out=acc)
-            for j in range(terms - 2, 1, -1):               # Horner: C1 + p2·(C2 + p2·(...))
-                acc += coefs[j]
-                acc *= p2
-            acc += coefs[1]
-            acc *= t
-        if coefs is _COS:
-            np.add(acc, a, out=part)                        # a·cos φ
-        else:
-            acc += a
-            np.multiply(acc, phase, out=part)               # a·sin φ
-    return out
 
 
 class SliceConstants(NamedTuple):
