@@ -170,7 +170,7 @@ def lens_phase(x_m: np.ndarray, y_m: np.ndarray, wavelength_m: float, focal_m: f
 
 def pinhole_filter(field: np.ndarray, width_m: float, wavelength_m: float, focal_m: float,
                    pinhole_radius_m: float, workers: int = -1, min_pixels: float = 8.0,
-                   max_padding: int = 8, chunk_bytes: int = 1 << 28) -> tuple[np.ndarray, int]:
+                   max_padding: int = 8, chunk_bytes: int = 1 << 28) -> tuple[np.ndarray, int, float]:
     """A 4f spatial filter: lens, pinhole in the common focal plane, lens; the output is the filtered,
     inverted image of the input.
 
