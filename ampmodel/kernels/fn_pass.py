@@ -3,7 +3,7 @@
 A block holds C pixels (the caller gathers them from the clear aperture): the pulse as
 ``x[t, p] = J/Fsat`` (fluence of time slice t in units of the saturation fluence) and the medium as
 ``ln_gain[k, p] = g·dz``, slice k being the k-th the beam meets. For each time slice in order and each
-gain slice in order, per pixel (Frantz–Nodvik, PHYSICS section 2):
+gain slice in order, per pixel (Frantz–Nodvik, J. Appl. Phys. 34, 2346 (1963)):
 
     x_out = ln[1 + G·(exp(x_in) − 1)],    ln G <- ln G − (x_out − x_in).
 
@@ -254,7 +254,8 @@ def amplify_block_composite(x: np.ndarray, ln_gain: np.ndarray,
 
     References
     ----------
-    Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963); PHYSICS section 2 (the maps compose exactly).
+    Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963). The maps compose exactly: in u = exp(J/Fsat) − 1
+    a slice is u -> G·u (kernels/frantz_nodvik.py), so two slices are u -> G1·G2·u.
     """
     nt, c = x.shape
     if c == 0:
