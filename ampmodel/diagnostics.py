@@ -48,8 +48,6 @@ def step_label(config: Config, index: int, inner: int | None = None) -> str:
     return label + ")"
 
 
-_step_label = step_label
-
 # What a clipping step does, in the clipping warning.
 _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
                "pass": "the clear aperture clips"}

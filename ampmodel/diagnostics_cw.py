@@ -15,7 +15,7 @@ import numpy as np
 from . import cw_pump, pumping
 from .cw import CwMedium, Sweep
 from .description import Config
-from .diagnostics import SAFETY_NOTE, W_CM2, _step_label, seed_grid_warnings, transverse_gain_warnings
+from .diagnostics import SAFETY_NOTE, W_CM2, seed_grid_warnings, step_label, transverse_gain_warnings
 from .results import MediumRecord
 
 
@@ -100,7 +100,7 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
         if step.kind == "pass":
             entry.update(reverse=step.reverse, extracted_power_W=oc.extracted_W)
         steps.append(entry)
-        label = _step_label(config, step.index)
+        label = step_label(config, step.index)
         if oc.power_in_W > 0 and oc.clipped_W > limits.clipped_fraction * oc.power_in_W:
             warnings.append(f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} % of the power "
                             f"(more than {100 * limits.clipped_fraction:g} %)")
