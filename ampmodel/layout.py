@@ -71,11 +71,16 @@ class StepOutcome:
     extras: dict = field(default_factory=dict)
 
 
+def fluence_peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:
+    """Largest fluence (J/m², summed over the time slices) and intensity (W/m²) of a (Nt, Ny, Nx) beam."""
+    if fluence.size == 0:
+        return 0.0, 0.0
+    return float(fluence.sum(axis=0).max()), float(fluence.max() / dt_s)
+
+
 def _peaks(beam: BeamState) -> tuple[float, float]:
     """Largest fluence (J/m²) and intensity (W/m²) of the beam as it is now."""
-    if beam.fluence.size == 0:
-        return 0.0, 0.0
-    return float(beam.fluence.sum(axis=0).max()), float(beam.fluence.max() / beam.dt_s)
+    return fluence_peaks(beam.fluence, beam.dt_s)
 
 
 def _clip(beam: BeamState, mask: np.ndarray) -> float:

@@ -33,7 +33,7 @@ from . import beams, chunks
 from .description import Limits, Step
 from .kernels import diffraction as kd
 from .kernels import field_step as fs
-from .layout import MediumState, StepOutcome
+from .layout import MediumState, StepOutcome, fluence_peaks
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
 SPECTRAL_TAIL = 1e-6
@@ -169,12 +169,6 @@ def advance(beam: FieldBeam, length_m: float, index: float, steps: int = 1) -> N
 
     chunks.run_chunks(len(starts), 1, stage, chunks.thread_count(beam.workers), ordered=False)
     beam.fft_count += 2 * nt * steps
-
-
-def _peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:
-    if fluence.size == 0:
-        return 0.0, 0.0
-    return float(fluence.sum(axis=0).max()), float(fluence.max() / dt_s)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -322,7 +316,7 @@ def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:
     or as the keys ``change`` returns."""
     fluence = fluence_of(beam.field)
     e_in = float(fluence.sum() * beam.pixel_area_m2)
-    peak_f, peak_i = _peaks(fluence, beam.dt_s)
+    peak_f, peak_i = fluence_peaks(fluence, beam.dt_s)
     extras = change() or {}
     e_out = beam.energy_J()
     kind = extras.pop("_loss", "passive")
@@ -464,7 +458,7 @@ def fluence_aperture(beam, step: Step) -> StepOutcome:
     if step.order is None:
         return apply_aperture(beam, step)
     e_in = beam.energy_J()
-    peak_f, peak_i = float(beam.fluence.sum(axis=0).max()), float(beam.fluence.max() / beam.dt_s)
+    peak_f, peak_i = fluence_peaks(beam.fluence, beam.dt_s)
     beam.fluence *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order) ** 2
     e_out = beam.energy_J()
     return StepOutcome(e_in, e_out, clipped_J=e_in - e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
@@ -475,7 +469,7 @@ def fluence_relay(beam, step: Step) -> StepOutcome:
     (geometrical imaging; linear interpolation keeps it non-negative), energy conserved as in
     :func:`field_relay`."""
     e_in = beam.energy_J()
-    peak_f, peak_i = float(beam.fluence.sum(axis=0).max()), float(beam.fluence.max() / beam.dt_s)
+    peak_f, peak_i = fluence_peaks(beam.fluence, beam.dt_s)
     m = step.magnification
     if m == 1.0:
         beam.fluence = beam.fluence[:, ::-1, ::-1].copy()
