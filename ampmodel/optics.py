@@ -417,14 +417,14 @@ def field_relay(beam: FieldBeam, step: Step) -> StepOutcome:
     the rest is counted as clipped by the window). Relay lenses and their apertures are ideal."""
     def change():
         m = step.magnification
-        keep = fluence_of(beam.field)
-        if m > 1.0:
-            inside = (np.abs(beam.y_m)[:, None] * m <= beam.width_m / 2.0) & \
-                     (np.abs(beam.x_m)[None, :] * m <= beam.width_m / 2.0)
-            keep = keep * inside
-        target = keep.sum(axis=(1, 2))
         image = kd.image_scaled(beam.field, beam.x_m, m)
         if m != 1.0:
+            keep = fluence_of(beam.field)
+            if m > 1.0:
+                inside = (np.abs(beam.y_m)[:, None] * m <= beam.width_m / 2.0) & \
+                         (np.abs(beam.x_m)[None, :] * m <= beam.width_m / 2.0)
+                keep = keep * inside
+            target = keep.sum(axis=(1, 2))
             have = fluence_of(image).sum(axis=(1, 2))
             scale = np.zeros_like(have)
             np.divide(target, have, out=scale, where=have > 0.0)
