@@ -1,4 +1,15 @@
-"""Pure diffraction kernels (kernels/diffraction.py) and the optics on the fluence path."""
+"""Pure diffraction kernels (kernels/diffraction.py) and the optics on the fluence path.
+
+References
+----------
+J. W. Goodman, Introduction to Fourier Optics: section 3.10, the angular-spectrum transfer function
+H = exp(i·dz·(kz − k)), |H| = 1 for propagating waves, evanescent waves damped, and its paraxial limit
+kz − k ≈ −kt²/(2k); sections 5.2 and 8.3, the 4f system images the input inverted, (x, y) -> (−x, −y),
+so a pinhole that passes the whole angular spectrum returns the inverted field. The phase factor
+against numpy's complex exponential; the soft aperture against its defining transmission
+exp(−ln 2·(2r/D)^order); the relay against energy conservation (a magnified image spreads the same
+energy over M² times the area: geometrical imaging).
+"""
 from __future__ import annotations
 
 import math
