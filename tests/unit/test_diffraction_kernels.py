@@ -35,6 +35,17 @@ def test_phase_factor_matches_the_complex_exponential():
         assert np.max(np.abs(kd.amplitude_phase(amp, phase) - amp * np.exp(1j * phase))) < 1e-15 * 4
 
 
+def test_phase_factor_with_a_scalar_amplitude_and_a_map_of_phases():
+    """amplitude_phase broadcasts a scalar amplitude over a 2-D map of phases (every series length and
+    cos/sin), against numpy's complex exponential."""
+    rng = np.random.default_rng(4)
+    for scale in (1e-9, 1e-3, 0.05, 2.0):
+        phase = (rng.random((7, 9)) - 0.5) * 2 * scale
+        got = kd.amplitude_phase(1.5, phase)
+        assert got.shape == phase.shape and got.dtype == np.complex128
+        assert np.max(np.abs(got - 1.5 * np.exp(1j * phase))) < 1.5 * 4e-16 * 2
+
+
 def test_transfer_function_is_unitary_for_propagating_waves_and_damps_evanescent_ones():
     kx = kd.angular_frequencies(N, 40e-6 * N)          # 40 µm pixels at 20 µm wavelength: evanescent band
     h = kd.transfer_function(kx, kx, 20e-6, 1.0, 1e-3)
