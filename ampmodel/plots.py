@@ -384,6 +384,38 @@ def _pass_count(result: Result, name: str) -> int:
     return count
 
 
+def gain_maps_per_cm(med) -> tuple[np.ndarray, np.ndarray, float, float]:
+    """A medium's gain coefficient maps in 1/cm, (Nz, Ny, Nx): before the first and after the last pass
+    (cw: small-signal and saturated); and its slice length and length in mm."""
+    g0 = np.asarray(med.gain_initial_per_m, dtype=float) / 100.0
+    g1 = np.asarray(med.gain_final_per_m, dtype=float) / 100.0
+    if g0.ndim == 1:
+        g0, g1 = g0[:, None, None], g1[:, None, None]
+    dz_mm = med.slice_length_m * 1e3
+    return g0, g1, dz_mm, g0.shape[0] * dz_mm
+
+
+def gain_colour_scale(lo: float, hi: float) -> tuple[str, float, float]:
+    """(colour map, vmin, vmax) of a gain cut spanning [lo, hi]: diverging around 0 when the medium
+    absorbs somewhere (quasi-three-level), not by round-off; else from 0 up."""
+    if lo < -1e-3 * max(abs(hi), 1e-30):
+        m = max(abs(lo), abs(hi), 1e-30)
+        return "RdBu_r", -m, m
+    return "viridis", min(lo, 0.0), hi if hi > 0 else 1.0
+
+
+def limit_to_medium(ax, result: Result, name: str, x0: float, x1: float) -> None:
+    """Narrow the transverse axis (mm) of a gain cut to 1.2 medium diameters when the window is wider."""
+    try:
+        diameter_m = getattr(result.config.medium(name), "diameter_m", None)
+    except (KeyError, AttributeError):
+        return
+    if diameter_m:
+        half = 0.6 * diameter_m * 1e3
+        if half < (x1 - x0) / 2:
+            ax.set_ylim(max(x0, -half), min(x1, half))
+
+
 def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     """z–x cuts of a medium's gain coefficient before and after, and the on-axis gain along z.
 
@@ -398,13 +430,8 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     Path : ``path``
     """
     med = result.media[name]
-    g0 = np.asarray(med.gain_initial_per_m, dtype=float) / 100.0
-    g1 = np.asarray(med.gain_final_per_m, dtype=float) / 100.0
-    if g0.ndim == 1:
-        g0, g1 = g0[:, None, None], g1[:, None, None]
+    g0, g1, dz_mm, length_mm = gain_maps_per_cm(med)
     nz, ny, nx = g0.shape
-    dz_mm = med.slice_length_m * 1e3
-    length_mm = nz * dz_mm
     x_m = np.asarray(result.x_m, dtype=float)
     y_m = np.asarray(result.y_m, dtype=float)
     if x_m.size != nx:  # a medium on its own grid: spread its pixels over the window
@@ -417,19 +444,8 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     cut0, cut1 = (block_mean(block_mean(c, 0), 1) for c in (cut0, cut1))
     xs = block_mean(x_m, 0) * 1e3
     x0, x1 = pixel_extent(xs)
-    lo = min(finite_min(cut0), finite_min(cut1))
-    hi = max(finite_max(cut0), finite_max(cut1))
-    if lo < -1e-3 * max(abs(hi), 1e-30):   # real absorption (quasi-three-level), not round-off
-        m = max(abs(lo), abs(hi), 1e-30)
-        cmap, vmin, vmax = "RdBu_r", -m, m
-    else:
-        cmap, vmin, vmax = "viridis", min(lo, 0.0), hi if hi > 0 else 1.0
-
-    medium_cfg = None
-    try:
-        medium_cfg = result.config.medium(name)
-    except (KeyError, AttributeError):
-        pass
+    cmap, vmin, vmax = gain_colour_scale(min(finite_min(cut0), finite_min(cut1)),
+                                         max(finite_max(cut0), finite_max(cut1)))
     passes = _pass_count(result, name)
 
     fig = new_figure(9.0, 8.6)
@@ -443,10 +459,7 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
         ax.set_ylabel("x (mm)")
         ax.set_title(f"gain coefficient {when} (cut at y = 0)")
         ax.tick_params(axis="x", labelbottom=False)
-    if medium_cfg is not None and getattr(medium_cfg, "diameter_m", None):
-        half = 0.6 * medium_cfg.diameter_m * 1e3
-        if half < (x1 - x0) / 2:
-            ax0.set_ylim(max(x0, -half), min(x1, half))
+    limit_to_medium(ax0, result, name, x0, x1)
     cb = fig.colorbar(im, ax=[ax0, ax1], shrink=0.95)
     cb.set_label("gain coefficient g (1/cm)")
 

@@ -15,7 +15,7 @@ import numpy as np
 
 from .plot_common import (MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, block_mean, centre_index, finite_max, finite_min,
                           new_figure, pixel_extent, save_png)
-from .plots import _title_suffix
+from .plots import _title_suffix, gain_colour_scale, gain_maps_per_cm, limit_to_medium
 from .results import Result
 
 PASS_COLOURS = ["#c8432b", "#1f5fa8", "#2b8c3e", "#8a4fb0", "#d08a1a", "#3a9aa8", "#7a6a55", "#b03a78"]
@@ -40,11 +40,8 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     Path : ``path``
     """
     med = result.media[name]
-    g0 = np.asarray(med.gain_initial_per_m, dtype=float) / 100.0
-    g1 = np.asarray(med.gain_final_per_m, dtype=float) / 100.0
+    g0, g1, dz_mm, length_mm = gain_maps_per_cm(med)
     nz = g0.shape[0]
-    dz_mm = med.slice_length_m * 1e3
-    length_mm = nz * dz_mm
     x_m, y_m = np.asarray(result.x_m, dtype=float), np.asarray(result.y_m, dtype=float)
     iy = centre_index(y_m)
     # the on-axis pixel of the solver (the one at index N//2) for the profiles along z
@@ -61,20 +58,10 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     cut = block_mean(block_mean(g1[:, iy, :].T, 0), 1)
     xs = block_mean(x_m, 0) * 1e3
     x0, x1 = pixel_extent(xs)
-    lo, hi = finite_min(cut), finite_max(cut)
-    if lo < -1e-3 * max(abs(hi), 1e-30):
-        m = max(abs(lo), abs(hi), 1e-30)
-        cmap, vmin, vmax = "RdBu_r", -m, m
-    else:
-        cmap, vmin, vmax = "viridis", min(lo, 0.0), hi if hi > 0 else 1.0
+    cmap, vmin, vmax = gain_colour_scale(finite_min(cut), finite_max(cut))
     im = ax0.imshow(cut, origin="lower", extent=(0.0, length_mm, x0, x1), aspect="auto", cmap=cmap,
                     vmin=vmin, vmax=vmax, interpolation="nearest")
-    try:
-        half = 0.6 * result.config.medium(name).diameter_m * 1e3
-        if half < (x1 - x0) / 2:
-            ax0.set_ylim(max(x0, -half), min(x1, half))
-    except (KeyError, AttributeError):
-        pass
+    limit_to_medium(ax0, result, name, x0, x1)
     ax0.set_ylabel("x (mm)")
     ax0.set_title("saturated gain coefficient in the steady state, all passes present (cut at y = 0)")
     ax0.tick_params(axis="x", labelbottom=False)
