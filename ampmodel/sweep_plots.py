@@ -22,7 +22,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .plot_common import new_figure, save_png
+from .plot_common import new_figure, save_png, unit_prefix
 from .units import unit_of
 
 CMAP_LINES = "viridis"
@@ -85,11 +85,7 @@ def scale_for(unit: str, values: Sequence[float]) -> tuple[float, str]:
     """(divisor, shown unit) for ``values`` in ``unit``: J -> mJ etc.; "%" for a dimensionless fraction."""
     finite = [abs(v) for v in values if isinstance(v, (int, float)) and math.isfinite(v) and v != 0]
     if unit in _PREFIXED and finite:
-        big = max(finite)
-        factor, prefix = _PREFIXES[0]
-        for f, p in _PREFIXES:
-            if f <= big * (1 + 1e-9):
-                factor, prefix = f, p
+        factor, prefix = unit_prefix(max(finite), _PREFIXES)
         return factor, prefix + _PRETTY_UNITS.get(unit, unit)
     return 1.0, _PRETTY_UNITS.get(unit, unit)
 
