@@ -16,7 +16,6 @@ more than a factor of 20 (swept values) or 100 (results) of positive values is l
 from __future__ import annotations
 
 import math
-import re
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
@@ -173,14 +172,15 @@ class _Axis:
             axis.set_major_formatter(ticker.LogFormatter(labelOnlyBase=False))
 
 
-def _scalar_view(key: str, data: Sequence[float]) -> tuple[np.ndarray, str, float]:
-    """Values of a summary scalar as plotted, the axis label, and the factor (plotted = value * factor)."""
+def _scalar_view(key: str, data: Sequence[float]) -> tuple[np.ndarray, str, float, str]:
+    """Values of a summary scalar as plotted, the axis label, the factor (plotted = value * factor)
+    and the unit shown ("1" or "" for a plain number)."""
     unit = unit_of(key)
     y = np.asarray(data, dtype=float)
     if key in ("extraction_efficiency", "optical_efficiency"):
-        return 100 * y, f"{_human(key)} (%)", 100.0
+        return 100 * y, f"{_human(key)} (%)", 100.0, "%"
     factor, shown = scale_for(unit, y.tolist())
-    return y / factor, axis_label(_human(key), shown), 1.0 / factor
+    return y / factor, axis_label(_human(key), shown), 1.0 / factor, shown
 
 
 def _curves(ax, key: str, x_axis: _Axis, groups: list[tuple[str, list[int]]], values: list[dict],
@@ -280,7 +280,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
     two_grid = combine == "grid" and len(paths) == 2
     along = f" ({_listing(others)} varying with it)" if combine == "zip" and others else ""
     written: list[Path] = []
-    views: dict[str, tuple[np.ndarray, str, float]] = {}
+    views: dict[str, tuple[np.ndarray, str, float, str]] = {}
     for key in scalar_keys(summaries):
         if key in NOT_PLOTTED:
             continue
@@ -288,7 +288,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
         if y is None:
             continue
         views[key] = _scalar_view(key, y)
-        shown, label, _ = views[key]
+        shown, label, _, _ = views[key]
         fig = new_figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
         ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
         _curves(ax, key, axes[x_path], groups, values, shown, warned)
@@ -308,7 +308,7 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
         fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
         for n, key in enumerate(panels):
             ax = fig.add_subplot(rows, cols, n + 1)
-            shown, label, _ = views[key]
+            shown, label, _, _ = views[key]
             _curves(ax, key, axes[x_path], groups, values, shown, warned)
             ax.set_ylabel(label)
             if _log_axis(shown.tolist(), 100.0):
@@ -369,15 +369,14 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
         y = _varying(key, summaries)
         if y is None:
             continue
-        shown, label, scale = _scalar_view(key, y)
+        shown, label, scale, shown_unit = _scalar_view(key, y)
         data = shown[np.isfinite(shown)]
         fig = new_figure(6.6, 4.2)
         ax = fig.add_subplot(1, 1, 1)
         bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
         ax.hist(data, bins=bins, color="#1f5fa8", alpha=0.8, edgecolor="white", linewidth=0.5)
         p = percentiles[key]
-        m = re.search(r"\(([^()]*)\)$", label)
-        unit = f" {m.group(1)}" if m and m.group(1) != "%" else "%" if m else ""
+        unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
         for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
             value = p[name] * scale
             ax.axvline(value, color=WARN_COLOUR, ls=style, lw=1.4,
