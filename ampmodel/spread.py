@@ -36,9 +36,8 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from . import config_schema as S
-from .config import ConfigError
 from .description import Config
-from .sweeps import PREFLIGHT_TIMEOUT_S, SweepResult, default_folder, load, run_points
+from .sweeps import PREFLIGHT_TIMEOUT_S, SweepResult, default_folder, load_with_table, run_points
 from .units import unit_of
 
 PERCENTILES = (5.0, 50.0, 95.0)
@@ -150,11 +149,8 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
     """
     if scheduler and backend == "loky":
         backend = "dask"
-    base = load(config, overrides)
-    table = base.raw.get("spread")
-    if not isinstance(table, dict):
-        raise ConfigError([f"{base.source}: spread: missing: the config has no [spread] table; add one, e.g. "
-                           f"[spread] samples = 100, {S.SPREAD_HINT} (README: Tolerance runs)"])
+    base, table = load_with_table(config, overrides, "spread",
+                                  f"[spread] samples = 100, {S.SPREAD_HINT} (README: Tolerance runs)")
     dists = distributions(base.raw)
     samples, seed = int(table["samples"]), int(table.get("random_seed", 0))
     values = draw(dists, samples, seed)

@@ -438,6 +438,22 @@ def load(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str] 
     return load_config(config, overrides)
 
 
+def load_with_table(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str], name: str,
+                    example: str) -> tuple[Config, dict]:
+    """The validated config (:func:`load`) and its ``[name]`` table (``sweep`` or ``spread``).
+
+    Raises
+    ------
+    ConfigError : bad input, or no such table (the message shows ``example``)
+    """
+    base = load(config, overrides)
+    table = base.raw.get(name)
+    if not isinstance(table, dict):
+        raise ConfigError([f"{base.source}: {name}: missing: the config has no [{name}] table; add one, e.g. "
+                           f"{example}"])
+    return base, table
+
+
 def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLike | None = None, *,
               jobs: int | None = None, backend: str = "loky", scheduler: str | None = None,
               overrides: Sequence[str] = (), progress: bool = False, plots: bool = True,
@@ -472,11 +488,8 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
     """
     if scheduler and backend == "loky":
         backend = "dask"
-    base = load(config, overrides)
-    table = base.raw.get("sweep")
-    if not isinstance(table, dict):
-        raise ConfigError([f"{base.source}: sweep: missing: the config has no [sweep] table; add one, e.g. "
-                           '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps)'])
+    base, table = load_with_table(config, overrides, "sweep",
+                                  '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps)')
     paths, values = sweep_points(table)
     out = Path(out) if out is not None else default_folder(base, "sweep")
     combine = table.get("combine", "grid")
