@@ -191,7 +191,7 @@ class Cluster:
             else:
                 self.cluster = LocalCluster(host="127.0.0.1", n_workers=self.workers, threads_per_worker=1,
                                             processes=True, dashboard_address=None)
-                self.client = _cluster_client(self.cluster)
+                self.client = Client(self.cluster)
         except BackendError:
             self.__exit__()
             raise BackendError(f"cannot reach the dask scheduler at {self.scheduler} within "
@@ -211,11 +211,6 @@ class Cluster:
                 except Exception:   # noqa: BLE001 - closing is best effort
                     pass
         self.client = self.cluster = None
-
-
-def _cluster_client(cluster):
-    from distributed import Client
-    return Client(cluster)
 
 
 def run_tasks(function: Callable[[Any], Any], tasks: Sequence[Any], backend: str = "loky", jobs: int | None = None,
