@@ -59,7 +59,7 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
     if not cw:
         ax2 = fig.add_subplot(2, 1, 2)
         energy = rec.pulse_energy_J
-        scale, unit = _energy_unit(float(np.max(energy)))
+        scale, unit = unit_prefix(float(np.max(energy)), ENERGY_UNITS)
         ax2.plot(z, energy / scale, color=OUTPUT_COLOUR, lw=2)
         ax2.set_xlim(z[0], z[-1])
         ax2.set_ylim(bottom=0)
@@ -70,10 +70,6 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
                       f"{energy[-1] / scale:.3g} {unit} out")
     fig.suptitle(f"Fibre {rec.name}" + _title_suffix(result))
     return save_png(fig, path)
-
-
-def _energy_unit(value: float) -> tuple[float, str]:
-    return unit_prefix(value, ENERGY_UNITS)
 
 
 def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
