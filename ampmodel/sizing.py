@@ -171,19 +171,22 @@ class _Runs:
         self.evaluations: list[tuple[float, float]] = []
         self.last: tuple[float, Any] | None = None
 
+    def config_at(self, x: float) -> Config:
+        """The config with the varied path set to ``x`` (a problem names the value)."""
+        from .sweeps import point_raw
+        raw = point_raw(self.config.raw, {self.vary: x}, self.config.title)
+        try:
+            return load_config(raw, folder=self.config.folder or None)
+        except ConfigError as err:
+            raise ConfigError([line.replace("<dict>: ", f"{self.config.source}: at {self.vary} = {x:g}: ", 1)
+                               for line in err.problems]) from None
+
     def summary(self, x: float) -> dict:
         x = float(x)
         if x in self.cache:
             return self.cache[x]
         from .solver import simulate
-        from .sweeps import point_raw
-        raw = point_raw(self.config.raw, {self.vary: x}, self.config.title)
-        try:
-            config = load_config(raw, folder=self.config.folder or None)
-        except ConfigError as err:
-            raise ConfigError([line.replace("<dict>: ", f"{self.config.source}: at {self.vary} = {x:g}: ", 1)
-                               for line in err.problems]) from None
-        result = simulate(config, progress=False)
+        result = simulate(self.config_at(x), progress=False)
         s = result.summary
         self.cache[x] = s
         self.last = (x, result) if self.keep_result else None
@@ -207,9 +210,7 @@ class _Runs:
         if self.last is not None and self.last[0] == x:
             return self.last[1]
         from .solver import simulate
-        from .sweeps import point_raw
-        return simulate(load_config(point_raw(self.config.raw, {self.vary: x}, self.config.title),
-                                    folder=self.config.folder or None))
+        return simulate(self.config_at(x))
 
 
 def _margins(runs: _Runs, s: Mapping[str, Any], limits: Sequence[Limit]) -> list[dict]:
