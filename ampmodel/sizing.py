@@ -27,6 +27,7 @@ from __future__ import annotations
 import math
 import os
 import re
+import sys
 from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping, Sequence
 
@@ -265,7 +266,7 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
         raise ConfigError([f"{base.source}: --within {low:g},{high:g}: the low end must be below the high end"])
     limits = [parse_limit(lim) if isinstance(lim, str) else lim for lim in limits]
     _check_vary(base, vary, (low, high))
-    if not rtol >= 4 * 2.220446049250313e-16:
+    if not rtol >= 4 * sys.float_info.epsilon:
         raise ValueError("rtol must be at least 4 x machine epsilon (scipy.optimize.brentq)")
     xtol = XTOL_RELATIVE * max(abs(low), abs(high)) if xtol is None else float(xtol)
     runs = _Runs(base, vary, figure, report, keep_result)
