@@ -23,6 +23,9 @@ standard deviation, min and max of each summary scalar), ``plots/hist_<figure>.p
 
 Percentiles: ``numpy.percentile`` with linear interpolation between order statistics (Hyndman &
 Fan type 7), over the samples that ran; the standard deviation with ddof = 1.
+
+References: R. J. Hyndman and Y. Fan, "Sample quantiles in statistical packages", The American
+Statistician 50, 361-365 (1996) (definition 7); numpy.percentile (method "linear").
 """
 from __future__ import annotations
 
