@@ -87,7 +87,8 @@ def print_sweep(result, quiet: bool = False) -> int:
     print(f"ampmodel sweep: {result.title}")
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:
-        keys = [k for k in TABLE_KEYS if k in scalar_keys(result.summaries)]
+        present = set(scalar_keys(result.summaries))
+        keys = [k for k in TABLE_KEYS if k in present]
         if "peak_fluence_J_cm2" in keys:        # pulsed: the fluence is the figure to watch
             keys.remove("peak_intensity_W_cm2")
         rows = [[f"{i:04d}"] + [_num(v[p]) for p in result.paths] +
