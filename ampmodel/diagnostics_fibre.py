@@ -31,14 +31,10 @@ from . import fibre as F
 from .description import Config
 from .diagnostics import SAFETY_NOTE, scaled_damage_fluence
 from .fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
+from .kernels.diffraction import critical_power_W
 
 J_CM2 = 1e-4
 W_CM2 = 1e-4
-
-
-def critical_power_W(wavelength_m: float, n0: float, n2_m2_W: float) -> float:
-    """Self-focusing critical power of a Gaussian beam, 3.77·λ²/(8π·n0·n2) (Marburger 1975)."""
-    return 3.77 * wavelength_m ** 2 / (8 * math.pi * n0 * n2_m2_W)
 
 
 def raman_threshold_W(effective_area_m2: float, raman_gain_m_W: float, effective_length_m: float) -> float:
