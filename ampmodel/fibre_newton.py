@@ -21,11 +21,6 @@ from scipy.sparse.linalg import splu
 from .kernels import fibre_rates as fr
 
 
-def _phi1_minus_phi2(x: np.ndarray) -> np.ndarray:
-    """dφ1/dx = φ1 − φ2."""
-    return fr.phi1(x) - fr.phi2(x)
-
-
 def _dphi2(x: np.ndarray) -> np.ndarray:
     """dφ2/dx = (φ1 − 2·φ2)/x, by its series near 0."""
     x = np.minimum(np.asarray(x, dtype=float), 700.0)
