@@ -120,7 +120,7 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
                     sol = F.solve_cw(model, signal, tick=tick)
                     _check_converged(config, medium, "steady state", sol.converged, sol.change, sol.iterations)
                     # the fibre with its pump alone (no signal; ASE as configured): the small-signal state
-                    pump_only = F.solve_cw(F.build_model(medium, wavelength), 0.0, tick=tick)
+                    pump_only = F.solve_cw(model, 0.0, tick=tick)
                     stages.append({"step": step, "model": model, "solution": sol, "pump_only": pump_only,
                                    "input": signal})
                     media[medium.name] = _medium_record(model, medium, pump_only.n2, sol.n2, x)
