@@ -34,6 +34,7 @@ import numpy as np
 from .fibre import FibreModel, _anderson_step, solve_cw
 from .fibre_modes import effective_area
 from .kernels import fibre_rates as fr
+from .kernels.fn_pass import log_mean
 from .kernels.frantz_nodvik import fn_total
 
 
@@ -54,13 +55,6 @@ class PulseResult:
     b_integral_rad: np.ndarray
     extracted_J: float
     loss_J: float
-
-
-def _log_mean(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    with np.errstate(divide="ignore", invalid="ignore"):
-        lm = (b - a) / np.log(b / a)
-    close = ~np.isfinite(lm) | (np.abs(b - a) <= 1e-9 * np.maximum(np.abs(a), np.abs(b)))
-    return np.where(close, 0.5 * (a + b), lm)
 
 
 def amplify_pulse(model: FibreModel, n2_before: np.ndarray, energy_J: np.ndarray,
@@ -112,7 +106,7 @@ def amplify_pulse(model: FibreModel, n2_before: np.ndarray, energy_J: np.ndarray
             lost += float(e.sum()) * (1 - half)
             e = e * half
         if b_coef:
-            b += b_coef * _log_mean(entering, e)
+            b += b_coef * log_mean(entering, e)
         nodes[j + 1] = e.sum()
     extracted = float(np.sum(ions[:, None] * (n2_before - n2)))
     return PulseResult(energy_out_J=e, energy_z_J=nodes, n2_after=n2, b_integral_rad=b, extracted_J=extracted,
