@@ -175,7 +175,7 @@ def inhomogeneous_closed_form(u: np.ndarray) -> np.ndarray:
 
     One pass through an inhomogeneously broadened amplifier without loss satisfies
     g0·L = Φ(u_out) − Φ(u_in) (from dI/dz = g0·I/sqrt(1 + I/Isat); Siegman, Lasers (1986)).
-    The logarithm is written as 2·ln(u) − ... free of cancellation: (r − 1)/(r + 1) = u/(r + 1)².
+    The logarithm is written as ln(u) − 2·ln(r + 1), free of cancellation: (r − 1)/(r + 1) = u/(r + 1)².
     """
     u = np.asarray(u, dtype=float)
     r = np.sqrt(1.0 + u)
