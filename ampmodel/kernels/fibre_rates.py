@@ -246,12 +246,13 @@ def propagate_frozen(power_in_W: np.ndarray, growth_per_m: np.ndarray, source_W_
     """
     x = np.minimum(growth_per_m * length_m, _X_MAX)
     k, nz = x.shape
+    p1 = phi1(x)
     cum = np.concatenate([np.zeros((k, 1)), np.cumsum(x, axis=1)], axis=1)   # ln A_n
     with np.errstate(divide="ignore"):
         terms = np.empty((k, nz + 1))
         terms[:, 0] = np.log(power_in_W)
-        terms[:, 1:] = np.log(source_W_m * length_m * phi1(x)) - cum[:, 1:]
+        terms[:, 1:] = np.log(source_W_m * length_m * p1) - cum[:, 1:]
     acc = np.logaddexp.accumulate(terms, axis=1)
     nodes = np.exp(np.minimum(cum + acc, _X_MAX))
-    means = nodes[:, :-1] * phi1(x) + source_W_m * length_m * phi2(x)
+    means = nodes[:, :-1] * p1 + source_W_m * length_m * phi2(x)
     return nodes, means
