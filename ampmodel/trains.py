@@ -378,8 +378,9 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     pumped = sum(c.pumped_J for c in clocks.values())
     decayed = sum(c.decayed_J for c in clocks.values())
     extracted = sum(o.extracted_J for o in outcomes)
-    change = sum(float(np.sum(v)) * clocks[n].photon_energy_J * clocks[n].voxel_volume_m3
-                 for n, v in ((n, state.split(u_next)[n] - state.split(u_star)[n]) for n in clocks))
+    n2_next, n2_star = state.split(u_next), state.split(u_star)
+    change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
+                 for n, c in clocks.items())
     balance = (pumped - decayed - extracted - change) / pumped if pumped > 0 else 0.0
     layout_time_s = timeline.elapsed_s
     state.set(u_star)                        # leave the media as before the steady pulse ...
