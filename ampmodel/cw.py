@@ -121,14 +121,20 @@ def _relative_change(new: np.ndarray, old: np.ndarray, scale: float) -> float:
     return float(np.max(np.abs(new - old))) / scale if new.size else 0.0
 
 
+def pump_sweep(st: CwMedium, pixel_area_m2: float) -> tuple[np.ndarray, np.ndarray]:
+    """Run the pump through a pumped medium at its current gain (``st.pump_field``) and return the
+    small-signal gain g0 (1/m) and saturation intensity (W/m²) of each voxel that it gives."""
+    n2 = cw_pump.upper_population(st.gain, st.levels)
+    st.pump_field = cw_pump.sweep(st.pump, n2, st.mask, st.dz_m, pixel_area_m2)
+    return cw_pump.small_signal(st.pump, st.levels, st.pump_field.mean_flux, st.mask)
+
+
 def pump_only(st: CwMedium, pixel_area_m2: float, tolerance: float, max_iterations: int) -> int:
     """Settle a pumped medium without signal: g = g0(pump(g)) by fixed-point iteration (bleaching
     couples the pump's absorption to the population it creates). Returns the iterations used."""
     assert st.pump is not None
     for it in range(1, max_iterations + 1):
-        n2 = cw_pump.upper_population(st.gain, st.levels)
-        st.pump_field = cw_pump.sweep(st.pump, n2, st.mask, st.dz_m, pixel_area_m2)
-        g0, isat = cw_pump.small_signal(st.pump, st.levels, st.pump_field.mean_flux, st.mask)
+        g0, isat = pump_sweep(st, pixel_area_m2)
         scale = max(float(np.abs(g0).max()), 1e-300)
         change = _relative_change(g0, st.gain, scale)
         st.g0, st.isat, st.gain = g0, isat, g0.copy()
@@ -288,9 +294,7 @@ def solve(config: Config, states: dict[str, CwMedium], seed: np.ndarray, x_m: np
             change = 0.0
             for st in states.values():
                 if st.pump is not None:
-                    n2 = cw_pump.upper_population(st.gain, st.levels)
-                    st.pump_field = cw_pump.sweep(st.pump, n2, st.mask, st.dz_m, pixel_area)
-                    st.g0, st.isat = cw_pump.small_signal(st.pump, st.levels, st.pump_field.mean_flux, st.mask)
+                    st.g0, st.isat = pump_sweep(st, pixel_area)
                     if counts[st.name] == 0:
                         change = max(change, float(np.max(np.abs(st.g0 - st.gain))))
                         st.gain = st.g0.copy()
