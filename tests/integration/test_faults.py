@@ -128,7 +128,8 @@ def test_sigterm_stops_a_run_and_leaves_nothing(tmp_path):
 def test_ctrl_c_stops_a_sweep_and_prints_the_command_that_resumes_it(tmp_path):
     """Ctrl-C (SIGINT to the whole process group, as a terminal sends it) during a sweep: exit 130, the
     table of the points done, and the exact command; that command computes the rest."""
-    energies = ENERGIES[:12]
+    # enough points that a loaded machine cannot finish them all between the third and the Ctrl-C
+    energies = [round(0.0005 * (i + 1), 6) for i in range(32)]
     cfg = write_config(tmp_path, '\n[sweep]\n"seed.energy_J" = [' + ", ".join(map(repr, energies)) + "]\n",
                        base=SLOW_BASE.replace("points = 96", "points = 64"))
     p = _start(["sweep", "rod.toml", "--jobs", "2", "--no-plots", "--quiet"], tmp_path, tmp_path / "sweep.log")
