@@ -21,11 +21,10 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .plot_common import new_figure, save_png, unit_prefix
+from .plot_common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
 from .units import unit_of
 
 CMAP_LINES = "viridis"
-CMAP_MAP = "inferno"
 WARN_COLOUR = "#d62728"
 # Numerical checks and counts of the solver: in the table, not plotted.
 NOT_PLOTTED = ("energy_balance_error", "power_balance_error", "photon_balance_error", "cw_residual",
@@ -189,7 +188,7 @@ def _curves(ax, key: str, x_axis: _Axis, groups: list[tuple[str, list[int]]], va
     import matplotlib
     cmap = matplotlib.colormaps[CMAP_LINES]
     for g, (label, idx) in enumerate(groups):
-        colour = cmap(0.85 * g / max(1, len(groups) - 1)) if len(groups) > 1 else "#1f5fa8"
+        colour = cmap(0.85 * g / max(1, len(groups) - 1)) if len(groups) > 1 else SEED_COLOUR
         idx = sorted(idx, key=lambda i: x_axis.position(values[i][x_axis.path]))
         xs = [x_axis.position(values[i][x_axis.path]) for i in idx]
         ax.plot(xs, y[idx], "-o" if x_axis.numeric else ":o", color=colour, ms=4.5, lw=1.6, label=label or None)
@@ -228,7 +227,7 @@ def _map(fig, ax, key: str, x_axis: _Axis, y_axis: _Axis, values: list[dict], y:
         cx = x_axis.levels.index(v[x_axis.path] if x_axis.numeric else _text(v[x_axis.path]))
         cy = y_axis.levels.index(v[y_axis.path] if y_axis.numeric else _text(v[y_axis.path]))
         z[cy, cx] = y[i]
-    mesh = ax.pcolormesh(x_axis.edges(), y_axis.edges(), z, shading="flat", cmap=CMAP_MAP)
+    mesh = ax.pcolormesh(x_axis.edges(), y_axis.edges(), z, shading="flat", cmap=MAP_CMAP)
     fig.colorbar(mesh, ax=ax, label=label)
     if z.size <= 48:
         finite = z[np.isfinite(z)]
@@ -374,7 +373,7 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
         fig = new_figure(6.6, 4.2)
         ax = fig.add_subplot(1, 1, 1)
         bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
-        ax.hist(data, bins=bins, color="#1f5fa8", alpha=0.8, edgecolor="white", linewidth=0.5)
+        ax.hist(data, bins=bins, color=SEED_COLOUR, alpha=0.8, edgecolor="white", linewidth=0.5)
         p = percentiles[key]
         unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
         for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):

@@ -149,7 +149,7 @@ def check_folder(out: Path, kind: str, raw: Mapping[str, Any], source: str) -> d
         raise FolderError(
             f"{out}: holds a {kind} of a different config ({manifest.get('source', '?')}, config hash "
             f"{old_hash[:12]}; this config {source} hashes to {new_hash[:12]}). A {kind} resumes only "
-            f"when everything outside its [{'sweep' if kind == 'sweep' else 'spread'}] table is the same. "
+            f"when everything outside its [{kind}] table is the same. "
             f"Give another --out, or remove the folder. Differences:{listing}")
     return manifest
 
