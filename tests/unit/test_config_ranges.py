@@ -44,36 +44,26 @@ def _pumped() -> dict:
     return raw
 
 
+# Where each table other than a step's sits: the config holding it, the way into it, its path in problem lines.
+PLACES = {"grid": (_bulk, ("grid",), "grid"),
+          "medium": (_bulk, ("medium", 0), "medium[0] (rod)"),
+          "pump": (_pumped, ("medium", 0, "pump"), "medium[0] (rod).pump"),
+          "material": (_bulk, ("medium", 0, "material"), "medium[0] (rod).material"),
+          "seed": (_bulk, ("seed",), "seed"),
+          "fibre medium": (_fibre, ("medium", 0), "medium[0] (f1)"),
+          "fibre pump": (_fibre, ("medium", 0, "pump"), "medium[0] (f1).pump")}
+
+
 def _place(table: str, key: str, value) -> tuple[dict, str]:
     """A valid config with ``key`` of ``table`` set to ``value``, and the key's path in problem lines."""
-    if table == "grid":
-        raw = _bulk()
-        raw["grid"][key] = value
-        return raw, f"grid.{key}"
-    if table == "medium":
-        raw = _bulk()
-        raw["medium"][0][key] = value
-        return raw, f"medium[0] (rod).{key}"
-    if table == "pump":
-        raw = _pumped()
-        raw["medium"][0]["pump"][key] = value
-        return raw, f"medium[0] (rod).pump.{key}"
-    if table == "material":
-        raw = _bulk()
-        raw["medium"][0]["material"][key] = value
-        return raw, f"medium[0] (rod).material.{key}"
-    if table == "seed":
-        raw = _bulk()
-        raw["seed"][key] = value
-        return raw, f"seed.{key}"
-    if table == "fibre medium":
-        raw = _fibre()
-        raw["medium"][0][key] = value
-        return raw, f"medium[0] (f1).{key}"
-    if table == "fibre pump":
-        raw = _fibre()
-        raw["medium"][0]["pump"][key] = value
-        return raw, f"medium[0] (f1).pump.{key}"
+    if table in PLACES:
+        make, way_in, path = PLACES[table]
+        raw = make()
+        node = raw
+        for part in way_in:
+            node = node[part]
+        node[key] = value
+        return raw, f"{path}.{key}"
     kind = "loss" if table == "step time" else table.split()[1]
     raw = _bulk()
     raw["step"].append({"kind": kind, **copy.deepcopy(REQUIRED_STEP_KEYS[kind]), key: value})
