@@ -153,13 +153,17 @@ def test_example_configs_check_and_run(config, tmp_path):
     assert summary["output_energy_J"] > summary["input_energy_J"]
 
 
-def test_near_damage_example_warns(tmp_path):
-    proc = ampmodel("run", str(ROOT / "configs" / "double_pass_side_pumped.toml"), "--out", str(tmp_path / "o"),
-                    "--no-plots", *SMALL)
+def run_warnings(config_name: str, out: Path, *options: str) -> tuple[list[str], str]:
+    """Run an example config without plots: the warnings of its summary.json, and what it printed."""
+    proc = ampmodel("run", str(ROOT / "configs" / config_name), "--out", str(out), "--no-plots", *options)
     assert proc.returncode == 0, proc.stderr
-    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
-    assert any("damage fluence" in w for w in summary["warnings"]), summary["warnings"]
-    assert "damage fluence" in proc.stdout
+    return json.loads((out / "summary.json").read_text())["warnings"], proc.stdout
+
+
+def test_near_damage_example_warns(tmp_path):
+    warnings, printed = run_warnings("double_pass_side_pumped.toml", tmp_path / "o", *SMALL)
+    assert any("damage fluence" in w for w in warnings), warnings
+    assert "damage fluence" in printed
 
 
 def test_a_run_never_overwrites_another(tmp_path):
@@ -223,12 +227,8 @@ def test_a_grid_too_large_for_memory_is_refused_before_allocating(command, tmp_p
 
 
 def test_seed_cut_by_the_window_warns(tmp_path):
-    config = ROOT / "configs" / "single_pass_rod.toml"
-    proc = ampmodel("run", str(config), "--out", str(tmp_path / "o"), "--no-plots", *SMALL,
-                    "--set", "grid.width_mm=5.0")
-    assert proc.returncode == 0, proc.stderr
-    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
-    assert any("edge of the 5 mm window" in w for w in summary["warnings"]), summary["warnings"]
+    warnings, _ = run_warnings("single_pass_rod.toml", tmp_path / "o", *SMALL, "--set", "grid.width_mm=5.0")
+    assert any("edge of the 5 mm window" in w for w in warnings), warnings
 
 
 def test_cw_run_that_does_not_converge_exits_2_and_writes_nothing(tmp_path):
@@ -242,12 +242,9 @@ def test_cw_run_that_does_not_converge_exits_2_and_writes_nothing(tmp_path):
 
 
 def test_cw_damage_intensity_warns(tmp_path):
-    config = ROOT / "configs" / "cw_double_pass_single_frequency.toml"
-    proc = ampmodel("run", str(config), "--out", str(tmp_path / "o"), "--no-plots", *SMALL_CW,
-                    "--set", "step.1.damage_intensity_W_cm2=200")
-    assert proc.returncode == 0, proc.stderr
-    summary = json.loads((tmp_path / "o" / "summary.json").read_text())
-    assert any("cw damage intensity of this optic" in w for w in summary["warnings"]), summary["warnings"]
+    warnings, _ = run_warnings("cw_double_pass_single_frequency.toml", tmp_path / "o", *SMALL_CW,
+                               "--set", "step.1.damage_intensity_W_cm2=200")
+    assert any("cw damage intensity of this optic" in w for w in warnings), warnings
 
 
 def test_fibre_check_describes_each_fibre(tmp_path):
