@@ -14,32 +14,15 @@ import pytest
 from ampmodel.config import ConfigError, PathError, apply_overrides, dump_toml, load_config, resolve_path
 from ampmodel.description import Limits
 
+from config_cases import MINIMAL as GOOD, good, one_problem, problems_of, step_problems
+
 ROOT = Path(__file__).resolve().parents[2]
-GOOD = ROOT / "tests" / "data" / "good_minimal.toml"
 
 @pytest.fixture
 def registry():
     """The built-in materials."""
     from ampmodel.materials import registry as real
     return real
-
-
-def good() -> dict:
-    """The minimal config as a dict (the same as tests/data/good_minimal.toml)."""
-    return tomllib.loads(GOOD.read_text())
-
-
-def problems_of(source, overrides=()) -> list[str]:
-    with pytest.raises(ConfigError) as info:
-        load_config(source, overrides)
-    assert str(info.value) == "\n".join(info.value.problems)
-    return info.value.problems
-
-
-def one_problem(source, overrides=()) -> str:
-    problems = problems_of(source, overrides)
-    assert len(problems) == 1, problems
-    return problems[0]
 
 
 # --- the good config -------------------------------------------------------------------------------
@@ -309,9 +292,7 @@ def test_every_step_kind():
     ({"kind": "space", "length_mm": 1, "name": 3}, "step[1].name = 3: must be a string"),
 ])
 def test_step_problems(step, expected):
-    raw = good()
-    raw["step"].append(step)
-    problems = problems_of(raw)
+    problems = step_problems(step)
     assert any(expected in line for line in problems), problems
 
 

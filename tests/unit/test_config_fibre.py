@@ -2,34 +2,16 @@
 from __future__ import annotations
 
 import math
-try:
-    import tomllib
-except ModuleNotFoundError:  # Python < 3.11
-    import tomli as tomllib
-from pathlib import Path
 
 import pytest
 
-from ampmodel.config import ConfigError, load_config
+from ampmodel.config import load_config
 
-ROOT = Path(__file__).resolve().parents[2]
-GOOD = ROOT / "tests" / "data" / "good_fibre.toml"
+from config_cases import FIBRE as GOOD, good as _good, one_problem
 
 
 def good() -> dict:
-    return tomllib.loads(GOOD.read_text())
-
-
-def problems_of(source, overrides=()) -> list[str]:
-    with pytest.raises(ConfigError) as info:
-        load_config(source, overrides)
-    return info.value.problems
-
-
-def one_problem(source, overrides=()) -> str:
-    problems = problems_of(source, overrides)
-    assert len(problems) == 1, problems
-    return problems[0]
+    return _good(GOOD)
 
 
 def test_good_fibre_values_and_defaults():

@@ -7,19 +7,14 @@ try:
     import tomllib
 except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib
-from pathlib import Path
 
 import pytest
 
-from ampmodel.config import ConfigError, apply_overrides, dump_toml, load_config
+from ampmodel.config import apply_overrides, dump_toml, load_config
 
-ROOT = Path(__file__).resolve().parents[2]
-GOOD = ROOT / "tests" / "data" / "good_minimal.toml"
+from config_cases import FIBRE, MINIMAL as GOOD, good, problems_of, step_problems
+
 C = 299792458.0
-
-
-def good() -> dict:
-    return tomllib.loads(GOOD.read_text())
 
 
 def with_repeat(**repeat) -> dict:
@@ -27,12 +22,6 @@ def with_repeat(**repeat) -> dict:
     raw["step"] = [{"kind": "repeat", "steps": [{"kind": "pass", "medium": "rod"},
                                                  {"kind": "loss", "transmission": 0.9}], **repeat}]
     return raw
-
-
-def problems_of(raw) -> list[str]:
-    with pytest.raises(ConfigError) as info:
-        load_config(raw)
-    return info.value.problems
 
 
 def test_repeat_with_count_and_nested_steps():
@@ -118,9 +107,7 @@ def test_round_trip_shorter_than_the_steps_inside():
                                                         "'repeat' steps)"),
 ])
 def test_step_problems(steps, expected):
-    raw = good()
-    raw["step"].append(steps)
-    problems = problems_of(raw)
+    problems = step_problems(steps)
     assert any(expected in line for line in problems), problems
 
 
@@ -279,7 +266,7 @@ def test_repetition_rate_in_kHz():
 
 
 def test_fibre_layouts_keep_their_own_trains():
-    raw = tomllib.loads((ROOT / "tests" / "data" / "good_fibre.toml").read_text())
+    raw = good(FIBRE)
     raw["mode"] = "pulsed"
     raw["seed"] = {"energy_J": 1e-6, "duration_ns": 5.0, "repetition_rate_kHz": 50.0}
     assert load_config(raw).seed.repetition_rate_Hz == pytest.approx(5e4)     # no bulk pump needed
