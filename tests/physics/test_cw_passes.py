@@ -111,6 +111,8 @@ def test_damping_reaches_the_same_steady_state():
 
 
 def test_saturation_intensity_attribute_is_h_nu_over_sigma_tau(tmp_path):
+    """Isat = h·ν/((σe + σa)·τ) (A. E. Siegman, Lasers (1986); σa = 0 for a four-level medium), from CODATA
+    constants (scipy.constants)."""
     quasi = make_material(name="quasi-three-level test medium", wavelength_m=1030e-9, emission_cross_section_m2=2.1e-24,
                           absorption_cross_section_m2=1.1e-25, upper_lifetime_s=951e-6)
     config, _ = double_pass(power_W=2.0)

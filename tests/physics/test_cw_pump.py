@@ -116,7 +116,8 @@ def test_pump_bleaching_matches_solve_ivp():
 
 
 def test_side_pumped_small_signal_gain_four_level():
-    """Four-level, no ground-state depletion: g0 = σe·η·R·τ, R = absorbed pump photons per volume and time."""
+    """Four-level, no ground-state depletion: g0 = σe·η·R·τ, R = absorbed pump photons per volume and time
+    (the steady state of dN2/dt = η·R − N2/τ; W. Koechner, Solid-State Laser Engineering, Springer)."""
     four = make_material(pump_wavelength_m=808e-9)
     config = pumped_config(material=four, geometry="side", back_reflectance=0.0, pump_power_W=40.0,
                            seed_power_W=1e-6, absorbed_fraction=0.6, quantum_efficiency=0.9, pump_wavelength_m=808e-9)

@@ -55,9 +55,14 @@ def test_marcuse_formula_at_cut_off():
     wavelength = 2 * math.pi * a * 0.12 / 2.405
     assert float(fm.v_number(a, 0.12, wavelength)) == pytest.approx(2.405, rel=1e-12)
     assert float(fm.mode_radius(a, wavelength, core_na=0.12)) / a == pytest.approx(1.0989, abs=1e-4)
+    v = float(fm.v_number(a, 0.12, wavelength))
+    assert float(fm.mode_radius(a, wavelength, core_na=0.12)) / a == pytest.approx(
+        0.65 + 1.619 * v ** -1.5 + 2.879 * v ** -6, rel=1e-12)
 
 
 def test_overlaps():
+    # the core overlap is the Gaussian's power inside r = a (its integral), a uniform cladding pump's the
+    # ratio of the areas
     a, w = 5e-6, 5.6e-6
     gamma = 1 - math.exp(-2 * a * a / (w * w))
     assert float(fm.core_overlap(a, w)) == pytest.approx(gamma, rel=1e-14)

@@ -190,7 +190,7 @@ def test_field_run_reports_beam_figures_and_keeps_the_balance():
 
 def test_self_focusing_warning_against_the_critical_power():
     """A medium of large n2 at MW peak power: the warning quotes P_cr = 3.77·λ²/(8π·n0·n2)
-    (Marburger 1975), recomputed here."""
+    (J. H. Marburger, Prog. Quantum Electron. 4, 35 (1975)), recomputed here."""
     material = make_material(emission_cross_section_m2=2.8e-23, n2_m2_W=5e-19)
     medium = make_medium(material, length_m=0.01, diameter_m=12e-3, slices=4, small_signal_gain=2.0)
     seed = Seed(wavelength_m=1064e-9, energy_J=0.05, duration_s=10e-9, diameter_m=4e-3)

@@ -1,4 +1,11 @@
-"""The fibre rate-equation kernel: populations, growth, exact slice passage, chained slices."""
+"""The fibre rate-equation kernel: populations, growth, exact slice passage, chained slices.
+
+References
+----------
+Steady-state populations and dP/dz of C. R. Giles and E. Desurvire, J. Lightwave Technol. 9, 271 (1991),
+written out here; the slice passage of dP/dz = a·P + s against scipy.integrate.solve_ivp and quad; the
+small-argument forms of φ1 = expm1(x)/x and φ2 = (expm1(x) − x)/x² are their Taylor series.
+"""
 from __future__ import annotations
 
 import numpy as np
