@@ -46,8 +46,8 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
                 p.add(join_path(path, "delay_ns"), "applies to bulk media only: the passes of a fibre layout take "
                                                    "no time of their own (remove it)", item["delay_ns"])
         return
-    time_passes = train or any(s.delay_s > 0 or s.round_trip_time_s > 0 for s in steps) \
-        or any(i.delay_s > 0 for s in steps for i in s.steps)
+    layout = longest_layout_time_s(steps)    # > 0 when any step or round trip takes time
+    time_passes = train or layout > 0
     for m in media:
         if time_passes and m.material.quasi_three_level and not (m.doping_per_m3 or m.material.doping_per_m3):
             p.add(join_path(path_of[m.name], "doping_per_m3"),
@@ -61,7 +61,6 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
             p.add(path_of[name], f"a pulse train (seed.{rate_key}) needs a pump that restores the gain "
                                  "between pulses: give a [medium.pump] table (continuous = true for a CW pump)")
     period = 1.0 / seed.repetition_rate_Hz
-    layout = longest_layout_time_s(steps)
     pump_s = max((m.pump.duration_s for m in media if m.name in passed and m.pump is not None
                   and not m.pump.continuous), default=0.0)
     if layout + pump_s > period:
