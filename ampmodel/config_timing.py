@@ -56,8 +56,9 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
                   "density doping_per_m3 in the medium or the material")
     if not train:
         return
+    by_name = {m.name: m for m in media}
     for name in passed:
-        if config_medium(media, name).pump is None:
+        if by_name[name].pump is None:
             p.add(path_of[name], f"a pulse train (seed.{rate_key}) needs a pump that restores the gain "
                                  "between pulses: give a [medium.pump] table (continuous = true for a CW pump)")
     period = 1.0 / seed.repetition_rate_Hz
@@ -81,11 +82,6 @@ def _duration(seconds: float) -> str:
         if seconds >= scale:
             return f"{seconds / scale:.4g} {unit}"
     return f"{seconds / 1e-12:.4g} ps"
-
-
-def config_medium(media: list[Medium], name: str) -> Medium:
-    """The medium called ``name``."""
-    return next(m for m in media if m.name == name)
 
 
 def repeat(p: Problems, i: int, item: dict, v: dict, path: str, names: list[str], mode: str | None,
