@@ -118,20 +118,18 @@ def _fmt(value: float, unit: str) -> str:
 
 
 def _print_media(summary: dict) -> None:
-    if summary["mode"] == "cw":
-        for m in summary["media"]:
-            line = (f"  medium {m['name']} ({m['material']}): on-axis small-signal gain "
-                    f"{m['small_signal_gain_on_axis']:.4g}, saturated {m['saturated_gain_on_axis']:.4g}")
+    cw = summary["mode"] == "cw"
+    for m in summary["media"]:
+        line = f"  medium {m['name']} ({m['material']}): on-axis small-signal gain {m['small_signal_gain_on_axis']:.4g}"
+        if cw:
+            line += f", saturated {m['saturated_gain_on_axis']:.4g}"
             if "absorbed_pump_power_W" in m:
                 line += (f", absorbed pump {_fmt(m['absorbed_pump_power_W'], 'W')} of "
                          f"{_fmt(m['pump_power_W'], 'W')}, photon balance error {m['photon_balance_error']:.1e}")
-            print(line)
-        return
-    for m in summary["media"]:
-        line = (f"  medium {m['name']} ({m['material']}): on-axis small-signal gain "
-                f"{m['small_signal_gain_on_axis']:.4g}, stored energy {_fmt(m['stored_energy_J'], 'J')}")
-        if "absorbed_pump_energy_J" in m:
-            line += f", absorbed pump {_fmt(m['absorbed_pump_energy_J'], 'J')}"
+        else:
+            line += f", stored energy {_fmt(m['stored_energy_J'], 'J')}"
+            if "absorbed_pump_energy_J" in m:
+                line += f", absorbed pump {_fmt(m['absorbed_pump_energy_J'], 'J')}"
         print(line)
 
 
