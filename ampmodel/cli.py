@@ -36,8 +36,9 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     r.add_argument("--quiet", action="store_true", help="no progress bar")
     c = sub.add_parser("check", help="validate a config: every problem listed, nothing run or written")
-    c.add_argument("config")
-    c.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides")
+    c.add_argument("config", help="the run config (TOML)")
+    c.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
+                   help="change one value first, like `run --set`")
     sub.add_parser("media", help="the built-in materials with their values and sources")
     b = sub.add_parser("bench", help="speed and memory figures against their targets (a few minutes)")
     b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
