@@ -144,7 +144,7 @@ def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list
         problems.append(("source", source, "must be a non-empty string naming the publication"))
     elif need_source and "source" not in table:
         problems.append(("source", None, "missing: the publication the table comes from "
-                                         "(or 'from memory, verify')"))
+                                         "(or 'from memory — verify')"))
     if problems:
         return None, problems
     return Spectrum(wavelength_m=tuple(v * 1e-9 for v in arrays["wavelength_nm"]),

@@ -12,7 +12,7 @@ Each file gives, at top level, ``name`` (str), ``description`` (str) and optiona
     range = "spread reported in the literature"     # optional
 
 ``source`` is required for every value; a value recalled rather than looked up says so in its source
-("from memory, verify").
+("from memory — verify").
 
 A material may also carry cross-section spectra as a table, interpolated linearly in wavelength::
 
@@ -70,7 +70,7 @@ def _check_value(path: Path, key: str, table: object) -> tuple[float, str, str |
         raise _fail(path, key, f"value {value!r} is not a finite number")
     source = table.get("source")
     if not isinstance(source, str) or not source.strip():
-        raise _fail(path, key, "missing 'source' (give the publication, or mark it 'from memory, verify')")
+        raise _fail(path, key, "missing 'source' (give the publication, or mark it 'from memory — verify')")
     note = table.get("range")
     if note is not None and not isinstance(note, str):
         raise _fail(path, key, "'range' must be a string")
