@@ -3,7 +3,8 @@ population of each voxel under pump and signal.
 
 Every voxel (z-slice, y, x) holds one upper-level density N2, used alike for the pump's absorption,
 the signal's gain and the spontaneous decay (so the photon balance closes exactly in the discrete
-sense). Steady-state rate equation of a voxel (PHYSICS section 5, specialised to a bulk medium:
+sense). Steady-state rate equation of a voxel (the rate equations of C. R. Giles and E. Desurvire,
+J. Lightwave Technol. 9, 271 (1991), specialised to a bulk medium:
 rate = σ·I/(h·ν) = σ·Φ, Φ the photon flux in photons/(m²·s)):
 
     0 = η·σa,p·Φp·N1 − σe,p·Φp·N2 + (σa·N1 − σe·N2)·Φs − N2/τ,    N1 = Nt − N2,

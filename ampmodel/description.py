@@ -28,7 +28,8 @@ class Grid:
 
 @dataclass(frozen=True)
 class Pump:
-    """A pump description that builds a gain map (PHYSICS section 1).
+    """A pump description that builds a gain map (rate equations: W. Koechner, Solid-State Laser
+    Engineering).
 
     ``geometry``: "end" (Beer–Lambert along z) or "side" (transverse profile, uniform along z).
     ``energy_J``: pulsed: pump energy delivered in one pump pulse (power_W x duration when given as
@@ -63,7 +64,8 @@ class Pump:
 
 @dataclass(frozen=True)
 class FibrePump:
-    """The CW pump of a fibre (PHYSICS section 5).
+    """The CW pump of a fibre (rate equations of C. R. Giles and E. Desurvire, J. Lightwave
+    Technol. 9, 271 (1991)).
 
     ``power_W`` is launched at each pumped end: ``direction`` "forward" (at z = 0, with the signal),
     "backward" (at z = L) or "both" (power_W at each end). ``cladding``: launched into the inner

@@ -6,7 +6,7 @@ References
 ----------
 Counter-propagating beams in one homogeneously broadened medium, steady state:
 dI+/dz = g·I+, dI−/dz = −g·I−, g = g0/(1 + (I+ + I−)/Isat) (inhomogeneous: g0/sqrt(...));
-A. E. Siegman, Lasers, University Science Books (1986); PHYSICS.md section 3.
+A. E. Siegman, Lasers, University Science Books (1986).
 """
 from __future__ import annotations
 

@@ -4,9 +4,9 @@ weak pump, pump bleaching against solve_ivp, and the small-signal gain of a side
 References
 ----------
 Steady-state rate equation with pump and signal, bulk form of C. R. Giles and E. Desurvire,
-J. Lightwave Technol. 9, 271 (1991) (PHYSICS.md section 5): N2/Nt = (Rp,a + Rs,a)/(Rp,a + Rp,e +
+J. Lightwave Technol. 9, 271 (1991): N2/Nt = (Rp,a + Rs,a)/(Rp,a + Rp,e +
 Rs,a + Rs,e + 1/τ), R = σ·I/(h·ν). Conservation: absorbed pump photons = added signal photons +
-spontaneous decays ∫ N2/τ dV (PHYSICS.md section 5). Beer–Lambert: P_abs = P·(1 − exp(−α·L)).
+spontaneous decays ∫ N2/τ dV. Beer–Lambert: P_abs = P·(1 − exp(−α·L)).
 """
 from __future__ import annotations
 

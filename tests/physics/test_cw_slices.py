@@ -6,7 +6,8 @@ References
 Homogeneous line, steady state: ln(I_out/I_in) + (I_out − I_in)/Isat = g0·L, solved by
 I_out = Isat·W((I_in/Isat)·exp(I_in/Isat + g0·L)) (A. E. Siegman, Lasers, University Science Books
 (1986)). Inhomogeneous line: dI/dz = g0·I/sqrt(1 + I/Isat), g0·L = Φ(u_out) − Φ(u_in),
-Φ(u) = 2·sqrt(1 + u) + ln[(sqrt(1 + u) − 1)/(sqrt(1 + u) + 1)] (PHYSICS.md section 3).
+Φ(u) = 2·sqrt(1 + u) + ln[(sqrt(1 + u) − 1)/(sqrt(1 + u) + 1)], the integral of that
+equation (saturation of an inhomogeneously broadened line: Siegman, Lasers (1986)).
 """
 from __future__ import annotations
 
@@ -28,7 +29,7 @@ ISAT = MAT.saturation_intensity_W_m2
 
 
 def phi_direct(u):
-    """Φ(u) exactly as written in PHYSICS.md section 3 (direct form, for moderate u)."""
+    """Φ(u) as written in the module's references (direct form, for moderate u)."""
     r = np.sqrt(1.0 + u)
     return 2.0 * r + np.log((r - 1.0) / (r + 1.0))
 

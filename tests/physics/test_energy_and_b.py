@@ -3,7 +3,7 @@
 References
 ----------
 Conservation of energy: input + extracted (Fsat·∫ Δg dV) = output + clipped + passive losses.
-B-integral, PHYSICS section 2: B = (2π/λ0)·∫ n2·I dz; flat beam, square pulse, small signal:
+B-integral (W. Koechner, Solid-State Laser Engineering): B = (2π/λ0)·∫ n2·I dz; flat beam, square pulse, small signal:
 B = k0·n2·I0·(G0 − 1)/g0.
 Storage efficiency of a square pump pulse: dN/dt = R − N/τ (W. Koechner, Solid-State Laser
 Engineering, Springer), integrated with scipy.integrate.solve_ivp.
@@ -108,7 +108,7 @@ def test_summary_agrees_with_hdf5(lossy_run, tmp_path):
 
 
 def test_b_integral_small_signal():
-    # PHYSICS section 2: flat beam, square pulse, small signal: I(z) = I0·exp(g0 z), so
+    # B-integral (Koechner, above): flat beam, square pulse, small signal: I(z) = I0·exp(g0 z), so
     # B = k0·n2·∫ I dz = k0·n2·I0·(G0 − 1)/g0. At a seed of 1e-6·Fsat saturation changes I by
     # ~G0·1e-6 at most (the log-mean per slice is exact for exponential growth), so 1e-5 is a tight
     # bound (a missing factor is O(1) off, an arithmetic instead of a logarithmic mean 7e-3 here).

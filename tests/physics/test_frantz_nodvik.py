@@ -118,7 +118,7 @@ def test_square_pulse_output_power_per_slice():
 
 @pytest.mark.parametrize("shape", ["gaussian", "flat"])
 def test_exact_composition_of_slices(shape):
-    # PHYSICS section 2: without loss the slice maps compose exactly, so 1 or 37 z-slices and 1 or
+    # Frantz & Nodvik (1963): without loss the slice maps compose exactly, so 1 or 37 z-slices and 1 or
     # 64 time slices give the same output fluence and remaining gain to round-off.
     seed = gaussian_seed(shape=shape)
     inside = disc(24, WIDTH, APERTURE)

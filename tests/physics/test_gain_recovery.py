@@ -4,7 +4,7 @@ exact N2(t) of dN2/dt = R − N2/tau (and scipy.integrate.solve_ivp), four-level
 References
 ----------
 Exact solution N2(t) = R·tau + (N2(0) − R·tau)·exp(−t/tau) (textbook, e.g. W. Koechner, Solid-State
-Laser Engineering); gain coefficient g = sigma_e·N2 − sigma_a·(Nt − N2) (PHYSICS.md section 1).
+Laser Engineering); gain coefficient g = sigma_e·N2 − sigma_a·(Nt − N2), absorption from the lower level (Koechner, as above).
 """
 from __future__ import annotations
 

@@ -2,9 +2,10 @@
 
 Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963) hold unchanged with Fsat = hν/(σe + σa); the gain
 then saturates towards transparency (G → 1) and the extractable fluence is Fsat·ln G0. Pumping can at
-most reach N2/Nt = σa,p/(σa,p + σe,p) at the pump wavelength (PHYSICS section 1).
+most reach N2/Nt = σa,p/(σa,p + σe,p) at the pump wavelength (the steady state of the two-level rate equation
+under pump alone, e.g. W. Koechner, Solid-State Laser Engineering).
 
-Material numbers are Yb:YAG-like (PHYSICS section 7, from memory — verify): σe = 2.0e-20 cm²,
+Material numbers are Yb:YAG-like (from memory — verify): σe = 2.0e-20 cm²,
 σa = 0.1e-20 cm² at 1030 nm, τ = 0.95 ms; at 940 nm σa,p = 0.8e-20 cm², σe,p = 0.16e-20 cm²; 1 at.%
 doping, Nt = 1.38e20 cm⁻³. The checks do not depend on their exact values.
 """
@@ -26,7 +27,7 @@ YB = make_material(name="Yb:YAG-like", wavelength_m=1030e-9, emission_cross_sect
                    absorption_cross_section_m2=SIGMA_A, upper_lifetime_s=0.95e-3, refractive_index=1.82,
                    pump_wavelength_m=940e-9, pump_absorption_cross_section_m2=SIGMA_AP,
                    pump_emission_cross_section_m2=SIGMA_EP, doping_per_m3=DOPING)
-# Fsat = hν/(σe + σa) (Frantz & Nodvik 1963; PHYSICS section 1), from the CODATA constants.
+# Fsat = hν/(σe + σa) (Frantz & Nodvik 1963), from the CODATA constants.
 FSAT = photon_energy(1030e-9) / (SIGMA_E + SIGMA_A)
 G0 = 8.0
 POINTS, WIDTH, APERTURE, BEAM_W = 48, 6e-3, 4e-3, 1e-3
@@ -99,7 +100,7 @@ def test_transparency_from_above():
 def test_pumped_quasi_three_level_medium():
     # End pumping (Beer–Lambert along z) of a long Yb:YAG-like rod: the front reaches the bleaching
     # limit N2/Nt = σa,p/(σa,p + σe,p) and is capped there; the far end, hardly pumped, absorbs
-    # (g = (σe+σa)·N2 − σa·Nt < 0). PHYSICS section 1.
+    # (g = (σe+σa)·N2 − σa·Nt < 0).
     length, diameter, alpha = 40e-3, 2e-3, SIGMA_AP * DOPING                # α L = 4.4
     pump = Pump(geometry="end", energy_J=3.0, duration_s=1e-3, wavelength_m=940e-9, profile="flat",
                 absorption_per_m=alpha)
@@ -119,7 +120,7 @@ def test_pumped_quasi_three_level_medium():
     assert np.all(rec.gain_initial_per_m[:, ~inside] == 0.0)         # no medium outside the aperture
     assert any("bleaching limit" in w for w in res.summary["warnings"])
 
-    # Below the cap, N2 is the Beer–Lambert absorbed density times η/hν_p (PHYSICS section 1):
+    # Below the cap, N2 is the Beer–Lambert absorbed density times η/hν_p (Koechner, as above):
     # slice k absorbs E·(exp(−α z_k) − exp(−α z_{k+1})) over the aperture area A·dz.
     dz = length / 20
     z = np.arange(21) * dz

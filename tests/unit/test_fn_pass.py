@@ -156,7 +156,8 @@ def test_linear_form_range_and_log_domain_fallback():
     ln_total = ln_gain.sum(axis=0)
     oc = fn_pass.amplify_block(x, ln_gain, linear=False)
     assert np.all(np.isfinite(x)) and np.isfinite(oc.peak_plane_fluence)
-    # FN for the whole pulse, asymptotic form x + ln G + log1p((1 − G)·exp(−x)/G) (PHYSICS section 2)
+    # FN for the whole pulse (Frantz & Nodvik 1963, the output fluence Fsat·ln(1 + G·(e^x − 1)), rewritten
+    # for large x): x + ln G + log1p((1 − G)·exp(−x)/G)
     has = total_in > 0
     t_in, ln_t = total_in[has], ln_total[has]
     expected = t_in + ln_t + np.log1p(np.expm1(-ln_t) * np.exp(-t_in))
