@@ -1,6 +1,6 @@
 """`python -m ampmodel`: the same command line as the `ampmodel` script."""
 import sys
 
-from .cli import main
+from ampmodel.cli import main
 
 sys.exit(main())

@@ -22,9 +22,9 @@ Figures (the full set; ``quick`` runs the same measurements on small cases, for 
 * ``scaling_spread``: time per pixel·slice·step at 128², 256², 512² (flat within 25 %);
 * ``memory_ratio``: peak memory of the 512² case (resident, measured in a child process, less the
   interpreter and its modules measured the same way) against the arrays it must hold
-  (:func:`ampmodel.solver.required_array_bytes`; target <= 1.5);
+  (:func:`ampmodel.pulsed.memory.required_array_bytes`; target <= 1.5);
 * ``memory_peak_MB``: the peak of the 256² four-pass case, interpreter included (target <= 600 MB);
-* ``memory_estimate_ratio``: :func:`ampmodel.solver.memory_estimate_bytes` against that measured peak
+* ``memory_estimate_ratio``: :func:`ampmodel.simulation.memory_estimate_bytes` against that measured peak
   (the guard that refuses too-large runs; target 1.0 to 1.3: never below the real peak);
 * ``startup_s``: wall time of ``ampmodel --help`` in a new process (target <= 0.5 s).
 """
@@ -40,7 +40,7 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any, Callable
 
-from . import __version__
+from ampmodel._version import __version__
 
 # The benchmark case: an invented scenario, a four-pass Nd:YAG rod (6.35 mm clear aperture) in a 9 mm
 # window, seeded with a 10 ns Gaussian pulse of 50 mJ, 4.5 mm 1/e² diameter.
@@ -92,13 +92,14 @@ def reference_arrays(config):
     """The arrays :func:`ampmodel.simulate` starts from, built by the same functions: the fluence of
     every time slice (Nt, Ny, Nx) in J/m², ln G of every voxel (Nz, Ny, Nx), the clear aperture and Fsat."""
     import numpy as np
-    from . import beams, pumping
+    from ampmodel.kernels import beam_shapes
+    from ampmodel.media import gain_maps
     grid, seed = config.grid, config.seed
     (medium,) = config.media
-    x = beams.pixel_centres(grid.points, grid.width_m)
-    _, weights, _ = beams.time_slices(seed.shape, seed.duration_s, grid.time_slices)
-    seed_map = beams.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
-    gm = pumping.gain_map(medium, x, x)
+    x = beam_shapes.pixel_centres(grid.points, grid.width_m)
+    _, weights, _ = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
+    seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
+    gm = gain_maps.gain_map(medium, x, x)
     fluence = weights[:, None, None] * seed_map[None, :, :]
     return fluence, gm.gain_per_m * gm.slice_length_m, gm.mask, medium.material.saturation_fluence_J_m2, \
         np.asarray([s.reverse for s in config.steps if s.kind == "pass"])
@@ -147,8 +148,8 @@ def measure_pulsed(size: dict, repeat: int) -> dict[str, Any]:
     """Best times of the reference loop, simulate with n2 and simulate without, interleaved; and how
     closely the outputs agree (output fluence, relative; final ln G, absolute)."""
     import numpy as np
-    from .config import load_config
-    from .solver import simulate
+    from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
     args = (size["points"], size["time_slices"], size["slices"], size["passes"])
     with_n2, without = load_config(bench_config(*args)), load_config(bench_config(*args, n2=False))
     ref, sim, comp, wall = [], [], [], {"reference": [], "simulate": []}
@@ -182,8 +183,8 @@ def measure_pulsed(size: dict, repeat: int) -> dict[str, Any]:
 
 def measure_scaling(size: dict, repeat: int, known: dict[int, float]) -> dict[int, float]:
     """Seconds per pixel·slice·step (all pixels of the grid) of simulate for each grid size."""
-    from .config import load_config
-    from .solver import simulate
+    from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
     per: dict[int, float] = {}
     for n in size["scaling"]:
         updates = n * n * size["time_slices"] * size["slices"] * size["passes"]
@@ -204,8 +205,8 @@ def bare_transforms(field, pairs: int, workers: int, chunked: bool) -> None:
     each transformed ``pairs`` times in a row while it is in the processor cache, the chunks split over
     ``chunks.thread_count(workers)`` threads, one thread per transform."""
     import scipy.fft
-    from . import chunks
-    from .kernels import field_step
+    from ampmodel.pulsed import chunks
+    from ampmodel.kernels import field_step
     if not chunked:
         for _ in range(pairs):
             scipy.fft.fft2(field, axes=(-2, -1), workers=workers, overwrite_x=True)
@@ -232,12 +233,12 @@ def measure_diffraction(size: dict, repeat: int) -> dict[str, Any] | None:
     threads as the field path runs them); the faster of the two is the reference. Wall time (the
     transforms use threads), best of ``repeat``, interleaved. None without the field path."""
     try:
-        from . import optics
+        from ampmodel.beam import field as optics
     except ImportError:
         return None
     import numpy as np
-    from .config import load_config
-    from .solver import simulate
+    from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
     raw = bench_config(size["diffraction_grid"], size["time_slices"], size["slices"], size["passes"])
     raw["grid"]["diffraction"] = True
     config = load_config(raw)
@@ -268,19 +269,19 @@ def measure_diffraction(size: dict, repeat: int) -> dict[str, Any] | None:
 
 
 def _threads(workers: int) -> int:
-    from . import chunks
+    from ampmodel.pulsed import chunks
     return chunks.thread_count(workers)
 
 
 def _sweep_point(raw: dict) -> float:
     """One sweep point in a worker: the output energy of a run (J)."""
-    from .config import load_config
-    from .solver import simulate
+    from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
     return float(simulate(load_config(raw)).summary["output_energy_J"])
 
 
 def _worker_ready() -> int:
-    from . import solver  # noqa: F401  (the imports a point needs)
+    from ampmodel import simulation  # noqa: F401  (the imports a point needs)
     return os.getpid()
 
 
@@ -311,7 +312,7 @@ def measure_sweep(size: dict, repeat: int = 1) -> dict[str, Any]:
     timing starts; the start-up is reported beside. Wall time: the CPUs other work left idle just before
     the timing are reported with it."""
     try:
-        from . import sweeps
+        from ampmodel.studies import sweeps
         timer = sweeps.time_sweep
     except (ImportError, AttributeError):
         timer = None
@@ -348,14 +349,15 @@ def measure_sweep(size: dict, repeat: int = 1) -> dict[str, Any]:
 _MEMORY_CHILD = """
 import json, resource, sys
 import ampmodel
-from ampmodel import solver
+from ampmodel import simulation
+from ampmodel.pulsed import memory
 config = ampmodel.load_config(json.loads(sys.argv[1]))
 if sys.argv[2] == "run":
-    solver.simulate(config)
+    simulation.simulate(config)
 scale = 1 if sys.platform == "darwin" else 1024
 print(json.dumps({"peak": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * scale,
-                  "required": sum(solver.required_array_bytes(config).values()),
-                  "estimate": solver.memory_estimate_bytes(config)}))
+                  "required": sum(memory.required_array_bytes(config).values()),
+                  "estimate": simulation.memory_estimate_bytes(config)}))
 """
 
 
@@ -577,5 +579,5 @@ def _load_text(report: dict[str, Any]) -> str:
 
 def write_json(report: dict[str, Any], path: Path) -> None:
     """Write the report atomically (results.write_json)."""
-    from .results import write_json as atomic
+    from ampmodel.output.result import write_json as atomic
     atomic(report, path)

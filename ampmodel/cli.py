@@ -10,7 +10,7 @@ import sys
 import traceback
 from pathlib import Path
 
-from . import __version__
+from ampmodel._version import __version__
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first
@@ -104,9 +104,9 @@ def _bad_input(problems: list[str]) -> int:
 
 
 def _load(path: str, overrides: list[str]):
-    from .config import load_config
+    from ampmodel.config.load import load_config
     if not Path(path).is_file():
-        from .config import ConfigError
+        from ampmodel.config.load import ConfigError
         raise ConfigError([f"{path}: no such config file"])
     return load_config(path, overrides)
 
@@ -224,8 +224,8 @@ def _print_table(summary: dict) -> None:
 
 
 def cmd_run(args) -> int:
-    from .solver import check_memory, simulate
-    from .run_folder import claim, partial_folder
+    from ampmodel.simulation import check_memory, simulate
+    from ampmodel.output.run_folder import claim, partial_folder
     config = _load(args.config, args.overrides)
     check_memory(config)                       # a grid too large: refused before anything is made
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
@@ -240,7 +240,7 @@ def cmd_run(args) -> int:
 
 def _report_run(s: dict, out: Path, plots: bool) -> None:
     """The table of a run, its warnings, the safety note and the folder written."""
-    from .diagnostics import SAFETY_NOTE
+    from ampmodel.pulsed.diagnostics import SAFETY_NOTE
     if s.get("layout") == "fibre":
         _print_fibre(s)
     else:
@@ -255,8 +255,8 @@ def _report_run(s: dict, out: Path, plots: bool) -> None:
 
 
 def cmd_rerun(args) -> int:
-    from .config import ConfigError
-    from .rerun import rerun
+    from ampmodel.config.load import ConfigError
+    from ampmodel.studies.rerun import rerun
     if not (args.rtol >= 0 and math.isfinite(args.rtol)):
         raise ConfigError([f"ampmodel rerun: --rtol {args.rtol:g}: must be a number >= 0, e.g. 1e-9"])
     report, result = rerun(args.result, args.out, rtol=args.rtol, plots=not args.no_plots,
@@ -284,48 +284,49 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_check(args) -> int:
-    from . import beams, pumping
-    from .solver import check_memory
+    from ampmodel.kernels import beam_shapes
+    from ampmodel.media import gain_maps
+    from ampmodel.simulation import check_memory
     config = _load(args.config, args.overrides)
     need = check_memory(config)
-    x = beams.pixel_centres(config.grid.points, config.grid.width_m)
+    x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
     nm, ns = len(config.media), len(config.steps)
     print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {ns} step{'' if ns == 1 else 's'}, mode {config.mode}, "
           f"about {_fmt(need, 'B')} of arrays)")
     if any(m.kind == "fibre" for m in config.media):
-        from .fibre_run import describe_fibres
+        from ampmodel.fibre.run import describe_fibres
         for line in describe_fibres(config):
             print(line)
         return EXIT_OK
     if config.mode == "cw":
-        from .cw import build_medium
+        from ampmodel.cw.run import build_medium
         for m in config.media:
             st = build_medium(m, x, x, config.solver)
             g = st.coarse(st.g0)
             line = (f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-                    f"{pumping.on_axis_gain(g, m.length_m / m.slices):.4g}")
+                    f"{gain_maps.on_axis_gain(g, m.length_m / m.slices):.4g}")
             if st.pump_field is not None:
                 absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
                 line += f", absorbed pump {_fmt(absorbed, 'W')} of {_fmt(st.pump.power_W, 'W')} (no signal)"
             print(line)
         return EXIT_OK
     for m in config.media:
-        gm = pumping.gain_map(m, x, x)
-        stored = pumping.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
+        gm = gain_maps.gain_map(m, x, x)
+        stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
                                          gm.slice_length_m * (x[1] - x[0]) ** 2)
         print(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-              f"{pumping.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {_fmt(stored, 'J')}")
+              f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {_fmt(stored, 'J')}")
     return EXIT_OK
 
 
 def cmd_media(args) -> int:
-    from .materials import registry
+    from ampmodel.materials import registry
     print(registry.table_text())
     return EXIT_OK
 
 
 def cmd_bench(args) -> int:
-    from .config import ConfigError
+    from ampmodel.config.load import ConfigError
     out = Path(args.json) if args.json else None
     if out is not None:
         if out.exists():
@@ -334,7 +335,7 @@ def cmd_bench(args) -> int:
         if not out.parent.is_dir():
             raise ConfigError([f"{out}: the folder {out.parent} does not exist: create it or give --json "
                                f"another path"])
-    from .bench import run_bench, table_text, write_json
+    from ampmodel.bench import run_bench, table_text, write_json
     report = run_bench(quick=args.quick, progress=not args.quiet)
     print(table_text(report))
     if out is not None:
@@ -348,7 +349,7 @@ def cmd_bench(args) -> int:
 
 def _options(args, command: str) -> tuple[str, int | None]:
     """Check the sweep/spread options; return (backend, jobs)."""
-    from .config import ConfigError
+    from ampmodel.config.load import ConfigError
     problems = []
     if args.jobs is not None and args.jobs < 1:
         problems.append(f"--jobs {args.jobs}: must be 1 or more")
@@ -373,22 +374,22 @@ def _many_points(args, command: str, runner, printer) -> int:
 
 
 def cmd_sweep(args) -> int:
-    from .sweeps import run_sweep
-    from .sweep_report import print_sweep
+    from ampmodel.studies.sweeps import run_sweep
+    from ampmodel.studies.report import print_sweep
     return _many_points(args, "sweep", run_sweep, print_sweep)
 
 
 def cmd_spread(args) -> int:
-    from .spread import run_spread
-    from .sweep_report import print_spread
+    from ampmodel.studies.spread import run_spread
+    from ampmodel.studies.report import print_spread
     return _many_points(args, "spread", run_spread, print_spread)
 
 
 def cmd_size(args) -> int:
-    from .sizing import parse_limit, parse_target, parse_within, size_to_target
-    from .sweep_report import print_sizing
+    from ampmodel.studies.sizing import parse_limit, parse_target, parse_within, size_to_target
+    from ampmodel.studies.report import print_sizing
     from contextlib import nullcontext
-    from .run_folder import claim, partial_folder
+    from ampmodel.output.run_folder import claim, partial_folder
     target = parse_target(args.target)
     within = parse_within(args.within)
     limits = [parse_limit(text) for text in args.limits]
@@ -400,7 +401,7 @@ def cmd_size(args) -> int:
                                 xtol=args.xtol, report=report, keep_result=bool(args.out))
         code = print_sizing(result)
         if tmp is not None:
-            from .results import write_json
+            from ampmodel.output.result import write_json
             write_json(result.as_dict(), tmp / "size.json")
             if result.result is not None:
                 result.result.save(tmp, plots=True)
@@ -481,10 +482,10 @@ def main(argv: list[str] | None = None) -> int:
 
 def _dispatch(args, argv: list[str]) -> int:
     """Run the command; turn every kind of failure into its message and exit code."""
-    from .atomic import OutputError, describe_write_error, is_write_error
-    from .backends import BackendError, WorkerLost
-    from .config import ConfigError
-    from .sweep_store import FolderError
+    from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
+    from ampmodel.studies.backends import BackendError, WorkerLost
+    from ampmodel.config.load import ConfigError
+    from ampmodel.studies.store import FolderError
     resumable = args.command in ("sweep", "spread")
     try:
         return COMMANDS[args.command](args)

@@ -8,7 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-from .materials import Material
+from ampmodel.materials.material import Material
 
 
 @dataclass(frozen=True)

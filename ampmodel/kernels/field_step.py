@@ -28,8 +28,8 @@ from typing import NamedTuple
 import numpy as np
 import scipy.fft
 
-from . import fn_pass
-from .diffraction import phase_factor_into
+from ampmodel.kernels import fn_pass
+from ampmodel.kernels.diffraction import phase_factor_into
 
 _GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_accumulate)
 

@@ -38,7 +38,7 @@ from typing import Callable, NamedTuple
 
 import numpy as np
 
-from .frantz_nodvik import fn_slice, fn_slice_linear
+from ampmodel.kernels.frantz_nodvik import fn_slice, fn_slice_linear
 
 # Range of the linear form (see linear_form_valid): u = exp(x) − 1 must stay a normal float.
 LINEAR_MAX_EXPONENT = 600.0       # J/Fsat + Σ ln G (G > 1) along a column: u < exp(600) = 4e260

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from ampmodel.config import ConfigError, load_config
+from ampmodel.config.load import ConfigError, load_config
 
 ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "tests" / "data"

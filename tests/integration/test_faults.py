@@ -18,8 +18,8 @@ import h5py
 import numpy as np
 import pytest
 
-from ampmodel import sweep_store as store
-from ampmodel.atomic import is_complete_hdf5
+from ampmodel.studies import store as store
+from ampmodel.output.atomic import is_complete_hdf5
 from ampmodel.cli import EXIT_CANNOT_WRITE, EXIT_INTERRUPTED, main
 from sweep_helpers import BASE, ROOT, ampmodel, write_config
 
@@ -170,7 +170,7 @@ def _main(args, capsys, cwd: Path, monkeypatch) -> tuple[int, str, str]:
 
 def _disk_full(after: int = 0):
     """A writer that works ``after`` times, then fails as a full disk does."""
-    from ampmodel import results
+    from ampmodel.output import result as results
     real = results.write_hdf5
     calls = {"n": 0}
 
@@ -183,7 +183,7 @@ def _disk_full(after: int = 0):
 
 
 def test_a_full_disk_during_a_run_is_a_message(tmp_path, capsys, monkeypatch):
-    from ampmodel import results
+    from ampmodel.output import result as results
     cfg = write_config(tmp_path, "")
     monkeypatch.setattr(results, "write_hdf5", _disk_full())
     code, out, err = _main(["run", str(cfg), "--out", str(tmp_path / "runs" / "x"), "--no-plots"], capsys, tmp_path,
@@ -195,7 +195,7 @@ def test_a_full_disk_during_a_run_is_a_message(tmp_path, capsys, monkeypatch):
 
 
 def test_a_full_disk_during_a_sweep_stops_it_and_keeps_the_points(tmp_path, capsys, monkeypatch):
-    from ampmodel import results
+    from ampmodel.output import result as results
     cfg = write_config(tmp_path)                                # 8 points, in this process (--jobs 1)
     args = ["sweep", "rod.toml", "--jobs", "1", "--no-plots", "--quiet"]
     monkeypatch.setattr(results, "write_hdf5", _disk_full(after=3))
@@ -278,7 +278,7 @@ def test_a_folder_without_write_permission_is_a_message(tmp_path, capsys, monkey
 # ----------------------------------------------------------------------------------------------
 
 def test_partial_point_files_are_computed_again(tmp_path):
-    from ampmodel.sweeps import run_sweep
+    from ampmodel.studies.sweeps import run_sweep
     cfg = write_config(tmp_path)
     out = tmp_path / "sweep"
     first = run_sweep(cfg, out, jobs=1, plots=False)
@@ -302,7 +302,7 @@ def test_partial_point_files_are_computed_again(tmp_path):
 def test_ctrl_c_in_this_process_keeps_the_points_and_the_table(tmp_path, capsys, monkeypatch):
     """A KeyboardInterrupt at the fourth point (--jobs 1): the three before are kept and listed in the
     table; the message gives the command; the folder resumes."""
-    from ampmodel import solver
+    from ampmodel import simulation as solver
     real = solver.simulate
     calls = {"n": 0}
 
@@ -329,7 +329,7 @@ def test_a_killed_run_leaves_only_a_hidden_partial_folder_that_a_later_run_remov
     """What SIGKILL leaves of a run (its hidden .partial folder, lock released) is removed by the next run
     into the same place once it is older than run_folder.STALE_AFTER_S; a folder whose owner still holds
     its lock is left alone."""
-    from ampmodel import run_folder
+    from ampmodel.output import run_folder
     base = tmp_path / "runs" / "rod"
     base.parent.mkdir(parents=True)
     dead = base.parent / ".rod.dead1234.partial"
@@ -359,14 +359,14 @@ def _die(task):
 
 
 def test_a_worker_that_dies_is_named_not_a_traceback():
-    from ampmodel.backends import WorkerLost, run_tasks
+    from ampmodel.studies.backends import WorkerLost, run_tasks
     with pytest.raises(WorkerLost) as info:
         list(run_tasks(_die, [0, 1, 2, 3], "loky", 2))
     assert "a worker process died" in str(info.value) and "fewer --jobs" in str(info.value)
 
 
 def test_the_atomic_writer(tmp_path):
-    from ampmodel import atomic
+    from ampmodel.output import atomic
     target = tmp_path / "table.csv"
     atomic.write_text(target, "a,b\n")
     assert target.read_text() == "a,b\n"

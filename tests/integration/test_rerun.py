@@ -11,10 +11,11 @@ import h5py
 import pytest
 
 from ampmodel.cli import EXIT_BAD_INPUT, EXIT_MISMATCH, main
-from ampmodel.config import load_config
-from ampmodel.materials import material_from_dict, material_to_dict, registry
-from ampmodel.rerun import Difference, compare_summaries, default_out
-from ampmodel.results import read_provenance
+from ampmodel.config.load import load_config
+from ampmodel.materials.material import material_from_dict, material_to_dict
+from ampmodel.materials import registry
+from ampmodel.studies.rerun import Difference, compare_summaries, default_out
+from ampmodel.output.result import read_provenance
 from sweep_helpers import BASE, ROOT, write_config
 
 DATA = ROOT / "tests" / "data"

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 import ampmodel as api
-from ampmodel.results import read_hdf5
-from ampmodel.sweep_store import FolderError
+from ampmodel.output.result import read_hdf5
+from ampmodel.studies.store import FolderError
 from sweep_helpers import GRID_4x2, ROOT, ampmodel, write_config
 
 SCALARS = ("input_energy_J", "output_energy_J", "gain", "stored_energy_J", "stored_energy_final_J",
@@ -236,7 +236,7 @@ def test_default_folder_and_options(tmp_path):
 
 
 def test_time_sweep_for_the_benchmark(tmp_path):
-    from ampmodel.sweeps import time_sweep
+    from ampmodel.studies.sweeps import time_sweep
     config = write_config(tmp_path, "")
     timing = time_sweep(config, points=3, workers=(1, 2), warm=True)
     assert timing["points"] == 3 and set(timing["seconds"]) == {1, 2} and timing["warm"]

@@ -21,7 +21,7 @@ from scipy.constants import c as LIGHT_SPEED, h as PLANCK
 from scipy.optimize import brentq
 
 from ampmodel.description import Fibre, FibrePump, Medium
-from ampmodel.materials import Material, Spectrum
+from ampmodel.materials.material import Material, Spectrum
 
 # A Yb-like spectrum (nm, cm²): absorption peak at 976 nm, emission band 1000-1100 nm.
 TABLE_NM = [900.0, 940.0, 960.0, 976.0, 990.0, 1000.0, 1020.0, 1030.0, 1040.0, 1060.0, 1080.0, 1100.0]

@@ -21,7 +21,7 @@ from scipy.constants import c as LIGHT_SPEED, h as PLANCK
 from scipy.special import ndtr
 
 from ampmodel.description import Config, Grid, Medium, Seed, Step
-from ampmodel.materials import Material
+from ampmodel.materials.material import Material
 
 
 # --------------------------------------------------------------------------------------------------

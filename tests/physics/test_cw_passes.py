@@ -18,9 +18,9 @@ import pytest
 from scipy.constants import c as LIGHT_SPEED, h as PLANCK
 from scipy.integrate import solve_bvp
 
-from ampmodel.config import ConfigError
+from ampmodel.config.load import ConfigError
 from ampmodel.description import Config, Grid, Seed, Solver
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 from physics_reference import aperture_step, loss_step, make_material, make_medium, pass_step
 
 MAT = make_material()

@@ -17,7 +17,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from ampmodel.description import Config, Grid, Pump, Seed
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 from physics_reference import loss_step, make_material, make_medium, pass_step, photon_energy
 
 # Yb:YAG-like quasi-three-level medium (values of the built-in material, from memory — verify there).

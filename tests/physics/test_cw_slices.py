@@ -21,7 +21,7 @@ from scipy.special import lambertw
 
 from ampmodel.description import Config, Grid, Seed
 from ampmodel.kernels.cw_saturation import homogeneous_slice_gain, inhomogeneous_slice_gain
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 from physics_reference import make_material, make_medium, pass_step
 
 MAT = make_material()

@@ -18,11 +18,11 @@ import numpy as np
 import pytest
 from scipy.special import fresnel
 
-from ampmodel import optics
+from ampmodel.beam import field as optics
 from ampmodel.description import Step
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels.beam_figures import d4sigma
-from ampmodel.layout import MediumState
+from ampmodel.pulsed.passes import MediumState
 
 WAVELENGTH = 1.0e-6
 
@@ -115,12 +115,12 @@ def test_seed_waist_offset_and_curvature():
     """A seed with its waist 0.6 m downstream starts at w0·sqrt(1 + (z/zR)²) and reaches w0 after 0.6 m;
     a seed given the same wavefront by its curvature R = z + zR²/z (negative: converging) and its
     size at the start does the same (Kogelnik & Li 1966)."""
-    from ampmodel import beams
+    from ampmodel.kernels import beam_shapes
 
     w0, width, z = 0.5e-3, 8e-3, 0.6
     x = axes(128, width)
     z_r = math.pi * w0 ** 2 / WAVELENGTH
-    field = beams.seed_start_field(x, x, "gaussian", 2 * w0, 8.0, 1e-3, WAVELENGTH, waist_m=z)
+    field = beam_shapes.seed_start_field(x, x, "gaussian", 2 * w0, 8.0, 1e-3, WAVELENGTH, waist_m=z)
     beam = field_beam(field, width)
     w_start = w0 * math.sqrt(1 + (z / z_r) ** 2)
     assert radius_from_d4sigma(beam) == pytest.approx(w_start, rel=1e-4)
@@ -128,7 +128,7 @@ def test_seed_waist_offset_and_curvature():
     assert radius_from_d4sigma(beam) == pytest.approx(w0, rel=1e-3)
 
     curvature = -(z + z_r ** 2 / z)
-    field = beams.seed_start_field(x, x, "gaussian", 2 * w_start, 8.0, 1e-3, WAVELENGTH, curvature_m=curvature)
+    field = beam_shapes.seed_start_field(x, x, "gaussian", 2 * w_start, 8.0, 1e-3, WAVELENGTH, curvature_m=curvature)
     beam = field_beam(field, width)
     optics.field_space(beam, Step(kind="space", index=0, length_m=z))
     assert radius_from_d4sigma(beam) == pytest.approx(w0, rel=1e-3)
@@ -137,11 +137,11 @@ def test_seed_waist_offset_and_curvature():
 def test_seed_m_squared_from_the_caustic():
     """A seed of M² = 3 (random phase screen): fitting W²(z) = W0² + (M²·λ/(π·W0))²·(z − z0)² to the
     second-moment radii along the propagation (ISO 11146-1 caustic method) gives M² = 3 within 3 %."""
-    from ampmodel import beams
+    from ampmodel.kernels import beam_shapes
 
     w0, width, m2 = 0.6e-3, 12e-3, 3.0
     x = axes(192, width)
-    beam = field_beam(beams.seed_start_field(x, x, "gaussian", 2 * w0, 8.0, 1e-3, WAVELENGTH, m_squared=m2), width)
+    beam = field_beam(beam_shapes.seed_start_field(x, x, "gaussian", 2 * w0, 8.0, 1e-3, WAVELENGTH, m_squared=m2), width)
     z_r_embedded = math.pi * w0 ** 2 / (m2 * WAVELENGTH)
     zs = np.linspace(0.0, 2.0 * z_r_embedded, 6)
     w2, position = [], 0.0

@@ -20,9 +20,9 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from ampmodel import pumping
+from ampmodel.media import gain_maps
 from ampmodel.description import Pump, Seed
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 
 from physics_reference import (aperture_step, disc, loss_step, make_config, make_material, make_medium,
                                pass_step, photon_energy, radius)
@@ -143,7 +143,7 @@ def test_storage_efficiency_against_rate_equation(ratio):
     sol = solve_ivp(lambda t, n: rate - n / tau, (0.0, tp), [0.0], method="DOP853", rtol=1e-12, atol=1e-20)
     assert sol.success
     expected = sol.y[0, -1] / (rate * tp)
-    assert pumping.storage_efficiency(tau, tp) == pytest.approx(expected, rel=1e-8)
+    assert gain_maps.storage_efficiency(tau, tp) == pytest.approx(expected, rel=1e-8)
 
 
 def _end_pump(**kw) -> Pump:

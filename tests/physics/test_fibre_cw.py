@@ -19,7 +19,7 @@ import pytest
 from scipy.integrate import solve_bvp, solve_ivp
 
 import fibre_reference as R
-from ampmodel import fibre as F
+from ampmodel.fibre import model as F
 
 SIGNAL_M = 1030e-9
 A_CORE = math.pi * (5e-6) ** 2

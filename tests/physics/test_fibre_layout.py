@@ -8,7 +8,7 @@ import math
 import pytest
 
 import ampmodel
-from ampmodel import fibre as F
+from ampmodel.fibre import model as F
 
 
 def two_stage(mode: str, **seed) -> dict:

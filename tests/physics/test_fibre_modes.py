@@ -17,7 +17,7 @@ from scipy.integrate import quad
 from scipy.optimize import brentq, minimize_scalar
 from scipy.special import j0, j1, k0, k1
 
-from ampmodel import fibre_modes as fm
+from ampmodel.kernels import fibre_modes as fm
 
 
 def exact_best_gaussian(v: float) -> float:

@@ -23,9 +23,9 @@ from scipy.integrate import quad, solve_ivp
 from scipy.optimize import brentq
 
 import fibre_reference as R
-from ampmodel import beams
-from ampmodel import fibre as F
-from ampmodel import fibre_pulsed as P
+from ampmodel.kernels import beam_shapes
+from ampmodel.fibre import model as F
+from ampmodel.fibre import pulsed as P
 
 SIGNAL_M = 1030e-9
 A_CORE = math.pi * (5e-6) ** 2
@@ -54,7 +54,7 @@ def ln_gain(n2_profile, length):
 @pytest.mark.parametrize("energy_J", [1e-7, 2e-5, 3e-4])
 def test_single_pulse_energy_is_frantz_nodvik_with_the_fibre_saturation_energy(energy_J):
     medium = R.make_fibre(length_m=3.0, slices=50, pump_W=8.0)
-    t, w, dt = beams.time_slices("gaussian", 2e-9, 24)
+    t, w, dt = beam_shapes.time_slices("gaussian", 2e-9, 24)
     sol = P.solve_pulse_train(F.build_model(medium, SIGNAL_M), w * energy_J, dt, None)
     esat = saturation_energy()
     g0 = math.exp(ln_gain(sol.n2_before[0], 3.0))
@@ -67,7 +67,7 @@ def test_single_pulse_energy_is_frantz_nodvik_with_the_fibre_saturation_energy(e
 def test_square_pulse_shape_follows_frantz_nodvik():
     medium = R.make_fibre(length_m=1.0, slices=30, pump_W=3.0)
     energy, length_s, slices = 1e-4, 10e-9, 20
-    t, w, dt = beams.time_slices("flat", length_s, slices)
+    t, w, dt = beam_shapes.time_slices("flat", length_s, slices)
     sol = P.solve_pulse_train(F.build_model(medium, SIGNAL_M), w * energy, dt, None)
     esat, p_in = saturation_energy(), energy / length_s
     g0 = math.exp(ln_gain(sol.n2_before[0], 1.0))
@@ -135,7 +135,7 @@ def test_high_repetition_rate_approaches_cw():
 @pytest.mark.parametrize("rings, loss", [(1, 0.05), (5, 0.02)])
 def test_pulse_energy_bookkeeping(rings, loss):
     medium = R.make_fibre(length_m=2.0, slices=40, pump_W=6.0, rings=rings, loss_per_m=loss)
-    t, w, dt = beams.time_slices("sech2", 1e-9, 16)
+    t, w, dt = beam_shapes.time_slices("sech2", 1e-9, 16)
     sol = P.solve_pulse_train(F.build_model(medium, SIGNAL_M), w * 5e-5, dt, 2e4)
     p = sol.pulse
     out = p.energy_out_J.sum()
@@ -146,7 +146,7 @@ def test_pulse_energy_bookkeeping(rings, loss):
 
 def test_b_integral_in_an_unpumped_fibre():
     medium = R.make_fibre(length_m=4.0, slices=25, pump_W=None, loss_per_m=0.1)
-    t, w, dt = beams.time_slices("flat", 1e-9, 4)
+    t, w, dt = beam_shapes.time_slices("flat", 1e-9, 4)
     energy = 1e-15                                  # far below saturation: no bleaching
     sol = P.solve_pulse_train(F.build_model(medium, SIGNAL_M), w * energy, dt, None, n2_index_m2_W=2.6e-20)
     _, sa = sections(SIGNAL_M)

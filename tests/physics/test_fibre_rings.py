@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 import fibre_reference as R
-from ampmodel import fibre as F
+from ampmodel.fibre import model as F
 
 SIGNAL_M = 1030e-9
 

@@ -17,10 +17,10 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel import optics
+from ampmodel.beam import field as optics
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels import field_step
-from ampmodel.layout import MediumState
+from ampmodel.pulsed.passes import MediumState
 
 N, NT, NZ, WIDTH, WAVELENGTH, DT = 32, 7, 3, 6e-3, 1.064e-6, 1e-9
 X = (np.arange(N) - (N - 1) / 2) * (WIDTH / N)

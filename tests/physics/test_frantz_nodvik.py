@@ -14,8 +14,8 @@ import pytest
 from scipy.integrate import quad
 
 from ampmodel.description import Pump, Seed
-from ampmodel.layout import BeamState, MediumState, pass_medium
-from ampmodel.solver import simulate
+from ampmodel.pulsed.passes import BeamState, MediumState, pass_medium
+from ampmodel.simulation import simulate
 
 from physics_reference import (disc, fn_closed, fn_remaining_ln_gain, fn_slices, grid_axes, make_config,
                                make_material, make_medium, max_rel, pass_step, photon_energy, pulse_weights,

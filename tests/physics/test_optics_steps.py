@@ -17,11 +17,11 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel import optics
+from ampmodel.beam import field as optics
 from ampmodel.description import Grid, Seed, Step
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 
 from physics_reference import make_config, make_material, make_medium, pass_step
 from test_diffraction import WAVELENGTH, axes, field_beam
@@ -222,7 +222,7 @@ def test_grid_warnings_name_a_grid_that_would_do():
 def test_field_run_files_hold_the_beam_figures_and_the_output_field(tmp_path):
     """result.h5 of a field run: /beam rows (seed, then each step) equal the summary's figures, and
     /output/field squares to the last step's fluence."""
-    from ampmodel.results import read_hdf5
+    from ampmodel.output.result import read_hdf5
 
     result = _run(True)
     result.save(tmp_path / "run", plots=False)

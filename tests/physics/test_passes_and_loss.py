@@ -15,7 +15,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from ampmodel.description import Seed
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 
 from physics_reference import (disc, fn_closed, loss_step, make_config, make_material, make_medium, max_rel,
                                pass_step, photon_energy, seed_map)

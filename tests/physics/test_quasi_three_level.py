@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from ampmodel.description import Pump, Seed
-from ampmodel.solver import simulate
+from ampmodel.simulation import simulate
 
 from physics_reference import (disc, fn_closed, fn_remaining_ln_gain, make_config, make_material, make_medium,
                                max_rel, pass_step, photon_energy, seed_map)

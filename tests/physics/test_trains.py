@@ -199,7 +199,7 @@ def test_a_multipass_cell_in_a_train_direct_and_iterated_agree():
 
 
 def test_settling_estimate_and_cycle_detection():
-    from ampmodel.trains import _cycle, _estimate_settling
+    from ampmodel.pulsed.trains import _cycle, _estimate_settling
     steady = 1.0
     decaying = [steady + 0.1 * 0.5 ** k * (-1) ** k for k in range(12)]
     # |E_k − E*| = 0.1·0.5^k: within 1e-6 once 0.5^k <= 1e-5, k >= 17, i.e. pulse 18

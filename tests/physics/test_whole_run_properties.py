@@ -15,8 +15,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from ampmodel.description import Config, Grid, Medium, Pump, Seed, Step
-from ampmodel.materials import Material
-from ampmodel.solver import simulate
+from ampmodel.materials.material import Material
+from ampmodel.simulation import simulate
 
 LAMBDA = 1064e-9
 MATERIAL = Material(name="test four-level", wavelength_m=LAMBDA, emission_cross_section_m2=2.8e-23,

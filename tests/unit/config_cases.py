@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from ampmodel.config import ConfigError, load_config
+from ampmodel.config.load import ConfigError, load_config
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 MINIMAL = DATA / "good_minimal.toml"

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from ampmodel.config import ConfigError, PathError, apply_overrides, dump_toml, load_config, resolve_path
+from ampmodel.config.load import ConfigError, PathError, apply_overrides, dump_toml, load_config, resolve_path
 from ampmodel.description import Limits
 
 from config_cases import MINIMAL as GOOD, good, one_problem, problems_of, step_problems

@@ -5,7 +5,7 @@ import math
 
 import pytest
 
-from ampmodel.config import load_config
+from ampmodel.config.load import load_config
 
 from config_cases import FIBRE as GOOD, good as _good, one_problem
 

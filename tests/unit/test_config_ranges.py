@@ -13,10 +13,10 @@ except ModuleNotFoundError:  # Python < 3.11
 
 import pytest
 
-from ampmodel import config_checks
-from ampmodel import config_schema as S
-from ampmodel.config import ConfigError, load_config
-from ampmodel.config_fibre import FIBRE_MEDIUM, FIBRE_PUMP
+from ampmodel.config import checks as config_checks
+from ampmodel.config import schema as S
+from ampmodel.config.load import ConfigError, load_config
+from ampmodel.config.fibre import FIBRE_MEDIUM, FIBRE_PUMP
 from ampmodel.units import split_unit
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -10,7 +10,7 @@ except ModuleNotFoundError:  # Python < 3.11
 
 import pytest
 
-from ampmodel.config import apply_overrides, dump_toml, load_config
+from ampmodel.config.load import apply_overrides, dump_toml, load_config
 
 from config_cases import FIBRE, MINIMAL as GOOD, good, problems_of, step_problems
 

@@ -17,10 +17,10 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel import optics
+from ampmodel.beam import field as optics
 from ampmodel.description import Step
 from ampmodel.kernels import diffraction as kd
-from ampmodel.layout import BeamState
+from ampmodel.pulsed.passes import BeamState
 
 N, WIDTH, WAVELENGTH = 64, 8e-3, 1e-6
 X = (np.arange(N) - (N - 1) / 2) * (WIDTH / N)
@@ -102,10 +102,10 @@ def test_soft_aperture_and_relay_on_the_fluence_path():
 
 def test_cw_mode_refuses_diffraction_and_the_seed_field_keys():
     """Diffraction is for pulsed runs in this version: a cw config with it, or with a seed waist, says so."""
-    from ampmodel.config import tomllib   # tomllib, or tomli on Python 3.10
+    from ampmodel.config.load import tomllib   # tomllib, or tomli on Python 3.10
     from pathlib import Path
 
-    from ampmodel.config import ConfigError, load_config
+    from ampmodel.config.load import ConfigError, load_config
 
     root = Path(__file__).resolve().parents[2]
     raw = tomllib.loads((root / "configs" / "cw_double_pass_single_frequency.toml").read_text())

@@ -16,7 +16,7 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel import layout
+from ampmodel.pulsed import passes as layout
 from ampmodel.kernels import fn_pass
 from ampmodel.kernels.frantz_nodvik import fn_slice_linear
 

@@ -17,7 +17,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy.integrate import quad
 
-from ampmodel import beams
+from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.frantz_nodvik import fn_slice, fn_total, square_pulse_power
 from ampmodel.kernels.fn_pass import log_mean
 
@@ -158,7 +158,7 @@ def _pulse(shape: str, tau: float):
 @pytest.mark.parametrize("n", [1, 7, 32])
 def test_time_slices_match_quad(shape, n):
     tau = 5e-9
-    t, weights, dt = beams.time_slices(shape, tau, n)
+    t, weights, dt = beam_shapes.time_slices(shape, tau, n)
     assert weights.sum() == pytest.approx(1.0, abs=1e-14)
     window_fwhm = {"gaussian": 5.0, "sech2": 10.0, "flat": 1.0}[shape]    # README window rule
     assert dt * n == pytest.approx(window_fwhm * tau, rel=1e-14)
@@ -177,8 +177,8 @@ def test_time_slices_match_quad(shape, n):
 
 @pytest.mark.parametrize("profile", ["gaussian", "flat", "supergaussian"])
 def test_seed_fluence_sums_to_energy(profile):
-    x = beams.pixel_centres(40, 8e-3)
-    f = beams.seed_fluence(x, x, profile, 3e-3, 6.0, 0.25)
+    x = beam_shapes.pixel_centres(40, 8e-3)
+    f = beam_shapes.seed_fluence(x, x, profile, 3e-3, 6.0, 0.25)
     assert f.sum() * (x[1] - x[0]) ** 2 == pytest.approx(0.25, rel=1e-13)
     assert np.all(f >= 0.0)
 
@@ -189,15 +189,15 @@ def test_aperture_mask_area_converges():
     r = 2e-3
     errors = []
     for n in (32, 128, 512, 2048):
-        x = beams.pixel_centres(n, 6e-3)
+        x = beam_shapes.pixel_centres(n, 6e-3)
         dx = x[1] - x[0]
-        area = beams.aperture_mask(x, x, "round", 2 * r).sum() * dx * dx
+        area = beam_shapes.aperture_mask(x, x, "round", 2 * r).sum() * dx * dx
         assert abs(area - math.pi * r * r) <= 2 * math.sqrt(2) * math.pi * r * dx
         errors.append(abs(area / (math.pi * r * r) - 1))
     assert errors[-1] < 1e-3 and errors[-1] < errors[0]
     # a square aperture aligned with the pixels is exact
-    x = beams.pixel_centres(60, 6e-3)
-    assert beams.aperture_mask(x, x, "square", 3e-3).sum() == 30 * 30
+    x = beam_shapes.pixel_centres(60, 6e-3)
+    assert beam_shapes.aperture_mask(x, x, "square", 3e-3).sum() == 30 * 30
 
 
 def test_log_mean():

@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 
 from ampmodel.description import Config, Grid, Limits, Medium, Seed, Step
-from ampmodel.materials import Material
-from ampmodel.plots import make_plots, step_label
-from ampmodel.results import MediumRecord, Result, StepRecord
+from ampmodel.materials.material import Material
+from ampmodel.plots.run import make_plots, step_label
+from ampmodel.output.result import MediumRecord, Result, StepRecord
 from ampmodel.units import photon_energy_J
 
 WAVELENGTH_M = 1064e-9

@@ -11,12 +11,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from ampmodel.config import ConfigError, load_config
-from ampmodel.sizing import Limit, parse_limit, parse_target, parse_within
-from ampmodel.spread import distributions, draw, statistics
-from ampmodel.sweep_plots import path_label, scale_for
-from ampmodel.sweep_store import _as_array, config_hash, table_columns
-from ampmodel.sweeps import point_raw, sweep_points
+from ampmodel.config.load import ConfigError, load_config
+from ampmodel.studies.sizing import Limit, parse_limit, parse_target, parse_within
+from ampmodel.studies.spread import distributions, draw, statistics
+from ampmodel.plots.sweep import path_label, scale_for
+from ampmodel.studies.store import _as_array, config_hash, table_columns
+from ampmodel.studies.sweeps import point_raw, sweep_points
 from ampmodel.units import unit_of
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -1,0 +1,2 @@
+"""The version of ampmodel, written once (pyproject.toml reads it from here)."""
+__version__ = "0.1.0"

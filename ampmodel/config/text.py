@@ -1,0 +1,211 @@
+"""Config text: TOML read with messages that point at the line, a dict given in Python made plain,
+``--set PATH=VALUE`` overrides on dotted value paths, and a config dict written back as TOML.
+``config.py`` uses these before it validates anything.
+"""
+from __future__ import annotations
+
+import copy
+import json
+import re
+from typing import Any, Mapping, Sequence
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python < 3.11
+    import tomli as tomllib  # type: ignore[no-redef]
+import tomli_w
+
+from ampmodel.config.checks import ConfigError, PathError, Problems, join_path
+from ampmodel.config.schema import walk
+
+# Tables that a --set may create when its path runs through one that is not there yet.
+_CREATABLE = frozenset({"grid", "seed", "limits", "solver", "sweep", "spread", "pump", "material", "train"})
+
+
+# ----------------------------------------------------------------------------------------------
+# Reading
+# ----------------------------------------------------------------------------------------------
+
+_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+# What some parser messages usually mean in a config (the parser's own words stay first).
+_TOML_HINTS = (
+    ("Cannot overwrite a value", " (a key given twice in one table, or a table given twice)"),
+    ("Expected newline or end of document after a statement", " (something after the value: units belong in "
+                                                              "the key's name, e.g. length_mm = 100.0; comments "
+                                                              "start with #)"),
+    ("Cannot declare", " (a table given twice)"),
+    ("Illegal character '\\n'", " (perhaps a string without its closing quote)"),
+    ("Invalid value", " (a value TOML cannot read: numbers without units or expressions, strings in "
+                      "double quotes, true/false)"),
+)
+
+
+def parse_toml(text: str, problems: Problems) -> dict | None:
+    """Parse TOML text; a syntax error becomes one problem with its line and column."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        message = str(exc)
+        m = _AT.search(message)
+        if m:
+            where = f"line {m.group(1)}, column {m.group(2)}"
+            message = message[: m.start()]
+        else:
+            where = "the end of the file" if "end of document" in message else "an unknown place"
+            message = re.sub(r"\s*\(at end of document\)\s*$", "", message)
+        hint = next((h for start, h in _TOML_HINTS if message.startswith(start)), "")
+        problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}{hint}")
+        return None
+
+
+def plain_config(value: Any, path: str, problems: Problems) -> Any:
+    """A dict given in Python, as TOML would give it: plain dicts, lists, str keys, no None."""
+    if type(value).__module__ == "numpy" and hasattr(value, "tolist"):
+        value = value.tolist()
+    if isinstance(value, Mapping):
+        out = {}
+        for k, v in value.items():
+            if not isinstance(k, str):
+                problems.add(join_path(path, str(k)), "keys must be strings")
+            elif v is not None:
+                out[k] = plain_config(v, join_path(path, k), problems)
+        return out
+    if isinstance(value, (list, tuple)):
+        return [plain_config(v, path, problems) for v in value]
+    return value
+
+
+# ----------------------------------------------------------------------------------------------
+# Value paths
+# ----------------------------------------------------------------------------------------------
+
+def resolve_path(raw: dict, path: str) -> tuple[Any, Any]:
+    """Find the container and key a dotted value path names.
+
+    Parameters
+    ----------
+    raw : dict
+        The config as read from TOML.
+    path : str
+        Dotted, media and steps by name or index: ``"seed.energy_J"``, ``"medium.rod.length_mm"``,
+        ``"medium.0.slices"``, ``"step.1.transmission"``, ``"grid.points"``.
+
+    Returns
+    -------
+    (container, key) : tuple
+        ``container[key]`` is the value (a dict and a str key; a list and an int index when the
+        path ends at a medium or step). The key need not exist yet in its table.
+
+    Raises
+    ------
+    PathError
+        A KeyError whose message says which part does not resolve, with a "did you mean".
+    """
+    container, key, _ = walk(raw, path)
+    return container, key
+
+
+# ----------------------------------------------------------------------------------------------
+# Overrides and writing
+# ----------------------------------------------------------------------------------------------
+
+def _parse_value(text: str) -> Any:
+    """A --set VALUE as a TOML value, or the plain string when it is not one."""
+    try:
+        parsed = tomllib.loads("v = " + text)
+    except tomllib.TOMLDecodeError:
+        return text
+    return parsed["v"] if list(parsed) == ["v"] else text
+
+
+def apply_into(raw: dict, overrides: Sequence[str], problems: Problems) -> dict:
+    """Apply overrides to a copy of ``raw``; a path that does not resolve is a problem."""
+    out = copy.deepcopy(raw)
+    for item in overrides:
+        path, sep, value_text = str(item).partition("=")
+        if not sep or not path.strip():
+            problems.add(f"--set {item}", "expected PATH=VALUE, e.g. --set seed.energy_J=0.01")
+            continue
+        try:
+            container, key, _ = walk(out, path.strip(), create=_CREATABLE)
+        except PathError as exc:
+            problems.add(f"--set {item}", f"the path does not resolve: {exc}")
+            continue
+        container[key] = _parse_value(value_text.strip())
+    return out
+
+
+def apply_overrides(raw: dict, overrides: Sequence[str], source_name: str) -> dict:
+    """Apply ``--set PATH=VALUE`` overrides to a copy of ``raw``.
+
+    Parameters
+    ----------
+    raw : dict
+        The config as read from TOML (not changed).
+    overrides : sequence of str
+        ``"PATH=VALUE"``; VALUE is read as a TOML value (``0.01``, ``true``, ``"rod"``, ``[1, 2]``),
+        or taken as a plain string when it is not one (``seed.shape=flat``).
+    source_name : str
+        The file name shown in the problem lines.
+
+    Returns
+    -------
+    dict
+        A new dict with the values set. A key new to an existing table is added; a path through a
+        [grid], [seed], [limits], [sweep], [medium.pump] or [medium.material] table that is not
+        there creates it.
+
+    Raises
+    ------
+    ConfigError
+        With one line per override whose path does not resolve.
+    """
+    problems = Problems(source_name)
+    out = apply_into(raw, overrides, problems)
+    if problems.lines:
+        raise ConfigError(problems.lines)
+    return out
+
+
+def _key_text(key: str) -> str:
+    """A TOML key: bare where possible, else quoted."""
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+
+
+def _is_aot(value: Any) -> bool:
+    """True for a non-empty list of tables (written as [[name]] sections)."""
+    return isinstance(value, list) and bool(value) and all(isinstance(v, dict) for v in value)
+
+
+def _dump_table(table: dict, name: list[str], header: str, out: list[str]) -> None:
+    """Append one table: its header, its plain values, then its sub-tables."""
+    scalars = {k: v for k, v in table.items() if not isinstance(v, dict) and not _is_aot(v)}
+    if header:
+        out.append(("\n" if out else "") + header + "\n")
+    if scalars:
+        out.append(tomli_w.dumps(scalars))
+    for k, v in table.items():
+        dotted = ".".join(_key_text(p) for p in name + [k])
+        if isinstance(v, dict):
+            _dump_table(v, name + [k], f"[{dotted}]", out)
+        elif _is_aot(v):
+            for item in v:
+                _dump_table(item, name + [k], f"[[{dotted}]]", out)
+
+
+def dump_toml(raw: dict) -> str:
+    """Write a config dict as TOML text (tables and arrays of tables under their own headers).
+
+    Parameters
+    ----------
+    raw : dict
+        A config as read from TOML (values: str, int, float, bool, dates, lists, dicts).
+
+    Returns
+    -------
+    str
+        TOML text that reads back to an equal dict.
+    """
+    out: list[str] = []
+    _dump_table(raw, [], "", out)
+    return "".join(out)

@@ -1,0 +1,344 @@
+"""Diagnostics of a layout of fibres: the summary.json dict (SPEC sections 4 and 6) and its warnings.
+
+Formulas (SI inside, units in the key names):
+
+- gain_dB = 10·log10(output/input) of the signal (cw: power; pulsed: pulse energy).
+- Noise figure (cw) of each fibre: NF = (1 + S_ASE/(hν))/G, S_ASE the forward spontaneous-emission
+  density at the signal (fibre.output_figures); of the layout by Friis' cascade, F = F1 + (F2 − 1)/G1 +
+  ..., a loss step counting with G = T and F = 1/T (H. T. Friis, Proc. IRE 32, 419 (1944), from memory —
+  verify; the same cascade holds for optical amplifiers, E. Desurvire's textbook).
+- Peak intensity and fluence on the fibre's axis: 2P/(πw²) and 2E/(πw²) for a Gaussian mode.
+- B-integral of the guided mode: B = (2π/λ)·n2·∫P/A_eff dz, A_eff = π·w² (G. P. Agrawal, Nonlinear
+  Fiber Optics); in a cw run this is the nonlinear phase of the signal.
+- Self-focusing: critical power P_cr ≈ 3.77·λ²/(8π·n0·n2) for a Gaussian beam (J. H. Marburger,
+  Prog. Quantum Electron. 4, 35 (1975), from memory — verify).
+- Stimulated Raman threshold: P_th ≈ 16·A_eff/(g_R·L_eff) (R. G. Smith, Appl. Opt. 11, 2489 (1972)),
+  with the effective length of an amplifier L_eff = ∫P dz / P_out (the length that, at the output power,
+  gives the same ∫P dz).
+- Stored energy of a fibre before a pulse (down to transparency): Σ E_sat,j·ln G_j over the slices and
+  rings where ln G_j > 0, E_sat,j = hν·A_j/(Γ_j·(σe + σa)).
+
+Warning thresholds marked "common practice" are fields of the config's [limits] table.
+"""
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from ampmodel.fibre import model as F
+from ampmodel.description import Config
+from ampmodel.pulsed.diagnostics import SAFETY_NOTE, scaled_damage_fluence
+from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
+from ampmodel.kernels.diffraction import critical_power_W
+
+J_CM2 = 1e-4
+W_CM2 = 1e-4
+
+
+def raman_threshold_W(effective_area_m2: float, raman_gain_m_W: float, effective_length_m: float) -> float:
+    """Stimulated-Raman threshold power 16·A_eff/(g_R·L_eff) (R. G. Smith, Appl. Opt. 11, 2489 (1972))."""
+    return 16 * effective_area_m2 / (raman_gain_m_W * effective_length_m)
+
+
+def _integral(values: np.ndarray, z: np.ndarray) -> float:
+    """∫ values dz by the trapezoid rule."""
+    return float(np.sum(0.5 * (values[1:] + values[:-1]) * np.diff(z)))
+
+
+def _fibre_warnings(config: Config, st: dict, warnings: list[str]) -> None:
+    model = st["model"]
+    medium = config.medium(model.name)
+    v = model.v_number
+    if v is not None and v > SINGLE_MODE_CUTOFF_V:
+        warnings.append(f"medium {model.name}: V = {v:.2f} at the signal: the core guides more than the fundamental "
+                        f"mode; the model assumes the signal in the fundamental mode alone (a Gaussian of "
+                        f"Marcuse's width, fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g})")
+    elif v is not None and v < MARCUSE_VALID_V[0]:
+        warnings.append(f"medium {model.name}: V = {v:.2f} at the signal: weakly guided; Marcuse's mode-field "
+                        f"formula is fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g}")
+    if not medium.fibre.ase and st["gain_free_dB"] > config.limits.gain_without_ase_dB:
+        warnings.append(f"medium {model.name}: ase = false, and the small-signal gain before the signal is "
+                        f"{st['gain_free_dB']:.1f} dB (above {config.limits.gain_without_ase_dB:g} dB, common "
+                        f"practice): ASE would take much of the pump; set ase = true")
+    ase = st["ase_forward_W"] + st["ase_backward_W"]
+    comparable = config.mode == "cw" or config.seed.repetition_rate_Hz is not None   # mean powers on both sides
+    if comparable and ase > config.limits.ase_fraction * max(st["signal_out"], 1e-300):
+        warnings.append(f"medium {model.name}: ASE leaving the fibre ({ase:.3g} W, both ends) is "
+                        f"{100 * ase / max(st['signal_out'], 1e-300):.0f} % of the signal's output (above "
+                        f"{100 * config.limits.ase_fraction:g} %)")
+    mat = medium.material
+    peak = st["peak_power_W"]
+    if mat.n2_m2_W > 0:
+        pcr = critical_power_W(model.wavelength_m[model.signal], mat.refractive_index, mat.n2_m2_W)
+        if peak > pcr:
+            warnings.append(f"medium {model.name}: peak power {peak:.3g} W above the self-focusing critical power "
+                            f"{pcr:.3g} W (Marburger): the fibre's core would collapse the beam")
+    if mat.raman_gain_m_W:
+        pth = raman_threshold_W(effective_area(model.mode_radius_m), mat.raman_gain_m_W, st["effective_length_m"])
+        if peak > pth:
+            warnings.append(f"medium {model.name}: peak power {peak:.3g} W above the stimulated-Raman threshold "
+                            f"{pth:.3g} W (16·A_eff/(g_R·L_eff), L_eff = {st['effective_length_m']:.3g} m, R. G. Smith "
+                            f"1972): power would move to the Stokes wavelength")
+
+
+def _stage_figures(st: dict, cw: bool) -> dict[str, Any]:
+    """The figures of one fibre stage (both modes), SI."""
+    model = st["model"]
+    s = model.signal
+    z = np.linspace(0.0, model.length_m, model.slices + 1)
+    w2 = math.pi * model.mode_radius_m ** 2
+    if cw:
+        sol = st["solution"]
+        fig = F.output_figures(sol)
+        profile = sol.power_W[s]
+        st.update(signal_out=fig["signal_out_W"], ase_forward_W=fig["ase_forward_W"],
+                  ase_backward_W=fig["ase_backward_W"], peak_power_W=float(profile.max()),
+                  gain_free_dB=model.signal_gain_dB(st["pump_only"].n2))
+        st["fig"] = fig
+    else:
+        train = st["train"]
+        profile = train.pulse.energy_z_J
+        peak_power = float((train.pulse.energy_out_J / train.dt_s).max())
+        st.update(signal_out=float(train.pulse.energy_out_J.sum()) * (train.repetition_rate_Hz or 1.0),
+                  ase_forward_W=train.between["ase_forward_W"], ase_backward_W=train.between["ase_backward_W"],
+                  peak_power_W=peak_power,
+                  gain_free_dB=model.signal_gain_dB(train.n2_before))
+    st["effective_length_m"] = _integral(profile, z) / profile[-1] if profile[-1] > 0 else model.length_m
+    st["peak_axis_per_m2"] = 2.0 / w2
+    return st
+
+
+def _stored_J(model: F.FibreModel, n2: np.ndarray) -> float:
+    s, h = model.signal, model.slice_length_m
+    ln_g = h * model.overlap[s][:, None] * ((model.sigma_e_m2[s] + model.sigma_a_m2[s]) * n2
+                                            - model.sigma_a_m2[s]) * model.doping_per_m3[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        esat = np.where(model.overlap[s] > 0, model.saturation_energy_J(s), 0.0)
+    return float(np.sum(esat[:, None] * np.clip(ln_g, 0.0, None)))
+
+
+def _medium_entry(config: Config, st: dict, cw: bool) -> dict[str, Any]:
+    model = st["model"]
+    medium = config.medium(model.name)
+    s = model.signal
+    entry: dict[str, Any] = {
+        "name": model.name, "kind": "fibre", "material": medium.material.name, "length_m": model.length_m,
+        "rings": model.rings, "mode_field_diameter_um": 2e6 * model.mode_radius_m,
+        "signal_overlap": float(model.overlap[s].sum()),
+        "saturation_energy_J": model.modal_saturation_energy_J(s),
+        "small_signal_gain_dB": st["gain_free_dB"], "small_signal_gain_on_axis": 10 ** (st["gain_free_dB"] / 10),
+        "ase_forward_W": st["ase_forward_W"], "ase_backward_W": st["ase_backward_W"],
+        "peak_power_W": st["peak_power_W"], "effective_length_m": st["effective_length_m"],
+    }
+    if model.v_number is not None:
+        entry["v_number"] = model.v_number
+    pumps = [i for i in (model.pump_forward, model.pump_backward) if i is not None]
+    if pumps:
+        entry["pump_overlap"] = float(model.overlap[pumps[0]].sum())
+        entry["pump_power_W"] = float(model.launch_W[pumps].sum())
+    if cw:
+        fig, sol = st["fig"], st["solution"]
+        entry.update({"gain_dB": fig["gain_dB"], "noise_figure_dB": fig["noise_figure_dB"],
+                      "pump_power_out_W": fig["pump_out_W"], "absorbed_pump_power_W": fig["pump_absorbed_W"],
+                      "photon_balance_error": fig["photon_balance_error"], "solver": sol.method,
+                      "solver_iterations": sol.iterations, "solver_newton_steps": sol.newton_steps,
+                      "solver_change": sol.change, "solver_tolerance": sol.tolerance})
+    else:
+        train = st["train"]
+        e_in = float(np.sum(st["input"]))
+        e_out = float(train.pulse.energy_out_J.sum())
+        entry.update({"gain_dB": 10 * math.log10(e_out / e_in) if e_in > 0 and e_out > 0 else float("-inf"),
+                      "stored_energy_J": _stored_J(model, train.n2_before),
+                      "stored_energy_final_J": _stored_J(model, train.n2_after),
+                      "extracted_energy_J": train.pulse.extracted_J,
+                      "pump_power_out_W": train.between["pump_out_W"],
+                      "absorbed_pump_power_W": train.between["pump_absorbed_W"],
+                      "b_integral_rad": float(train.pulse.b_integral_rad.max()),
+                      "periods": train.periods, "period_residual": train.residual})
+    return entry
+
+
+def _fwhm_s(power: np.ndarray, dt: float) -> float:
+    """Full width at half maximum of a sampled pulse (linear interpolation between slices)."""
+    if power.size < 3 or power.max() <= 0:
+        return power.size * dt
+    half = 0.5 * power.max()
+    above = np.flatnonzero(power >= half)
+    i, j = above[0], above[-1]
+    left = i - (power[i] - half) / (power[i] - power[i - 1]) if i > 0 else 0.0
+    right = j + (power[j] - half) / (power[j] - power[j + 1]) if j < power.size - 1 else power.size - 1.0
+    return float((right - left) * dt)
+
+
+def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict[str, Any]:
+    """The summary.json dict of a layout of fibres (cw or pulsed)."""
+    cw = config.mode == "cw"
+    seed, limits = config.seed, config.limits
+    warnings: list[str] = []
+    steps, media, chain = [], [], []          # chain: (gain, noise factor) of each element, for Friis
+    peak_axis = peak_fluence = lost = extracted = 0.0
+    value = float(seed.power_W) if cw else float(seed.energy_J)      # the signal entering the next step
+    first_fibre = last_fibre = None
+    # on-axis peak per unit power or energy, 2/(πw²), of the mode the beam is in (before a fibre: the first's)
+    axis = next(2.0 / (math.pi * st["model"].mode_radius_m ** 2) for st in stages if "model" in st)
+    peak_in = 0.0 if cw else float(np.max(stages[0]["input"])) / next(st["train"].dt_s for st in stages
+                                                                        if "train" in st)
+    for st in stages:
+        step = st["step"]
+        if st.get("loss"):
+            out = value * step.transmission
+            entry = {"index": step.index, "kind": "loss", "medium": None, "gain": step.transmission,
+                     "b_integral_rad": 0.0}
+            if cw:
+                entry.update(power_in_W=value, power_out_W=out, passive_loss_W=value - out,
+                             peak_intensity_W_cm2=value * axis * W_CM2)
+            else:
+                entry.update(energy_in_J=value, energy_out_J=out, peak_fluence_J_cm2=value * axis * J_CM2,
+                             peak_intensity_W_cm2=peak_in * axis * W_CM2, clipped_energy_J=0.0,
+                             passive_loss_J=value - out)
+                peak_in *= step.transmission
+            steps.append(entry)
+            _optic_damage(config, step, value * axis, peak_in * axis, warnings)
+            chain.append((step.transmission, 1.0 / step.transmission))
+            lost += value - out
+            value = out
+            continue
+        _stage_figures(st, cw)
+        model = st["model"]
+        s = model.signal
+        first_fibre = first_fibre or st
+        last_fibre = st
+        media.append(_medium_entry(config, st, cw))
+        _fibre_warnings(config, st, warnings)
+        peak_axis = max(peak_axis, st["peak_power_W"] * st["peak_axis_per_m2"])
+        if cw:
+            fig, sol = st["fig"], st["solution"]
+            z = np.linspace(0.0, model.length_m, model.slices + 1)
+            b = (2 * math.pi / model.wavelength_m[s] * config.medium(model.name).material.n2_m2_W
+                 * _integral(sol.power_W[s], z) / effective_area(model.mode_radius_m))
+            chain.append((fig["gain"], fig["noise_figure"]))
+            # the signal's power balance, slice by slice: P_out − P_in = h·Σ (g − l)·P̄
+            passive = float(model.slice_length_m * np.sum(model.loss_per_m[s] * sol.mean_power_W[s]))
+            extracted += float(model.slice_length_m * np.sum((model.growth(sol.n2, [s])[0] + model.loss_per_m[s])
+                                                             * sol.mean_power_W[s]))
+            lost += passive
+            out = fig["signal_out_W"]
+            damage = config.medium(model.name).material.damage_intensity_W_m2
+            peak_i = st["peak_power_W"] * st["peak_axis_per_m2"]
+            if damage and peak_i > limits.damage_fraction * damage:
+                warnings.append(f"step {step.index} (pass {model.name}): peak intensity on the fibre's axis "
+                                f"{peak_i * W_CM2:.3g} W/cm² is above {100 * limits.damage_fraction:g} % of the cw "
+                                f"damage intensity of {config.medium(model.name).material.name} "
+                                f"({damage * W_CM2:.3g} W/cm², common practice)")
+            steps.append({"index": step.index, "kind": "pass", "medium": model.name, "power_in_W": value,
+                          "power_out_W": out, "gain": fig["gain"], "gain_dB": fig["gain_dB"],
+                          "peak_intensity_W_cm2": st["peak_power_W"] * st["peak_axis_per_m2"] * W_CM2,
+                          "b_integral_rad": b, "passive_loss_W": passive})
+        else:
+            train = st["train"]
+            out = float(train.pulse.energy_out_J.sum())
+            b = float(train.pulse.b_integral_rad.max())
+            peak_f = float(np.max(train.pulse.energy_z_J)) * st["peak_axis_per_m2"]
+            peak_fluence = max(peak_fluence, peak_f)
+            lost += train.pulse.loss_J
+            extracted += train.pulse.extracted_J
+            steps.append({"index": step.index, "kind": "pass", "medium": model.name, "energy_in_J": value,
+                          "energy_out_J": out, "gain": out / value if value > 0 else 0.0,
+                          "gain_dB": 10 * math.log10(out / value) if value > 0 and out > 0 else float("-inf"),
+                          "peak_fluence_J_cm2": peak_f * J_CM2,
+                          "peak_intensity_W_cm2": st["peak_power_W"] * st["peak_axis_per_m2"] * W_CM2,
+                          "b_integral_rad": b, "clipped_energy_J": 0.0, "passive_loss_J": train.pulse.loss_J})
+            _pulse_warnings(config, step, model, peak_f, b, warnings)
+            peak_in = st["peak_power_W"]
+        axis = st["peak_axis_per_m2"]
+        value = out
+    fibres = [st for st in stages if "model" in st]
+    summary: dict[str, Any] = {"mode": config.mode, "title": config.title, "layout": "fibre"}
+    pump_in = sum(m.get("pump_power_W", 0.0) for m in media)
+    common = {"pump_power_W": pump_in,
+              "pump_power_out_W": sum(m.get("pump_power_out_W", 0.0) for m in media),
+              "absorbed_pump_power_W": sum(m.get("absorbed_pump_power_W", 0.0) for m in media),
+              "ase_forward_W": last_fibre["ase_forward_W"] if last_fibre else 0.0,
+              "ase_backward_W": first_fibre["ase_backward_W"] if first_fibre else 0.0,
+              "peak_intensity_W_cm2": peak_axis * W_CM2}
+    if cw:
+        p_in = float(seed.power_W)
+        noise = chain[0][1] + sum((f - 1) / np.prod([g for g, _ in chain[:i]]) for i, (_, f) in enumerate(chain)
+                                  if i > 0)
+        summary.update({
+            "input_power_W": p_in, "output_power_W": value, "gain": value / p_in,
+            "gain_dB": 10 * math.log10(value / p_in) if value > 0 else float("-inf"), **common,
+            "b_integral_rad": sum(st_["b_integral_rad"] for st_ in steps),
+            "noise_figure_dB": 10 * math.log10(noise),
+            "optical_efficiency": (value - p_in) / pump_in if pump_in > 0 else 0.0,
+            "power_balance_error": (p_in + extracted - value - lost) / value,
+            "photon_balance_error": max((abs(m["photon_balance_error"]) for m in media), default=0.0),
+            "cw_iterations": sum(st["solution"].iterations for st in fibres),
+            "cw_residual": max((st["solution"].change for st in fibres), default=0.0)})
+    else:
+        e_in = float(seed.energy_J)
+        rate = seed.repetition_rate_Hz
+        last = fibres[-1]["train"]
+        out_power = last.pulse.energy_out_J / last.dt_s * math.prod(
+            st["step"].transmission for st in stages[stages.index(fibres[-1]) + 1:])
+        b_total = float(np.max(sum(st["train"].pulse.b_integral_rad for st in fibres)))
+        if b_total > limits.b_integral_total_rad:
+            warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "
+                            f"rad in total (common practice)")
+        stored = sum(m["stored_energy_J"] for m in media)
+        summary.update({
+            "input_energy_J": e_in, "output_energy_J": value, "gain": value / e_in,
+            "gain_dB": 10 * math.log10(value / e_in) if value > 0 else float("-inf"),
+            "stored_energy_J": stored, "stored_energy_final_J": sum(m["stored_energy_final_J"] for m in media),
+            "extracted_energy_J": extracted,
+            "extraction_efficiency": (value - e_in) / stored if stored > 0 else 0.0,
+            "lost_energy_J": lost, "peak_fluence_J_cm2": peak_fluence * J_CM2, **common, "b_integral_rad": b_total,
+            "energy_balance_error": (e_in + extracted - value - lost) / value,
+            "pulse_duration_ns": seed.duration_s * 1e9, "time_slice_ns": last.dt_s * 1e9,
+            "repetition_rate_Hz": rate,
+            "input_power_W": e_in * rate if rate else None, "output_power_W": value * rate if rate else None,
+            "output_peak_power_W": float(out_power.max()),
+            "output_pulse_duration_ns": _fwhm_s(out_power, last.dt_s) * 1e9})
+    summary.update({"warnings": warnings, "steps": steps, "media": media, "safety": SAFETY_NOTE})
+    return summary
+
+
+def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float, warnings: list[str]) -> None:
+    """A loss step's optic against its damage data: the on-axis fluence (pulsed, scaled to the pulse
+    length) or intensity (cw) of the beam reaching it."""
+    limits = config.limits
+    if config.mode == "cw":
+        damage = step.damage_intensity_W_m2
+        if damage and axis_value > limits.damage_fraction * damage:
+            warnings.append(f"step {step.index} (loss): peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
+                            f"{100 * limits.damage_fraction:g} % of the cw damage intensity of this optic "
+                            f"({damage * W_CM2:.3g} W/cm², common practice)")
+        return
+    if step.damage_fluence_J_m2:
+        scaled = scaled_damage_fluence(step.damage_fluence_J_m2, step.damage_pulse_s, config.seed.duration_s,
+                                       limits.damage_scaling_exponent)
+        if axis_value > limits.damage_fraction * scaled:
+            warnings.append(f"step {step.index} (loss): peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
+                            f"is above {100 * limits.damage_fraction:g} % of the damage fluence of this optic "
+                            f"(estimated {scaled * J_CM2:.3g} J/cm² at {config.seed.duration_s * 1e9:g} ns, "
+                            f"common practice)")
+
+
+def _pulse_warnings(config: Config, step, model: F.FibreModel, peak_fluence_J_m2: float, b_rad: float,
+                    warnings: list[str]) -> None:
+    limits, seed = config.limits, config.seed
+    mat = config.medium(model.name).material
+    if mat.damage_fluence_J_m2:
+        scaled = scaled_damage_fluence(mat.damage_fluence_J_m2, mat.damage_pulse_s, seed.duration_s,
+                                       limits.damage_scaling_exponent)
+        if peak_fluence_J_m2 > limits.damage_fraction * scaled:
+            warnings.append(f"step {step.index} (pass {model.name}): peak fluence on the fibre's axis "
+                            f"{peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above {100 * limits.damage_fraction:g} % of "
+                            f"the damage fluence of {mat.name} (estimated {scaled * J_CM2:.3g} J/cm² at "
+                            f"{seed.duration_s * 1e9:g} ns, common practice); the output facet is most at risk")
+    if b_rad > limits.b_integral_step_rad:
+        warnings.append(f"step {step.index} (pass {model.name}): B-integral {b_rad:.2f} rad, above "
+                        f"{limits.b_integral_step_rad:g} rad (common practice): self-phase modulation broadens the "
+                        f"spectrum; a larger mode area or a longer (stretched) pulse lowers it")

@@ -1,0 +1,390 @@
+"""Figures of a sweep and of a tolerance run (matplotlib, Agg canvases, no pyplot, no global state).
+
+Sweep: one PNG per summary scalar that changes over the sweep (``plots/<key>.png``), against the
+swept value with the most values; a second swept path gives a family of curves and, for a grid of
+two paths, a colour map beside it; further paths give one curve per combination. ``overview.png``
+puts output energy, extraction efficiency, peak fluence and B-integral side by side. Points whose
+run gave warnings (damage fluence, B-integral, clipping, ...) are ringed.
+
+Tolerance run: one histogram per summary scalar that varies (``plots/hist_<key>.png``) with its 5,
+50 and 95 % percentiles marked.
+
+Axes carry units from the key suffixes (``_J``, ``_J_cm2``, ``_mm``, ...); energies, powers and
+intensities are shown with the SI prefix that suits their size (mJ, MW/cm², ...), an axis spanning
+more than a factor of 20 (swept values) or 100 (results) of positive values is logarithmic.
+"""
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+
+from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
+from ampmodel.units import unit_of
+
+CMAP_LINES = "viridis"
+WARN_COLOUR = "#d62728"
+# Numerical checks and counts of the solver: in the table, not plotted.
+NOT_PLOTTED = ("energy_balance_error", "power_balance_error", "photon_balance_error", "cw_residual",
+               "cw_iterations", "cw_damping_final", "warning_count")
+# The overview's four panels: the first figure of each group that the summaries hold (pulsed, cw).
+OVERVIEW = (("output_energy_J", "output_power_W"), ("extraction_efficiency", "optical_efficiency"),
+            ("peak_fluence_J_cm2", "peak_intensity_W_cm2"), ("b_integral_rad",))
+
+LABELS = {
+    "input_energy_J": "input energy (inside the grid)", "output_energy_J": "output energy",
+    "gain": "gain (output / input)", "stored_energy_J": "stored energy before the pulse",
+    "stored_energy_final_J": "stored energy after the pulse", "extracted_energy_J": "extracted energy",
+    "extraction_efficiency": "extraction efficiency", "lost_energy_J": "energy lost (clipping, passive loss)",
+    "peak_fluence_J_cm2": "peak fluence", "peak_intensity_W_cm2": "peak intensity",
+    "b_integral_rad": "B-integral", "pulse_duration_ns": "seed pulse duration", "time_slice_ns": "time slice",
+    "input_power_W": "input power (inside the grid)", "output_power_W": "output power",
+    "extracted_power_W": "extracted power", "lost_power_W": "power lost (clipping, passive loss)",
+    "absorbed_pump_power_W": "absorbed pump power", "pump_power_W": "pump power",
+    "optical_efficiency": "optical efficiency (extracted / pump)",
+    "small_signal_gain": "small-signal gain G0", "loss_per_cm": "passive loss",
+}
+_PRETTY_UNITS = {"J/cm^2": "J/cm²", "W/cm^2": "W/cm²", "cm^2": "cm²", "m^2/W": "m²/W", "1/m^3": "1/m³",
+                 "um": "µm", "us": "µs"}
+_PREFIXES = [(1e-12, "p"), (1e-9, "n"), (1e-6, "µ"), (1e-3, "m"), (1.0, ""), (1e3, "k"), (1e6, "M"),
+             (1e9, "G"), (1e12, "T")]
+_PREFIXED = ("J", "W", "W/cm^2")
+
+
+# ----------------------------------------------------------------------------------------------
+# Names, units and scales
+# ----------------------------------------------------------------------------------------------
+
+def _human(key: str) -> str:
+    """"small_signal_gain" -> "small-signal gain G0"; a key's words without its unit suffix."""
+    if key in LABELS:
+        return LABELS[key]
+    from ampmodel.units import split_unit
+    stem = split_unit(key)[0]
+    return LABELS.get(stem, stem.replace("_", " "))
+
+
+def path_label(path: str) -> str:
+    """Words for a value path: "seed.energy_J" -> "seed energy", "medium.rod.length_mm" -> "rod: length"."""
+    parts = path.split(".")
+    leaf = _human(parts[-1])
+    if parts[0] == "medium" and len(parts) >= 3:
+        return f"{parts[1]}: " + (f"{parts[2]} " if len(parts) > 3 else "") + leaf
+    if parts[0] == "step" and len(parts) >= 3:
+        return f"step {parts[1]}: {leaf}"
+    if len(parts) == 2:
+        return f"{parts[0]} {leaf}"
+    return path
+
+
+def scale_for(unit: str, values: Sequence[float]) -> tuple[float, str]:
+    """(divisor, shown unit) for ``values`` in ``unit``: J -> mJ etc.; "%" for a dimensionless fraction."""
+    finite = [abs(v) for v in values if isinstance(v, (int, float)) and math.isfinite(v) and v != 0]
+    if unit in _PREFIXED and finite:
+        factor, prefix = unit_prefix(max(finite), _PREFIXES)
+        return factor, prefix + _PRETTY_UNITS.get(unit, unit)
+    return 1.0, _PRETTY_UNITS.get(unit, unit)
+
+
+def axis_label(words: str, unit: str) -> str:
+    return words if unit in ("1", "") else f"{words} ({unit})"
+
+
+def _numeric(values: Sequence[Any]) -> bool:
+    return all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values)
+
+
+def _log_axis(values: Sequence[float], ratio: float) -> bool:
+    v = np.asarray([x for x in values if math.isfinite(x)], dtype=float)
+    return v.size > 1 and bool(np.all(v > 0)) and v.max() / v.min() >= ratio
+
+
+def _text(value: Any) -> str:
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    return str(value)
+
+
+# ----------------------------------------------------------------------------------------------
+# Figures
+# ----------------------------------------------------------------------------------------------
+
+class _Axis:
+    """A swept path as an axis: its values (scaled), label, positions and ticks."""
+
+    def __init__(self, path: str, raw_values: Sequence[Any], ratio: float = 20.0):
+        self.path = path
+        distinct = list(dict.fromkeys(_text(v) if not _numeric([v]) else v for v in raw_values))
+        self.numeric = _numeric(distinct)
+        unit = unit_of(path.rsplit(".", 1)[-1])
+        if self.numeric:
+            self.factor, shown = scale_for(unit, distinct)
+            self.levels = sorted(distinct)
+            self.log = _log_axis(self.levels, ratio)
+        else:
+            self.factor, shown = 1.0, ""
+            self.levels = distinct
+            self.log = False
+        self.label = axis_label(path_label(path), shown)
+        self.unit = shown
+
+    def position(self, value: Any) -> float:
+        if self.numeric:
+            return float(value) / self.factor
+        return float(self.levels.index(_text(value)))
+
+    def legend(self, value: Any) -> str:
+        if self.numeric:
+            return f"{float(value) / self.factor:.4g}" + (f" {self.unit}" if self.unit not in ("", "1") else "")
+        return _text(value)
+
+    def edges(self) -> np.ndarray:
+        """Cell edges around the levels for a colour map: midpoints (geometric on a log axis)."""
+        c = np.array([self.position(v) for v in self.levels], dtype=float)
+        if c.size == 1:
+            return np.array([c[0] * 0.9, c[0] * 1.1]) if self.log else np.array([c[0] - 0.5, c[0] + 0.5])
+        if self.log:
+            lc = np.log(c)
+            mid = 0.5 * (lc[1:] + lc[:-1])
+            return np.exp(np.concatenate([[lc[0] - (mid[0] - lc[0])], mid, [lc[-1] + (lc[-1] - mid[-1])]]))
+        mid = 0.5 * (c[1:] + c[:-1])
+        return np.concatenate([[c[0] - (mid[0] - c[0])], mid, [c[-1] + (c[-1] - mid[-1])]])
+
+    def apply(self, ax, which: str = "x") -> None:
+        """Label, scale and ticks: at the swept values themselves when they are few (plain numbers)."""
+        from matplotlib import ticker
+        axis = ax.xaxis if which == "x" else ax.yaxis
+        axis.set_label_text(self.label)
+        if self.log:
+            (ax.set_xscale if which == "x" else ax.set_yscale)("log")
+        if not self.numeric:
+            axis.set_major_locator(ticker.FixedLocator(range(len(self.levels))))
+            axis.set_major_formatter(ticker.FixedFormatter([str(v) for v in self.levels]))
+        elif len(self.levels) <= 12:
+            spots = [self.position(v) for v in self.levels]
+            axis.set_major_locator(ticker.FixedLocator(spots))
+            axis.set_major_formatter(ticker.FixedFormatter([f"{v:.4g}" for v in spots]))
+            axis.set_minor_locator(ticker.NullLocator())
+        elif self.log:
+            axis.set_major_formatter(ticker.LogFormatter(labelOnlyBase=False))
+
+
+def _scalar_view(key: str, data: Sequence[float]) -> tuple[np.ndarray, str, float, str]:
+    """Values of a summary scalar as plotted, the axis label, the factor (plotted = value * factor)
+    and the unit shown ("1" or "" for a plain number)."""
+    unit = unit_of(key)
+    y = np.asarray(data, dtype=float)
+    if key in ("extraction_efficiency", "optical_efficiency"):
+        return 100 * y, f"{_human(key)} (%)", 100.0, "%"
+    factor, shown = scale_for(unit, y.tolist())
+    return y / factor, axis_label(_human(key), shown), 1.0 / factor, shown
+
+
+def _curves(ax, key: str, x_axis: _Axis, groups: list[tuple[str, list[int]]], values: list[dict],
+            y: np.ndarray, warned: np.ndarray) -> None:
+    """One line per group of point indices, ordered along x; points with warnings ringed."""
+    import matplotlib
+    cmap = matplotlib.colormaps[CMAP_LINES]
+    for g, (label, idx) in enumerate(groups):
+        colour = cmap(0.85 * g / max(1, len(groups) - 1)) if len(groups) > 1 else SEED_COLOUR
+        idx = sorted(idx, key=lambda i: x_axis.position(values[i][x_axis.path]))
+        xs = [x_axis.position(values[i][x_axis.path]) for i in idx]
+        ax.plot(xs, y[idx], "-o" if x_axis.numeric else ":o", color=colour, ms=4.5, lw=1.6, label=label or None)
+        bad = [k for k, i in enumerate(idx) if warned[i]]
+        if bad:
+            ax.plot([xs[k] for k in bad], y[[idx[k] for k in bad]], "o", ms=11, mfc="none", mec=WARN_COLOUR,
+                    mew=1.4, label="_warn")
+    x_axis.apply(ax)
+    ax.grid(True, which="major", alpha=0.3)
+
+
+def _groups(paths: Sequence[str], values: list[dict], x_path: str, axes: dict[str, _Axis],
+            combine: str) -> list[tuple[str, list[int]]]:
+    """Points grouped by the values of the paths other than ``x_path`` (zip: one group)."""
+    others = [p for p in paths if p != x_path]
+    if combine == "zip" or not others:
+        return [("", list(range(len(values))))]
+    groups: dict[tuple, list[int]] = {}
+    for i, v in enumerate(values):
+        groups.setdefault(tuple(_text(v[p]) for p in others), []).append(i)
+    out = []
+    for i_list in groups.values():
+        v = values[i_list[0]]
+        label = ", ".join((f"{path_label(p)} " if len(others) > 1 else "") + axes[p].legend(v[p]) for p in others)
+        out.append((label, i_list))
+    return out
+
+
+def _map(fig, ax, key: str, x_axis: _Axis, y_axis: _Axis, values: list[dict], y: np.ndarray,
+         label: str) -> None:
+    """A colour map of ``y`` over the grid of two swept paths, cells annotated when few."""
+    xs = [x_axis.position(lv) for lv in x_axis.levels]
+    ys = [y_axis.position(lv) for lv in y_axis.levels]
+    z = np.full((len(ys), len(xs)), np.nan)
+    for i, v in enumerate(values):
+        cx = x_axis.levels.index(v[x_axis.path] if x_axis.numeric else _text(v[x_axis.path]))
+        cy = y_axis.levels.index(v[y_axis.path] if y_axis.numeric else _text(v[y_axis.path]))
+        z[cy, cx] = y[i]
+    mesh = ax.pcolormesh(x_axis.edges(), y_axis.edges(), z, shading="flat", cmap=MAP_CMAP)
+    fig.colorbar(mesh, ax=ax, label=label)
+    if z.size <= 48:
+        finite = z[np.isfinite(z)]
+        mid = 0.5 * (finite.min() + finite.max()) if finite.size else 0.0
+        for cy, yy in enumerate(ys):
+            for cx, xx in enumerate(xs):
+                if np.isfinite(z[cy, cx]):
+                    ax.text(xx, yy, f"{z[cy, cx]:.3g}", ha="center", va="center", fontsize=8,
+                            color="black" if z[cy, cx] > mid else "white")
+    x_axis.apply(ax, "x")
+    y_axis.apply(ax, "y")
+
+
+def _choose_x(paths: Sequence[str], axes: Mapping[str, _Axis], combine: str) -> str:
+    """The path on the x axis: the first (zip), else the one with the most distinct values."""
+    if combine == "zip":
+        return paths[0]
+    return max(paths, key=lambda p: (axes[p].numeric, len(axes[p].levels), -list(paths).index(p)))
+
+
+def _varying(key: str, summaries: Sequence[Mapping | None]) -> np.ndarray | None:
+    y = np.array([float(s[key]) if s and isinstance(s.get(key), (int, float)) else np.nan for s in summaries])
+    finite = y[np.isfinite(y)]
+    if finite.size == 0 or np.all(np.abs(finite - finite[0]) <= 1e-12 * max(1e-300, abs(finite[0]))):
+        return None
+    return y
+
+
+def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
+    """Write the figures of a sweep (see the module docstring); return their paths.
+
+    Parameters
+    ----------
+    result : sweeps.SweepResult (paths, values, summaries)
+    combine : "grid" or "zip"
+    folder : where the PNG files go (created)
+    """
+    from ampmodel.studies.store import scalar_keys
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    paths, values, summaries = list(result.paths), result.values, result.summaries
+    if not values:
+        return []
+    axes = {p: _Axis(p, [v[p] for v in values]) for p in paths}
+    x_path = _choose_x(paths, axes, combine)
+    others = [p for p in paths if p != x_path]
+    groups = _groups(paths, values, x_path, axes, combine)
+    warned = np.array([bool(s and s.get("warnings")) for s in summaries])
+    two_grid = combine == "grid" and len(paths) == 2
+    along = f" ({_listing(others)} varying with it)" if combine == "zip" and others else ""
+    written: list[Path] = []
+    views: dict[str, tuple[np.ndarray, str, float, str]] = {}
+    for key in scalar_keys(summaries):
+        if key in NOT_PLOTTED:
+            continue
+        y = _varying(key, summaries)
+        if y is None:
+            continue
+        views[key] = _scalar_view(key, y)
+        shown, label, _, _ = views[key]
+        fig = new_figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
+        ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
+        _curves(ax, key, axes[x_path], groups, values, shown, warned)
+        ax.set_ylabel(label)
+        if _log_axis(shown.tolist(), 100.0):
+            ax.set_yscale("log")
+        _legend(ax, groups, warned, axes, others, combine)
+        if two_grid:
+            _map(fig, fig.add_subplot(1, 2, 2), key, axes[x_path], axes[others[0]], values, shown, label)
+        fig.suptitle(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
+                     f"{along}", fontsize=10)
+        written.append(save_png(fig, folder / f"{key}.png"))
+    panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
+    if len(panels) >= 2:
+        rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
+        beside = 3.2 if len(groups) > 3 else 0.0       # a long legend goes beside the panels
+        fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
+        for n, key in enumerate(panels):
+            ax = fig.add_subplot(rows, cols, n + 1)
+            shown, label, _, _ = views[key]
+            _curves(ax, key, axes[x_path], groups, values, shown, warned)
+            ax.set_ylabel(label)
+            if _log_axis(shown.tolist(), 100.0):
+                ax.set_yscale("log")
+            if n == 0:
+                _legend(ax, groups, warned, axes, others, combine, figure=fig)
+        fig.suptitle(f"{result.title or result.out.name}: sweep overview{along}", fontsize=10)
+        written.append(save_png(fig, folder / "overview.png"))
+    return written
+
+
+def _listing(names: Sequence[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _legend(ax, groups, warned, axes, others, combine, figure=None) -> None:
+    """The curves' legend (and the warning ring): in the axes when short, beside them when long (for
+    the whole figure when ``figure`` is given)."""
+    from matplotlib.lines import Line2D
+    handles, labels = ax.get_legend_handles_labels()
+    keep = [(h, lb) for h, lb in zip(handles, labels) if lb != "_warn"]
+    if len(keep) > 12:
+        keep = keep[:11] + [(Line2D([], [], ls="none"), f"... {len(keep) - 11} more")]
+    if warned.any():
+        keep.append((Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=WARN_COLOUR, mew=1.4),
+                     "run with warnings"))
+    if not keep:
+        return
+    title = axis_label(path_label(others[0]), axes[others[0]].unit) if len(others) == 1 and combine == "grid" \
+        and len(groups) > 1 else None
+    args = ([h for h, _ in keep], [lb for _, lb in keep])
+    style = dict(title=title, fontsize=8, title_fontsize=8, frameon=False)
+    if len(keep) <= 4:
+        ax.legend(*args, **style)
+    elif figure is not None:
+        figure.legend(*args, loc="outside right upper", **style)
+    else:
+        ax.legend(*args, loc="upper left", bbox_to_anchor=(1.01, 1.0), **style)
+
+
+def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
+                    folder: Path, title: str = "") -> list[Path]:
+    """One histogram per varying summary scalar, with its 5, 50 and 95 % percentiles marked.
+
+    Parameters
+    ----------
+    summaries : one summary.json dict per sample (None for a sample that failed)
+    percentiles : key -> {"p5", "p50", "p95"} in the unit the key carries
+    folder : where ``hist_<key>.png`` go (created)
+    """
+    from ampmodel.studies.store import scalar_keys
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for key in scalar_keys(summaries):
+        if key in NOT_PLOTTED or key not in percentiles:
+            continue
+        y = _varying(key, summaries)
+        if y is None:
+            continue
+        shown, label, scale, shown_unit = _scalar_view(key, y)
+        data = shown[np.isfinite(shown)]
+        fig = new_figure(6.6, 4.2)
+        ax = fig.add_subplot(1, 1, 1)
+        bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
+        ax.hist(data, bins=bins, color=SEED_COLOUR, alpha=0.8, edgecolor="white", linewidth=0.5)
+        p = percentiles[key]
+        unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
+        for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
+            value = p[name] * scale
+            ax.axvline(value, color=WARN_COLOUR, ls=style, lw=1.4,
+                       label=f"{name[1:]} %: {value:.4g}{unit}")
+        ax.set_xlabel(label)
+        ax.set_ylabel(f"samples (of {data.size})")
+        ax.legend(fontsize=8, frameon=False, title="percentiles", title_fontsize=8)
+        ax.grid(True, alpha=0.3)
+        fig.suptitle(f"{_human(key)}: spread over {data.size} samples" + (f" ({title})" if title else ""),
+                     fontsize=10)
+        written.append(save_png(fig, folder / f"hist_{key}.png"))
+    return written

@@ -1,0 +1,139 @@
+"""Figures of time in a run: the energy round trip by round trip of a repeat step, and a pulse train
+from its start to its periodic steady state (drawn like the figures of ``plots.py``, whose helpers
+they share)."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+from matplotlib.ticker import MaxNLocator
+
+from ampmodel.plots.common import ENERGY_UNITS, LOSS_COLOUR, OUTPUT_COLOUR, SEED_COLOUR, finite_max, new_figure, save_png, unit_prefix
+from ampmodel.plots.run import _title_suffix
+from ampmodel.output.result import Result
+
+
+def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
+    """Energy after each round trip of a repeat step (log scale), the dump round trip marked, and the
+    gain of each round trip.
+
+    Parameters
+    ----------
+    result : the run (for the title)
+    entry : the repeat's entry in ``result.summary["steps"]`` (energies in J, times in ns)
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    energies = np.asarray(entry.get("energy_per_round_trip_J", []), dtype=float)
+    n = energies.size
+    k = np.arange(1, n + 1)
+    dump = int(entry.get("round_trip_count", n))
+    seed = float(entry.get("energy_in_J", 0.0))
+    rt_ns = float(entry.get("round_trip_ns", 0.0))
+    factor, unit = unit_prefix(max(finite_max(energies), seed), ENERGY_UNITS)
+    fig = new_figure(8.0, 7.0)
+    ax, ax_g = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
+    kept = k <= dump
+    positive = energies > 0
+    ax.plot(np.concatenate(([0], k)), np.concatenate(([seed], energies)) / factor, color="0.6", linewidth=1.0)
+    ax.scatter([0], [seed / factor], color=SEED_COLOUR, s=30, zorder=3, label="seed (injected)")
+    ax.scatter(k[kept & positive], energies[kept & positive] / factor, color=OUTPUT_COLOUR, s=22, zorder=3,
+               label="after the round trip")
+    if np.any(~kept):
+        ax.scatter(k[~kept], energies[~kept] / factor, facecolor="white", edgecolor=OUTPUT_COLOUR, s=26,
+                   zorder=3, label="run and discarded (the energy fell)")
+    if 1 <= dump <= n:
+        e_dump = energies[dump - 1]
+        ax.axvline(dump, color="0.3", linestyle=":", linewidth=1.0)
+        ax.annotate(f"dump after round trip {dump}\n{e_dump / factor:.3g} {unit}, "
+                    f"build-up {dump * rt_ns:.4g} ns", (dump, e_dump / factor), textcoords="offset points",
+                    xytext=(-8, -28), ha="right", fontsize="small")
+    values = np.concatenate(([seed], energies[positive]))
+    if values.size >= 2 and values[values > 0].size and values.max() / values[values > 0].min() > 30:
+        ax.set_yscale("log")
+    else:
+        ax.set_ylim(bottom=0)
+    ax.set_ylabel(f"energy ({unit})")
+    rule = "until the peak" if entry.get("until") == "peak" else f"count = {entry.get('count')}"
+    ax.set_title(f"Energy after each round trip of step {entry.get('index')} (repeat, {rule}; "
+                 f"round trip {rt_ns:.4g} ns)")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(loc="upper left", fontsize="small")
+    if rt_ns > 0:
+        top = ax.secondary_xaxis("top", functions=(lambda r: r * rt_ns, lambda t: t / rt_ns))
+        top.set_xlabel("time since injection (ns)")
+    before = np.concatenate(([seed], energies[:-1]))
+    gains = np.full(n, np.nan)
+    np.divide(energies, before, out=gains, where=before > 0)
+    ax_g.bar(k, gains, width=0.7, color=[OUTPUT_COLOUR if g >= 1 else LOSS_COLOUR for g in np.nan_to_num(gains)])
+    ax_g.axhline(1.0, color="0.3", linestyle=":", linewidth=1.0)
+    ax_g.set_ylabel("round-trip gain (out / in)")
+    ax_g.set_xlabel("round trip")
+    ax_g.set_ylim(bottom=0, top=max(1.2, finite_max(gains) * 1.1))
+    ax_g.grid(True, axis="y", alpha=0.3)
+    ax_g.set_xlim(-0.6, n + 0.6)
+    ax_g.xaxis.set_major_locator(MaxNLocator(integer=True))
+    fig.suptitle("Build-up of the pulse, round trip by round trip" + _title_suffix(result))
+    return save_png(fig, path)
+
+
+def plot_train(result: Result, path: Path) -> Path:
+    """A pulse train from its start: the energy of each pulse and the stored energy before it, with
+    the periodic steady state as dashed lines.
+
+    Parameters
+    ----------
+    result : the run; ``result.summary["train"]`` holds the figures (J, Hz, W)
+    path : PNG file to write
+
+    Returns
+    -------
+    Path : ``path``
+    """
+    train = (result.summary or {}).get("train", {})
+    energies = np.asarray(train.get("pulse_energies_J", []), dtype=float)
+    stored = np.asarray(train.get("stored_energy_before_each_pulse_J", []), dtype=float)
+    k = np.arange(1, energies.size + 1)
+    steady_e = float(train.get("pulse_energy_J", np.nan))
+    steady_s = float(train.get("stored_energy_before_pulse_J", np.nan))
+    fig = new_figure(8.0, 7.0)
+    ax_e, ax_s = fig.subplots(2, 1, sharex=True)
+    ef, eu = unit_prefix(max(finite_max(energies), steady_e if np.isfinite(steady_e) else 0.0), ENERGY_UNITS)
+    kw = dict(marker="o", markersize=4) if k.size <= 60 else {}
+    ax_e.plot(k, energies / ef, color=OUTPUT_COLOUR, label="output pulse energy", **kw)
+    ax_e.axhline(steady_e / ef, color="0.3", linestyle="--", linewidth=1.0,
+                 label=f"steady state {steady_e / ef:.4g} {eu}, {train.get('average_power_W', 0):.3g} W average")
+    ax_e.set_ylabel(f"pulse energy ({eu})")
+    settled = train.get("pulses_to_steady_state")
+    est = " (estimated)" if train.get("pulses_to_steady_state_estimated") else ""
+    cycle = train.get("cycle_pulse_energies_J") or []
+    if settled is not None:
+        where = (f"within {train.get('tolerance', 0):g} of the steady state after {settled} "
+                 f"pulse{'s' if settled != 1 else ''}{est}")
+    elif cycle:
+        where = f"not settling: a cycle of {len(cycle)} pulses (the steady state is unstable)"
+    else:
+        where = "not settled to the steady state"
+    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {where}")
+    ax_e.grid(True, alpha=0.3)
+    ax_e.legend(loc="best", fontsize="small")
+    sf, su = unit_prefix(max(finite_max(stored), steady_s if np.isfinite(steady_s) else 0.0), ENERGY_UNITS)
+    ax_s.plot(k, stored / sf, color=SEED_COLOUR, label="stored energy before the pulse", **kw)
+    ax_s.axhline(steady_s / sf, color="0.3", linestyle="--", linewidth=1.0,
+                 label=f"steady state {steady_s / sf:.4g} {su}")
+    ax_s.set_ylabel(f"stored energy ({su})")
+    ax_s.set_xlabel("pulse number from the start of the train")
+    ax_s.set_title("Extractable stored energy before each pulse (pumped without a seed before pulse 1)")
+    ax_s.grid(True, alpha=0.3)
+    ax_s.legend(loc="best", fontsize="small")
+    for ax in (ax_e, ax_s):
+        lo, hi = ax.get_ylim()
+        ax.set_ylim(min(lo, 0.0) if lo <= 0 else lo, hi)
+    ax_s.xaxis.set_major_locator(MaxNLocator(integer=True))
+    if k.size:
+        ax_s.set_xlim(0.5, k.size + 0.5)
+    fig.suptitle("Pulse train from its start to the periodic steady state" + _title_suffix(result))
+    return save_png(fig, path)

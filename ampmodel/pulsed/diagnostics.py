@@ -1,0 +1,309 @@
+"""Diagnostics of a pulsed run: energies, extraction, peaks, B-integral, energy balance, warnings.
+
+The summary dict follows SPEC section 4 (summary.json); its keys carry their units.
+
+Warning thresholds are common practice (each can be changed in the config's [limits] table):
+peak fluence above half the damage fluence scaled to the pulse length by (tau/tau_ref)^0.5; B-integral
+above 2 rad in one step or 3 rad over the layout; more than 1 % of the energy clipped; fewer than 8
+pixels across the beam; a transverse gain-length product g0·D above 3 (parasitic oscillation).
+"""
+from __future__ import annotations
+
+from typing import Any, Mapping
+
+import numpy as np
+
+from ampmodel.media import gain_maps
+from ampmodel.description import Config, Step
+from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
+from ampmodel.pulsed.passes import BeamState, StepOutcome
+from ampmodel.output.result import MediumRecord
+
+SAFETY_NOTE = ("Laser safety: beams at these energies are Class 4 hazards to eyes and skin; damage "
+               "thresholds here are estimates. Follow local regulations, the laser-safety standards "
+               "and your laser safety officer.")
+
+J_CM2 = 1e-4   # J/m² -> J/cm²
+W_CM2 = 1e-4   # W/m² -> W/cm²
+
+
+def scaled_damage_fluence(damage_J_m2: float, quoted_pulse_s: float | None, pulse_s: float,
+                          exponent: float) -> float:
+    """Damage fluence scaled from the quoted pulse length: F·(tau/tau_ref)^exponent (common practice)."""
+    if not quoted_pulse_s:
+        return damage_J_m2
+    return damage_J_m2 * (pulse_s / quoted_pulse_s) ** exponent
+
+
+def step_label(config: Config, index: int, inner: int | None = None) -> str:
+    """``step 3 (pass rod, reverse)``, ``step 0, round-trip step 2 (loss)``: how warnings name a step
+    (``inner``: a step inside the repeat ``index``)."""
+    step = config.steps[index]
+    label = f"step {index} ({step.kind}"
+    if inner is not None:
+        step = step.steps[inner]
+        label = f"step {index}, round-trip step {inner} ({step.kind}"
+    if step.kind == "pass":
+        label += f" {step.medium}" + (", reverse" if step.reverse else "")
+    return label + ")"
+
+
+# What a clipping step does, in the clipping warning.
+_CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
+               "pass": "the clear aperture clips"}
+
+
+def transverse_gain_warnings(name: str, gain_per_m: np.ndarray, diameter_m: float, limits) -> list[str]:
+    """A warning when the transverse gain-length product g0·D of a medium is above the limit (the
+    risk of parasitic oscillation across the rod; common practice)."""
+    g_peak = float(np.max(gain_per_m)) if np.size(gain_per_m) else 0.0
+    if g_peak * diameter_m > limits.transverse_gain_length:
+        return [f"medium {name}: transverse gain-length product g0·D = {g_peak * diameter_m:.2g} "
+                f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
+                f"oscillation; consider edge cladding or a lower gain"]
+    return []
+
+
+def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, width_m: float, limits) -> list[str]:
+    """The grid's two warnings about the seed: too few pixels across its diameter, and a seed map
+    (fluence or intensity, (Ny, Nx)) with more than 1e-3 of its peak at the window's edge."""
+    warnings = []
+    pixels = diameter_m / dx_m
+    if pixels < limits.pixels_across_beam:
+        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
+                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
+    edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
+    if edge > 1e-3 * seed_map.max():
+        warnings.append(f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm window "
+                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+    return warnings
+
+
+def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
+    """A step's summary entry: SPEC section 4's keys and more; a repeat adds its round trips and the
+    entries of its steps in the dump round trip."""
+    entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
+             "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
+             "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
+             "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
+             "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
+             "b_integral_rad": oc.b_integral_step_rad,
+             "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
+             "extracted_energy_J": oc.extracted_J, "delay_ns": step.delay_s * 1e9}
+    if config.grid.diffraction:
+        entry["edge_absorbed_energy_J"] = oc.extras.get("edge_absorbed_J", 0.0)
+    entry.update(oc.extras.get("beam", {}))
+    if "peak_power_W" in oc.extras:
+        entry["peak_power_W"] = oc.extras["peak_power_W"]
+    if step.kind == "pass":
+        entry["reverse"] = step.reverse
+    if step.kind == "repeat":
+        x = oc.extras
+        energies = x["round_trip_energies_J"]
+        round_trip_s = x["round_trip_s"]
+        dump = x["dump_round_trip"]
+        before = [oc.energy_in_J] + list(energies[:-1])
+        round_trips = [{"round_trip": k, "energy_J": e, "time_ns": k * round_trip_s * 1e9,
+                        "gain": e / b if b > 0 else 0.0, "kept": k <= dump, "dumped": k == dump}
+                       for k, (e, b) in enumerate(zip(energies, before), start=1)]
+        entry.update({
+            "round_trip_count": dump,
+            "until": step.until, "count": step.count,
+            "round_trip_ns": round_trip_s * 1e9,
+            "build_up_time_ns": dump * round_trip_s * 1e9,
+            "energy_per_round_trip_J": list(energies),
+            "round_trips": round_trips,
+            "steps": [_step_entry(config, s, o) for s, o in zip(step.steps, x["inner"])],
+        })
+        if step.until is not None:
+            entry["peak_found"] = x["peak_found"]
+            entry["max_count"] = step.max_count
+    return entry
+
+
+def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> list[str]:
+    """Clipping, window-edge, B-integral and damage warnings of one step (a repeat's own steps are
+    checked one by one, not the repeat as a whole)."""
+    limits = config.limits
+    pulse_s = config.seed.duration_s
+    warnings = [f"{label}: {text}" for text in oc.extras.get("warnings", ())]
+    edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
+    if step.kind != "repeat" and oc.energy_in_J > 0:
+        if oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
+            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
+            warnings.append(f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
+                            f"(more than {100 * limits.clipped_fraction:g} %)")
+        if edge_lost > limits.clipped_fraction * oc.energy_in_J:
+            warnings.append(f"{label}: the absorbing window edge takes {100 * edge_lost / oc.energy_in_J:.1f} % of "
+                            f"the energy (more than {100 * limits.clipped_fraction:g} %); widen grid.width_mm")
+    if step.kind != "repeat" and oc.b_integral_step_rad > limits.b_integral_step_rad:
+        warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
+                        f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
+                        f"beam break-up risk")
+    damage, quoted, what = None, None, ""
+    if step.kind == "pass":
+        mat = config.medium(step.medium).material
+        damage, quoted, what = mat.damage_fluence_J_m2, mat.damage_pulse_s, mat.name
+    elif step.damage_fluence_J_m2:
+        damage, quoted, what = step.damage_fluence_J_m2, step.damage_pulse_s, "this optic"
+    if damage:
+        scaled = scaled_damage_fluence(damage, quoted, pulse_s, limits.damage_scaling_exponent)
+        if oc.peak_fluence_J_m2 > limits.damage_fraction * scaled:
+            quoted_txt = f" quoted at {quoted * 1e9:g} ns" if quoted else ""
+            warnings.append(
+                f"{label}: peak fluence {oc.peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above "
+                f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
+                f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
+                f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+    return warnings
+
+
+def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: list[StepOutcome],
+              media: Mapping[str, MediumRecord], maps: Mapping[str, gain_maps.GainMap],
+              seed_beam: Mapping[str, float] | None = None,
+              extra_warnings: list[str] | None = None) -> dict[str, Any]:
+    """Build the summary.json dict of a pulsed run.
+
+    ``beam`` is the final beam (fluence path ``layout.BeamState`` or field path ``optics.FieldBeam``);
+    ``seed_beam`` the seed's beam figures; ``extra_warnings`` are added as they are (grid checks).
+    """
+    limits, seed = config.limits, config.seed
+    pixel_area = beam.pixel_area_m2
+    dx = float(beam.x_m[1] - beam.x_m[0])
+    e_in = float(seed_map.sum() * pixel_area)
+    e_out = beam.energy_J()
+    warnings: list[str] = []
+
+    media_summary = []
+    stored_before = stored_after = 0.0
+    for m in config.media:
+        rec = media[m.name]
+        voxel = rec.slice_length_m * pixel_area
+        s0 = gain_maps.stored_energy_J(rec.gain_initial_per_m, rec.saturation_fluence_J_m2, voxel)
+        s1 = gain_maps.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
+        # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
+        ext = rec.saturation_fluence_J_m2 * voxel * sum(         # slice by slice: no (Nz, Ny, Nx) temporary
+            float((g0 - g1).sum()) for g0, g1 in zip(rec.gain_initial_per_m, rec.gain_final_per_m))
+        stored_before, stored_after = stored_before + s0, stored_after + s1
+        g0_axis = gain_maps.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
+        entry = {"name": m.name, "material": m.material.name,
+                 "small_signal_gain_on_axis": g0_axis,
+                 "small_signal_gain_on_axis_final": gain_maps.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
+                 "stored_energy_J": s0, "stored_energy_final_J": s1, "extracted_energy_J": ext,
+                 "saturation_fluence_J_cm2": rec.saturation_fluence_J_m2 * J_CM2,
+                 "quasi_three_level": m.material.quasi_three_level}
+        if m.material.n2_m2_W > 0:
+            entry["critical_power_W"] = critical_power_W(m.material.wavelength_m, m.material.refractive_index,
+                                                         m.material.n2_m2_W)
+        if rec.pumped_J or rec.decayed_J:
+            # time passed in the layout: the gain map also changed by pumping and decay
+            entry["extracted_energy_J"] = ext + rec.pumped_J - rec.decayed_J
+            entry["pump_stored_energy_J"] = rec.pumped_J
+            entry["decayed_energy_J"] = rec.decayed_J
+        gm = maps[m.name]
+        if m.pump is not None and m.pump.continuous:
+            entry["absorbed_pump_power_W"] = gm.absorbed_pump_W
+            entry["pump_power_W"] = m.pump.power_W
+        elif m.pump is not None:
+            entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
+            entry["pump_energy_J"] = m.pump.energy_J
+            if gm.pump_limited_voxels:
+                warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
+                                f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
+        media_summary.append(entry)
+        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, limits))
+
+    steps = []
+    self_focusing: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)
+    peak_fluence = float(seed_map.max())
+    peak_intensity = 0.0   # every step records the peaks of the beam entering it
+    lost = 0.0
+    b_total = 0.0
+    pulse_s = seed.duration_s
+    for step, oc in zip(config.steps, outcomes):
+        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
+        peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
+        edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
+        lost += oc.clipped_J + oc.passive_loss_J + edge_lost
+        steps.append(_step_entry(config, step, oc))
+        label = step_label(config, step.index)
+        warnings.extend(_step_warnings(config, step, oc, label))
+        if step.kind == "repeat":
+            for inner, ioc in zip(step.steps, oc.extras["inner"]):
+                warnings.extend(_step_warnings(config, inner, ioc, step_label(config, step.index, inner.index)))
+            if step.until is not None and not oc.extras["peak_found"] and oc.energy_out_J > 0:
+                warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
+                                f"trips; the pulse was dumped after the last; raise max_count or check the "
+                                f"cavity's gain and loss")
+        # the media a step passes: a pass's own, a repeat's (at the repeat's peak power, after the dump)
+        passed = [step.medium] if step.kind == "pass" else \
+            list(dict.fromkeys(s.medium for s in step.steps if s.kind == "pass"))
+        for name in passed if "peak_power_W" in oc.extras else ():
+            mat = config.medium(name).material
+            if mat.n2_m2_W > 0:
+                ratio = oc.extras["peak_power_W"] / critical_power_W(mat.wavelength_m, mat.refractive_index,
+                                                                     mat.n2_m2_W)
+                worst = self_focusing.get(name)
+                if ratio > 1.0 and (worst is None or ratio > worst[0]):
+                    self_focusing[name] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
+                elif ratio > 1.0:
+                    self_focusing[name] = worst[:3] + (worst[3] + 1,)
+    for name, (ratio, index, oc, count) in self_focusing.items():
+        mat = config.medium(name).material
+        p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+        beam_fig = oc.extras.get("beam", {})
+        radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
+        z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
+        length = config.medium(name).length_m
+        collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
+                    f"the {length * 1e3:g} mm medium (an estimate)"
+                    if np.isfinite(z_sf) and radius > 0 else "")
+        if collapse and z_sf > 10.0 * length:
+            collapse += (": whole-beam collapse is far off, and the small-scale self-focusing of beam ripples "
+                         "is what the B-integral measures")
+        passes = f" ({count} passes above it)" if count > 1 else ""
+        warnings.append(
+            f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config, index)}, "
+            f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
+            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
+            + ("the field path includes the Kerr phase" if config.grid.diffraction else
+               "set grid.diffraction = true to include the Kerr phase in the beam"))
+    b_total = float(beam.b_integral.max()) if beam.b_integral.size else 0.0
+    if b_total > limits.b_integral_total_rad:
+        warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
+                        f"in total (common practice)")
+    warnings.extend(seed_grid_warnings(seed.diameter_m, dx, seed_map, config.grid.width_m, limits))
+    warnings.extend(extra_warnings or ())
+    if seed.shape != "flat" and config.grid.time_slices < 16:
+        warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
+                        f"coarsely; 16 or more are advised for the output pulse shape")
+
+    # The balance uses the energy each pass took from its gain, summed from the beam (exact FN
+    # bookkeeping, precise relative to the beam energy); the media's gain-map differences give the
+    # same figure to round-off relative to the stored energy.
+    gained = sum(oc.extracted_J for oc in outcomes)
+    balance = (e_in + gained - e_out - lost) / e_out if e_out > 0 else 0.0
+    return {
+        "mode": "pulsed",
+        "title": config.title,
+        "input_energy_J": e_in,
+        "output_energy_J": e_out,
+        "gain": e_out / e_in if e_in > 0 else 0.0,
+        "stored_energy_J": stored_before,
+        "stored_energy_final_J": stored_after,
+        "extracted_energy_J": gained,
+        "extraction_efficiency": (e_out - e_in) / stored_before if stored_before > 0 else 0.0,
+        "lost_energy_J": lost,
+        "peak_fluence_J_cm2": peak_fluence * J_CM2,
+        "peak_intensity_W_cm2": peak_intensity * W_CM2,
+        "b_integral_rad": b_total,
+        "energy_balance_error": balance,
+        "pulse_duration_ns": pulse_s * 1e9,
+        "time_slice_ns": beam.dt_s * 1e9,
+        "diffraction": config.grid.diffraction,
+        "seed_beam": dict(seed_beam or {}),
+        "warnings": warnings,
+        "steps": steps,
+        "media": media_summary,
+        "safety": SAFETY_NOTE,
+    }

@@ -1,0 +1,267 @@
+"""Time in a layout: steps that take time, repeated steps, and the media's pumping and decay meanwhile.
+
+A step may take time (``Step.delay_s``: a ``delay_ns`` in the config, or length/c for a ``space``
+step); during it every medium relaxes by the exact solution of dN2/dt = R − N2/tau
+(:func:`ampmodel.kernels.inversion.relax_inversion`), with R the medium's pump rate when its pump is
+on (a continuous pump always; a pulsed pump only in the pump window of a pulse train) and 0
+otherwise. The gain map holds g = (sigma_e + sigma_a)·N2 − sigma_a·Nt, so N2 is recovered from it
+voxel by voxel (four-level media: g = sigma_e·N2, no Nt needed) and written back in place. Outside a
+medium's clear aperture there is no medium and nothing changes.
+
+A ``repeat`` step runs its steps round trip after round trip: ``count`` times, or with
+``until = "peak"`` until the energy after a round trip falls below the one before; the state (beam,
+gain maps, clock) of the round trip with the largest energy is kept (a copy is taken before each
+round trip, which costs one beam and one set of gain maps of memory and a copy per round trip, much
+less than the passes themselves) and the one after it is discarded: the pulse is dumped after the
+round trip of largest energy.
+
+:func:`run_step` runs one step of the layout (a repeat round trip by round trip) and lets its time
+pass; the layout loop (``solver.simulate``) calls it for each step, for a single pulse and for each
+pulse of a train (``trains.py``). What a single step does to the beam, on the fluence path or the
+field path, comes from the caller (``act``).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from ampmodel.description import Config, Step
+from ampmodel.kernels.inversion import relax_inversion
+from ampmodel.pulsed.passes import MediumState, StepOutcome
+from ampmodel.media.gain_maps import GainMap
+from ampmodel.output.result import StepRecord
+
+
+@dataclass
+class MediumClock:
+    """What one medium needs to evolve in time, and what its pump and decay did so far.
+
+    rate_per_m3_s : (Nz, n) pump rate at the n voxels of each slice inside the clear aperture
+        (ions/m³/s while the pump is on), or None without a pump
+    pumped_J, decayed_J : energy put into and lost from the upper state so far, counted at the
+        signal photon energy (h·nu_s per ion, the unit of the stored energy)
+    """
+
+    name: str
+    mask: np.ndarray
+    slice_length_m: float
+    voxel_volume_m3: float
+    sum_cross_section_m2: float       # sigma_e + sigma_a at the signal
+    absorption_offset_per_m: float    # sigma_a·Nt: g = (sigma_e + sigma_a)·N2 − sigma_a·Nt
+    lifetime_s: float
+    photon_energy_J: float
+    rate_per_m3_s: np.ndarray | None = None
+    continuous: bool = False
+    pump_duration_s: float = 0.0
+    n2_max_per_m3: float | None = None
+    pumped_J: float = 0.0
+    decayed_J: float = 0.0
+
+    def n2(self, ln_gain: np.ndarray) -> np.ndarray:
+        """(Nz, n) upper-state density (ions/m³) of the voxels inside the aperture."""
+        return (ln_gain[:, self.mask] / self.slice_length_m + self.absorption_offset_per_m) / self.sum_cross_section_m2
+
+    def set_n2(self, ln_gain: np.ndarray, n2: np.ndarray) -> None:
+        """Write the density ``n2`` (Nz, n) back into the gain map, in place."""
+        ln_gain[:, self.mask] = (self.sum_cross_section_m2 * n2 - self.absorption_offset_per_m) * self.slice_length_m
+
+    def evolve(self, ln_gain: np.ndarray, duration_s: float, pump_on: bool) -> None:
+        """Pump (when on) and decay for ``duration_s``: the exact N2(t), in place, with the bookkeeping."""
+        if duration_s <= 0.0:
+            return
+        rate = self.rate_per_m3_s if (pump_on and self.rate_per_m3_s is not None) else 0.0
+        n2, pumped, decayed = relax_inversion(self.n2(ln_gain), rate, self.lifetime_s, duration_s,
+                                              self.n2_max_per_m3)
+        self.set_n2(ln_gain, n2)
+        scale = self.photon_energy_J * self.voxel_volume_m3
+        self.pumped_J += float(np.sum(pumped)) * scale
+        self.decayed_J += float(np.sum(decayed)) * scale
+
+
+def medium_clocks(config: Config, maps: dict[str, GainMap], pixel_area_m2: float) -> dict[str, MediumClock]:
+    """The clock of every medium, from its description and initial gain map."""
+    clocks = {}
+    for m in config.media:
+        gm = maps[m.name]
+        mat = m.material
+        nt = m.doping_per_m3 or mat.doping_per_m3 or 0.0
+        rate = gm.pump_rate_per_m3_s[:, gm.mask] if gm.pump_rate_per_m3_s is not None else None
+        clocks[m.name] = MediumClock(
+            name=m.name, mask=gm.mask, slice_length_m=gm.slice_length_m,
+            voxel_volume_m3=gm.slice_length_m * pixel_area_m2,
+            sum_cross_section_m2=mat.emission_cross_section_m2 + mat.absorption_cross_section_m2,
+            absorption_offset_per_m=mat.absorption_cross_section_m2 * nt, lifetime_s=mat.upper_lifetime_s,
+            photon_energy_J=mat.photon_energy_J, rate_per_m3_s=rate,
+            continuous=m.pump is not None and m.pump.continuous,
+            pump_duration_s=(m.pump.duration_s or 0.0) if m.pump is not None else 0.0,
+            n2_max_per_m3=gm.n2_max_per_m3 if mat.quasi_three_level else None)
+    return clocks
+
+
+@dataclass
+class Timeline:
+    """The time since the seed entered the layout, and the clocks of the media."""
+
+    clocks: dict[str, MediumClock]
+    elapsed_s: float = 0.0
+
+    def wait(self, states: dict[str, MediumState], duration_s: float, pulsed_pumps_on: bool = False) -> None:
+        """Let ``duration_s`` pass for every medium: continuous pumps on, pulsed pumps only when
+        ``pulsed_pumps_on`` (the pump window before a pulse of a train)."""
+        if duration_s <= 0.0:
+            return
+        for name, clock in self.clocks.items():
+            clock.evolve(states[name].ln_gain, duration_s, clock.continuous or pulsed_pumps_on)
+        self.elapsed_s += duration_s
+
+    def totals(self) -> tuple[float, float]:
+        """(pumped, decayed) energy of all media so far (J, at the signal photon energy)."""
+        return (sum(c.pumped_J for c in self.clocks.values()), sum(c.decayed_J for c in self.clocks.values()))
+
+    def reset(self) -> None:
+        """Start a new pulse: time and bookkeeping from zero."""
+        self.elapsed_s = 0.0
+        for c in self.clocks.values():
+            c.pumped_J = c.decayed_J = 0.0
+
+
+def _beam_arrays(beam) -> tuple[str, str]:
+    """The beam's state arrays: the complex field (field path) or the fluence, and the B-integral."""
+    return ("field" if hasattr(beam, "field") else "fluence", "b_integral")
+
+
+@dataclass
+class _Snapshot:
+    """A copy of everything a round trip changes."""
+
+    beam: dict[str, np.ndarray]
+    ln_gain: dict[str, np.ndarray]
+    elapsed_s: float = 0.0
+    bookkeeping: dict[str, tuple[float, float]] = field(default_factory=dict)
+
+    @classmethod
+    def empty_like(cls, beam, states: dict[str, MediumState]) -> "_Snapshot":
+        return cls({a: np.empty_like(getattr(beam, a)) for a in _beam_arrays(beam)},
+                   {n: np.empty_like(s.ln_gain) for n, s in states.items()})
+
+    def take(self, beam, states: dict[str, MediumState], timeline: Timeline) -> None:
+        for a, copy in self.beam.items():
+            np.copyto(copy, getattr(beam, a))
+        for n, s in states.items():
+            np.copyto(self.ln_gain[n], s.ln_gain)
+        self.elapsed_s = timeline.elapsed_s
+        self.bookkeeping = {n: (c.pumped_J, c.decayed_J) for n, c in timeline.clocks.items()}
+
+    def restore(self, beam, states: dict[str, MediumState], timeline: Timeline) -> None:
+        for a, copy in self.beam.items():
+            np.copyto(getattr(beam, a), copy)
+        for n, s in states.items():
+            np.copyto(s.ln_gain, self.ln_gain[n])
+        timeline.elapsed_s = self.elapsed_s
+        for n, (pumped, decayed) in self.bookkeeping.items():
+            timeline.clocks[n].pumped_J, timeline.clocks[n].decayed_J = pumped, decayed
+
+
+Act = Callable[..., StepOutcome]     # act(step, beam, tick) -> StepOutcome
+
+
+def run_repeat(step: Step, beam, states: dict[str, MediumState], timeline: Timeline, act: Act,
+               tick: Callable[[], None] | None = None) -> StepOutcome:
+    """Run a repeat's steps round trip after round trip; see the module docstring.
+
+    ``beam`` is a ``layout.BeamState`` or an ``optics.FieldBeam``; ``act(step, beam, tick)`` applies
+    one inner step to it.
+
+    Returns
+    -------
+    StepOutcome
+        Energies in (entering the repeat) and out (after the dump round trip); clipped, passive-loss
+        and extracted energy summed over the round trips kept; peaks over them; the B-integral added.
+        ``extras``: ``round_trip_energies_J`` (after each round trip run, the discarded one of
+        ``until = "peak"`` included), ``dump_round_trip`` (round trips kept), ``round_trip_s``,
+        ``peak_found`` (until: the energy fell before ``max_count``), ``inner`` (the StepOutcome of
+        each inner step in the dump round trip), ``edge_absorbed_J`` (field path: taken by the
+        window's absorbing edge over the round trips kept).
+    """
+    e_in = beam.energy_J()
+    b_start = beam.b_integral.copy()
+    round_trip_s = step.round_trip_time_s
+    rest_s = max(round_trip_s - sum(s.delay_s for s in step.steps), 0.0)
+    until_peak = step.until == "peak"
+    snap = _Snapshot.empty_like(beam, states) if until_peak else None
+    energies: list[float] = []
+    last_inner: list[StepOutcome] = []
+    clipped = passive = extracted = edge = peak_f = peak_i = 0.0
+    peak_found = False
+    for k in range(1, step.most_round_trips + 1):
+        if snap is not None and k > 1:
+            snap.take(beam, states, timeline)
+        inner = []
+        for s in step.steps:
+            inner.append(act(s, beam, tick))
+            timeline.wait(states, s.delay_s)
+        timeline.wait(states, rest_s)
+        energy = beam.energy_J()
+        energies.append(energy)
+        if snap is not None and k > 1 and energy < energies[-2]:
+            snap.restore(beam, states, timeline)     # dump after the round trip before this one
+            peak_found = True
+            break
+        last_inner = inner
+        clipped += sum(o.clipped_J for o in inner)
+        passive += sum(o.passive_loss_J for o in inner)
+        extracted += sum(o.extracted_J for o in inner)
+        edge += sum(o.extras.get("edge_absorbed_J", 0.0) for o in inner)
+        peak_f = max([peak_f] + [o.peak_fluence_J_m2 for o in inner])
+        peak_i = max([peak_i] + [o.peak_intensity_W_m2 for o in inner])
+        if energy <= 0.0:
+            break
+    kept = len(energies) - (1 if peak_found else 0)
+    b_added = float((beam.b_integral - b_start).max()) if beam.b_integral.size else 0.0
+    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, passive_loss_J=passive, extracted_J=extracted,
+                       peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i, b_integral_step_rad=b_added,
+                       extras={"round_trip_energies_J": energies, "dump_round_trip": kept,
+                               "round_trip_s": round_trip_s, "peak_found": peak_found, "inner": last_inner,
+                               "edge_absorbed_J": edge})
+
+
+def run_step(step: Step, beam, states: dict[str, MediumState], timeline: Timeline, act: Act,
+             tick: Callable[[], None] | None = None) -> StepOutcome:
+    """One step of the layout (a repeat round trip by round trip, any other through ``act``), then
+    its delay."""
+    if step.kind == "repeat":
+        outcome = run_repeat(step, beam, states, timeline, act, tick)
+    else:
+        outcome = act(step, beam, tick)
+    timeline.wait(states, step.delay_s)
+    return outcome
+
+
+def step_record(step: Step, beam, outcome: StepOutcome, fluence_map: np.ndarray, power: np.ndarray) -> StepRecord:
+    """The beam after a step, for result.h5 (a repeat adds its energy and time per round trip).
+
+    fluence_map : (Ny, Nx) fluence after the step (J/m²); power : (Nt,) power of each time slice (W)
+    """
+    record = StepRecord(index=step.index, kind=step.kind, medium=step.medium, fluence_J_m2=fluence_map,
+                        power_W=power, b_integral_rad=beam.b_integral.max(axis=0))
+    if step.kind == "repeat":
+        energies = np.asarray(outcome.extras["round_trip_energies_J"], dtype=float)
+        times = outcome.extras["round_trip_s"] * np.arange(1, energies.size + 1)
+        record.datasets = {"round_trip_energy": (energies, "J"), "round_trip_end_time": (times, "s")}
+    return record
+
+
+def slice_passes(config: Config) -> int | None:
+    """z-slices the beam crosses in one pulse (for the progress bar); None when a repeat stops at
+    the peak (the count is not known in advance)."""
+    total = 0
+    for step in config.steps:
+        if step.kind == "repeat":
+            if step.count is None:
+                return None
+            total += step.count * sum(config.medium(s.medium).slices for s in step.steps if s.kind == "pass")
+        elif step.kind == "pass":
+            total += config.medium(step.medium).slices
+    return total

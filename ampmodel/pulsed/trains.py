@@ -1,0 +1,484 @@
+"""Pulse trains: an amplifier seeded at ``seed.repetition_rate_Hz``, with the gain recovering between pulses.
+
+Each pulse runs the whole layout (with its delays and repeats) from a fresh seed; for the rest of the
+period T = 1/f every medium relaxes by the exact N2(t) of dN2/dt = R − N2/tau (``timing.py``): a
+continuous pump is on all the time, a pulsed pump during its pump pulse, which ends when the next
+seed pulse arrives. The state of the train is the upper-state density N2 of every voxel before a
+pulse; one pulse and the recovery after it map it to the state before the next pulse, x -> Phi(x).
+The train settles to the fixed point x* = Phi(x*), the periodic steady state.
+
+How the fixed point is found (``train.method``):
+
+1. **Direct** ("auto", where it applies): without diffraction every pixel is independent, and for a
+   single medium without passive loss inside it (and no bleaching cap acting) the energies a pixel's
+   pulse takes out depend only on its column ∫N2 dz: Frantz–Nodvik maps compose over the z-slices
+   and time slices, and the relaxation is linear, so the column obeys the same exact solution with
+   the column pump rate ∫R dz. Phi is then a scalar, increasing map per pixel with slope below 1,
+   and its fixed point is found per pixel by bisection (vectorised over the pixels, to round-off).
+   A layout with a repeat that stops at the peak couples the pixels and is not solved this way.
+2. **Accelerated iteration** (always, from the direct solution when there is one): the real pulse
+   map (every z-slice and time slice) is iterated with Anderson acceleration (depth 6; Walker & Ni,
+   SIAM J. Numer. Anal. 49, 1715 (2011)) until max|Phi(x) − x| <= 1e-10·max|x| (or 1e-3 of the
+   tolerance, when that is tighter). From the direct start this settles where along z the gain sits.
+
+Then the train as it starts is run pulse after pulse from the state pumped long before the first
+pulse (no seed: the steady state of the pump alone), until the output energy is within
+``train.tolerance`` of the steady state: the number of pulses to steady state, the energy of each
+pulse and the stored energy before each. When ``train.max_pulses`` pulses do not reach it, the number
+is estimated from the contraction per pulse of the last ones, and a warning says so.
+
+Energy balance over a steady period (at the signal photon energy): pumped = decayed + extracted by
+the beam + change of the upper-state energy (zero at the fixed point, to the tolerance).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from ampmodel.kernels import beam_shapes
+from ampmodel.media import gain_maps
+from ampmodel.description import Config, Step, passed_media
+from ampmodel.kernels.frantz_nodvik import fn_total
+from ampmodel.kernels.inversion import relax_inversion
+from ampmodel.pulsed.passes import BeamState, MediumState, StepOutcome
+from ampmodel.output.result import StepRecord
+from ampmodel.pulsed.repeats import MediumClock, Timeline
+
+ANDERSON_DEPTH = 6
+FIXED_POINT_TOLERANCE = 1e-10
+MAX_FIXED_POINT_PULSES = 300
+STAGNATION_PULSES = 40
+
+
+@dataclass
+class TrainRun:
+    """The steady-state pulse of a train and what the train did.
+
+    ln_gain_before, ln_gain_after : per medium, ln G maps before the steady pulse and after its layout
+    pumped_J, decayed_J : per medium, pump and decay during the steady pulse's layout (J)
+    summary : the ``train`` entry of summary.json; datasets : name -> (array, units) for result.h5
+    checks : the grid checks of the steady pulse (field path)
+    """
+
+    beam: BeamState
+    outcomes: list[StepOutcome]
+    records: list[StepRecord]
+    ln_gain_before: dict[str, np.ndarray]
+    pumped_J: dict[str, float]
+    decayed_J: dict[str, float]
+    summary: dict
+    warnings: list[str] = field(default_factory=list)
+    datasets: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
+    checks: list = field(default_factory=list)
+
+
+# ----------------------------------------------------------------------------------------------
+# The state vector: N2 of every voxel inside the apertures, each medium scaled to order one
+# ----------------------------------------------------------------------------------------------
+
+class _State:
+    def __init__(self, clocks: dict[str, MediumClock], states: dict[str, MediumState], scales: dict[str, float]):
+        self.clocks, self.states, self.scales = clocks, states, scales
+        self.sizes = {n: c.n2(states[n].ln_gain).shape for n, c in clocks.items()}
+
+    def get(self) -> np.ndarray:
+        return np.concatenate([(c.n2(self.states[n].ln_gain) / self.scales[n]).ravel()
+                               for n, c in self.clocks.items()])
+
+    def set(self, u: np.ndarray) -> None:
+        start = 0
+        for n, c in self.clocks.items():
+            shape = self.sizes[n]
+            size = int(np.prod(shape))
+            c.set_n2(self.states[n].ln_gain, u[start:start + size].reshape(shape) * self.scales[n])
+            start += size
+
+    def split(self, u: np.ndarray) -> dict[str, np.ndarray]:
+        """Per medium, N2 (ions/m³) of shape (Nz, n)."""
+        out, start = {}, 0
+        for n in self.clocks:
+            size = int(np.prod(self.sizes[n]))
+            out[n] = u[start:start + size].reshape(self.sizes[n]) * self.scales[n]
+            start += size
+        return out
+
+    def join(self, n2: dict[str, np.ndarray]) -> np.ndarray:
+        return np.concatenate([(n2[n] / self.scales[n]).ravel() for n in self.clocks])
+
+
+def _recover(clocks: dict[str, MediumClock], states: dict[str, MediumState], rest_s: float) -> None:
+    """The rest of the period after a pulse's layout: continuous pumps on throughout, a pulsed pump
+    on during its pump pulse at the end (it ends when the next seed pulse arrives)."""
+    for n, c in clocks.items():
+        ln_gain = states[n].ln_gain
+        if c.rate_per_m3_s is None or c.continuous:
+            c.evolve(ln_gain, rest_s, pump_on=True)
+        else:
+            c.evolve(ln_gain, rest_s - c.pump_duration_s, pump_on=False)
+            c.evolve(ln_gain, c.pump_duration_s, pump_on=True)
+
+
+def _unseeded(c: MediumClock, period_s: float) -> np.ndarray:
+    """(Nz, n) N2 before a pulse of a train pumped long before it without a seed (ions/m³); the
+    medium needs a pump."""
+    tau = c.lifetime_s
+    if c.continuous:
+        n2 = c.rate_per_m3_s * tau
+    else:
+        # pump pulse tp then decay for T − tp, periodic: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
+        n2 = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))
+    return np.minimum(n2, c.n2_max_per_m3) if c.n2_max_per_m3 is not None else n2
+
+
+def _anderson(phi: Callable[[np.ndarray], np.ndarray], u0: np.ndarray, tolerance: float, max_iter: int,
+              upper: np.ndarray | None) -> tuple[np.ndarray, int, float]:
+    """Fixed point of ``phi`` by Anderson acceleration (type II, depth ANDERSON_DEPTH), kept within
+    the physical bounds 0 <= u <= upper. Returns (the fixed point, map evaluations, residual
+    max|phi(u) − u|/max|u|)."""
+    x = u0
+    dfs: list[np.ndarray] = []
+    dgs: list[np.ndarray] = []
+    f_prev = g_prev = None
+    best = (math.inf, u0)
+    best_at = 0
+    for k in range(1, max_iter + 1):
+        g = phi(x)
+        f = g - x
+        res = float(np.max(np.abs(f)) / max(float(np.max(np.abs(g))), 1e-300))
+        if res < best[0]:
+            best = (res, g)
+            best_at = k
+        elif k - best_at >= STAGNATION_PULSES:      # no progress (the map may have no fixed point,
+            # e.g. when the dump round trip of a repeat jumps from one pulse to the next)
+            return best[1], k, best[0]
+        elif res > 10.0 * best[0]:        # the extrapolation went astray: restart from the best image
+            dfs.clear()
+            dgs.clear()
+            x, f_prev, g_prev = best[1], None, None
+            continue
+        if res <= tolerance:
+            return g, k, res
+        if f_prev is not None:
+            dfs.append(f - f_prev)
+            dgs.append(g - g_prev)
+            if len(dfs) > ANDERSON_DEPTH:
+                dfs.pop(0)
+                dgs.pop(0)
+        f_prev, g_prev = f, g
+        if dfs:
+            gamma = np.linalg.lstsq(np.stack(dfs, axis=1), f, rcond=None)[0]
+            x = g - np.stack(dgs, axis=1) @ gamma
+        else:
+            x = g
+        np.maximum(x, 0.0, out=x)
+        if upper is not None:
+            np.minimum(x, upper, out=x)
+    return best[1], max_iter, best[0]
+
+
+# ----------------------------------------------------------------------------------------------
+# The direct solution per pixel (column integrals)
+# ----------------------------------------------------------------------------------------------
+
+def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str | None:
+    """Why the direct per-pixel solution does not apply to this config (None: it applies)."""
+    if config.train.method == "iterate":
+        return 'not used (train.method = "iterate")'
+    if config.grid.diffraction:
+        return "diffraction couples the pixels"
+    media = passed_media(config.steps)
+    if len(media) != 1:
+        return "the layout passes through more than one medium"
+    medium = config.medium(media[0])
+    if medium.loss_per_m > 0.0:
+        return (f"medium {medium.name} has passive loss inside (loss_per_cm): the energies then depend on "
+                f"where along the medium the gain is")
+    if any(s.kind == "repeat" and s.until is not None for s in config.steps):
+        return 'a repeat stops at the peak: the dump round trip couples the pixels'
+    c = clocks[medium.name]
+    if c.n2_max_per_m3 is not None:
+        mat = medium.material
+        transparency = c.absorption_offset_per_m / c.sum_cross_section_m2
+        steady = float(np.max(c.rate_per_m3_s)) * c.lifetime_s if c.rate_per_m3_s is not None else 0.0
+        if max(steady, transparency) > c.n2_max_per_m3:
+            return f"the bleaching limit of {mat.name} caps the inversion in medium {medium.name}"
+    return None
+
+
+def _column_pulse(steps: tuple[Step, ...], column: np.ndarray, fluence: np.ndarray, c: MediumClock,
+                  q: np.ndarray, x_m: np.ndarray, y_m: np.ndarray, fsat: float,
+                  until_elapsed: list[float]) -> tuple[np.ndarray, np.ndarray]:
+    """One pulse through the layout per pixel, on the column ∫N2 dz (ions/m²) of the one medium:
+    returns (column after, fluence after) and adds the layout's time to ``until_elapsed[0]``."""
+    hv = c.photon_energy_J
+    length = c.slice_length_m * c.rate_per_m3_s.shape[0] if c.rate_per_m3_s is not None else 0.0
+    sum_cs, offset = c.sum_cross_section_m2, c.absorption_offset_per_m
+    def one(s: Step, column: np.ndarray, fluence: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        if s.kind == "pass":
+            ln_g = sum_cs * column - offset * length
+            out = fn_total(fluence, ln_g, fsat)
+            column = np.maximum(column - (out - fluence) / hv, 0.0)    # N2 >= 0 (round-off at G = 1)
+            fluence = out
+        elif s.kind == "loss":
+            fluence = fluence * s.transmission
+        elif s.kind == "aperture":
+            fluence = fluence * beam_shapes.aperture_mask(x_m, y_m, s.shape, s.diameter_m)[c.mask]
+        until_elapsed[0] += s.delay_s
+        return _column_relax(column, c, q, s.delay_s, c.continuous), fluence
+
+    for step in steps:
+        if step.kind == "repeat":
+            rest = step.round_trip_time_s - sum(s.delay_s for s in step.steps)
+            for _ in range(step.count):
+                for s in step.steps:
+                    column, fluence = one(s, column, fluence)
+                column = _column_relax(column, c, q, rest, c.continuous)
+                until_elapsed[0] += rest
+            column = _column_relax(column, c, q, step.delay_s, c.continuous)
+            until_elapsed[0] += step.delay_s
+        else:
+            column, fluence = one(step, column, fluence)
+    return column, fluence
+
+
+def _column_relax(column: np.ndarray, c: MediumClock, q: np.ndarray, duration_s: float, on: bool) -> np.ndarray:
+    if duration_s <= 0.0:
+        return column
+    return relax_inversion(column, q if on else 0.0, c.lifetime_s, duration_s)[0]
+
+
+def direct_columns(config: Config, c: MediumClock, seed_fluence: np.ndarray, x_m: np.ndarray,
+                   y_m: np.ndarray) -> tuple[np.ndarray, float]:
+    """The periodic steady state per pixel of the one medium's column ∫N2 dz (ions/m²), by bisection
+    on Phi(S) − S (decreasing), and the steady output energy (J) it gives."""
+    period = 1.0 / config.seed.repetition_rate_Hz
+    dz = c.slice_length_m
+    q = c.rate_per_m3_s.sum(axis=0) * dz if c.rate_per_m3_s is not None else np.zeros(int(c.mask.sum()))
+    fsat = c.photon_energy_J / c.sum_cross_section_m2
+    f0 = seed_fluence[c.mask]
+    area = float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
+
+    def phi(column: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        elapsed = [0.0]
+        after, fluence = _column_pulse(config.steps, column, f0, c, q, x_m, y_m, fsat, elapsed)
+        rest = period - elapsed[0]
+        if c.continuous:
+            after = _column_relax(after, c, q, rest, True)
+        else:
+            after = _column_relax(after, c, q, rest - c.pump_duration_s, False)
+            after = _column_relax(after, c, q, c.pump_duration_s, True)
+        return after, fluence
+
+    unseeded = _unseeded(c, period)
+    transparency = c.absorption_offset_per_m / c.sum_cross_section_m2 * dz * unseeded.shape[0]
+    lo = np.zeros_like(q)
+    top = np.maximum(unseeded.sum(axis=0) * dz, transparency)
+    hi = top * (1 + 1e-9) + 1e-9 * max(float(top.max()), 1.0)    # room for round-off where there is no gain
+    if np.any(phi(lo)[0] < lo) or np.any(phi(hi)[0] > hi):
+        raise ArithmeticError("the bracket of the direct solution does not hold")
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        up = phi(mid)[0] > mid
+        lo = np.where(up, mid, lo)
+        hi = np.where(up, hi, mid)
+        if np.all(hi - lo <= 4e-16 * hi):
+            break
+    column = 0.5 * (lo + hi)
+    fluence = phi(column)[1]
+    return column, float(fluence.sum() * area)
+
+
+# ----------------------------------------------------------------------------------------------
+# The train
+# ----------------------------------------------------------------------------------------------
+
+def _stored_J(states: dict[str, MediumState], clocks: dict[str, MediumClock]) -> float:
+    """Extractable stored energy of all media (down to transparency), J."""
+    total = 0.0
+    for n, c in clocks.items():
+        fsat = c.photon_energy_J / c.sum_cross_section_m2
+        total += gain_maps.stored_energy_J(states[n].ln_gain / c.slice_length_m, fsat, c.voxel_volume_m3)
+    return total
+
+
+def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Callable,
+              states: dict[str, MediumState], timeline: Timeline, seed_fluence: np.ndarray,
+              progress: Callable[[], None] | None = None) -> TrainRun:
+    """Find the periodic steady state of a pulse train, run the train from its start, and return the
+    steady pulse (see the module docstring).
+
+    ``new_beam()`` gives a fresh seed pulse; ``run_layout(beam, record=...)`` runs the layout on it
+    and returns (outcomes, records, grid checks), as ``solver.simulate`` does for a single pulse.
+    """
+    clocks = timeline.clocks
+    rate_Hz = config.seed.repetition_rate_Hz
+    period = 1.0 / rate_Hz
+    tolerance = config.train.tolerance
+    probe = new_beam()
+    x_m, y_m = probe.x_m, probe.y_m
+    del probe
+    unseeded = {n: (_unseeded(c, period) if c.rate_per_m3_s is not None else c.n2(states[n].ln_gain))
+                for n, c in clocks.items()}
+    scales = {n: max(float(np.max(np.abs(v))) if v.size else 0.0, 1.0) for n, v in unseeded.items()}
+    state = _State(clocks, states, scales)
+    u0 = state.join(unseeded)
+    upper = state.join({n: np.full(state.sizes[n], c.n2_max_per_m3 if c.n2_max_per_m3 is not None else np.inf)
+                        for n, c in clocks.items()})
+    upper = upper if np.all(np.isfinite(upper)) else None
+    warnings: list[str] = []
+
+    def pulse(u: np.ndarray, record: bool = False):
+        state.set(u)
+        timeline.reset()
+        beam = new_beam()
+        outcomes, records, checks = run_layout(beam, record=record)
+        after = {n: s.ln_gain.copy() for n, s in states.items()} if record else None
+        layout = {n: (c.pumped_J, c.decayed_J) for n, c in clocks.items()}
+        _recover(clocks, states, period - timeline.elapsed_s)
+        if progress is not None:
+            progress()
+        return state.get(), beam, outcomes, records, after, layout, checks
+
+    # 1. the fixed point: direct per pixel where it applies, then accelerated iteration of the real map
+    reason = direct_not_applicable(config, clocks)
+    start = u0
+    direct_energy = None
+    if reason is None:
+        (name,) = passed_media(config.steps)
+        c = clocks[name]
+        try:
+            column, direct_energy = direct_columns(config, c, seed_fluence, x_m, y_m)
+        except ArithmeticError as exc:
+            reason = str(exc)
+        else:
+            n2 = dict(unseeded)
+            profile = unseeded[name]
+            col0 = profile.sum(axis=0) * c.slice_length_m
+            shaped = np.where(col0 > 0, profile * (column / np.where(col0 > 0, col0, 1.0)),
+                              column / (c.slice_length_m * profile.shape[0]))
+            n2[name] = shaped
+            start = state.join(n2)
+    fp_tolerance = max(min(FIXED_POINT_TOLERANCE, 1e-3 * tolerance), 1e-13)
+    u_star, evaluations, residual = _anderson(lambda u: pulse(u)[0], start, fp_tolerance,
+                                              MAX_FIXED_POINT_PULSES, upper)
+    if residual > fp_tolerance:
+        warnings.append(f"train: the periodic steady state was not reached to {fp_tolerance:.0e} in "
+                        f"{evaluations} pulse evaluations (residual {residual:.1e}); the figures are those of "
+                        f"the last estimate")
+
+    # 2. the steady pulse, recorded
+    state.set(u_star)
+    before = {n: s.ln_gain.copy() for n, s in states.items()}
+    stored_before = _stored_J(states, clocks)
+    u_next, beam, outcomes, records, after, layout, checks = pulse(u_star, record=True)
+    e_out = beam.energy_J()
+    e_in = float(seed_fluence.sum() * beam.pixel_area_m2)
+    pumped = sum(c.pumped_J for c in clocks.values())
+    decayed = sum(c.decayed_J for c in clocks.values())
+    extracted = sum(o.extracted_J for o in outcomes)
+    n2_next, n2_star = state.split(u_next), state.split(u_star)
+    change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
+                 for n, c in clocks.items())
+    balance = (pumped - decayed - extracted - change) / pumped if pumped > 0 else 0.0
+    layout_time_s = timeline.elapsed_s
+    state.set(u_star)                        # leave the media as before the steady pulse ...
+    for n, s in states.items():              # ... and then as after its layout (the "final" gain)
+        np.copyto(s.ln_gain, after[n])
+
+    # 3. the train from its start: pulse after pulse until the output is within the tolerance
+    energies, stored = [], []
+    u = u0
+    settled = None
+    for k in range(1, config.train.max_pulses + 1):
+        state.set(u)
+        stored.append(_stored_J(states, clocks))
+        u, b, *_ = pulse(u)
+        energies.append(b.energy_J())
+        if abs(energies[-1] - e_out) <= tolerance * e_out:
+            settled = k
+            break
+    estimated = False
+    cycle: list[float] = []
+    if settled is None:
+        settled = _estimate_settling(energies, e_out, tolerance)
+        cycle = _cycle(energies, tolerance)
+        if settled is not None:
+            estimated = True
+            warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
+                            f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
+                            f"estimated from the contraction per pulse")
+        elif cycle:
+            warnings.append(f"train: the pulses do not settle to one repeating pulse: after {len(energies)} pulses "
+                            f"they repeat every {len(cycle)} pulses ({', '.join(f'{e:.4g}' for e in cycle)} J); "
+                            f"the single-pulse steady state reported is unstable or absent (a pulse-to-pulse "
+                            f"bifurcation), and the "
+                            f"average power of the cycle is {sum(cycle) / len(cycle) * rate_Hz:.4g} W")
+        else:
+            warnings.append(f"train: the pulses do not settle within {len(energies)} pulses (train.max_pulses) "
+                            f"and do not approach the steady state steadily (the last ones spread over "
+                            f"{min(energies[-10:]):.4g} to {max(energies[-10:]):.4g} J): the steady state "
+                            f"reported may be unstable; raise train.max_pulses to see more of the train")
+    for n, s in states.items():              # the pulse() calls above changed the media: restore
+        np.copyto(s.ln_gain, after[n])
+
+    summary = {
+        "repetition_rate_Hz": rate_Hz,
+        "period_s": period,
+        "pulse_energy_J": e_out,
+        "average_power_W": e_out * rate_Hz,
+        "input_average_power_W": e_in * rate_Hz,
+        "stored_energy_before_pulse_J": stored_before,
+        "pulses_to_steady_state": settled,
+        "pulses_to_steady_state_estimated": estimated,
+        "cycle_pulse_energies_J": cycle,
+        "tolerance": tolerance,
+        "pulse_energies_J": energies,
+        "stored_energy_before_each_pulse_J": stored,
+        "method": ("direct per-pixel solution, then accelerated iteration" if reason is None
+                   else "accelerated iteration"),
+        "direct_solution": "applied" if reason is None else f"not applicable: {reason}",
+        "direct_pulse_energy_J": direct_energy,
+        "fixed_point_pulse_evaluations": evaluations,
+        "fixed_point_residual": residual,
+        "pump_stored_power_W": pumped * rate_Hz,
+        "decay_power_W": decayed * rate_Hz,
+        "extracted_power_W": float(extracted * rate_Hz),
+        "energy_balance_error": float(balance),
+        "layout_time_s": layout_time_s,
+    }
+    datasets = {"pulse_energy": (np.asarray(energies), "J"),
+                "stored_energy_before_pulse": (np.asarray(stored), "J")}
+    return TrainRun(beam=beam, outcomes=outcomes, records=records, ln_gain_before=before,
+                    pumped_J={n: v[0] for n, v in layout.items()}, decayed_J={n: v[1] for n, v in layout.items()},
+                    summary=summary, warnings=warnings, datasets=datasets, checks=checks)
+
+
+def _estimate_settling(energies: list[float], steady: float, tolerance: float) -> int | None:
+    """Pulses until |E_k − E*| <= tolerance·E*, extrapolated from the geometric decay of the last
+    pulses' distance to the steady state; None when they do not approach it steadily."""
+    d = np.abs(np.asarray(energies[-10:], dtype=float) - steady)
+    if d.size < 4 or np.any(d <= 0.0):
+        return None
+    k = np.arange(d.size)
+    slope, _ = np.polyfit(k, np.log(d), 1)
+    upper = np.maximum.accumulate(d[::-1])[::-1]          # each pulse's largest later distance
+    if slope >= 0.0 or d[-1] > 0.5 * d[0] or np.any(upper[1:] > 1.5 * d[:-1]):
+        return None
+    return len(energies) + max(1, math.ceil(math.log(tolerance * steady / d[-1]) / slope))
+
+
+def _cycle(energies: list[float], tolerance: float, longest: int = 8) -> list[float]:
+    """The last ``k`` pulse energies when the train repeats every k pulses (2 <= k <= ``longest``)
+    over the last 3k pulses, to 10 times the tolerance; [] when it does not."""
+    for k in range(2, longest + 1):
+        if len(energies) < 3 * k:
+            break
+        tail = np.asarray(energies[-3 * k:], dtype=float)
+        scale = float(np.abs(tail).max())
+        if np.all(np.abs(tail[k:] - tail[:-k]) <= 10 * tolerance * scale) \
+                and np.ptp(tail[-k:]) > 10 * tolerance * scale:
+            return [float(e) for e in tail[-k:]]
+    return []

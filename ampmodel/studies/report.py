@@ -1,0 +1,166 @@
+"""What ``ampmodel sweep``, ``spread`` and ``size`` print, and their exit codes (the CLI stays thin)."""
+from __future__ import annotations
+
+import re
+import sys
+from typing import Any, Sequence
+
+from ampmodel.config.schema import show
+
+EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
+TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
+              "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad")
+MAX_ROWS = 40
+# Numerical checks of the solver: in the files, not in the terminal table of a tolerance run.
+QUIET_FIGURES = ("energy_balance_error", "power_balance_error", "photon_balance_error", "cw_residual",
+                 "cw_iterations", "cw_damping_final")
+
+
+def _num(v: Any) -> str:
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        return show(v, 16)
+    if v != v:
+        return "-"
+    return f"{v:.5g}"
+
+
+def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
+    print("  ".join(h.rjust(w) for h, w in zip(header, widths)))
+    for r in rows:
+        print("  ".join(c.rjust(w) for c, w in zip(r, widths)))
+
+
+def _safety() -> None:
+    from ampmodel.pulsed.diagnostics import SAFETY_NOTE
+    print(SAFETY_NOTE)
+
+
+def _warnings_and_failures(result, label: str) -> None:
+    """Each kind of warning once (numbers aside), with the first point that gave it; failed points."""
+    warned = [(i, s["warnings"]) for i, s in enumerate(result.summaries) if s and s.get("warnings")]
+    if warned:
+        print(f"warnings at {len(warned)} of {len(result.summaries)} {label}s (warning_count in the table; "
+              f"the texts are in each point file's summary); each kind once:")
+        kinds: dict[str, tuple[int, str, int]] = {}
+        for i, texts in warned:
+            for t in texts:
+                kind = re.sub(r"[-+]?\d[\d.]*(e[-+]?\d+)?", "#", t)
+                first = kinds.get(kind)
+                kinds[kind] = (first[0], first[1], first[2] + 1) if first else (i, t, 1)
+        for n, (i, t, count) in enumerate(kinds.values()):
+            if n == 8:
+                print(f"  ... {len(kinds) - 8} more kinds")
+                break
+            print(f"  - {label} {i:04d}" + (f" (and {count - 1} more)" if count > 1 else "") +
+                  f": {t if len(t) < 200 else t[:197] + '...'}")
+    for i, err in sorted(result.failed.items()):
+        print(f"{label} {i:04d} FAILED ({_describe_values(result.values[i])}): {err.splitlines()[0]}")
+    internal = [(i, err) for i, err in sorted(result.failed.items()) if "Traceback" in err]
+    if internal:
+        i, err = internal[0]
+        print(f"details of the first internal failure ({label} {i:04d}; please report it with the config):\n"
+              f"{err}", file=sys.stderr)
+
+
+def _describe_values(values: dict) -> str:
+    return ", ".join(f"{p} = {show(v, 24)}" for p, v in values.items())
+
+
+def _head(result, label: str) -> None:
+    n = len(result.values)
+    if not (result.computed or result.failed):
+        where = "nothing to compute"
+    elif result.backend == "loky" and result.jobs == 1:
+        where = "one after another in this process"
+    else:
+        where = f"{result.jobs} {result.backend} worker{'s' if result.jobs != 1 else ''}"
+    print(f"{n} {label}s: computed {len(result.computed)}, found {len(result.reused)} already done"
+          + (f", {len(result.failed)} failed" if result.failed else "") + f" ({where}, {result.seconds:.1f} s)")
+    for note in result.notes:
+        print(f"note: {note}")
+
+
+def print_sweep(result, quiet: bool = False) -> int:
+    """Print a sweep's outcome: counts, a table of the points (up to 40), warnings, files."""
+    from ampmodel.studies.store import scalar_keys
+    print(f"ampmodel sweep: {result.title}")
+    _head(result, "point")
+    if not quiet and len(result.values) <= MAX_ROWS:
+        present = set(scalar_keys(result.summaries))
+        keys = [k for k in TABLE_KEYS if k in present]
+        if "peak_fluence_J_cm2" in keys:        # pulsed: the fluence is the figure to watch
+            keys.remove("peak_intensity_W_cm2")
+        rows = [[f"{i:04d}"] + [_num(v[p]) for p in result.paths] +
+                [_num(s.get(k)) if s else "FAILED" for k in keys] + [str(len(s["warnings"])) if s else "-"]
+                for i, (v, s) in enumerate(zip(result.values, result.summaries))]
+        _table(["point"] + result.paths + keys + ["warnings"], rows)
+    elif not quiet:
+        print(f"(the table of {len(result.values)} points is in {result.table_csv})")
+    _warnings_and_failures(result, "point")
+    _safety()
+    _files(result)
+    if result.failed:
+        print(f"{len(result.failed)} points failed; start the same command again to retry only them.")
+        return EXIT_FAILED_POINTS
+    return EXIT_OK
+
+
+def _files(result, extra: Sequence[str] = ()) -> None:
+    names = [result.table_h5.name, result.table_csv.name, *extra, "points/"]
+    if result.plots:
+        names.append(f"plots/ ({len(result.plots)} PNG)")
+    print(f"wrote {result.out}/ ({', '.join(names)})")
+
+
+def print_spread(result, quiet: bool = False) -> int:
+    """Print a tolerance run's outcome: counts, the percentile table, warnings, files."""
+    print(f"ampmodel spread: {result.title}")
+    _head(result, "sample")
+    print(f"distributions (random_seed {result.random_seed}): " +
+          "; ".join(f"{p}: {_dist(d)}" for p, d in result.distributions.items()))
+    rows = [[k, p["unit"], _num(p["p5"]), _num(p["p50"]), _num(p["p95"]), _num(p["mean"]), _num(p["std"])]
+            for k, p in result.percentiles.items() if p["max"] > p["min"] and k not in QUIET_FIGURES]
+    print("the figures that vary (spread.csv and spread.json hold every figure):")
+    _table(["figure", "unit", "5 %", "50 %", "95 %", "mean", "std"], rows)
+    _warnings_and_failures(result, "sample")
+    _safety()
+    _files(result, ["spread.json", "spread.csv"])
+    if result.failed:
+        print(f"{len(result.failed)} samples failed (the percentiles leave them out); start the same command "
+              f"again to retry only them.")
+        return EXIT_FAILED_POINTS
+    return EXIT_OK
+
+
+def _dist(d: dict) -> str:
+    if "normal" in d:
+        return f"normal, relative std {d['normal']:g} around {d['nominal']:g}"
+    lo, hi = d["uniform"]
+    return f"uniform in [{lo:g}, {hi:g}]"
+
+
+def print_sizing(result) -> int:
+    """Print the answer of ``size`` (value, figures there, margins); return 0, or 3 without a solution."""
+    print(result.message)
+    if result.summary is not None:
+        s = result.summary
+        print(f"figures at {result.vary} = {result.value:.10g}:")
+        for k in ("input_energy_J", "output_energy_J", "input_power_W", "output_power_W", "gain",
+                  "extraction_efficiency", "stored_energy_J", "optical_efficiency", "absorbed_pump_power_W",
+                  "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad"):
+            if k in s:
+                print(f"  {k} = {s[k]:.6g}")
+        if result.margins:
+            print("limits:")
+            for m in result.margins:
+                tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
+                state = "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
+                print(f"  {m['figure']} {m['op']} {m['limit']:g}: {m['value']:.6g}, margin {m['margin']:.4g} "
+                      f"({100 * m['relative_margin']:.1f} % of the limit), {state}")
+        if s.get("warnings"):
+            print("warnings there:")
+            for w in s["warnings"]:
+                print(f"  - {w}")
+        _safety()
+    return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION

@@ -1,0 +1,567 @@
+"""Parameter sweeps (SPEC section 5): the points of a [sweep] table, run in parallel, resumable.
+
+The machinery here is shared with tolerance runs (``spread.py``): a list of points, each a dict of
+value paths and values, is turned into one validated config per point; the points are run by
+joblib (``backends.py``: loky processes here, or a dask cluster); each worker writes its point's
+file ``points/NNNN.h5`` atomically; the parent writes the table (``sweep.h5``/``sweep.csv``) and
+the plots. A second start on the same folder computes only the points whose file is missing,
+partial or made for other values; a folder of another config is refused (``sweep_store.py``).
+
+Order of the points: ``combine = "grid"`` takes every combination with the *last* path of the
+table varying fastest (nested loops in the order the paths are written); ``combine = "zip"`` takes
+the lists side by side (point i has the i-th value of each list).
+"""
+from __future__ import annotations
+
+import copy
+import dataclasses
+import itertools
+import json
+import os
+import re
+import signal
+import sys
+import tempfile
+import time
+import traceback
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Mapping, Sequence
+
+from ampmodel.studies import store as store
+from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
+from ampmodel.studies.backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks, where
+from ampmodel.config.load import ConfigError, dump_toml, load_config, resolve_path
+from ampmodel.config.files import inline_files
+from ampmodel.description import Config
+
+__all__ = ["run_sweep", "SweepResult", "sweep_points", "run_points", "time_sweep", "BackendError",
+           "FolderError"]
+FolderError = store.FolderError
+PREFLIGHT_TIMEOUT_S = 60.0
+
+
+# ----------------------------------------------------------------------------------------------
+# Points
+# ----------------------------------------------------------------------------------------------
+
+def sweep_points(table: Mapping[str, Any]) -> tuple[list[str], list[dict[str, Any]]]:
+    """The swept paths and the points of a (validated) [sweep] table.
+
+    Returns
+    -------
+    paths : list of str, in the order of the table
+    points : list of {path: value}; "grid": every combination, the last path varying fastest;
+        "zip": the i-th value of every list
+    """
+    paths = [k for k in table if k != "combine"]
+    lists = [list(table[p]) for p in paths]
+    combos = zip(*lists) if table.get("combine", "grid") == "zip" else itertools.product(*lists)
+    return paths, [dict(zip(paths, c)) for c in combos]
+
+
+def point_raw(raw: Mapping[str, Any], values: Mapping[str, Any], title: str) -> dict:
+    """The config dict of one point: ``raw`` without [sweep] and [spread], with ``values`` set."""
+    out = copy.deepcopy({k: v for k, v in raw.items() if k not in store.NOT_HASHED})
+    for path, value in values.items():
+        container, key = resolve_path(out, path)
+        container[key] = copy.deepcopy(value)
+    out.setdefault("title", title)
+    return out
+
+
+def describe(values: Mapping[str, Any]) -> str:
+    """"seed.energy_J = 0.01, medium.rod.small_signal_gain = 4.0"."""
+    from ampmodel.config.schema import show
+    return ", ".join(f"{p} = {show(v, 30)}" for p, v in values.items())
+
+
+@dataclass(frozen=True)
+class PointTask:
+    """What a worker needs for one point (plain data: pickled to loky or dask workers)."""
+
+    index: int
+    raw: dict
+    text: str
+    source: str
+    path: str
+    attrs: dict
+    parent_pid: int = 0       # the process that started the sweep (0: do not check)
+
+
+@dataclass
+class PointOutcome:
+    """What a worker sends back: the summary, or the error of a point that failed."""
+
+    index: int
+    summary: dict | None
+    seconds: float
+    error: str | None = None
+    where: str = ""
+    write_error: bool = False     # the point file could not be written (full disk, no permission)
+
+
+def _leave_interrupts_to_the_parent() -> None:
+    """In a local worker: ignore SIGINT. Ctrl-C in a terminal reaches the whole process group; the
+    parent stops the sweep and ends its workers, and a worker interrupted on its own could print a
+    stray traceback (an interrupt that lands in a clean-up callback) over the parent's message."""
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:        # not the worker's main thread: nothing to change
+        pass
+
+
+def run_point(task: PointTask) -> PointOutcome:
+    """Run one point and write its file (``points/NNNN.h5``: result.h5's content, its summary, and
+    root attributes ``sweep_index``, ``sweep_values``, ``sweep_config_hash``), atomically.
+
+    Runs in a worker process; never raises: a failure comes back as ``PointOutcome.error``. A local
+    worker whose parent is gone (the sweep was killed outright) leaves instead of computing the
+    points still queued for nobody."""
+    if task.parent_pid and os.getpid() != task.parent_pid:
+        if os.getppid() != task.parent_pid:
+            os._exit(0)
+        _leave_interrupts_to_the_parent()
+    start = time.perf_counter()
+    try:
+        from ampmodel.output.result import write_hdf5
+        from ampmodel.simulation import simulate
+        config = dataclasses.replace(load_config(task.raw), text=task.text, source=task.source)
+        result = simulate(config, progress=False)
+        write_hdf5(result, Path(task.path), attrs=task.attrs)
+        return PointOutcome(task.index, result.summary, time.perf_counter() - start, None, where())
+    except Exception as exc:   # noqa: BLE001 - reported by the parent, point by point
+        if is_write_error(exc):                   # the folder or the disk, not the point: the parent stops
+            return PointOutcome(task.index, None, time.perf_counter() - start,
+                                describe_write_error(exc, task.path), where(), write_error=True)
+        if isinstance(exc, ConfigError):          # e.g. a cw iteration that does not converge here
+            error = "; ".join(line.replace("<dict>: ", f"{task.source}: ", 1) for line in exc.problems)
+        else:                                     # an internal failure: keep the traceback for a report
+            detail = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            error = f"{detail}\n{traceback.format_exc()}"
+        return PointOutcome(task.index, None, time.perf_counter() - start, error, where())
+
+
+# ----------------------------------------------------------------------------------------------
+# The machinery
+# ----------------------------------------------------------------------------------------------
+
+@dataclass
+class SweepResult:
+    """What a sweep (or a tolerance run) produced.
+
+    out : the output folder; kind : "sweep" or "spread"; title : the config's title
+    paths : the value paths; values : one {path: value} per point (config units)
+    summaries : one summary.json dict per point (None for a point that failed)
+    computed : indices computed by this start; reused : indices found done in the folder
+    failed : index -> error text; point_seconds : index -> compute time (s) of the points computed
+    table_h5, table_csv : the table files; plots : the PNG files written
+    seconds : wall time of this start; jobs : worker count used (loky) or workers of the cluster
+    """
+
+    out: Path
+    kind: str
+    title: str
+    paths: list[str]
+    values: list[dict[str, Any]]
+    summaries: list[dict | None]
+    computed: list[int]
+    reused: list[int]
+    failed: dict[int, str]
+    table_h5: Path
+    table_csv: Path
+    seconds: float
+    jobs: int
+    backend: str
+    point_seconds: dict[int, float] = field(default_factory=dict)
+    plots: list[Path] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    def column(self, key: str) -> list:
+        """The values of a swept path or a summary scalar, one per point (NaN for a failed point)."""
+        if key in self.paths:
+            return [v[key] for v in self.values]
+        return [s.get(key, float("nan")) if s else float("nan") for s in self.summaries]
+
+
+def _prefix_problems(problems: list[str], source: str, label: str) -> list[str]:
+    return [line.replace("<dict>: ", f"{source}: {label}: ", 1) for line in problems]
+
+
+def prepare(base: Config, values: Sequence[Mapping[str, Any]], kind: str) -> tuple[list[dict], list[str], int]:
+    """Validate the config of every point before anything runs.
+
+    Returns (point dicts, their TOML texts, the largest memory estimate of one point in bytes).
+
+    Raises
+    ------
+    ConfigError
+        Every problem of every point (up to 40 lines), each naming the point and its values."""
+    from ampmodel.simulation import check_memory
+    raws, texts, problems, largest = [], [], [], 0
+    label = "sample" if kind == "spread" else "point"
+    for i, v in enumerate(values):
+        # data files inline: a worker need not see them (the same data as the base config read)
+        raw = inline_files(point_raw(base.raw, v, base.title), base.folder or None)
+        name = f"{label} {store.point_name(i)} ({describe(v)})"
+        try:
+            config = load_config(raw)
+            need = check_memory(config)      # one point alone must fit; _fit_jobs then counts the workers
+        except ConfigError as err:
+            problems += _prefix_problems(err.problems, base.source, name)
+            if len(problems) >= 40:
+                problems.append(f"{base.source}: ... (stopped after 40 problems)")
+                break
+            continue
+        largest = max(largest, need)
+        raws.append(raw)
+        texts.append(f"# {kind} {label} {store.point_name(i)} of {base.source}: {describe(v)}\n" + dump_toml(raw))
+    if problems and kind == "spread":
+        problems.append(f"{base.source}: spread: {len(values) - len(raws)} of {len(values)} samples are not valid "
+                        "configs; narrow the distributions (a smaller normal relative std, or uniform bounds "
+                        "inside the allowed values)")
+    if problems:
+        raise ConfigError(problems)
+    return raws, texts, largest
+
+
+def _fit_jobs(jobs: int, per_point: int, notes: list[str]) -> int:
+    """Fewer local workers when their points would not fit in the available memory together."""
+    from ampmodel.simulation import available_memory_bytes
+    have = available_memory_bytes()
+    if have is None or per_point <= 0 or jobs * per_point <= 0.8 * have:
+        return jobs
+    fit = max(1, int(0.8 * have // per_point))
+    notes.append(f"{jobs} workers would need about {jobs * per_point / 2**30:.1f} GiB together; "
+                 f"running {fit} at a time ({have / 2**30:.1f} GiB available)")
+    return fit
+
+
+def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mapping[str, Any]], out: Path, *,
+               backend: str = "loky", jobs: int | None = None, scheduler: str | None = None,
+               progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
+               table_stem: str = "sweep", table_attrs: Mapping[str, Any] | None = None,
+               manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None,
+               derived: Sequence[str] = ()) -> SweepResult:
+    """Run the points of a sweep or a tolerance run into ``out``; compute only those it lacks.
+
+    Parameters
+    ----------
+    kind : "sweep" or "spread" (recorded in the manifest; a folder of the other kind is refused)
+    base : the validated config (its ``raw`` without [sweep]/[spread] is what the manifest hashes)
+    paths, values : the value paths and one {path: value} per point, config units
+    out : the output folder (created)
+    backend, jobs, scheduler : see ``backends.run_tasks``; ``jobs`` None is every core
+    progress : show a tqdm bar (count and time left) on stderr
+    timeout_s : dask pre-flight timeout
+    table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
+    manifest_table : the [sweep] or [spread] table, recorded in the manifest
+    finish : called with the result while the folder is still locked (plots, statistics)
+    derived : further files made from the table (removed at the start with the table, written by
+        ``finish``)
+
+    Raises
+    ------
+    ConfigError (a point's config is invalid), FolderError (the folder cannot be used),
+    BackendError (the dask cluster cannot be used); nothing is written in these cases.
+    KeyboardInterrupt (Ctrl-C, or SIGTERM through the command line), OutputError (a file cannot be
+    written: full disk, no permission), WorkerLost (a worker process died): the points done so far
+    are kept, the table lists them, and ``exc.progress`` (a :class:`Progress`) says how far it got.
+    """
+    if backend not in BACKENDS:
+        raise ValueError(f"backend must be one of {BACKENDS}, not {backend!r}")
+    if scheduler and backend != "dask":
+        raise ValueError("a scheduler address needs the dask backend")
+    if jobs is not None and jobs < 1:
+        raise ValueError(f"jobs must be 1 or more, not {jobs}")
+    start = time.perf_counter()
+    out = Path(out)
+    raws, texts, per_point = prepare(base, values, kind)
+    hashed = inline_files(base.raw, base.folder or None)     # a changed data file is another config
+    previous = store.check_folder(out, kind, hashed, base.source)
+    hash_ = store.config_hash(hashed)
+    notes: list[str] = []
+    created = not out.exists()
+    try:
+        (out / store.POINTS).mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        if is_write_error(exc):
+            raise OutputError(describe_write_error(exc, out), out) from None
+        raise
+    try:
+        with store.folder_lock(out):
+            store.remove_stale_parts(out)
+            # the table and what is derived from it are written again at the end: until then no
+            # earlier table may stand for this start's points
+            for name in (f"{table_stem}.h5", f"{table_stem}.csv", *derived):
+                (out / name).unlink(missing_ok=True)
+            store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
+            summaries: list[dict | None] = [None] * len(values)
+            todo: list[int] = []
+            for i, v in enumerate(values):
+                path = store.point_path(out, i)
+                found = store.read_point(path) if path.exists() else None
+                if found and found["config_hash"] == hash_ and found["values"] == store.values_key(v):
+                    summaries[i] = found["summary"]
+                else:
+                    if path.exists():
+                        path.unlink()     # partial, or made for other values: computed again
+                    todo.append(i)
+            pending = set(todo)
+            reused = [i for i in range(len(values)) if i not in pending]
+            # absolute paths: workers on other machines have working directories of their own
+            tasks = [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
+                               store.point_attrs(kind, i, values[i], hash_),
+                               parent_pid=os.getpid() if backend == "loky" else 0) for i in todo]
+            failed: dict[int, str] = {}
+            seconds: dict[int, float] = {}
+            used = 0
+            attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
+                     "paths": json.dumps(paths), **(table_attrs or {})}
+
+            def table() -> tuple[Path, Path]:
+                done = [s is not None for s in summaries]
+                return store.write_table(out, table_stem, kind, store.table_columns(paths, list(values), summaries),
+                                         done, attrs)
+
+            if tasks:
+                try:
+                    used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
+                                progress, timeout_s, len(values), len(reused), kind, notes)
+                except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
+                    # points a worker finished while the news was on its way: in the folder, so in the table
+                    for i in todo:
+                        if summaries[i] is None and i not in failed:
+                            found = store.read_point(store.point_path(out, i))
+                            if found and found["config_hash"] == hash_ and found["values"] == store.values_key(values[i]):
+                                summaries[i] = found["summary"]
+                    _stop(exc, table, out, kind, sum(s is not None for s in summaries), len(values))
+                    raise
+            h5, csv = table()
+            result = SweepResult(out=out, kind=kind, title=base.title, paths=list(paths), values=[dict(v) for v in values],
+                                 summaries=summaries, computed=[i for i in todo if i not in failed],
+                                 reused=reused, failed=failed, table_h5=h5, table_csv=csv,
+                                 seconds=time.perf_counter() - start, jobs=used, backend=backend,
+                                 point_seconds=seconds, notes=notes)
+            if finish is not None:
+                finish(result)
+    except BackendError:
+        if previous is None:      # a new folder that the cluster never wrote into: leave nothing behind
+            store.undo_new_folder(out, created)
+        raise
+    except OSError as exc:
+        if is_write_error(exc):   # the manifest, the table or the plots: the folder or the disk
+            error = OutputError(describe_write_error(exc, out), out)
+            error.progress = getattr(exc, "progress", None) or Progress(out, kind, None, len(values))
+            raise error from None
+        raise
+    return result
+
+
+@dataclass
+class Progress:
+    """How far a sweep or spread got before it stopped (attached to the exception as ``progress``)."""
+
+    out: Path
+    kind: str
+    done: int | None      # points done and kept (None: not known)
+    total: int
+
+
+def _stop(exc: BaseException, table: Callable[[], Any], out: Path, kind: str, done: int, total: int) -> None:
+    """A start that stops early: write the table of the points done so far (best effort: the disk may
+    be full, or a second Ctrl-C may come) and attach how far it got to ``exc`` (``exc.progress``)."""
+    try:
+        table()
+    except (OSError, KeyboardInterrupt):
+        pass
+    exc.progress = Progress(out, kind, done, total)
+
+
+def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, backend: str, jobs: int | None,
+         scheduler: str | None, per_point: int, out: Path, progress: bool, timeout_s: float,
+         total: int, initial: int, kind: str, notes: list[str]) -> int:
+    """Run ``tasks`` on the backend, filling ``summaries`` and ``failed``; return the worker count."""
+    from tqdm import tqdm
+    bar = tqdm(total=total, initial=initial, unit="sample" if kind == "spread" else "point", desc=kind, disable=not progress, file=sys.stderr,
+               dynamic_ncols=True, smoothing=0.2)
+    try:
+        if backend == "dask":
+            workers = min(jobs or cores(), len(tasks))
+            with Cluster(scheduler, workers, timeout_s) as cluster:
+                answers = preflight(cluster.client, out.absolute() / store.POINTS, timeout_s)
+                n = len(answers)
+                bar.set_postfix_str(f"{n} dask workers")
+                for outcome in run_tasks(run_point, tasks, "dask", client=cluster.client):
+                    _collect(outcome, summaries, failed, seconds, bar)
+            return n
+        n = _fit_jobs(min(jobs or cores(), len(tasks)), per_point, notes)
+        for outcome in run_tasks(run_point, tasks, "loky", n):
+            _collect(outcome, summaries, failed, seconds, bar)
+        return n
+    finally:
+        bar.close()
+
+
+def _collect(outcome: PointOutcome, summaries: list, failed: dict, seconds: dict, bar) -> None:
+    if outcome.write_error:       # every later point would fail the same way: stop
+        raise OutputError(outcome.error or "cannot write a point file")
+    seconds[outcome.index] = outcome.seconds
+    if outcome.error is None:
+        summaries[outcome.index] = outcome.summary
+    else:
+        failed[outcome.index] = outcome.error
+        bar.set_postfix_str(f"{len(failed)} failed")
+    bar.update(1)
+
+
+# ----------------------------------------------------------------------------------------------
+# The public entry point
+# ----------------------------------------------------------------------------------------------
+
+def _slug(text: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_") or "untitled"
+
+
+def default_folder(base: Config, suffix: str) -> Path:
+    """``runs/<config stem>-<suffix>`` (the title stands in for a config given as a dict)."""
+    stem = Path(base.source).stem if base.source not in ("<dict>", "") else _slug(base.title)
+    return Path("runs") / f"{stem}-{suffix}"
+
+
+def load(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str] = ()) -> Config:
+    """A validated Config from a path, a dict or a Config (``overrides``: --set strings)."""
+    if isinstance(config, Config):
+        if overrides:
+            return load_config(dict(config.raw), overrides, folder=config.folder or None)
+        return config
+    return load_config(config, overrides)
+
+
+def load_with_table(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str], name: str,
+                    example: str) -> tuple[Config, dict]:
+    """The validated config (:func:`load`) and its ``[name]`` table (``sweep`` or ``spread``).
+
+    Raises
+    ------
+    ConfigError : bad input, or no such table (the message shows ``example``)
+    """
+    base = load(config, overrides)
+    table = base.raw.get(name)
+    if not isinstance(table, dict):
+        raise ConfigError([f"{base.source}: {name}: missing: the config has no [{name}] table; add one, e.g. "
+                           f"{example}"])
+    return base, table
+
+
+def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLike | None = None, *,
+              jobs: int | None = None, backend: str = "loky", scheduler: str | None = None,
+              overrides: Sequence[str] = (), progress: bool = False, plots: bool = True,
+              timeout_s: float = PREFLIGHT_TIMEOUT_S) -> SweepResult:
+    """Run the sweep in a config's [sweep] table (SPEC section 5), in parallel, resumable.
+
+    Parameters
+    ----------
+    config : path of a TOML file, a config dict, or a Config from :func:`ampmodel.load_config`
+    out : output folder (default ``runs/<config stem>-sweep``); started again on the same folder,
+        only the points it lacks are computed
+    jobs : worker processes (default: every core); with the dask backend and no scheduler, the
+        workers of the LocalCluster
+    backend : "loky" (processes on this machine) or "dask" (a dask.distributed cluster)
+    scheduler : address ``tcp://host:port`` of a running dask scheduler (implies backend "dask");
+        None with backend "dask": a LocalCluster on 127.0.0.1
+    overrides : ``PATH=VALUE`` strings applied to the config first, like ``--set``
+    progress : show a progress bar (count, time left) on stderr
+    plots : write ``plots/*.png`` (each summary scalar against the swept values)
+    timeout_s : how long the dask pre-flight check waits for the scheduler and workers
+
+    Returns
+    -------
+    SweepResult
+        ``summaries[i]`` is point i's summary.json dict; ``computed`` the points this call ran.
+
+    Raises
+    ------
+    ConfigError : bad input (also a config without [sweep]); FolderError : ``out`` holds another
+    config's sweep (or is not a sweep folder, or is in use); BackendError : the dask cluster
+    cannot be used. Nothing is written in these cases.
+    """
+    if scheduler and backend == "loky":
+        backend = "dask"
+    base, table = load_with_table(config, overrides, "sweep",
+                                  '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps)')
+    paths, values = sweep_points(table)
+    out = Path(out) if out is not None else default_folder(base, "sweep")
+    combine = table.get("combine", "grid")
+
+    def finish(result: SweepResult) -> None:
+        if plots:
+            from ampmodel.plots.sweep import plot_sweep
+            result.plots = plot_sweep(result, combine, out / "plots")
+
+    return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
+                      progress=progress, timeout_s=timeout_s, table_stem="sweep",
+                      table_attrs={"combine": combine}, manifest_table=table, finish=finish)
+
+
+# ----------------------------------------------------------------------------------------------
+# For the benchmark: the wall time of an N-point sweep on k workers
+# ----------------------------------------------------------------------------------------------
+
+BENCH_CONFIG: dict[str, Any] = {
+    "title": "sweep benchmark: double-pass Nd:YAG rod",
+    "grid": {"points": 96, "width_mm": 8.0, "time_slices": 32},
+    "medium": [{"name": "rod", "material": "Nd:YAG", "length_mm": 100.0, "diameter_mm": 6.35,
+                "slices": 24, "loss_per_cm": 0.002, "small_signal_gain": 6.0}],
+    "seed": {"energy_J": 0.02, "duration_ns": 10.0, "profile": "gaussian", "diameter_mm": 4.5},
+    "step": [{"kind": "pass", "medium": "rod"}, {"kind": "loss", "transmission": 0.95},
+             {"kind": "pass", "medium": "rod", "reverse": True}],
+}
+"""A config whose points take about a second each on one core (96 x 96 x 32 x 2 x 24 cells)."""
+
+
+def _warm_up(_: Any) -> str:
+    """A task that makes a worker import what a point needs (for time_sweep(warm=True))."""
+    from ampmodel.studies.backends import probe_import
+    return probe_import()["where"]
+
+
+def time_sweep(config: str | os.PathLike | Mapping | Config | None = None, points: int = 8,
+               workers: Sequence[int] = (1, 2), path: str = "seed.energy_J", backend: str = "loky",
+               folder: str | os.PathLike | None = None, warm: bool = False) -> dict[str, Any]:
+    """Wall time of a ``points``-point sweep on each worker count in ``workers`` (for ``ampmodel bench``).
+
+    The sweep varies ``path`` over ``points`` values from half to twice the config's value; each
+    worker count runs the whole sweep into a fresh folder (no resume, no plots), so the times include
+    starting the worker processes, writing the point files and the table. One worker runs the points
+    in the calling process, one after another (what ``--jobs 1`` does). With ``warm`` (loky only), the
+    worker processes are started and have imported ampmodel before the clock starts (joblib keeps
+    them for the next sweep): the steady state of a long sweep rather than a fresh start.
+
+    Returns
+    -------
+    dict
+        ``points``, ``path``, ``backend``, ``seconds`` {k: wall time (s)}, ``speedup`` {k: t(first k)
+        / t(k)}, ``point_seconds`` (mean compute time of one point, from the first run).
+    """
+    import numpy as np
+    base = load(BENCH_CONFIG if config is None else config)
+    container, key = resolve_path(dict(base.raw), path)
+    nominal = container[key]
+    values = [{path: float(nominal * f)} for f in np.geomspace(0.5, 2.0, points)]
+    seconds: dict[int, float] = {}
+    point_seconds = float("nan")
+    with tempfile.TemporaryDirectory(prefix="ampmodel-bench-", dir=folder) as tmp:
+        for k in workers:
+            if warm and backend == "loky" and k > 1:
+                list(run_tasks(_warm_up, list(range(k)), "loky", k))
+            t0 = time.perf_counter()
+            r = run_points("sweep", base, [path], values, Path(tmp) / f"workers-{k}", backend=backend, jobs=k)
+            seconds[k] = time.perf_counter() - t0
+            if r.failed:
+                raise RuntimeError(f"benchmark point failed: {next(iter(r.failed.values()))}")
+            if point_seconds != point_seconds:     # NaN: the first run
+                point_seconds = sum(r.point_seconds.values()) / len(r.point_seconds)
+    first = seconds[workers[0]]
+    return {"points": points, "path": path, "backend": backend, "warm": warm, "seconds": seconds,
+            "speedup": {k: first / t for k, t in seconds.items()}, "point_seconds": point_seconds}
