@@ -579,5 +579,5 @@ def _load_text(report: dict[str, Any]) -> str:
 
 def write_json(report: dict[str, Any], path: Path) -> None:
     """Write the report atomically (results.write_json)."""
-    from ampmodel.output.result import write_json as atomic
+    from ampmodel.output.atomic import write_json as atomic
     atomic(report, path)

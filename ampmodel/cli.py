@@ -240,7 +240,7 @@ def cmd_run(args) -> int:
 
 def _report_run(s: dict, out: Path, plots: bool) -> None:
     """The table of a run, its warnings, the safety note and the folder written."""
-    from ampmodel.pulsed.diagnostics import SAFETY_NOTE
+    from ampmodel.diagnostics import SAFETY_NOTE
     if s.get("layout") == "fibre":
         _print_fibre(s)
     else:
@@ -401,7 +401,7 @@ def cmd_size(args) -> int:
                                 xtol=args.xtol, report=report, keep_result=bool(args.out))
         code = print_sizing(result)
         if tmp is not None:
-            from ampmodel.output.result import write_json
+            from ampmodel.output.atomic import write_json
             write_json(result.as_dict(), tmp / "size.json")
             if result.result is not None:
                 result.result.save(tmp, plots=True)

@@ -6,7 +6,7 @@ downstream (pumping, beams, solver, diagnostics, results) reads only these objec
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import Any, Mapping, Sequence
 
 from ampmodel.materials.material import Material
 
@@ -288,3 +288,24 @@ def longest_layout_time_s(steps: tuple[Step, ...]) -> float:
             total += step.most_round_trips * step.round_trip_time_s
         total += step.delay_s
     return total
+
+
+def step_label(steps: Sequence[Step], index: int, inner: int | None = None, *, short: bool = False) -> str:
+    """How a step is named: the one label of a step everywhere.
+
+    ``step 3 (pass rod, reverse)`` or ``step 0, round-trip step 2 (loss)`` (``inner``: a step inside
+    the repeat ``index``) in warnings and messages; ``3 pass rod (rev)`` on the axes of figures
+    (``short``).
+    """
+    step = steps[index]
+    if inner is not None:
+        step = step.steps[inner]
+    if short:
+        label = f"{index}" + (f".{inner}" if inner is not None else "") + f" {step.kind}"
+        if step.medium:
+            label += f" {step.medium}"
+        return label + (" (rev)" if step.kind == "pass" and step.reverse else "")
+    label = f"step {index} ({step.kind}" if inner is None else f"step {index}, round-trip step {inner} ({step.kind}"
+    if step.kind == "pass":
+        label += f" {step.medium}" + (", reverse" if step.reverse else "")
+    return label + ")"

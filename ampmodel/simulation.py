@@ -56,8 +56,6 @@ def check_memory(config: Config) -> int:
     return need
 
 
-
-
 def simulate(config: Config, progress: bool | None = False) -> Result:
     """Run a validated configuration and return its Result (nothing is written).
 

@@ -14,8 +14,8 @@ import numpy as np
 
 from ampmodel.media import cw_pump, gain_maps
 from ampmodel.cw.run import CwMedium, Sweep
-from ampmodel.description import Config
-from ampmodel.pulsed.diagnostics import SAFETY_NOTE, W_CM2, seed_grid_warnings, step_label, transverse_gain_warnings
+from ampmodel.description import Config, step_label
+from ampmodel.diagnostics import SAFETY_NOTE, W_CM2, seed_grid_warnings, transverse_gain_warnings
 from ampmodel.output.result import MediumRecord
 
 
@@ -100,7 +100,7 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
         if step.kind == "pass":
             entry.update(reverse=step.reverse, extracted_power_W=oc.extracted_W)
         steps.append(entry)
-        label = step_label(config, step.index)
+        label = step_label(config.steps, step.index)
         if oc.power_in_W > 0 and oc.clipped_W > limits.clipped_fraction * oc.power_in_W:
             warnings.append(f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} % of the power "
                             f"(more than {100 * limits.clipped_fraction:g} %)")

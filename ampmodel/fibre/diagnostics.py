@@ -28,13 +28,10 @@ from typing import Any
 import numpy as np
 
 from ampmodel.fibre import model as F
-from ampmodel.description import Config
-from ampmodel.pulsed.diagnostics import SAFETY_NOTE, scaled_damage_fluence
+from ampmodel.description import Config, step_label
+from ampmodel.diagnostics import J_CM2, SAFETY_NOTE, W_CM2, scaled_damage_fluence
 from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
 from ampmodel.kernels.diffraction import critical_power_W
-
-J_CM2 = 1e-4
-W_CM2 = 1e-4
 
 
 def raman_threshold_W(effective_area_m2: float, raman_gain_m_W: float, effective_length_m: float) -> float:
@@ -228,7 +225,7 @@ def summarise_fibre(config: Config, stages: list[dict], x_m: np.ndarray) -> dict
             damage = config.medium(model.name).material.damage_intensity_W_m2
             peak_i = st["peak_power_W"] * st["peak_axis_per_m2"]
             if damage and peak_i > limits.damage_fraction * damage:
-                warnings.append(f"step {step.index} (pass {model.name}): peak intensity on the fibre's axis "
+                warnings.append(f"{step_label(config.steps, step.index)}: peak intensity on the fibre's axis "
                                 f"{peak_i * W_CM2:.3g} W/cm² is above {100 * limits.damage_fraction:g} % of the cw "
                                 f"damage intensity of {config.medium(model.name).material.name} "
                                 f"({damage * W_CM2:.3g} W/cm², common practice)")
@@ -312,7 +309,7 @@ def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float
     if config.mode == "cw":
         damage = step.damage_intensity_W_m2
         if damage and axis_value > limits.damage_fraction * damage:
-            warnings.append(f"step {step.index} (loss): peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
+            warnings.append(f"{step_label(config.steps, step.index)}: peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
                             f"{100 * limits.damage_fraction:g} % of the cw damage intensity of this optic "
                             f"({damage * W_CM2:.3g} W/cm², common practice)")
         return
@@ -320,7 +317,7 @@ def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float
         scaled = scaled_damage_fluence(step.damage_fluence_J_m2, step.damage_pulse_s, config.seed.duration_s,
                                        limits.damage_scaling_exponent)
         if axis_value > limits.damage_fraction * scaled:
-            warnings.append(f"step {step.index} (loss): peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
+            warnings.append(f"{step_label(config.steps, step.index)}: peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
                             f"is above {100 * limits.damage_fraction:g} % of the damage fluence of this optic "
                             f"(estimated {scaled * J_CM2:.3g} J/cm² at {config.seed.duration_s * 1e9:g} ns, "
                             f"common practice)")
@@ -334,11 +331,11 @@ def _pulse_warnings(config: Config, step, model: F.FibreModel, peak_fluence_J_m2
         scaled = scaled_damage_fluence(mat.damage_fluence_J_m2, mat.damage_pulse_s, seed.duration_s,
                                        limits.damage_scaling_exponent)
         if peak_fluence_J_m2 > limits.damage_fraction * scaled:
-            warnings.append(f"step {step.index} (pass {model.name}): peak fluence on the fibre's axis "
+            warnings.append(f"{step_label(config.steps, step.index)}: peak fluence on the fibre's axis "
                             f"{peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above {100 * limits.damage_fraction:g} % of "
                             f"the damage fluence of {mat.name} (estimated {scaled * J_CM2:.3g} J/cm² at "
                             f"{seed.duration_s * 1e9:g} ns, common practice); the output facet is most at risk")
     if b_rad > limits.b_integral_step_rad:
-        warnings.append(f"step {step.index} (pass {model.name}): B-integral {b_rad:.2f} rad, above "
+        warnings.append(f"{step_label(config.steps, step.index)}: B-integral {b_rad:.2f} rad, above "
                         f"{limits.b_integral_step_rad:g} rad (common practice): self-phase modulation broadens the "
                         f"spectrum; a larger mode area or a longer (stretched) pulse lowers it")

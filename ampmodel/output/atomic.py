@@ -18,11 +18,12 @@ half-way, a file system that lost data): :func:`is_complete_hdf5`.
 from __future__ import annotations
 
 import errno as errno_codes
+import json
 import os
 import tempfile
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Iterator
+from typing import Any, Iterator
 
 PART_SUFFIX = ".part"
 COMPLETE_ATTR = "complete"
@@ -75,6 +76,14 @@ def write_text(path: str | os.PathLike, text: str) -> None:
     with target(path) as tmp:
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)
+
+
+def write_json(data: dict[str, Any], path: Path) -> None:
+    """Write ``data`` as indented JSON, atomically (:func:`target`)."""
+    with target(path) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            json.dump(data, fh, indent=2, allow_nan=False)
+            fh.write("\n")
 
 
 def remove_parts(*folders: str | os.PathLike) -> int:

@@ -8,12 +8,27 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ampmodel.plots.common import MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, block_mean, centre_index, finite_max, new_figure, pixel_extent, save_png
-from ampmodel.plots.run import _step_ticks, _title_suffix, step_label
-from ampmodel.output.result import Result
+from ampmodel.description import step_label
+from ampmodel.plots.common import (
+    MAP_CMAP,
+    OUTPUT_COLOUR,
+    SEED_COLOUR,
+    block_mean,
+    centre_index,
+    finite_max,
+    new_figure,
+    pixel_extent,
+    save_png,
+    step_ticks,
+    title_suffix,
+)
+
+if TYPE_CHECKING:
+    from ampmodel.output.result import Result
 
 BEAM_KEYS = ("d4sigma_x_mm", "d4sigma_y_mm", "modulation_peak_to_mean", "fill_factor")
 MAX_PANELS_PER_ROW = 5
@@ -39,7 +54,7 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
     """
     maps = [np.asarray(result.seed_fluence_J_m2, dtype=float)] + \
         [np.asarray(r.fluence_J_m2, dtype=float) for r in result.steps]
-    labels = ["seed"] + [step_label(result, r) for r in result.steps]
+    labels = ["seed"] + [step_label(result.config.steps, r.index, short=True) for r in result.steps]
     n = len(maps)
     cols = min(n, MAX_PANELS_PER_ROW)
     rows = math.ceil(n / cols)
@@ -80,7 +95,7 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
             lo.set_ylabel("J/cm²", fontsize="small")
         if i == 0:
             lo.legend(fontsize="x-small", loc="upper right")
-    fig.suptitle("Fluence at each step (maps, and lineouts through the axis)" + _title_suffix(result))
+    fig.suptitle("Fluence at each step (maps, and lineouts through the axis)" + title_suffix(result))
     return save_png(fig, path)
 
 
@@ -95,7 +110,7 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     """
     summary = result.summary
     rows = [summary["seed_beam"]] + list(summary["steps"])
-    labels = ["seed"] + [step_label(result, r) for r in result.steps]
+    labels = ["seed"] + [step_label(result.config.steps, r.index, short=True) for r in result.steps]
     pos = np.arange(len(rows), dtype=float)
     dx = np.array([r["d4sigma_x_mm"] for r in rows])
     dy = np.array([r["d4sigma_y_mm"] for r in rows])
@@ -128,6 +143,6 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     ax2.set_title("Modulation and fill factor over the clear aperture (README: definitions)")
     ax2.grid(True, alpha=0.3)
     ax2.set_xlabel("step")
-    _step_ticks(ax2, labels, pos, width_in)
-    fig.suptitle("Beam figures through the layout" + _title_suffix(result))
+    step_ticks(ax2, labels, pos, width_in)
+    fig.suptitle("Beam figures through the layout" + title_suffix(result))
     return save_png(fig, path)

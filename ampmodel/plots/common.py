@@ -7,13 +7,18 @@ canvas, so figures can be made in threads and worker processes, with no display.
 from __future__ import annotations
 
 import math
+import re
 from pathlib import Path
+from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from ampmodel.output.atomic import target
+
+if TYPE_CHECKING:
+    from ampmodel.output.result import Result, StepRecord
 
 DPI = 110
 MAX_IMAGE_PIXELS = 512          # larger maps are block-averaged down to at most this many pixels per axis
@@ -104,3 +109,93 @@ def centre_index(coords: np.ndarray) -> int:
     """Index of the pixel centre closest to 0 (the optical axis)."""
     c = np.asarray(coords, dtype=float)
     return int(np.argmin(np.abs(c))) if c.size else 0
+
+
+def safe_name(name: str) -> str:
+    """``name`` reduced to characters that are safe in a file name."""
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", name).strip("._") or "medium"
+
+
+def is_cw(result: Result) -> bool:
+    return getattr(result.config, "mode", "pulsed") == "cw"
+
+
+def seed_map(result: Result) -> np.ndarray:
+    """The seed's transverse map: fluence (J/m²), or intensity (W/m²) in a cw run."""
+    cw_map = getattr(result, "seed_intensity_W_m2", None)
+    return np.asarray(cw_map if is_cw(result) and cw_map is not None else result.seed_fluence_J_m2, dtype=float)
+
+
+def step_map(result: Result, rec: StepRecord) -> np.ndarray:
+    """The beam's transverse map after a step: fluence (J/m²), or intensity (W/m²) in a cw run."""
+    cw_map = getattr(rec, "intensity_W_m2", None)
+    return np.asarray(cw_map if is_cw(result) and cw_map is not None else rec.fluence_J_m2, dtype=float)
+
+
+def length_unit(coords_m: np.ndarray) -> tuple[float, str]:
+    """(factor from m, label) for transverse coordinates: µm for a window narrower than 1 mm (fibres)."""
+    extent = float(np.max(np.abs(coords_m))) if np.size(coords_m) else 1.0
+    return (1e6, "µm") if extent < 0.5e-3 else (1e3, "mm")
+
+
+def map_quantity(result: Result) -> tuple[str, str]:
+    """(name, display unit) of the transverse maps: fluence in J/cm², or intensity in W/cm² (cw)."""
+    return ("intensity", "W/cm²") if is_cw(result) else ("fluence", "J/cm²")
+
+
+def step_energies(result: Result) -> tuple[float, np.ndarray]:
+    """Seed energy and energy after each step, in J (cw: power in W).
+
+    Taken from the summary's ``steps`` entries when they are complete, else integrated from the
+    fluence (intensity) maps over the pixel area.
+    """
+    cw = is_cw(result)
+    in_key, out_key = ("power_in_W", "power_out_W") if cw else ("energy_in_J", "energy_out_J")
+    area = pixel_pitch(result.x_m) * pixel_pitch(result.y_m)
+    seed = float(np.sum(np.nan_to_num(seed_map(result))) * area)
+    after = np.array([float(np.sum(np.nan_to_num(step_map(result, r))) * area) for r in result.steps])
+    summary = result.summary or {}
+    seed_key = "input_power_W" if cw else "input_energy_J"
+    if isinstance(summary.get(seed_key), (int, float)):
+        seed = float(summary[seed_key])
+    entries = summary.get("steps")
+    if isinstance(entries, list) and len(entries) == len(result.steps):
+        values = [e.get(out_key) if isinstance(e, dict) else None for e in entries]
+        if all(isinstance(v, (int, float)) for v in values):
+            after = np.array(values, dtype=float)
+        if entries and isinstance(entries[0], dict) and isinstance(entries[0].get(in_key), (int, float)):
+            seed = float(entries[0][in_key])
+    return seed, after
+
+
+def step_gains(result: Result, seed: float, after: np.ndarray) -> np.ndarray:
+    """Gain of each step (energy out / energy in); NaN where the input is zero."""
+    entries = (result.summary or {}).get("steps")
+    if isinstance(entries, list) and len(entries) == len(result.steps):
+        values = [e.get("gain") if isinstance(e, dict) else None for e in entries]
+        if all(isinstance(v, (int, float)) for v in values):
+            return np.array(values, dtype=float)
+    before = np.concatenate(([seed], after[:-1]))
+    out = np.full(after.shape, np.nan)
+    np.divide(after, before, out=out, where=before > 0)
+    return out
+
+
+def step_ticks(ax, labels: Sequence[str], positions: Sequence[float], width_in: float) -> None:
+    """Put step labels on the x axis of ``ax``, rotated when they would crowd each other.
+
+    ``width_in`` is the figure width in inches; a character of a tick label takes about 0.065 in.
+    """
+    ax.set_xticks(list(positions))
+    room_in = (width_in - 1.2) / max(len(labels), 1)
+    crowded = max((len(s) for s in labels), default=0) * 0.065 > 0.9 * room_in
+    if crowded:
+        ax.set_xticklabels(labels, rotation=40, ha="right", rotation_mode="anchor")
+    else:
+        ax.set_xticklabels(labels)
+    ax.set_xlim(min(positions) - 0.6, max(positions) + 0.6)
+
+
+def title_suffix(result: Result) -> str:
+    title = getattr(result.config, "title", "")
+    return f"\n{title}" if title else ""

@@ -10,12 +10,27 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ampmodel.plots.common import MAP_CMAP, OUTPUT_COLOUR, SEED_COLOUR, block_mean, centre_index, finite_max, finite_min, new_figure, pixel_extent, save_png
-from ampmodel.plots.run import _title_suffix, gain_colour_scale, gain_maps_per_cm, limit_to_medium
-from ampmodel.output.result import Result
+from ampmodel.plots.common import (
+    MAP_CMAP,
+    OUTPUT_COLOUR,
+    SEED_COLOUR,
+    block_mean,
+    centre_index,
+    finite_max,
+    finite_min,
+    new_figure,
+    pixel_extent,
+    save_png,
+    title_suffix,
+)
+from ampmodel.plots.gain import gain_colour_scale, gain_maps_per_cm, limit_to_medium
+
+if TYPE_CHECKING:
+    from ampmodel.output.result import Result
 
 PASS_COLOURS = ["#c8432b", "#1f5fa8", "#2b8c3e", "#8a4fb0", "#d08a1a", "#3a9aa8", "#7a6a55", "#b03a78"]
 PUMP_COLOUR = "0.45"
@@ -121,7 +136,7 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     material = getattr(med, "material", "")
     fig.suptitle(f"Steady-state gain in medium '{name}'" + (f" ({material})" if material else "")
                  + f": {len(passes)} pass{'es' if len(passes) != 1 else ''} saturating together"
-                 + _title_suffix(result))
+                 + title_suffix(result))
     return save_png(fig, path)
 
 

@@ -7,12 +7,24 @@ Each figure has its own Agg canvas and is written atomically (the helpers of plo
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ampmodel.plots.common import ENERGY_UNITS, OUTPUT_COLOUR, POWER_UNITS, SEED_COLOUR, new_figure, save_png, unit_prefix
-from ampmodel.plots.run import _title_suffix
-from ampmodel.output.result import FibreRecord, Result
+from ampmodel.plots.common import (
+    ENERGY_UNITS,
+    OUTPUT_COLOUR,
+    POWER_UNITS,
+    SEED_COLOUR,
+    new_figure,
+    safe_name,
+    save_png,
+    title_suffix,
+    unit_prefix,
+)
+
+if TYPE_CHECKING:
+    from ampmodel.output.result import FibreRecord, Result
 
 PUMP_COLOUR = "#2a9d3a"
 ASE_COLOUR = "#8e44ad"
@@ -68,7 +80,7 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
         ax2.grid(True, alpha=0.3)
         ax2.set_title(f"pulse energy along the fibre: {energy[0] / scale:.3g} {unit} in, "
                       f"{energy[-1] / scale:.3g} {unit} out")
-    fig.suptitle(f"Fibre {rec.name}" + _title_suffix(result))
+    fig.suptitle(f"Fibre {rec.name}" + title_suffix(result))
     return save_png(fig, path)
 
 
@@ -119,7 +131,7 @@ def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
         ax.set_ylabel("mean N2/Nt")
         ax.grid(True, alpha=0.3)
         ax.set_title("the pump restoring the inversion between pulses (fibre average)")
-    fig.suptitle(f"Fibre {rec.name}: gain and inversion" + _title_suffix(result))
+    fig.suptitle(f"Fibre {rec.name}: gain and inversion" + title_suffix(result))
     return save_png(fig, path)
 
 
@@ -154,7 +166,7 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     ax.legend(loc="lower right", fontsize="small", framealpha=0.9)
     what = "steady state" if rec.mode == "cw" else "between pulses, just before a pulse"
     ax.set_title(f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
-    fig.suptitle("ASE spectra" + _title_suffix(result))
+    fig.suptitle("ASE spectra" + title_suffix(result))
     return save_png(fig, path)
 
 
@@ -167,10 +179,9 @@ def _watts(value: float) -> str:
 def make_fibre_plots(result: Result, directory: Path, used: set[str]) -> list[Path]:
     """The fibre figures: ``fibre_<name>_powers.png``, ``gain_<name>.png`` and, with ASE,
     ``fibre_<name>_ase.png`` for each fibre."""
-    from ampmodel.plots.run import _safe_name
     out = []
     for name, rec in result.fibres.items():
-        stem = _safe_name(name)
+        stem = safe_name(name)
         while stem in used:
             stem += "_"
         used.add(stem)

@@ -21,6 +21,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
 from ampmodel.units import unit_of
 
@@ -92,10 +93,6 @@ def axis_label(words: str, unit: str) -> str:
     return words if unit in ("1", "") else f"{words} ({unit})"
 
 
-def _numeric(values: Sequence[Any]) -> bool:
-    return all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values)
-
-
 def _log_axis(values: Sequence[float], ratio: float) -> bool:
     v = np.asarray([x for x in values if math.isfinite(x)], dtype=float)
     return v.size > 1 and bool(np.all(v > 0)) and v.max() / v.min() >= ratio
@@ -116,8 +113,8 @@ class _Axis:
 
     def __init__(self, path: str, raw_values: Sequence[Any], ratio: float = 20.0):
         self.path = path
-        distinct = list(dict.fromkeys(_text(v) if not _numeric([v]) else v for v in raw_values))
-        self.numeric = _numeric(distinct)
+        distinct = list(dict.fromkeys(_text(v) if not is_number(v) else v for v in raw_values))
+        self.numeric = all(is_number(v) for v in distinct)
         unit = unit_of(path.rsplit(".", 1)[-1])
         if self.numeric:
             self.factor, shown = scale_for(unit, distinct)
@@ -265,7 +262,6 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
     combine : "grid" or "zip"
     folder : where the PNG files go (created)
     """
-    from ampmodel.studies.store import scalar_keys
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     paths, values, summaries = list(result.paths), result.values, result.summaries
@@ -358,7 +354,6 @@ def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[st
     percentiles : key -> {"p5", "p50", "p95"} in the unit the key carries
     folder : where ``hist_<key>.png`` go (created)
     """
-    from ampmodel.studies.store import scalar_keys
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     written = []

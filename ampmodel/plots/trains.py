@@ -4,13 +4,25 @@ they share)."""
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 from matplotlib.ticker import MaxNLocator
 
-from ampmodel.plots.common import ENERGY_UNITS, LOSS_COLOUR, OUTPUT_COLOUR, SEED_COLOUR, finite_max, new_figure, save_png, unit_prefix
-from ampmodel.plots.run import _title_suffix
-from ampmodel.output.result import Result
+from ampmodel.plots.common import (
+    ENERGY_UNITS,
+    LOSS_COLOUR,
+    OUTPUT_COLOUR,
+    SEED_COLOUR,
+    finite_max,
+    new_figure,
+    save_png,
+    title_suffix,
+    unit_prefix,
+)
+
+if TYPE_CHECKING:
+    from ampmodel.output.result import Result
 
 
 def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
@@ -76,7 +88,7 @@ def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
     ax_g.grid(True, axis="y", alpha=0.3)
     ax_g.set_xlim(-0.6, n + 0.6)
     ax_g.xaxis.set_major_locator(MaxNLocator(integer=True))
-    fig.suptitle("Build-up of the pulse, round trip by round trip" + _title_suffix(result))
+    fig.suptitle("Build-up of the pulse, round trip by round trip" + title_suffix(result))
     return save_png(fig, path)
 
 
@@ -135,5 +147,5 @@ def plot_train(result: Result, path: Path) -> Path:
     ax_s.xaxis.set_major_locator(MaxNLocator(integer=True))
     if k.size:
         ax_s.set_xlim(0.5, k.size + 0.5)
-    fig.suptitle("Pulse train from its start to the periodic steady state" + _title_suffix(result))
+    fig.suptitle("Pulse train from its start to the periodic steady state" + title_suffix(result))
     return save_png(fig, path)

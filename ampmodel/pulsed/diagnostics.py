@@ -13,70 +13,23 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from ampmodel.media import gain_maps
-from ampmodel.description import Config, Step
+from ampmodel.description import Config, Step, step_label
+from ampmodel.diagnostics import (
+    J_CM2,
+    SAFETY_NOTE,
+    W_CM2,
+    scaled_damage_fluence,
+    seed_grid_warnings,
+    transverse_gain_warnings,
+)
 from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
-from ampmodel.pulsed.passes import BeamState, StepOutcome
+from ampmodel.media import gain_maps
 from ampmodel.output.result import MediumRecord
-
-SAFETY_NOTE = ("Laser safety: beams at these energies are Class 4 hazards to eyes and skin; damage "
-               "thresholds here are estimates. Follow local regulations, the laser-safety standards "
-               "and your laser safety officer.")
-
-J_CM2 = 1e-4   # J/m² -> J/cm²
-W_CM2 = 1e-4   # W/m² -> W/cm²
-
-
-def scaled_damage_fluence(damage_J_m2: float, quoted_pulse_s: float | None, pulse_s: float,
-                          exponent: float) -> float:
-    """Damage fluence scaled from the quoted pulse length: F·(tau/tau_ref)^exponent (common practice)."""
-    if not quoted_pulse_s:
-        return damage_J_m2
-    return damage_J_m2 * (pulse_s / quoted_pulse_s) ** exponent
-
-
-def step_label(config: Config, index: int, inner: int | None = None) -> str:
-    """``step 3 (pass rod, reverse)``, ``step 0, round-trip step 2 (loss)``: how warnings name a step
-    (``inner``: a step inside the repeat ``index``)."""
-    step = config.steps[index]
-    label = f"step {index} ({step.kind}"
-    if inner is not None:
-        step = step.steps[inner]
-        label = f"step {index}, round-trip step {inner} ({step.kind}"
-    if step.kind == "pass":
-        label += f" {step.medium}" + (", reverse" if step.reverse else "")
-    return label + ")"
-
+from ampmodel.pulsed.passes import BeamState, StepOutcome
 
 # What a clipping step does, in the clipping warning.
 _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
                "pass": "the clear aperture clips"}
-
-
-def transverse_gain_warnings(name: str, gain_per_m: np.ndarray, diameter_m: float, limits) -> list[str]:
-    """A warning when the transverse gain-length product g0·D of a medium is above the limit (the
-    risk of parasitic oscillation across the rod; common practice)."""
-    g_peak = float(np.max(gain_per_m)) if np.size(gain_per_m) else 0.0
-    if g_peak * diameter_m > limits.transverse_gain_length:
-        return [f"medium {name}: transverse gain-length product g0·D = {g_peak * diameter_m:.2g} "
-                f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
-                f"oscillation; consider edge cladding or a lower gain"]
-    return []
-
-
-def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, width_m: float, limits) -> list[str]:
-    """The grid's two warnings about the seed: too few pixels across its diameter, and a seed map
-    (fluence or intensity, (Ny, Nx)) with more than 1e-3 of its peak at the window's edge."""
-    warnings = []
-    pixels = diameter_m / dx_m
-    if pixels < limits.pixels_across_beam:
-        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
-                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
-    edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
-    if edge > 1e-3 * seed_map.max():
-        warnings.append(f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm window "
-                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
-    return warnings
 
 
 def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
@@ -226,11 +179,11 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
         lost += oc.clipped_J + oc.passive_loss_J + edge_lost
         steps.append(_step_entry(config, step, oc))
-        label = step_label(config, step.index)
+        label = step_label(config.steps, step.index)
         warnings.extend(_step_warnings(config, step, oc, label))
         if step.kind == "repeat":
             for inner, ioc in zip(step.steps, oc.extras["inner"]):
-                warnings.extend(_step_warnings(config, inner, ioc, step_label(config, step.index, inner.index)))
+                warnings.extend(_step_warnings(config, inner, ioc, step_label(config.steps, step.index, inner.index)))
             if step.until is not None and not oc.extras["peak_found"] and oc.energy_out_J > 0:
                 warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
                                 f"trips; the pulse was dumped after the last; raise max_count or check the "
@@ -263,7 +216,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
                          "is what the B-integral measures")
         passes = f" ({count} passes above it)" if count > 1 else ""
         warnings.append(
-            f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config, index)}, "
+            f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config.steps, index)}, "
             f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
             f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
             + ("the field path includes the Kerr phase" if config.grid.diffraction else

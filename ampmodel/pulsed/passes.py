@@ -12,9 +12,8 @@ from typing import Callable
 
 import numpy as np
 
-from ampmodel.kernels import beam_shapes
 from ampmodel.description import Step
-from ampmodel.kernels import fn_pass
+from ampmodel.kernels import beam_shapes, fn_pass
 
 
 @dataclass

@@ -29,9 +29,9 @@ import numpy as np
 
 from ampmodel.description import Config, Step
 from ampmodel.kernels.inversion import relax_inversion
-from ampmodel.pulsed.passes import MediumState, StepOutcome
 from ampmodel.media.gain_maps import GainMap
 from ampmodel.output.result import StepRecord
+from ampmodel.pulsed.passes import MediumState, StepOutcome
 
 
 @dataclass

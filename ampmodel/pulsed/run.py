@@ -1,21 +1,18 @@
 """Orchestration: validated description -> initial state -> steps in order -> diagnostics -> Result."""
 from __future__ import annotations
 
-import sys
-from contextlib import nullcontext
-
 import numpy as np
 
-from ampmodel.progress import progress_bar
-
-from ampmodel.kernels import beam_shapes
-from ampmodel.pulsed import diagnostics, repeats as timing, trains
 from ampmodel.beam import field as optics
-from ampmodel.media import gain_maps
-from ampmodel.description import Config, Step
+from ampmodel.description import Config, Step, step_label
+from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
-from ampmodel.pulsed.passes import STEP_ACTIONS, BeamState, MediumState, StepOutcome, pass_medium
+from ampmodel.media import gain_maps
 from ampmodel.output.result import MediumRecord, Result, StepRecord
+from ampmodel.progress import progress_bar
+from ampmodel.pulsed import diagnostics, trains
+from ampmodel.pulsed import repeats as timing
+from ampmodel.pulsed.passes import STEP_ACTIONS, BeamState, MediumState, StepOutcome, pass_medium
 
 # Step actions of the fluence path: the layout's, with the optics that also act without diffraction.
 FLUENCE_ACTIONS = {**STEP_ACTIONS, **optics.FLUENCE_STEP_ACTIONS}
@@ -90,7 +87,7 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
                 fluence_map = fluence.sum(axis=0)
                 power = fluence.sum(axis=(1, 2)) * area / dt
                 if grid.diffraction:
-                    label = diagnostics.step_label(config, step.index)
+                    label = step_label(config.steps, step.index)
                     checks.append((label, optics.check_grid(beam, fluence=fluence)))
                 outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
                 outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)

@@ -38,13 +38,13 @@ from typing import Callable
 
 import numpy as np
 
-from ampmodel.kernels import beam_shapes
-from ampmodel.media import gain_maps
 from ampmodel.description import Config, Step, passed_media
+from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.frantz_nodvik import fn_total
 from ampmodel.kernels.inversion import relax_inversion
-from ampmodel.pulsed.passes import BeamState, MediumState, StepOutcome
+from ampmodel.media import gain_maps
 from ampmodel.output.result import StepRecord
+from ampmodel.pulsed.passes import BeamState, MediumState, StepOutcome
 from ampmodel.pulsed.repeats import MediumClock, Timeline
 
 ANDERSON_DEPTH = 6

@@ -52,10 +52,9 @@ def where() -> str:
 
 def probe_import() -> dict[str, str]:
     """Import ampmodel and what a point needs; return the version and where it runs."""
-    import ampmodel
-    from ampmodel.output import result as results
-    from ampmodel import simulation  # noqa: F401  (numpy, scipy, h5py come with them)
-    return {"version": ampmodel.__version__, "where": where(), "file": str(Path(ampmodel.__file__).parent)}
+    from ampmodel import _version, simulation  # noqa: F401  (numpy and scipy come with them)
+    from ampmodel.output import hdf5  # noqa: F401  (h5py comes with it)
+    return {"version": _version.__version__, "where": where(), "file": str(Path(_version.__file__).parent)}
 
 
 def probe_worker(folder: str, token: str) -> dict[str, str]:
@@ -107,8 +106,9 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
         No worker within the timeout; the scheduler or a worker cannot import ampmodel; a worker
         cannot write into ``folder``, or writes where the parent cannot see it.
     """
-    import ampmodel
     from distributed import TimeoutError as DaskTimeout, wait
+
+    from ampmodel._version import __version__
 
     address = client.scheduler.address
     try:
@@ -155,8 +155,8 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
         elif not (folder / info["wrote"]).exists():
             problems.append(f"worker {w} ({info['where']}) wrote a file into {folder} that this machine "
                             f"cannot see: give --out a folder on a file system shared with the workers")
-        if info.get("version") and info["version"] != ampmodel.__version__:
-            problems.append(f"worker {w} runs ampmodel {info['version']}, this machine {ampmodel.__version__}; "
+        if info.get("version") and info["version"] != __version__:
+            problems.append(f"worker {w} runs ampmodel {info['version']}, this machine {__version__}; "
                             f"install the same version everywhere")
     for probe in folder.glob(f".probe-{token}-*"):
         probe.unlink(missing_ok=True)

@@ -32,7 +32,7 @@ def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
 
 
 def _safety() -> None:
-    from ampmodel.pulsed.diagnostics import SAFETY_NOTE
+    from ampmodel.diagnostics import SAFETY_NOTE
     print(SAFETY_NOTE)
 
 
@@ -83,7 +83,7 @@ def _head(result, label: str) -> None:
 
 def print_sweep(result, quiet: bool = False) -> int:
     """Print a sweep's outcome: counts, a table of the points (up to 40), warnings, files."""
-    from ampmodel.studies.store import scalar_keys
+    from ampmodel.output.summary import scalar_keys
     print(f"ampmodel sweep: {result.title}")
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:

@@ -11,11 +11,8 @@ resolution of the config's material tables) differ from the stored data, the dif
 (``RerunReport.material_differences``); ``current_materials=True`` runs with today's files instead.
 Data files (a spectrum file) are taken from the stored copies as well.
 
-Comparison: a number matches when ``|a - b| <= rtol * max(|a|, |b|)`` (default rtol 1e-9). Figures
-that are themselves relative round-off (``*_error``, ``*_residual``: an energy balance of 1e-16 may
-read 3e-16 on another machine) match when ``|a - b| <= rtol``. Integers, strings and booleans must be
-equal, lists element by element (warnings as texts), and a figure present in one summary only is a
-difference.
+Comparison: figure by figure, as :func:`ampmodel.output.summary.compare_summaries` does (relative
+tolerance rtol, default 1e-9; round-off figures such as balance errors to an absolute rtol).
 """
 from __future__ import annotations
 
@@ -33,29 +30,8 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
 from ampmodel._version import __version__
+from ampmodel.output.summary import DEFAULT_RTOL, Difference, compare_summaries, plain
 from ampmodel.config.load import ConfigError, load_config
-
-DEFAULT_RTOL = 1e-9
-ROUND_OFF_SUFFIXES = ("_error", "_residual")
-
-
-@dataclass
-class Difference:
-    """One figure that does not match: its path in summary.json, the stored and the new value."""
-
-    path: str
-    stored: Any
-    new: Any
-
-    def text(self) -> str:
-        if isinstance(self.stored, float) and isinstance(self.new, float) and self.stored != 0:
-            return f"{self.path}: stored {self.stored!r}, now {self.new!r} (relative {self.new / self.stored - 1:+.3e})"
-        return f"{self.path}: stored {_short(self.stored)}, now {_short(self.new)}"
-
-
-def _short(value: Any) -> str:
-    text = json.dumps(value, default=str) if not isinstance(value, float) else repr(value)
-    return text if len(text) <= 120 else text[:117] + "..."
 
 
 @dataclass
@@ -91,62 +67,6 @@ class RerunReport:
 
 
 # ----------------------------------------------------------------------------------------------
-# Comparing summaries
-# ----------------------------------------------------------------------------------------------
-
-def _flatten(value: Any, path: str, out: dict[str, Any]) -> None:
-    if isinstance(value, Mapping):
-        for k, v in value.items():
-            _flatten(v, f"{path}.{k}" if path else str(k), out)
-    elif isinstance(value, list) and not all(isinstance(v, str) for v in value):
-        for i, v in enumerate(value):
-            _flatten(v, f"{path}[{i}]", out)
-    else:
-        out[path] = value
-
-
-def _number(v: Any) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool)
-
-
-def _matches(path: str, a: Any, b: Any, rtol: float) -> bool:
-    if isinstance(a, float) or isinstance(b, float):
-        if not (_number(a) and _number(b)):
-            return False
-        a, b = float(a), float(b)
-        if math.isnan(a) or math.isnan(b):
-            return math.isnan(a) and math.isnan(b)
-        if a == b:
-            return True
-        name = path.rsplit(".", 1)[-1]
-        if name.endswith(ROUND_OFF_SUFFIXES):
-            return abs(a - b) <= rtol
-        return abs(a - b) <= rtol * max(abs(a), abs(b))
-    return type(a) is type(b) and a == b
-
-
-def _plain(summary: Mapping[str, Any]) -> dict[str, Any]:
-    """The summary as summary.json holds it (numpy numbers as Python numbers)."""
-    return json.loads(json.dumps(summary))
-
-
-def compare_summaries(stored: Mapping[str, Any], new: Mapping[str, Any],
-                      rtol: float = DEFAULT_RTOL) -> tuple[int, list[Difference]]:
-    """Compare two summary.json dicts figure by figure; return (figures compared, differences)."""
-    a: dict[str, Any] = {}
-    b: dict[str, Any] = {}
-    _flatten(stored, "", a)
-    _flatten(new, "", b)
-    differences = []
-    for path in list(a) + [p for p in b if p not in a]:
-        if path not in a or path not in b:
-            differences.append(Difference(path, a.get(path, "(absent)"), b.get(path, "(absent)")))
-        elif not _matches(path, a[path], b[path], rtol):
-            differences.append(Difference(path, a[path], b[path]))
-    return len(set(a) | set(b)), differences
-
-
-# ----------------------------------------------------------------------------------------------
 # Reading the result file and running again
 # ----------------------------------------------------------------------------------------------
 
@@ -163,7 +83,7 @@ def read_stored(path: Path) -> tuple[dict[str, Any], list[str]]:
         The file is missing, not HDF5, incomplete (no ``complete = True`` while it has other
         markers of this version) or not a result file (no config or summary).
     """
-    from ampmodel.output.result import read_provenance
+    from ampmodel.output.hdf5 import read_provenance
     if not path.is_file():
         raise _problem(path, "no such result file; give the result.h5 of a run (or a sweep's points/NNNN.h5)")
     try:
@@ -273,7 +193,7 @@ def rerun(path: str | os.PathLike, out: str | os.PathLike | None = None, *, rtol
     ConfigError : not a complete result file, or its config is not valid in this version
     OutputError : the new folder cannot be written
     """
-    from ampmodel.output.result import write_json
+    from ampmodel.output.atomic import write_json
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.simulation import simulate
     path = Path(path)
@@ -292,12 +212,12 @@ def rerun(path: str | os.PathLike, out: str | os.PathLike | None = None, *, rtol
         notes.append(f"stored by ampmodel {report.stored_version}, run again with {__version__}")
     if not write:
         result = simulate(config, progress=progress)
-        report.compared, report.differences = compare_summaries(stored["summary"], _plain(result.summary), rtol)
+        report.compared, report.differences = compare_summaries(stored["summary"], plain(result.summary), rtol)
         return report, result
     base = Path(out) if out is not None else default_out(path)
     with partial_folder(base) as tmp:
         result = simulate(config, progress=progress)
-        report.compared, report.differences = compare_summaries(stored["summary"], _plain(result.summary), rtol)
+        report.compared, report.differences = compare_summaries(stored["summary"], plain(result.summary), rtol)
         result.save(tmp, plots=plots)
         write_json(report.as_dict(), tmp / "rerun.json")
         report.out = claim(tmp, base)

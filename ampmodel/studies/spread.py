@@ -83,7 +83,7 @@ def draw(dists: Mapping[str, Mapping[str, Any]], samples: int, random_seed: int)
 
 def statistics(summaries: Sequence[Mapping[str, Any] | None]) -> dict[str, dict[str, float]]:
     """Percentiles (5, 50, 95), mean, std (ddof 1), min, max and count of every summary scalar."""
-    from ampmodel.studies.store import scalar_keys
+    from ampmodel.output.summary import scalar_keys
     out = {}
     for key in scalar_keys(summaries):
         data = np.array([float(s[key]) for s in summaries if s and isinstance(s.get(key), (int, float))])
@@ -115,7 +115,7 @@ class SpreadResult(SweepResult):
 
 
 def _write_stats(out: Path, result: SpreadResult, base: Config) -> None:
-    from ampmodel.output.result import write_json
+    from ampmodel.output.atomic import write_json
     write_json({"source": base.source, "title": base.title, "samples": result.samples,
                 "random_seed": result.random_seed, "distributions": result.distributions,
                 "samples_ran": len(result.values) - len(result.failed),

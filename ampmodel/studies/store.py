@@ -33,6 +33,7 @@ import numpy as np
 
 from ampmodel._version import __version__
 from ampmodel.output import atomic
+from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.units import unit_of
 
 MANIFEST = "manifest.json"
@@ -41,10 +42,9 @@ POINTS = "points"
 PLOTS = "plots"
 # Keys of a run config that do not change what a point computes (the point's values are stored with it).
 NOT_HASHED = ("sweep", "spread")
+
+
 # summary.json entries that are not scalars of the table.
-NOT_SCALARS = ("mode", "title", "safety", "warnings", "steps", "media")
-
-
 class FolderError(Exception):
     """An output folder that cannot be used (another config's sweep, not a sweep folder, busy)."""
 
@@ -254,27 +254,13 @@ class Column:
     group: str              # "swept" or "summary"
 
 
-def _is_number(v: Any) -> bool:
-    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
-
-
-def scalar_keys(summaries: Sequence[Mapping[str, Any] | None]) -> list[str]:
-    """The scalar (number) entries of the summaries, in the order they first appear."""
-    keys: list[str] = []
-    for s in summaries:
-        for k, v in (s or {}).items():
-            if k not in NOT_SCALARS and k not in keys and _is_number(v):
-                keys.append(k)
-    return keys
-
-
 def table_columns(paths: Sequence[str], values: Sequence[Mapping[str, Any]],
                   summaries: Sequence[Mapping[str, Any] | None]) -> list[Column]:
     """The columns of the table: each path, each summary scalar (NaN where a point has none) and
     ``warning_count``, one row per point."""
     cols = [Column(p, [v[p] for v in values], unit_of(p.rsplit(".", 1)[-1]), "swept") for p in paths]
     for key in scalar_keys(summaries):
-        cols.append(Column(key, [float(s[key]) if s and _is_number(s.get(key)) else float("nan")
+        cols.append(Column(key, [float(s[key]) if s and is_number(s.get(key)) else float("nan")
                                  for s in summaries], unit_of(key), "summary"))
     cols.append(Column("warning_count", [len(s["warnings"]) if s else -1 for s in summaries], "1", "summary"))
     return cols
@@ -284,7 +270,7 @@ def _as_array(values: list) -> tuple[np.ndarray, bool]:
     """Numbers as float64 (int64 when all are ints), booleans as bool, anything else as UTF-8 text."""
     if all(isinstance(v, (bool, np.bool_)) for v in values):
         return np.array(values, dtype=bool), False
-    if all(_is_number(v) for v in values):
+    if all(is_number(v) for v in values):
         if all(isinstance(v, (int, np.integer)) for v in values):
             return np.array(values, dtype=np.int64), False
         return np.array(values, dtype=np.float64), False

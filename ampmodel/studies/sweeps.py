@@ -124,7 +124,7 @@ def run_point(task: PointTask) -> PointOutcome:
         _leave_interrupts_to_the_parent()
     start = time.perf_counter()
     try:
-        from ampmodel.output.result import write_hdf5
+        from ampmodel.output.hdf5 import write_hdf5
         from ampmodel.simulation import simulate
         config = dataclasses.replace(load_config(task.raw), text=task.text, source=task.source)
         result = simulate(config, progress=False)

@@ -170,8 +170,8 @@ def _main(args, capsys, cwd: Path, monkeypatch) -> tuple[int, str, str]:
 
 def _disk_full(after: int = 0):
     """A writer that works ``after`` times, then fails as a full disk does."""
-    from ampmodel.output import result as results
-    real = results.write_hdf5
+    from ampmodel.output import hdf5
+    real = hdf5.write_hdf5
     calls = {"n": 0}
 
     def write(result, path, attrs=None):
@@ -183,9 +183,9 @@ def _disk_full(after: int = 0):
 
 
 def test_a_full_disk_during_a_run_is_a_message(tmp_path, capsys, monkeypatch):
-    from ampmodel.output import result as results
+    from ampmodel.output import hdf5
     cfg = write_config(tmp_path, "")
-    monkeypatch.setattr(results, "write_hdf5", _disk_full())
+    monkeypatch.setattr(hdf5, "write_hdf5", _disk_full())
     code, out, err = _main(["run", str(cfg), "--out", str(tmp_path / "runs" / "x"), "--no-plots"], capsys, tmp_path,
                            monkeypatch)
     assert code == EXIT_CANNOT_WRITE
@@ -195,10 +195,10 @@ def test_a_full_disk_during_a_run_is_a_message(tmp_path, capsys, monkeypatch):
 
 
 def test_a_full_disk_during_a_sweep_stops_it_and_keeps_the_points(tmp_path, capsys, monkeypatch):
-    from ampmodel.output import result as results
+    from ampmodel.output import hdf5
     cfg = write_config(tmp_path)                                # 8 points, in this process (--jobs 1)
     args = ["sweep", "rod.toml", "--jobs", "1", "--no-plots", "--quiet"]
-    monkeypatch.setattr(results, "write_hdf5", _disk_full(after=3))
+    monkeypatch.setattr(hdf5, "write_hdf5", _disk_full(after=3))
     code, out, err = _main(args, capsys, tmp_path, monkeypatch)
     assert code == EXIT_CANNOT_WRITE
     assert "the disk is full" in err and "Traceback" not in err + out

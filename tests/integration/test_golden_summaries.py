@@ -45,7 +45,7 @@ def test_every_example_config_has_a_golden_summary():
 
 @pytest.mark.parametrize("config", CONFIGS, ids=[c.stem for c in CONFIGS])
 def test_summary_matches_the_golden_one(config):
-    from ampmodel.studies.rerun import compare_summaries
+    from ampmodel.output.summary import compare_summaries
     golden = json.loads((GOLDEN / f"{config.stem}.json").read_text())
     compared, differences = compare_summaries(golden, summary_of(config), rtol=RTOL)
     assert compared > 20

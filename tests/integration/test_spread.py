@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import ampmodel as api
-from ampmodel.output.result import read_hdf5
+from ampmodel.output.hdf5 import read_hdf5
 from sweep_helpers import BASE, ampmodel, write_config
 
 SPREAD = """

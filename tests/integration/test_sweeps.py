@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 import ampmodel as api
-from ampmodel.output.result import read_hdf5
+from ampmodel.output.hdf5 import read_hdf5
 from ampmodel.studies.store import FolderError
 from sweep_helpers import GRID_4x2, ROOT, ampmodel, write_config
 

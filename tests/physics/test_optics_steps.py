@@ -222,7 +222,7 @@ def test_grid_warnings_name_a_grid_that_would_do():
 def test_field_run_files_hold_the_beam_figures_and_the_output_field(tmp_path):
     """result.h5 of a field run: /beam rows (seed, then each step) equal the summary's figures, and
     /output/field squares to the last step's fluence."""
-    from ampmodel.output.result import read_hdf5
+    from ampmodel.output.hdf5 import read_hdf5
 
     result = _run(True)
     result.save(tmp_path / "run", plots=False)

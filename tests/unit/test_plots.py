@@ -15,7 +15,8 @@ import pytest
 
 from ampmodel.description import Config, Grid, Limits, Medium, Seed, Step
 from ampmodel.materials.material import Material
-from ampmodel.plots.run import make_plots, step_label
+from ampmodel.description import step_label
+from ampmodel.plots.run import make_plots
 from ampmodel.output.result import MediumRecord, Result, StepRecord
 from ampmodel.units import photon_energy_J
 
@@ -146,7 +147,7 @@ def test_no_b_integral_plot_without_n2(tmp_path):
 
 def test_step_labels():
     result = synthetic_result()
-    assert [step_label(result, r) for r in result.steps] == ["0 pass rod", "1 loss", "2 pass rod (rev)"]
+    assert [step_label(result.config.steps, r.index, short=True) for r in result.steps] == ["0 pass rod", "1 loss", "2 pass rod (rev)"]
 
 
 def test_zero_energy_step_single_time_slice_no_warnings(tmp_path):
