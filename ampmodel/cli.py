@@ -11,6 +11,7 @@ import traceback
 from pathlib import Path
 
 from ampmodel._version import __version__
+from ampmodel.output.tables import quantity_text, run_report_lines
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first
@@ -106,126 +107,14 @@ def _bad_input(problems: list[str]) -> int:
 def _load(path: str, overrides: list[str]):
     from ampmodel.config.load import load_config
     if not Path(path).is_file():
-        from ampmodel.config.load import ConfigError
+        from ampmodel.config.checks import ConfigError
         raise ConfigError([f"{path}: no such config file"])
     return load_config(path, overrides)
 
 
-def _fmt(value: float, unit: str) -> str:
-    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
-        if abs(value) >= scale:
-            return f"{value / scale:.4g} {prefix}{unit}"
-    return f"{value:.3g} {unit}"
-
-
-def _print_media(summary: dict) -> None:
-    cw = summary["mode"] == "cw"
-    for m in summary["media"]:
-        line = f"  medium {m['name']} ({m['material']}): on-axis small-signal gain {m['small_signal_gain_on_axis']:.4g}"
-        if cw:
-            line += f", saturated {m['saturated_gain_on_axis']:.4g}"
-            if "absorbed_pump_power_W" in m:
-                line += (f", absorbed pump {_fmt(m['absorbed_pump_power_W'], 'W')} of "
-                         f"{_fmt(m['pump_power_W'], 'W')}, photon balance error {m['photon_balance_error']:.1e}")
-        else:
-            line += f", stored energy {_fmt(m['stored_energy_J'], 'J')}"
-            if "absorbed_pump_energy_J" in m:
-                line += f", absorbed pump {_fmt(m['absorbed_pump_energy_J'], 'J')}"
-        print(line)
-
-
-def _print_cw_table(summary: dict) -> None:
-    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {'power in':>11} {'power out':>11} {'gain':>8} {'peak W/cm²':>10}")
-    for s in summary["steps"]:
-        kind = s["kind"] + (" rev" if s.get("reverse") else "")
-        print(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {_fmt(s['power_in_W'], 'W'):>11} "
-              f"{_fmt(s['power_out_W'], 'W'):>11} {s['gain']:>8.4g} {s['peak_intensity_W_cm2']:>10.3g}")
-    line = (f"input {_fmt(summary['input_power_W'], 'W')} -> output {_fmt(summary['output_power_W'], 'W')} "
-            f"(gain {summary['gain']:.4g})")
-    if "optical_efficiency" in summary:
-        line += (f"; absorbed pump {_fmt(summary['absorbed_pump_power_W'], 'W')}, optical-to-optical efficiency "
-                 f"{100 * summary['optical_efficiency']:.1f} %")
-    print(line)
-    print(f"peak intensity {summary['peak_intensity_W_cm2']:.3g} W/cm², steady state after {summary['cw_iterations']} "
-          f"sweeps (residual {summary['cw_residual']:.1e}), power balance error {summary['power_balance_error']:.1e}")
-
-
-def _print_fibre(summary: dict) -> None:
-    """The table of a layout of fibres (cw or pulsed)."""
-    cw = summary["mode"] == "cw"
-    for m in summary["media"]:
-        when = "with the pump alone" if cw else "before a pulse"
-        line = (f"  fibre {m['name']} ({m['material']}, {m['length_m']:g} m): mode-field diameter "
-                f"{m['mode_field_diameter_um']:.3g} µm, overlap {m['signal_overlap']:.3f}, small-signal gain "
-                f"{m['small_signal_gain_dB']:.1f} dB {when}")
-        if "pump_power_W" in m:
-            line += f", pump {_fmt(m['pump_power_W'], 'W')} (absorbed {_fmt(m['absorbed_pump_power_W'], 'W')})"
-        print(line)
-    unit, key = ("W", "power") if cw else ("J", "energy")
-    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {key + ' in':>11} {key + ' out':>11} {'gain dB':>8}")
-    for s in summary["steps"]:
-        gain = 10 * math.log10(s["gain"]) if s["gain"] > 0 else float("-inf")
-        print(f"{s['index']:>4}  {s['kind']:<8} {(s['medium'] or ''):<10} {_fmt(s[key + '_in_' + unit], unit):>11} "
-              f"{_fmt(s[key + '_out_' + unit], unit):>11} {gain:>8.2f}")
-    if cw:
-        print(f"input {_fmt(summary['input_power_W'], 'W')} -> output {_fmt(summary['output_power_W'], 'W')} "
-              f"(gain {summary['gain_dB']:.2f} dB, noise figure {summary['noise_figure_dB']:.2f} dB); residual pump "
-              f"{_fmt(summary['pump_power_out_W'], 'W')}, ASE forward {_fmt(summary['ase_forward_W'], 'W')}, "
-              f"backward {_fmt(summary['ase_backward_W'], 'W')}")
-        print(f"steady state: {summary['cw_iterations']} iterations, last change {summary['cw_residual']:.1e}; "
-              f"photon balance error {summary['photon_balance_error']:.1e}")
-        return
-    rate = summary.get("repetition_rate_Hz")
-    print(f"input {_fmt(summary['input_energy_J'], 'J')} -> output {_fmt(summary['output_energy_J'], 'J')} "
-          f"(gain {summary['gain_dB']:.2f} dB), peak power {_fmt(summary['output_peak_power_W'], 'W')}, "
-          f"FWHM {summary['output_pulse_duration_ns']:.3g} ns"
-          + (f", mean power {_fmt(summary['output_power_W'], 'W')} at {_fmt(rate, 'Hz')}" if rate else
-             " (a single pulse)"))
-    print(f"stored {_fmt(summary['stored_energy_J'], 'J')} -> {_fmt(summary['stored_energy_final_J'], 'J')}, "
-          f"B-integral {summary['b_integral_rad']:.3g} rad, peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm² "
-          f"(axis), residual pump {_fmt(summary['pump_power_out_W'], 'W')}, ASE forward "
-          f"{_fmt(summary['ase_forward_W'], 'W')}, backward {_fmt(summary['ase_backward_W'], 'W')}, energy balance "
-          f"error {summary['energy_balance_error']:.1e}")
-
-
-def _print_table(summary: dict) -> None:
-    if summary["mode"] == "cw":
-        _print_cw_table(summary)
-        return
-    print(f"{'step':>4}  {'kind':<8} {'medium':<10} {'energy in':>11} {'energy out':>11} {'gain':>8} "
-          f"{'peak J/cm²':>10} {'B rad':>6}")
-    for s in summary["steps"]:
-        kind = s["kind"] + (" rev" if s.get("reverse") else "")
-        print(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {_fmt(s['energy_in_J'], 'J'):>11} "
-              f"{_fmt(s['energy_out_J'], 'J'):>11} {s['gain']:>8.4g} {s['peak_fluence_J_cm2']:>10.3g} "
-              f"{s['b_integral_rad']:>6.2f}")
-    print(f"input {_fmt(summary['input_energy_J'], 'J')} -> output {_fmt(summary['output_energy_J'], 'J')} "
-          f"(gain {summary['gain']:.4g}); stored {_fmt(summary['stored_energy_J'], 'J')} -> "
-          f"{_fmt(summary['stored_energy_final_J'], 'J')}, extraction {100 * summary['extraction_efficiency']:.1f} %")
-    for s in summary["steps"]:
-        if s["kind"] == "repeat":
-            rule = "at the peak" if s.get("until") == "peak" else "after the count"
-            print(f"step {s['index']} repeat: {s['round_trip_count']} round trips of {s['round_trip_ns']:.4g} ns, "
-                  f"dumped {rule}; build-up time {s['build_up_time_ns']:.4g} ns")
-    train = summary.get("train")
-    if train:
-        n = train["pulses_to_steady_state"]
-        if n is None:
-            settle = "the pulses do not settle to it (see the warnings)"
-        else:
-            est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
-            settle = f"within {train['tolerance']:g} after {n} pulse{'s' if n != 1 else ''}{est}"
-        print(f"pulse train at {_fmt(train['repetition_rate_Hz'], 'Hz')}: steady state {_fmt(train['pulse_energy_J'], 'J')} "
-              f"per pulse, {_fmt(train['average_power_W'], 'W')} average; stored before each pulse "
-              f"{_fmt(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
-    print(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
-          f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
-          f"energy balance error {summary['energy_balance_error']:.1e}")
-
-
 def cmd_run(args) -> int:
-    from ampmodel.simulation import check_memory, simulate
     from ampmodel.output.run_folder import claim, partial_folder
+    from ampmodel.simulation import check_memory, simulate
     config = _load(args.config, args.overrides)
     check_memory(config)                       # a grid too large: refused before anything is made
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
@@ -234,28 +123,13 @@ def cmd_run(args) -> int:
         result.save(tmp, plots=not args.no_plots)
         out = claim(tmp, base)
     print(f"ampmodel run: {config.title}")
-    _report_run(result.summary, out, plots=not args.no_plots)
+    print("\n".join(run_report_lines(result.summary)))
+    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if not args.no_plots else ")"))
     return EXIT_OK
 
 
-def _report_run(s: dict, out: Path, plots: bool) -> None:
-    """The table of a run, its warnings, the safety note and the folder written."""
-    from ampmodel.diagnostics import SAFETY_NOTE
-    if s.get("layout") == "fibre":
-        _print_fibre(s)
-    else:
-        _print_media(s)
-        _print_table(s)
-    if s["warnings"]:
-        print("warnings:")
-        for w in s["warnings"]:
-            print(f"  - {w}")
-    print(SAFETY_NOTE)
-    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if plots else ")"))
-
-
 def cmd_rerun(args) -> int:
-    from ampmodel.config.load import ConfigError
+    from ampmodel.config.checks import ConfigError
     from ampmodel.studies.rerun import rerun
     if not (args.rtol >= 0 and math.isfinite(args.rtol)):
         raise ConfigError([f"ampmodel rerun: --rtol {args.rtol:g}: must be a number >= 0, e.g. 1e-9"])
@@ -292,14 +166,14 @@ def cmd_check(args) -> int:
     x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
     nm, ns = len(config.media), len(config.steps)
     print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {ns} step{'' if ns == 1 else 's'}, mode {config.mode}, "
-          f"about {_fmt(need, 'B')} of arrays)")
+          f"about {quantity_text(need, 'B')} of arrays)")
     if any(m.kind == "fibre" for m in config.media):
         from ampmodel.fibre.run import describe_fibres
         for line in describe_fibres(config):
             print(line)
         return EXIT_OK
     if config.mode == "cw":
-        from ampmodel.cw.run import build_medium
+        from ampmodel.cw.medium import build_medium
         for m in config.media:
             st = build_medium(m, x, x, config.solver)
             g = st.coarse(st.g0)
@@ -307,7 +181,7 @@ def cmd_check(args) -> int:
                     f"{gain_maps.on_axis_gain(g, m.length_m / m.slices):.4g}")
             if st.pump_field is not None:
                 absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
-                line += f", absorbed pump {_fmt(absorbed, 'W')} of {_fmt(st.pump.power_W, 'W')} (no signal)"
+                line += f", absorbed pump {quantity_text(absorbed, 'W')} of {quantity_text(st.pump.power_W, 'W')} (no signal)"
             print(line)
         return EXIT_OK
     for m in config.media:
@@ -315,7 +189,7 @@ def cmd_check(args) -> int:
         stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
                                          gm.slice_length_m * (x[1] - x[0]) ** 2)
         print(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-              f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {_fmt(stored, 'J')}")
+              f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {quantity_text(stored, 'J')}")
     return EXIT_OK
 
 
@@ -326,7 +200,7 @@ def cmd_media(args) -> int:
 
 
 def cmd_bench(args) -> int:
-    from ampmodel.config.load import ConfigError
+    from ampmodel.config.checks import ConfigError
     out = Path(args.json) if args.json else None
     if out is not None:
         if out.exists():
@@ -335,7 +209,7 @@ def cmd_bench(args) -> int:
         if not out.parent.is_dir():
             raise ConfigError([f"{out}: the folder {out.parent} does not exist: create it or give --json "
                                f"another path"])
-    from ampmodel.bench import run_bench, table_text, write_json
+    from ampmodel.bench.report import run_bench, table_text, write_json
     report = run_bench(quick=args.quick, progress=not args.quiet)
     print(table_text(report))
     if out is not None:
@@ -349,7 +223,7 @@ def cmd_bench(args) -> int:
 
 def _options(args, command: str) -> tuple[str, int | None]:
     """Check the sweep/spread options; return (backend, jobs)."""
-    from ampmodel.config.load import ConfigError
+    from ampmodel.config.checks import ConfigError
     problems = []
     if args.jobs is not None and args.jobs < 1:
         problems.append(f"--jobs {args.jobs}: must be 1 or more")
@@ -374,22 +248,23 @@ def _many_points(args, command: str, runner, printer) -> int:
 
 
 def cmd_sweep(args) -> int:
-    from ampmodel.studies.sweeps import run_sweep
     from ampmodel.studies.report import print_sweep
+    from ampmodel.studies.sweeps import run_sweep
     return _many_points(args, "sweep", run_sweep, print_sweep)
 
 
 def cmd_spread(args) -> int:
-    from ampmodel.studies.spread import run_spread
     from ampmodel.studies.report import print_spread
+    from ampmodel.studies.spread import run_spread
     return _many_points(args, "spread", run_spread, print_spread)
 
 
 def cmd_size(args) -> int:
-    from ampmodel.studies.sizing import parse_limit, parse_target, parse_within, size_to_target
-    from ampmodel.studies.report import print_sizing
     from contextlib import nullcontext
+
     from ampmodel.output.run_folder import claim, partial_folder
+    from ampmodel.studies.report import print_sizing
+    from ampmodel.studies.sizing import parse_limit, parse_target, parse_within, size_to_target
     target = parse_target(args.target)
     within = parse_within(args.within)
     limits = [parse_limit(text) for text in args.limits]
@@ -482,9 +357,9 @@ def main(argv: list[str] | None = None) -> int:
 
 def _dispatch(args, argv: list[str]) -> int:
     """Run the command; turn every kind of failure into its message and exit code."""
+    from ampmodel.config.checks import ConfigError
     from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
     from ampmodel.studies.backends import BackendError, WorkerLost
-    from ampmodel.config.load import ConfigError
     from ampmodel.studies.store import FolderError
     resumable = args.command in ("sweep", "spread")
     try:

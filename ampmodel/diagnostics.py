@@ -1,4 +1,4 @@
-"""What the summaries of every path share: the safety note, unit factors, the damage fluence scaled
+"""What the summaries of every path share: unit factors, the damage fluence scaled
 to the pulse, and the warnings about the grid and the transverse gain.
 
 Warning thresholds are common practice; each can be changed in the config's [limits] table
@@ -7,10 +7,6 @@ Warning thresholds are common practice; each can be changed in the config's [lim
 from __future__ import annotations
 
 import numpy as np
-
-SAFETY_NOTE = ("Laser safety: beams at these energies are Class 4 hazards to eyes and skin; damage "
-               "thresholds here are estimates. Follow local regulations, the laser-safety standards "
-               "and your laser safety officer.")
 
 J_CM2 = 1e-4   # J/m² -> J/cm²
 W_CM2 = 1e-4   # W/m² -> W/cm²

@@ -12,19 +12,21 @@ from contextlib import nullcontext
 MIN_TOTAL = 50
 
 
-def progress_bar(enabled: bool | None, *, total: int | None = None, unit: str, desc: str):
+def progress_bar(enabled: bool | None, *, total: int | None = None, unit: str, desc: str,
+                 min_total: int = MIN_TOTAL, bar_format: str | None = None):
     """A context manager giving a tqdm bar, or None when no bar is shown.
 
     Parameters
     ----------
     enabled : True shows the bar, False hides it, None shows it when stderr is an interactive terminal
     total : the count expected, or None when it is not known in advance (a counter); a total below
-        MIN_TOTAL shows no bar
+        ``min_total`` shows no bar
     unit, desc : what is counted ("slice", "pulse", "sweep") and the bar's label
+    bar_format : tqdm's layout of the bar, when the default does not suit
     """
     if enabled is None:
         enabled = sys.stderr.isatty()
-    if not enabled or (total is not None and total < MIN_TOTAL):
+    if not enabled or (total is not None and total < min_total):
         return nullcontext(None)
     from tqdm import tqdm
-    return tqdm(total=total, unit=unit, desc=desc, leave=False)
+    return tqdm(total=total, unit=unit, desc=desc, leave=False, file=sys.stderr, bar_format=bar_format)

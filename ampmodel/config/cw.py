@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from ampmodel.config import schema as S
-from ampmodel.config.schema import Problems, check_table, expected, join_path
+from ampmodel.config.checks import Problems, check_table, expected, join_path
 from ampmodel.description import Solver
 from ampmodel.materials.material import Material
 from ampmodel.units import si_name, to_si

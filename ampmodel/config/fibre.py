@@ -13,45 +13,16 @@ from __future__ import annotations
 import dataclasses
 
 from ampmodel.config import schema as S
-from ampmodel.kernels import fibre_modes as fm
-from ampmodel.config.schema import Key, Problems, allowed_keys, check_table, choice, did_you_mean, flag, integer, join_path, number, quantity, quoted_list, text
+from ampmodel.config.checks import Problems, allowed_keys, check_table, did_you_mean, join_path, quoted_list
+from ampmodel.config.schema import FIBRE_MEDIUM, FIBRE_PUMP
 from ampmodel.description import Fibre, FibrePump, Grid, Medium, Seed, Step
-from ampmodel.materials.material import MATERIAL_KEYS, Material
+from ampmodel.kernels import fibre_modes as fm
+from ampmodel.materials.material import Material
 from ampmodel.units import to_si
 
-_DOPING = MATERIAL_KEYS["doping_per_m3"]
-FIBRE_MEDIUM: dict[str, Key] = {
-    "name": text("medium name (steps refer to it)"),
-    "kind": choice("medium kind", ("bulk", "fibre")),
-    "material": Key("material", "a built-in material name or a [medium.material] table", required=True),
-    "length_m": quantity("fibre length", gt=0, le=1e5, required=True),
-    "core_diameter_um": quantity("doped core diameter", gt=0, le=5000, required=True),
-    "cladding_diameter_um": quantity("inner (pump) cladding diameter", gt=0, le=10000),
-    "core_na": number("core numerical aperture", gt=0, lt=1),
-    "mode_field_diameter_um": quantity("mode-field diameter of the signal (1/e² intensity)", gt=0, le=10000),
-    "doping_per_m3": quantity("active-ion density in the core", ge=_DOPING.low, le=_DOPING.high),
-    "slices": integer("slices along the fibre", 1, 100000, default=200),
-    "loss_per_m": quantity("background loss coefficient (every wavelength)", ge=0, le=100, default=0.0),
-    "ase": flag("amplified spontaneous emission in both directions, in spectral bins", default=False),
-    "ase_band_nm": Key("floats", "shortest and longest wavelength of the ASE bins", ge=150.0, le=20000.0, size=2,
-                       plausible=True),
-    "ase_bins": integer("spectral bins of the ASE", 1, 2000, default=40),
-    "signal_overlap": number("overlap of the signal (and ASE) mode with the doped core", gt=0, le=1),
-    "pump_overlap": number("overlap of the pump with the doped core", gt=0, le=1),
-    "rings": integer("rings the doped core is cut into (1: the overlap model)", 1, 500, default=1),
-    "pump": Key("table", "the fibre's pump: wavelength_nm, power_W, direction, cladding"),
-}
 BULK_MEDIUM_KEYS = {"length_mm": "length_m", "diameter_mm": "core_diameter_um", "width_mm": "core_diameter_um",
                     "loss_per_cm": "loss_per_m", "small_signal_gain": "a [medium.pump]",
                     "stored_energy_J": "a [medium.pump]"}
-DIRECTIONS = ("forward", "backward", "both")
-FIBRE_PUMP: dict[str, Key] = {
-    "wavelength_nm": quantity("pump wavelength", ge=150.0, le=20000.0),
-    "power_W": quantity("pump power launched at each pumped end", gt=0, le=1e5, required=True),
-    "direction": choice("where the pump is launched: z = 0 (forward), z = L (backward) or both ends",
-                        DIRECTIONS, default="forward"),
-    "cladding": flag("launched into the inner cladding (true) or the core (false)", default=False),
-}
 BULK_PUMP_KEYS = ("geometry", "energy_J", "duration_us", "profile", "diameter_mm", "order", "absorption_per_cm",
                   "back_reflectance", "absorbed_fraction", "transfer_efficiency", "quantum_efficiency")
 FIBRE_STEPS = ("pass", "loss")

@@ -24,7 +24,7 @@ import math
 from pathlib import Path
 from typing import Any, Iterator, Mapping
 
-from ampmodel.config.schema import Problems, join_path, show
+from ampmodel.config.checks import Problems, join_path, show
 from ampmodel.materials.material import SPECTRUM_ARRAYS, Spectrum, check_spectrum
 
 COLUMNS = tuple(SPECTRUM_ARRAYS)            # wavelength_nm, emission_cm2, absorption_cm2

@@ -12,8 +12,21 @@ from __future__ import annotations
 import dataclasses
 from typing import Any, Mapping
 
-# what every check shares, here too for the modules that import it with the tables
-from ampmodel.config.checks import ANY, NO_VALUE, PLAUSIBLE_NOTE, Key, PathError, Problems, allowed_keys, check_table, check_value, choice, close_matches, did_you_mean, expected, flag, integer, join_path, number, quantity, quoted_list, rule, show, text, type_name
+from ampmodel.config.checks import (
+    Key,
+    PathError,
+    Problems,
+    choice,
+    did_you_mean,
+    flag,
+    integer,
+    join_path,
+    number,
+    quantity,
+    show,
+    text,
+    type_name,
+)
 from ampmodel.description import Limits, Solver
 from ampmodel.materials.material import BROADENINGS, MATERIAL_KEYS
 
@@ -58,7 +71,7 @@ GAIN_NAMES = {"small_signal_gain": "small_signal_gain", "stored_energy_J": "stor
 _DOPING = MATERIAL_KEYS["doping_per_m3"]
 MEDIUM: dict[str, Key] = {
     "name": text("medium name (steps refer to it)"),
-    "kind": choice("medium kind (fibre media take the keys of config_fibre.FIBRE_MEDIUM)", MEDIUM_KINDS,
+    "kind": choice("medium kind (fibre media take the keys of FIBRE_MEDIUM)", MEDIUM_KINDS,
                    default="bulk"),
     "material": Key("material", 'a built-in material name or a [medium.material] table', required=True),
     "length_mm": quantity("length along the beam", gt=0, le=1e4, required=True),
@@ -240,6 +253,38 @@ DISTRIBUTIONS: dict[str, Key] = {
 SPREAD_HINT = '"seed.energy_J" = { normal = 0.05 } or "medium.rod.length_mm" = { uniform = [79.5, 80.5] }'
 
 
+# A fibre medium's keys and its pump's (config/fibre.py checks them across keys).
+FIBRE_MEDIUM: dict[str, Key] = {
+    "name": text("medium name (steps refer to it)"),
+    "kind": choice("medium kind", ("bulk", "fibre")),
+    "material": Key("material", "a built-in material name or a [medium.material] table", required=True),
+    "length_m": quantity("fibre length", gt=0, le=1e5, required=True),
+    "core_diameter_um": quantity("doped core diameter", gt=0, le=5000, required=True),
+    "cladding_diameter_um": quantity("inner (pump) cladding diameter", gt=0, le=10000),
+    "core_na": number("core numerical aperture", gt=0, lt=1),
+    "mode_field_diameter_um": quantity("mode-field diameter of the signal (1/e² intensity)", gt=0, le=10000),
+    "doping_per_m3": quantity("active-ion density in the core", ge=_DOPING.low, le=_DOPING.high),
+    "slices": integer("slices along the fibre", 1, 100000, default=200),
+    "loss_per_m": quantity("background loss coefficient (every wavelength)", ge=0, le=100, default=0.0),
+    "ase": flag("amplified spontaneous emission in both directions, in spectral bins", default=False),
+    "ase_band_nm": Key("floats", "shortest and longest wavelength of the ASE bins", ge=150.0, le=20000.0, size=2,
+                       plausible=True),
+    "ase_bins": integer("spectral bins of the ASE", 1, 2000, default=40),
+    "signal_overlap": number("overlap of the signal (and ASE) mode with the doped core", gt=0, le=1),
+    "pump_overlap": number("overlap of the pump with the doped core", gt=0, le=1),
+    "rings": integer("rings the doped core is cut into (1: the overlap model)", 1, 500, default=1),
+    "pump": Key("table", "the fibre's pump: wavelength_nm, power_W, direction, cladding"),
+}
+DIRECTIONS = ("forward", "backward", "both")
+FIBRE_PUMP: dict[str, Key] = {
+    "wavelength_nm": quantity("pump wavelength", ge=150.0, le=20000.0),
+    "power_W": quantity("pump power launched at each pumped end", gt=0, le=1e5, required=True),
+    "direction": choice("where the pump is launched: z = 0 (forward), z = L (backward) or both ends",
+                        DIRECTIONS, default="forward"),
+    "cladding": flag("launched into the inner cladding (true) or the core (false)", default=False),
+}
+
+
 def array_of_tables(p: Problems, raw: dict, key: str) -> list | None:
     """The array of tables under ``key``, or None (with a problem) when it is missing or malformed."""
     if key not in raw:
@@ -365,8 +410,6 @@ def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
         return sections[trail[0]]
     fibre = trail[0] == "medium" and isinstance(trail[1], int) and isinstance(raw["medium"][trail[1]], dict) \
         and raw["medium"][trail[1]].get("kind") == "fibre"
-    if fibre:
-        from ampmodel.config.fibre import FIBRE_MEDIUM, FIBRE_PUMP
     if trail[0] == "medium" and len(trail) == 3 and isinstance(trail[1], int):
         return {k: s for k, s in (FIBRE_MEDIUM if fibre else MEDIUM).items() if k != "pump"}
     if trail[0] == "medium" and len(trail) == 4 and trail[2] in ("pump", "material"):

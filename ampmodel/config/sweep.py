@@ -11,11 +11,23 @@ from __future__ import annotations
 from typing import Any, Callable
 
 from ampmodel.config import schema as S
-from ampmodel.config.schema import PathError, Problems, check_table, check_value, did_you_mean, expected, item_names, join_path, leaf_schema, quoted_list, walk
+from ampmodel.config.checks import (
+    Key,
+    PathError,
+    Problems,
+    check_table,
+    check_value,
+    close_matches,
+    did_you_mean,
+    expected,
+    join_path,
+    quoted_list,
+)
+from ampmodel.config.schema import item_names, leaf_schema, walk
 
 
 def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
-               verb: str) -> tuple[S.Key, Any, str] | None:
+               verb: str) -> tuple[Key, Any, str] | None:
     """The schema entry, container and leaf of a value path named in [sweep] or [spread].
 
     Returns None (with a problem naming ``table.key``) when the path does not name a value."""
@@ -28,7 +40,7 @@ def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
     schema = leaf_schema(raw, trail)
     if schema is None or leaf not in schema:
         prefix = key.rsplit(".", 1)[0] + "." if "." in key else ""
-        hits = S.close_matches(leaf, schema) if schema else []
+        hits = close_matches(leaf, schema) if schema else []
         hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
         p.add(path, f"not a value this config can {verb}; give a path such as seed.energy_J or "
                     f"medium.<name>.length_mm{hint}", given)

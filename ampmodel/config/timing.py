@@ -8,10 +8,9 @@ from __future__ import annotations
 from typing import Any, Callable
 
 from ampmodel.config import schema as S
-from ampmodel.config.schema import Problems, join_path
+from ampmodel.config.checks import Problems, join_path, type_name
 from ampmodel.description import Medium, Seed, Step, longest_layout_time_s, passed_media
 from ampmodel.units import to_si
-
 
 RATE_KEYS = ("repetition_rate_Hz", "repetition_rate_kHz")
 
@@ -115,7 +114,7 @@ def repeat(p: Problems, i: int, item: dict, v: dict, path: str, names: list[str]
     else:
         for j, sub in enumerate(items):
             if not isinstance(sub, dict):
-                p.add(f"{spath}[{j}]", f"must be a table ([[step.steps]]), not {S.type_name(sub)}", sub)
+                p.add(f"{spath}[{j}]", f"must be a table ([[step.steps]]), not {type_name(sub)}", sub)
                 inner.append(None)
             else:
                 inner.append(step(p, j, sub, names, mode, parent=(i, f"step[{i}]")))

@@ -12,11 +12,13 @@ from typing import Any
 
 import numpy as np
 
-from ampmodel.media import cw_pump, gain_maps
-from ampmodel.cw.run import CwMedium, Sweep
+from ampmodel.cw.medium import CwMedium
+from ampmodel.cw.steady_state import Sweep
 from ampmodel.description import Config, step_label
-from ampmodel.diagnostics import SAFETY_NOTE, W_CM2, seed_grid_warnings, transverse_gain_warnings
+from ampmodel.diagnostics import W_CM2, seed_grid_warnings, transverse_gain_warnings
+from ampmodel.media import cw_pump, gain_maps
 from ampmodel.output.result import MediumRecord
+from ampmodel.safety import SAFETY_NOTE
 
 
 def extracted_power_W(st: CwMedium, pixel_area_m2: float) -> float:

@@ -27,11 +27,13 @@ from typing import Any
 
 import numpy as np
 
-from ampmodel.fibre import model as F
 from ampmodel.description import Config, step_label
-from ampmodel.diagnostics import J_CM2, SAFETY_NOTE, W_CM2, scaled_damage_fluence
-from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
+from ampmodel.diagnostics import J_CM2, W_CM2, scaled_damage_fluence
+from ampmodel.fibre import model as F
+from ampmodel.fibre import steady_state
 from ampmodel.kernels.diffraction import critical_power_W
+from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
+from ampmodel.safety import SAFETY_NOTE
 
 
 def raman_threshold_W(effective_area_m2: float, raman_gain_m_W: float, effective_length_m: float) -> float:
@@ -88,7 +90,7 @@ def _stage_figures(st: dict, cw: bool) -> dict[str, Any]:
     w2 = math.pi * model.mode_radius_m ** 2
     if cw:
         sol = st["solution"]
-        fig = F.output_figures(sol)
+        fig = steady_state.output_figures(sol)
         profile = sol.power_W[s]
         st.update(signal_out=fig["signal_out_W"], ase_forward_W=fig["ase_forward_W"],
                   ase_backward_W=fig["ase_backward_W"], peak_power_W=float(profile.max()),

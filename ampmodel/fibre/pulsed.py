@@ -31,9 +31,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ampmodel.fibre.model import FibreModel, _anderson_step, solve_cw
-from ampmodel.kernels.fibre_modes import effective_area
+from ampmodel.fibre.model import FibreModel
+from ampmodel.fibre.steady_state import anderson_step, output_figures, solve_cw
 from ampmodel.kernels import fibre_rates as fr
+from ampmodel.kernels.fibre_modes import effective_area
 from ampmodel.kernels.fn_pass import log_mean
 from ampmodel.kernels.frantz_nodvik import fn_total
 
@@ -242,7 +243,6 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
     if repetition_rate_Hz is None:
         cw = solve_cw(model, 0.0)
         x = cw.n2
-        from ampmodel.fibre.model import output_figures
         fig = output_figures(cw)
         between = {"pump_out_W": fig["pump_out_W"], "ase_forward_W": fig["ase_forward_W"],
                    "ase_backward_W": fig["ase_backward_W"], "pump_absorbed_W": fig["pump_absorbed_W"]}
@@ -270,7 +270,7 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
         ys.append(x.ravel())
         gs.append(g.ravel())
         ys, gs = ys[-8:], gs[-8:]
-        x = np.clip(_anderson_step(ys, gs), 0.0, 1.0).reshape(shape)
+        x = np.clip(anderson_step(ys, gs), 0.0, 1.0).reshape(shape)
     pulse = amplify_pulse(model, x, energy_J, dt_s, n2_index_m2_W)
     between = {"pump_out_W": rec.pump_out_W, "ase_forward_W": rec.ase_forward_W,
                "ase_backward_W": rec.ase_backward_W, "pump_absorbed_W": rec.pump_absorbed_W}

@@ -13,18 +13,15 @@ g = σe·N2 − σa·N1, of the ring each pixel of the core lies in (zero outsid
 """
 from __future__ import annotations
 
-import sys
-from contextlib import nullcontext
-
 import numpy as np
 
-from ampmodel.progress import progress_bar
-
-from ampmodel.kernels import beam_shapes
+from ampmodel.description import Config, Medium
 from ampmodel.fibre import model as F
 from ampmodel.fibre import pulsed as FP
-from ampmodel.description import Config, Medium
+from ampmodel.fibre import steady_state
+from ampmodel.kernels import beam_shapes
 from ampmodel.output.result import FibreRecord, MediumRecord, Result, StepRecord
+from ampmodel.progress import progress_bar
 
 
 def mode_map(x_m: np.ndarray, mode_radius_m: float) -> np.ndarray:
@@ -66,7 +63,7 @@ def _medium_record(model: F.FibreModel, medium: Medium, before: np.ndarray, afte
 def _check_converged(config: Config, medium: Medium, what: str, converged: bool, change: float,
                      iterations: int) -> None:
     if not converged:
-        from ampmodel.config.load import ConfigError
+        from ampmodel.config.checks import ConfigError
         raise ConfigError([f"{config.source}: medium {medium.name}: the {what} did not converge (last change "
                            f"{change:.1e} after {iterations} iterations); more slices, a weaker pump or a shorter "
                            f"fibre bring it within reach"])
@@ -121,10 +118,10 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
                 model = F.build_model(medium, wavelength)
                 current_map = mode_map(x, model.mode_radius_m)
                 if cw:
-                    sol = F.solve_cw(model, signal, tick=tick)
+                    sol = steady_state.solve_cw(model, signal, tick=tick)
                     _check_converged(config, medium, "steady state", sol.converged, sol.change, sol.iterations)
                     # the fibre with its pump alone (no signal; ASE as configured): the small-signal state
-                    pump_only = F.solve_cw(model, 0.0, tick=tick)
+                    pump_only = steady_state.solve_cw(model, 0.0, tick=tick)
                     stages.append({"step": step, "model": model, "solution": sol, "pump_only": pump_only,
                                    "input": signal})
                     media[medium.name] = _medium_record(model, medium, pump_only.n2, sol.n2, x)
@@ -175,7 +172,7 @@ def _common(model: F.FibreModel) -> dict:
                 ase_bin_width_m=np.diff(edges), attrs=attrs)
 
 
-def _cw_record(sol: F.CWSolution, pump_only: F.CWSolution) -> FibreRecord:
+def _cw_record(sol: steady_state.CWSolution, pump_only: steady_state.CWSolution) -> FibreRecord:
     m, p = sol.model, sol.power_W
     attrs = {"iterations": sol.iterations, "change": sol.change, "tolerance": sol.tolerance,
              "method": sol.method, "newton_steps": sol.newton_steps}
@@ -219,7 +216,7 @@ def describe_fibres(config: Config) -> list[str]:
     for m in config.media:
         model = F.build_model(m, config.seed.wavelength_m)
         s = model.signal
-        pump_only = F.solve_cw(model, 0.0)
+        pump_only = steady_state.solve_cw(model, 0.0)
         gain_dB = model.signal_gain_dB(pump_only.n2)
         line = (f"  fibre {m.name} ({m.material.name}): "
                 + (f"V = {model.v_number:.2f}, " if model.v_number is not None else "")

@@ -79,6 +79,7 @@ class Spectrum:
     def at(self, wavelength_m):
         """(sigma_e, sigma_a) in m² at ``wavelength_m`` (scalar or array, inside the table)."""
         import numpy as np
+
         from ampmodel.kernels.fibre_rates import interpolate_cross_sections
         return interpolate_cross_sections(np.asarray(self.wavelength_m), np.asarray(self.emission_m2),
                                           np.asarray(self.absorption_m2), wavelength_m)

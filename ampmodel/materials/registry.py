@@ -39,8 +39,16 @@ try:
 except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
+from ampmodel.materials.material import (
+    BROADENINGS,
+    MATERIAL_KEYS,
+    SPECTRUM_STANDS_IN,
+    Material,
+    check_spectrum,
+    config_values,
+    material_from_values,
+)
 from ampmodel.units import factor
-from ampmodel.materials.material import BROADENINGS, MATERIAL_KEYS, SPECTRUM_STANDS_IN, Material, check_spectrum, config_values, material_from_values
 
 DATA_DIR = Path(__file__).parent
 """Directory holding the built-in material files (``*.toml``)."""

@@ -42,8 +42,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ampmodel.kernels import beam_shapes
 from ampmodel.description import Medium
+from ampmodel.kernels import beam_shapes
 from ampmodel.media.gain_maps import pump_absorption_per_m
 from ampmodel.units import photon_energy_J
 

@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ampmodel.kernels import beam_shapes
 from ampmodel.description import Medium, Pump
+from ampmodel.kernels import beam_shapes
 from ampmodel.units import photon_energy_J
 
 

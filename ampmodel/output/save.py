@@ -5,8 +5,8 @@ import os
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ampmodel.output.atomic import write_json
 from ampmodel.output import hdf5
+from ampmodel.output.atomic import write_json
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result

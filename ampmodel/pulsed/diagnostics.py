@@ -13,10 +13,10 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.description import Config, Step, step_label
 from ampmodel.diagnostics import (
     J_CM2,
-    SAFETY_NOTE,
     W_CM2,
     scaled_damage_fluence,
     seed_grid_warnings,
@@ -25,7 +25,7 @@ from ampmodel.diagnostics import (
 from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
 from ampmodel.media import gain_maps
 from ampmodel.output.result import MediumRecord
-from ampmodel.pulsed.passes import BeamState, StepOutcome
+from ampmodel.safety import SAFETY_NOTE
 
 # What a clipping step does, in the clipping warning.
 _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",

@@ -1,42 +1,15 @@
-"""The steps of a layout and how each acts on the pulsed beam.
-
-The beam is held as ``fluence`` (Nt, Ny, Nx): the fluence (J/m²) carried by each time slice, so that
-the power of slice t at a pixel is fluence[t]/dt. Each step function changes the beam in place and
-returns a :class:`StepOutcome` with its energy bookkeeping. New step kinds are added here and in
-:data:`STEP_ACTIONS`.
+"""A pass through a medium on the fluence path: the medium's state (ln G per voxel, depleted pass
+after pass) and the Frantz–Nodvik slices through it, in blocks of the pixels that carry fluence.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
 
-from ampmodel.description import Step
-from ampmodel.kernels import beam_shapes, fn_pass
-
-
-@dataclass
-class BeamState:
-    """The pulsed beam on the grid.
-
-    fluence : (Nt, Ny, Nx) J/m² per time slice
-    b_integral : (Nt, Ny, Nx) accumulated B-integral (rad) per pixel and time slice
-    """
-
-    fluence: np.ndarray
-    b_integral: np.ndarray
-    x_m: np.ndarray
-    y_m: np.ndarray
-    dt_s: float
-    wavelength_m: float
-
-    @property
-    def pixel_area_m2(self) -> float:
-        return float((self.x_m[1] - self.x_m[0]) * (self.y_m[1] - self.y_m[0]))
-
-    def energy_J(self) -> float:
-        return float(self.fluence.sum() * self.pixel_area_m2)
+from ampmodel.beam.state import BeamState, StepOutcome
+from ampmodel.kernels import fn_pass
 
 
 @dataclass
@@ -53,48 +26,6 @@ class MediumState:
     slice_length_m: float
     loss_per_m: float
     n2_m2_W: float
-
-
-@dataclass
-class StepOutcome:
-    """Energy bookkeeping and peaks of one step (J, J/m², W/m², rad)."""
-
-    energy_in_J: float
-    energy_out_J: float
-    clipped_J: float = 0.0
-    passive_loss_J: float = 0.0
-    extracted_J: float = 0.0          # energy the gain gave the beam (negative where it absorbed)
-    peak_fluence_J_m2: float = 0.0
-    peak_intensity_W_m2: float = 0.0
-    b_integral_step_rad: float = 0.0
-    extras: dict = field(default_factory=dict)
-
-
-def fluence_peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:
-    """Largest fluence (J/m², summed over the time slices) and intensity (W/m²) of a (Nt, Ny, Nx) beam."""
-    if fluence.size == 0:
-        return 0.0, 0.0
-    return float(fluence.sum(axis=0).max()), float(fluence.max() / dt_s)
-
-
-def _peaks(beam: BeamState) -> tuple[float, float]:
-    """Largest fluence (J/m²) and intensity (W/m²) of the beam as it is now."""
-    return fluence_peaks(beam.fluence, beam.dt_s)
-
-
-def _clip(beam: BeamState, mask: np.ndarray) -> float:
-    """Zero the beam outside ``mask``; return the clipped energy (J)."""
-    outside = np.flatnonzero(~mask)
-    rows = beam.fluence.reshape(beam.fluence.shape[0], -1)
-    if not np.shares_memory(rows, beam.fluence):          # not contiguous: the plain (slower) way
-        clipped = float(beam.fluence[:, ~mask].sum() * beam.pixel_area_m2)
-        beam.fluence[:, ~mask] = 0.0
-        return clipped
-    clipped = 0.0
-    for row in rows:                                    # row by row: no (Nt, outside) temporary
-        clipped += float(row[outside].sum())
-        row[outside] = 0.0
-    return clipped * beam.pixel_area_m2
 
 
 def _scatter(full: np.ndarray, idx: np.ndarray, block: np.ndarray) -> None:
@@ -190,37 +121,3 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
                        b_integral_step_rad=b_step)
 
 
-def apply_loss(beam: BeamState, step: Step) -> StepOutcome:
-    """A lumped loss: every pixel and time slice multiplied by the transmission."""
-    e_in = beam.energy_J()
-    peak_f, peak_i = _peaks(beam)
-    beam.fluence *= step.transmission
-    e_out = beam.energy_J()
-    return StepOutcome(e_in, e_out, passive_loss_J=e_in - e_out, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i)
-
-
-def apply_aperture(beam: BeamState, step: Step) -> StepOutcome:
-    """A hard-edged centred aperture (round or square): the beam outside it is removed."""
-    e_in = beam.energy_J()
-    peak_f, peak_i = _peaks(beam)
-    mask = beam_shapes.aperture_mask(beam.x_m, beam.y_m, step.shape, step.diameter_m)
-    clipped = _clip(beam, mask)
-    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i)
-
-
-def apply_unchanged(beam: BeamState, step: Step) -> StepOutcome:
-    """Free space and thin lenses: without diffraction the fluence map is unchanged."""
-    e = beam.energy_J()
-    peak_f, peak_i = _peaks(beam)
-    return StepOutcome(e, e, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
-
-
-# Step kinds other than "pass" (which needs the media) and the function that applies each.
-STEP_ACTIONS: dict[str, Callable[[BeamState, Step], StepOutcome]] = {
-    "loss": apply_loss,
-    "aperture": apply_aperture,
-    "space": apply_unchanged,
-    "lens": apply_unchanged,
-}

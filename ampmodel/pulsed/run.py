@@ -3,7 +3,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from ampmodel.beam import field as optics
+from ampmodel.beam import field as field_path
+from ampmodel.beam import grid_checks
+from ampmodel.beam.field_steps import FIELD_STEP_ACTIONS
+from ampmodel.beam.fluence_steps import FLUENCE_STEP_ACTIONS
+from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.description import Config, Step, step_label
 from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
@@ -12,10 +16,9 @@ from ampmodel.output.result import MediumRecord, Result, StepRecord
 from ampmodel.progress import progress_bar
 from ampmodel.pulsed import diagnostics, trains
 from ampmodel.pulsed import repeats as timing
-from ampmodel.pulsed.passes import STEP_ACTIONS, BeamState, MediumState, StepOutcome, pass_medium
-
-# Step actions of the fluence path: the layout's, with the optics that also act without diffraction.
-FLUENCE_ACTIONS = {**STEP_ACTIONS, **optics.FLUENCE_STEP_ACTIONS}
+from ampmodel.pulsed.clocks import Timeline, medium_clocks
+from ampmodel.pulsed.field_pass import pass_medium_field
+from ampmodel.pulsed.passes import MediumState, pass_medium
 
 
 def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
@@ -42,14 +45,14 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
     t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
     if grid.diffraction or seed.waist_m is not None:
         seed_field = _seed_field(config, x, y)
-        seed_map = optics.fluence_of(seed_field)
+        seed_map = field_path.fluence_of(seed_field)
     else:
         seed_map = beam_shapes.seed_fluence(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
 
     def new_beam():
         """A fresh seed pulse on the grid (a field beam with diffraction)."""
         if grid.diffraction:
-            return optics.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m,
+            return field_path.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m,
                                      grid.fft_workers)
         fluence = weights[:, None, None] * seed_map[None, :, :]
         return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=x, y_m=y, dt_s=dt,
@@ -59,26 +62,26 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
     area = beam.pixel_area_m2
     seed_power = weights * seed_map.sum() * area / dt
 
-    timeline = timing.Timeline(timing.medium_clocks(config, maps, area))
+    timeline = Timeline(medium_clocks(config, maps, area))
     apertures = _clear_apertures(config, states)
 
     def act(step: Step, beam, tick) -> StepOutcome:
         """One step that is not a repeat, on the field path or the fluence path."""
         if grid.diffraction and step.kind == "pass":
             index = config.medium(step.medium).material.refractive_index
-            return optics.pass_medium_field(beam, states[step.medium], index, reverse=step.reverse, tick=tick)
+            return pass_medium_field(beam, states[step.medium], index, reverse=step.reverse, tick=tick)
         if grid.diffraction:
-            return optics.FIELD_STEP_ACTIONS[step.kind](beam, step)
+            return FIELD_STEP_ACTIONS[step.kind](beam, step)
         if step.kind == "pass":
             return pass_medium(beam, states[step.medium], reverse=step.reverse, tick=tick)
-        return FLUENCE_ACTIONS[step.kind](beam, step)
+        return FLUENCE_STEP_ACTIONS[step.kind](beam, step)
 
     def run_layout(beam, tick=None, record: bool = True):
         """The steps in order on ``beam`` (each followed by its delay; repeats round trip by round
         trip): their outcomes, the beam after each (``record``) and the grid checks."""
         outcomes: list[StepOutcome] = []
         records: list[StepRecord] = []
-        checks = [("the seed", optics.check_grid(beam))] if grid.diffraction and record else []
+        checks = [("the seed", grid_checks.check_grid(beam))] if grid.diffraction and record else []
         power_before = float(seed_power.max()) if seed_power.size else 0.0
         for step in config.steps:
             outcome = timing.run_step(step, beam, states, timeline, act, tick)
@@ -88,7 +91,7 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
                 power = fluence.sum(axis=(1, 2)) * area / dt
                 if grid.diffraction:
                     label = step_label(config.steps, step.index)
-                    checks.append((label, optics.check_grid(beam, fluence=fluence)))
+                    checks.append((label, grid_checks.check_grid(beam, fluence=fluence)))
                 outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
                 outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
                 power_before = float(power.max()) if power.size else 0.0
@@ -122,7 +125,7 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
             material=m.material.name, sources=dict(m.material.sources),
             pumped_J=pumped[m.name], decayed_J=decayed[m.name])
-    grid_warnings = optics.grid_warnings(checks, config.limits, grid.width_m, grid.points)
+    grid_warnings = grid_checks.grid_warnings(checks, config.limits, grid.width_m, grid.points)
     seed_aperture = apertures[config.steps[0].index] if config.steps else np.ones_like(seed_map, dtype=bool)
     summary = diagnostics.summarise(config, beam, seed_map, outcomes, media_records, maps,
                                     seed_beam=beam_figures(seed_map, x, y, seed_aperture, area),
@@ -146,7 +149,7 @@ def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
                                       seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
                                       m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed)
     except ValueError as exc:
-        from ampmodel.config.load import ConfigError
+        from ampmodel.config.checks import ConfigError
         raise ConfigError([f"{config.source}: seed: {exc}"]) from None
 
 

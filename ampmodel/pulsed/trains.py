@@ -38,14 +38,15 @@ from typing import Callable
 
 import numpy as np
 
+from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.description import Config, Step, passed_media
 from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.frantz_nodvik import fn_total
 from ampmodel.kernels.inversion import relax_inversion
 from ampmodel.media import gain_maps
 from ampmodel.output.result import StepRecord
-from ampmodel.pulsed.passes import BeamState, MediumState, StepOutcome
-from ampmodel.pulsed.repeats import MediumClock, Timeline
+from ampmodel.pulsed.clocks import MediumClock, Timeline
+from ampmodel.pulsed.passes import MediumState
 
 ANDERSON_DEPTH = 6
 FIXED_POINT_TOLERANCE = 1e-10

@@ -106,7 +106,8 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
         No worker within the timeout; the scheduler or a worker cannot import ampmodel; a worker
         cannot write into ``folder``, or writes where the parent cannot see it.
     """
-    from distributed import TimeoutError as DaskTimeout, wait
+    from distributed import TimeoutError as DaskTimeout
+    from distributed import wait
 
     from ampmodel._version import __version__
 

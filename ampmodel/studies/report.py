@@ -5,7 +5,7 @@ import re
 import sys
 from typing import Any, Sequence
 
-from ampmodel.config.schema import show
+from ampmodel.config.checks import show
 
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
 TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
@@ -32,7 +32,7 @@ def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
 
 
 def _safety() -> None:
-    from ampmodel.diagnostics import SAFETY_NOTE
+    from ampmodel.safety import SAFETY_NOTE
     print(SAFETY_NOTE)
 
 

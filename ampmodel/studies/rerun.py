@@ -17,8 +17,6 @@ tolerance rtol, default 1e-9; round-off figures such as balance errors to an abs
 from __future__ import annotations
 
 import dataclasses
-import json
-import math
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -30,8 +28,9 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
 from ampmodel._version import __version__
+from ampmodel.config.checks import ConfigError
+from ampmodel.config.load import load_config
 from ampmodel.output.summary import DEFAULT_RTOL, Difference, compare_summaries, plain
-from ampmodel.config.load import ConfigError, load_config
 
 
 @dataclass

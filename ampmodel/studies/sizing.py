@@ -31,8 +31,9 @@ import sys
 from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping, Sequence
 
-from ampmodel.config.load import ConfigError, load_config
-from ampmodel.config.schema import PathError, check_value, close_matches, leaf_schema, quoted_list, walk
+from ampmodel.config.checks import ConfigError, PathError, check_value, close_matches, quoted_list
+from ampmodel.config.load import load_config
+from ampmodel.config.schema import leaf_schema, walk
 from ampmodel.description import Config
 
 RTOL = 1e-10
@@ -174,7 +175,7 @@ class _Runs:
 
     def config_at(self, x: float) -> Config:
         """The config with the varied path set to ``x`` (a problem names the value)."""
-        from ampmodel.studies.sweeps import point_raw
+        from ampmodel.studies.points import point_raw
         raw = point_raw(self.config.raw, {self.vary: x}, self.config.title)
         try:
             return load_config(raw, folder=self.config.folder or None)
@@ -258,6 +259,7 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
     R. P. Brent, Algorithms for Minimization without Derivatives (1973); scipy.optimize.brentq.
     """
     from scipy.optimize import brentq
+
     from ampmodel.studies.sweeps import load
     base = load(config, overrides)
     figure, goal = target

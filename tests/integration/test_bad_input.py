@@ -12,7 +12,8 @@ from pathlib import Path
 
 import pytest
 
-from ampmodel.config.load import ConfigError, load_config
+from ampmodel.config.checks import ConfigError
+from ampmodel.config.load import load_config
 
 ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "tests" / "data"

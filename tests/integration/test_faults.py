@@ -17,11 +17,11 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
-
-from ampmodel.studies import store as store
-from ampmodel.output.atomic import is_complete_hdf5
-from ampmodel.cli import EXIT_CANNOT_WRITE, EXIT_INTERRUPTED, main
 from sweep_helpers import BASE, ROOT, ampmodel, write_config
+
+from ampmodel.cli import EXIT_CANNOT_WRITE, EXIT_INTERRUPTED, main
+from ampmodel.output.atomic import is_complete_hdf5
+from ampmodel.studies import store as store
 
 # Points of about 0.2 s each (96 x 96 pixels, 64 time slices, 20 z-slices): long enough for a kill to
 # land in the middle of a sweep, short enough for the suite.
@@ -196,7 +196,7 @@ def test_a_full_disk_during_a_run_is_a_message(tmp_path, capsys, monkeypatch):
 
 def test_a_full_disk_during_a_sweep_stops_it_and_keeps_the_points(tmp_path, capsys, monkeypatch):
     from ampmodel.output import hdf5
-    cfg = write_config(tmp_path)                                # 8 points, in this process (--jobs 1)
+    write_config(tmp_path)                                      # 8 points, in this process (--jobs 1)
     args = ["sweep", "rod.toml", "--jobs", "1", "--no-plots", "--quiet"]
     monkeypatch.setattr(hdf5, "write_hdf5", _disk_full(after=3))
     code, out, err = _main(args, capsys, tmp_path, monkeypatch)

@@ -9,15 +9,15 @@ from pathlib import Path
 
 import h5py
 import pytest
+from sweep_helpers import BASE, ROOT, write_config
 
 from ampmodel.cli import EXIT_BAD_INPUT, EXIT_MISMATCH, main
 from ampmodel.config.load import load_config
-from ampmodel.materials.material import material_from_dict, material_to_dict
 from ampmodel.materials import registry
+from ampmodel.materials.material import material_from_dict, material_to_dict
+from ampmodel.output.hdf5 import read_provenance
 from ampmodel.output.summary import Difference, compare_summaries
 from ampmodel.studies.rerun import default_out
-from ampmodel.output.hdf5 import read_provenance
-from sweep_helpers import BASE, ROOT, write_config
 
 DATA = ROOT / "tests" / "data"
 # the sweep tests' rod, but of built-in Nd:YAG (its data then come from the material files)

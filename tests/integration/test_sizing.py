@@ -18,10 +18,11 @@ import math
 
 import numpy as np
 import pytest
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
+from sweep_helpers import ampmodel
 
 import ampmodel as api
-from sweep_helpers import ampmodel
 
 WAVELENGTH_M, SIGMA_M2 = 1064e-9, 2.8e-23
 FSAT_J_M2 = PLANCK * LIGHT_SPEED / WAVELENGTH_M / SIGMA_M2

@@ -6,10 +6,10 @@ import json
 
 import numpy as np
 import pytest
+from sweep_helpers import BASE, ampmodel, write_config
 
 import ampmodel as api
 from ampmodel.output.hdf5 import read_hdf5
-from sweep_helpers import BASE, ampmodel, write_config
 
 SPREAD = """
 [spread]

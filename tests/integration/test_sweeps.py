@@ -10,11 +10,11 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
+from sweep_helpers import ROOT, GRID_4x2, ampmodel, write_config
 
 import ampmodel as api
 from ampmodel.output.hdf5 import read_hdf5
 from ampmodel.studies.store import FolderError
-from sweep_helpers import GRID_4x2, ROOT, ampmodel, write_config
 
 SCALARS = ("input_energy_J", "output_energy_J", "gain", "stored_energy_J", "stored_energy_final_J",
            "extraction_efficiency", "peak_fluence_J_cm2", "peak_intensity_W_cm2", "b_integral_rad")

@@ -9,7 +9,6 @@ from pathlib import Path
 
 import h5py
 import pytest
-
 from test_cli import SMALL, assert_output_contract
 
 ROOT = Path(__file__).resolve().parents[2]

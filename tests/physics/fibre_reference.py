@@ -17,7 +17,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
 from scipy.optimize import brentq
 
 from ampmodel.description import Fibre, FibrePump, Medium

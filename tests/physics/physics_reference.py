@@ -17,12 +17,12 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
 from scipy.special import ndtr
 
 from ampmodel.description import Config, Grid, Medium, Seed, Step
 from ampmodel.materials.material import Material
-
 
 # --------------------------------------------------------------------------------------------------
 # Builders

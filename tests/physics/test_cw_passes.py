@@ -15,13 +15,14 @@ import dataclasses
 import h5py
 import numpy as np
 import pytest
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from physics_reference import aperture_step, loss_step, make_material, make_medium, pass_step
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
 from scipy.integrate import solve_bvp
 
-from ampmodel.config.load import ConfigError
+from ampmodel.config.checks import ConfigError
 from ampmodel.description import Config, Grid, Seed, Solver
 from ampmodel.simulation import simulate
-from physics_reference import aperture_step, loss_step, make_material, make_medium, pass_step
 
 MAT = make_material()
 ISAT = MAT.saturation_intensity_W_m2

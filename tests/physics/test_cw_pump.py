@@ -14,11 +14,11 @@ import dataclasses
 
 import numpy as np
 import pytest
+from physics_reference import loss_step, make_material, make_medium, pass_step, photon_energy
 from scipy.integrate import solve_ivp
 
 from ampmodel.description import Config, Grid, Pump, Seed
 from ampmodel.simulation import simulate
-from physics_reference import loss_step, make_material, make_medium, pass_step, photon_energy
 
 # Yb:YAG-like quasi-three-level medium (values of the built-in material, from memory — verify there).
 QUASI = make_material(name="quasi-three-level test medium", wavelength_m=1030e-9, emission_cross_section_m2=2.1e-24,

@@ -15,6 +15,7 @@ import dataclasses
 
 import numpy as np
 import pytest
+from physics_reference import make_material, make_medium, pass_step
 from scipy.integrate import quad, solve_ivp
 from scipy.optimize import brentq
 from scipy.special import lambertw
@@ -22,7 +23,6 @@ from scipy.special import lambertw
 from ampmodel.description import Config, Grid, Seed
 from ampmodel.kernels.cw_saturation import homogeneous_slice_gain, inhomogeneous_slice_gain
 from ampmodel.simulation import simulate
-from physics_reference import make_material, make_medium, pass_step
 
 MAT = make_material()
 ISAT = MAT.saturation_intensity_W_m2

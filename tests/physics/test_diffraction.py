@@ -18,10 +18,12 @@ import numpy as np
 import pytest
 from scipy.special import fresnel
 
-from ampmodel.beam import field as optics
+from ampmodel.beam.field import FieldBeam, start_beam
+from ampmodel.beam.field_steps import field_aperture, field_lens, field_space
 from ampmodel.description import Step
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels.beam_figures import d4sigma
+from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState
 
 WAVELENGTH = 1.0e-6
@@ -32,13 +34,13 @@ def axes(points: int, width_m: float) -> np.ndarray:
 
 
 def field_beam(field2d: np.ndarray, width_m: float, time_slices: int = 1, wavelength_m: float = WAVELENGTH,
-               dt_s: float = 1e-9) -> optics.FieldBeam:
+               dt_s: float = 1e-9) -> FieldBeam:
     x = axes(field2d.shape[-1], width_m)
     weights = np.full(time_slices, 1.0 / time_slices)
-    return optics.start_beam(field2d.astype(complex), weights, x, x, dt_s, wavelength_m, width_m)
+    return start_beam(field2d.astype(complex), weights, x, x, dt_s, wavelength_m, width_m)
 
 
-def radius_from_d4sigma(beam: optics.FieldBeam) -> float:
+def radius_from_d4sigma(beam: FieldBeam) -> float:
     dx4, dy4 = d4sigma(beam.fluence.sum(axis=0), beam.x_m, beam.y_m)
     return 0.25 * (dx4 + dy4)
 
@@ -54,7 +56,7 @@ def test_gaussian_radius_in_free_space(z_over_zr):
     x = axes(128, width)
     beam = field_beam(kd.gaussian_beam(x, x, w0, WAVELENGTH, 0.0), width)
     z_r = math.pi * w0 ** 2 / WAVELENGTH
-    optics.field_space(beam, Step(kind="space", index=0, length_m=z_over_zr * z_r))
+    field_space(beam, Step(kind="space", index=0, length_m=z_over_zr * z_r))
     expected = w0 * math.sqrt(1.0 + z_over_zr ** 2)
     assert radius_from_d4sigma(beam) == pytest.approx(expected, rel=1e-2)
     assert abs(radius_from_d4sigma(beam) / expected - 1.0) < 1e-4      # what it really achieves
@@ -69,7 +71,7 @@ def test_gaussian_radius_inside_a_medium_uses_its_index():
     slices = 8
     medium = MediumState(name="glass", ln_gain=np.zeros((slices, 128, 128)), mask=np.ones((128, 128), bool),
                          saturation_fluence_J_m2=1e4, slice_length_m=length / slices, loss_per_m=0.0, n2_m2_W=0.0)
-    optics.pass_medium_field(beam, medium, n)
+    pass_medium_field(beam, medium, n)
     z_r = math.pi * w0 ** 2 * n / WAVELENGTH
     expected = w0 * math.sqrt(1.0 + (length / z_r) ** 2)
     in_air = w0 * math.sqrt(1.0 + (length / (z_r / n)) ** 2)
@@ -94,13 +96,13 @@ def test_lens_focus_position_and_size_follow_the_q_law():
     points = 256
     x = axes(points, width)
     beam = field_beam(kd.gaussian_beam(x, x, w0, WAVELENGTH, 0.0), width)
-    optics.field_lens(beam, Step(kind="lens", index=0, focal_m=focal))
+    field_lens(beam, Step(kind="lens", index=0, focal_m=focal))
     d_ref, wf_ref = q_law_focus(w0, focal, WAVELENGTH)
     zs = np.linspace(d_ref - 0.03, d_ref + 0.03, 7)
     w2 = []
     position = 0.0
     for z in zs:
-        optics.field_space(beam, Step(kind="space", index=0, length_m=z - position))
+        field_space(beam, Step(kind="space", index=0, length_m=z - position))
         position = z
         w2.append(radius_from_d4sigma(beam) ** 2)
     a, b, c = np.polyfit(zs, w2, 2)
@@ -124,13 +126,13 @@ def test_seed_waist_offset_and_curvature():
     beam = field_beam(field, width)
     w_start = w0 * math.sqrt(1 + (z / z_r) ** 2)
     assert radius_from_d4sigma(beam) == pytest.approx(w_start, rel=1e-4)
-    optics.field_space(beam, Step(kind="space", index=0, length_m=z))
+    field_space(beam, Step(kind="space", index=0, length_m=z))
     assert radius_from_d4sigma(beam) == pytest.approx(w0, rel=1e-3)
 
     curvature = -(z + z_r ** 2 / z)
     field = beam_shapes.seed_start_field(x, x, "gaussian", 2 * w_start, 8.0, 1e-3, WAVELENGTH, curvature_m=curvature)
     beam = field_beam(field, width)
-    optics.field_space(beam, Step(kind="space", index=0, length_m=z))
+    field_space(beam, Step(kind="space", index=0, length_m=z))
     assert radius_from_d4sigma(beam) == pytest.approx(w0, rel=1e-3)
 
 
@@ -146,7 +148,7 @@ def test_seed_m_squared_from_the_caustic():
     zs = np.linspace(0.0, 2.0 * z_r_embedded, 6)
     w2, position = [], 0.0
     for z in zs:
-        optics.field_space(beam, Step(kind="space", index=0, length_m=z - position))
+        field_space(beam, Step(kind="space", index=0, length_m=z - position))
         position = z
         w2.append(radius_from_d4sigma(beam) ** 2)
     a, b, c = np.polyfit(zs, w2, 2)
@@ -166,7 +168,7 @@ def test_power_conserved_in_free_space_to_round_off():
     field = kd.gaussian_beam(x, x, 0.8e-3, WAVELENGTH, 0.0) * (1 + 0.3 * np.cos(2e3 * x))[None, :]
     beam = field_beam(field, width, time_slices=3)
     before = beam.fluence.sum(axis=(1, 2))
-    optics.field_space(beam, Step(kind="space", index=0, length_m=0.3))
+    field_space(beam, Step(kind="space", index=0, length_m=0.3))
     after = beam.fluence.sum(axis=(1, 2))
     assert np.max(np.abs(after / before - 1.0)) < 1e-12
 
@@ -174,7 +176,6 @@ def test_power_conserved_in_free_space_to_round_off():
 def test_zero_length_returns_the_field():
     """A step of zero length: H = 1, and the FFT round trip returns the field to round-off."""
     width = 6e-3
-    x = axes(64, width)
     rng = np.random.default_rng(3)
     field = (rng.standard_normal((2, 64, 64)) + 1j * rng.standard_normal((2, 64, 64))) * 1e-3
     kx = kd.angular_frequencies(64, width)
@@ -189,12 +190,12 @@ def test_kerr_phase_of_a_flat_beam():
     fluence, dt = 2e4, 1e-9                     # J/m² per slice and slice length: I = 2e13 W/m²
     field = np.full((points, points), math.sqrt(fluence), dtype=complex)
     x = axes(points, width)
-    beam = optics.FieldBeam(field=field[None].copy(), b_integral=np.zeros((1, points, points)), x_m=x, y_m=x,
+    beam = FieldBeam(field=field[None].copy(), b_integral=np.zeros((1, points, points)), x_m=x, y_m=x,
                             dt_s=dt, wavelength_m=WAVELENGTH, width_m=width,
                             edge=np.ones((points, points)))        # no absorbing edge: a plane wave
     medium = MediumState(name="glass", ln_gain=np.zeros((10, points, points)), mask=np.ones((points, points), bool),
                          saturation_fluence_J_m2=1e4, slice_length_m=length / 10, loss_per_m=0.0, n2_m2_W=n2)
-    optics.pass_medium_field(beam, medium, 1.5)
+    pass_medium_field(beam, medium, 1.5)
     expected = 2 * math.pi / WAVELENGTH * n2 * (fluence / dt) * length
     phase = np.angle(beam.field[0] / math.sqrt(fluence))
     assert np.allclose(phase, expected, rtol=1e-10, atol=0)
@@ -212,9 +213,8 @@ def test_on_axis_intensity_behind_a_circular_aperture():
     two maxima and two minima, within 0.06 of I0 at every plane (the grid's rim is 512 points over
     8 mm; the formula is paraxial, a/z <= 4e-3)."""
     a, width, points = 1e-3, 8e-3, 512
-    x = axes(points, width)
     beam = field_beam(np.ones((points, points)), width)
-    optics.field_aperture(beam, Step(kind="aperture", index=0, shape="round", diameter_m=2 * a))
+    field_aperture(beam, Step(kind="aperture", index=0, shape="round", diameter_m=2 * a))
     start = beam.field.copy()
     fresnel_numbers = [3.0, 2.5, 2.0, 1.5, 1.0, 0.75]
     centre = points // 2
@@ -222,7 +222,7 @@ def test_on_axis_intensity_behind_a_circular_aperture():
     for nf in fresnel_numbers:
         z = a * a / (WAVELENGTH * nf)
         beam.field = start.copy()
-        optics.field_space(beam, Step(kind="space", index=0, length_m=z))
+        field_space(beam, Step(kind="space", index=0, length_m=z))
         on_axis = float(np.mean(beam.fluence[0, centre - 1:centre + 1, centre - 1:centre + 1]))
         measured.append(on_axis)
         expected.append(4.0 * math.sin(math.pi * nf / 2.0) ** 2)

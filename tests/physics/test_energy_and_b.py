@@ -18,14 +18,22 @@ import json
 import h5py
 import numpy as np
 import pytest
+from physics_reference import (
+    aperture_step,
+    disc,
+    loss_step,
+    make_config,
+    make_material,
+    make_medium,
+    pass_step,
+    photon_energy,
+    radius,
+)
 from scipy.integrate import solve_ivp
 
-from ampmodel.media import gain_maps
 from ampmodel.description import Pump, Seed
+from ampmodel.media import gain_maps
 from ampmodel.simulation import simulate
-
-from physics_reference import (aperture_step, disc, loss_step, make_config, make_material, make_medium,
-                               pass_step, photon_energy, radius)
 
 MATERIAL = make_material()
 FSAT = photon_energy(MATERIAL.wavelength_m) / MATERIAL.emission_cross_section_m2

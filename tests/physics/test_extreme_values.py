@@ -18,6 +18,7 @@ import math
 import numpy as np
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
+from physics_reference import make_material, make_medium, pass_step
 
 from ampmodel.description import Config, Grid, Seed
 from ampmodel.kernels.cw_saturation import homogeneous_slice_gain, inhomogeneous_closed_form, inhomogeneous_slice_gain
@@ -25,7 +26,6 @@ from ampmodel.kernels.fibre_rates import slice_transfer
 from ampmodel.kernels.fn_pass import amplify_block, amplify_block_composite, composite_valid, linear_form_valid
 from ampmodel.kernels.frantz_nodvik import fn_total
 from ampmodel.simulation import simulate
-from physics_reference import make_material, make_medium, pass_step
 
 LN_G_MAX = math.log(1e30)                       # 69.08: gains from 1e-30 to 1e30
 SETTINGS = settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])

@@ -14,12 +14,13 @@ from __future__ import annotations
 
 import math
 
+import fibre_reference as R
 import numpy as np
 import pytest
 from scipy.integrate import solve_bvp, solve_ivp
 
-import fibre_reference as R
 from ampmodel.fibre import model as F
+from ampmodel.fibre import steady_state
 
 SIGNAL_M = 1030e-9
 A_CORE = math.pi * (5e-6) ** 2
@@ -37,7 +38,7 @@ def signal_overlap(wavelength_m=SIGNAL_M, na=0.07, a=5e-6):
 
 
 def residual_pump(sol):
-    return F.output_figures(sol)["pump_out_W"]
+    return steady_state.output_figures(sol)["pump_out_W"]
 
 
 # --------------------------------------------------------------------------------------------------
@@ -58,7 +59,7 @@ SALEH_CASES = [
 @pytest.mark.parametrize("direction, cladding, pump_W, signal_W, length_m", SALEH_CASES)
 def test_saleh_closed_form_without_ase(direction, cladding, pump_W, signal_W, length_m):
     medium = R.make_fibre(length_m=length_m, slices=80, pump_W=pump_W, direction=direction, cladding=cladding)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), signal_W)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), signal_W)
     assert sol.converged
     se_s, sa_s = cross_sections(SIGNAL_M)
     se_p, sa_p = cross_sections(976e-9)
@@ -67,7 +68,7 @@ def test_saleh_closed_form_without_ase(direction, cladding, pump_W, signal_W, le
     ends = 2 if direction == "both" else 1
     beams += [dict(power_W=pump_W, wavelength_m=976e-9, overlap=gamma_p, sigma_e=se_p, sigma_a=sa_p)] * ends
     ref = R.saleh_outputs(beams, A_CORE, 6e25, 0.9e-3, length_m)
-    out = F.output_figures(sol)
+    out = steady_state.output_figures(sol)
     # the requirement is 1e-3; the slice scheme conserves photons and integrates each channel's
     # logarithm exactly, so Saleh's relations hold for it at any slice count
     assert out["signal_out_W"] == pytest.approx(ref[0], rel=1e-6)
@@ -105,7 +106,7 @@ def overlap_model_rhs(channels, doping=6e25, lifetime=0.9e-3, area=A_CORE, loss=
 
 def forward_profile_error(slices, loss):
     medium = R.make_fibre(length_m=3.0, slices=slices, pump_W=5.0, direction="forward", loss_per_m=loss)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 0.05)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 0.05)
     gp = (5e-6 / 62.5e-6) ** 2
     rhs = overlap_model_rhs([(SIGNAL_M, signal_overlap(), 1, 0.0), (976e-9, gp, 1, 0.0)], loss=loss)
     ref = solve_ivp(rhs, (0.0, 3.0), [0.05, 5.0], method="LSODA", t_eval=sol.z_m, rtol=1e-12, atol=1e-15)
@@ -134,7 +135,7 @@ def test_two_way_ase_matches_solve_bvp():
     bins = 3
     medium = R.make_fibre(length_m=2.0, slices=300, pump_W=3.0, direction="backward", ase=True, ase_bins=bins,
                           ase_band_m=(1010e-9, 1070e-9))
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 1e-3)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 1e-3)
     assert sol.converged
     edges = np.linspace(1010e-9, 1070e-9, bins + 1)
     centres = 0.5 * (edges[1:] + edges[:-1])
@@ -160,7 +161,7 @@ def test_two_way_ase_matches_solve_bvp():
     m = sol.model
     end = ref.sol(2.0)
     start = ref.sol(0.0)
-    out = F.output_figures(sol)
+    out = steady_state.output_figures(sol)
     assert out["signal_out_W"] == pytest.approx(end[0], rel=2e-4)
     assert residual_pump(sol) == pytest.approx(start[1], rel=2e-4)
     assert out["ase_forward_W"] == pytest.approx(end[2:2 + bins].sum(), rel=2e-3)
@@ -200,9 +201,9 @@ def independent_balance(sol):
 def test_photon_balance_with_ase(direction, rings, loss):
     medium = R.make_fibre(length_m=4.0, slices=80, pump_W=4.0, direction=direction, ase=True, ase_bins=8,
                           rings=rings, loss_per_m=loss)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 2e-3)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 2e-3)
     assert sol.converged
-    out = F.output_figures(sol)
+    out = steady_state.output_figures(sol)
     assert out["ase_forward_W"] > 1e-4 and out["ase_backward_W"] > 1e-4      # ASE matters here
     assert abs(independent_balance(sol)) < 1e-6
     assert abs(out["photon_balance_error"]) < 1e-6
@@ -210,7 +211,7 @@ def test_photon_balance_with_ase(direction, rings, loss):
 
 def test_ase_spectrum_peaks_where_the_gain_does():
     medium = R.make_fibre(length_m=4.0, slices=60, pump_W=3.0, direction="forward", ase=True, ase_bins=20)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 0.0)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 0.0)
     m = sol.model
     for bins, at in ((m.ase_forward, -1), (m.ase_backward, 0)):
         se, sa = cross_sections(m.wavelength_m[bins])
@@ -229,17 +230,17 @@ def test_ase_spectrum_peaks_where_the_gain_does():
 @pytest.mark.parametrize("rings, loss", [(1, 0.0), (1, 0.02), (6, 0.0)])
 def test_unpumped_fibre_transmission(rings, loss):
     medium = R.make_fibre(length_m=2.0, slices=40, pump_W=None, rings=rings, loss_per_m=loss)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 1e-9)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 1e-9)
     _, sa = cross_sections(SIGNAL_M)
     expected = math.exp(-(signal_overlap() * sa * 6e25 + loss) * 2.0)
-    assert F.output_figures(sol)["gain"] == pytest.approx(expected, rel=1e-7)
+    assert steady_state.output_figures(sol)["gain"] == pytest.approx(expected, rel=1e-7)
 
 
 def test_noise_figure_of_a_uniformly_inverted_fibre():
     # a pump bleaching a short fibre through a small overlap keeps N2 the same all along
     pump_W, gamma_p, length = 1000.0, 1e-3, 0.5
     medium = R.make_fibre(length_m=length, slices=20, pump_W=pump_W, pump_overlap=gamma_p)
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), 1e-9)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), 1e-9)
     se_p, sa_p = cross_sections(976e-9)
     flux = gamma_p * pump_W / (R.photon_energy(976e-9) * A_CORE)
     n2 = sa_p * flux / (1 / 0.9e-3 + (sa_p + se_p) * flux)
@@ -247,6 +248,6 @@ def test_noise_figure_of_a_uniformly_inverted_fibre():
     g = signal_overlap() * (se * n2 - sa * (1 - n2)) * 6e25
     gain = math.exp(g * length)
     nsp = se * n2 / (se * n2 - sa * (1 - n2))
-    out = F.output_figures(sol)
+    out = steady_state.output_figures(sol)
     assert out["gain"] == pytest.approx(gain, rel=1e-5)
     assert out["noise_figure"] == pytest.approx((1 + 2 * nsp * (gain - 1)) / gain, rel=1e-5)

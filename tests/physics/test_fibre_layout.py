@@ -9,6 +9,7 @@ import pytest
 
 import ampmodel
 from ampmodel.fibre import model as F
+from ampmodel.fibre import steady_state
 
 
 def two_stage(mode: str, **seed) -> dict:
@@ -28,8 +29,8 @@ def test_cw_stages_chain_and_noise_figure_cascade():
     config = ampmodel.load_config(two_stage("cw", power_W=0.01))
     s = ampmodel.simulate(config).summary
     # each stage again on its own, with the signal the layout hands it
-    fa = F.output_figures(F.solve_cw(F.build_model(config.media[0], 1030e-9), 0.01))
-    fb = F.output_figures(F.solve_cw(F.build_model(config.media[1], 1030e-9), 0.6 * fa["signal_out_W"]))
+    fa = steady_state.output_figures(steady_state.solve_cw(F.build_model(config.media[0], 1030e-9), 0.01))
+    fb = steady_state.output_figures(steady_state.solve_cw(F.build_model(config.media[1], 1030e-9), 0.6 * fa["signal_out_W"]))
     assert s["output_power_W"] == pytest.approx(fb["signal_out_W"], rel=1e-9)
     friis = fa["noise_figure"] + (1 / 0.6 - 1) / fa["gain"] + (fb["noise_figure"] - 1) / (0.6 * fa["gain"])
     assert s["noise_figure_dB"] == pytest.approx(10 * math.log10(friis), rel=1e-9)

@@ -17,15 +17,16 @@ from __future__ import annotations
 
 import math
 
+import fibre_reference as R
 import numpy as np
 import pytest
 from scipy.integrate import quad, solve_ivp
 from scipy.optimize import brentq
 
-import fibre_reference as R
-from ampmodel.kernels import beam_shapes
 from ampmodel.fibre import model as F
 from ampmodel.fibre import pulsed as P
+from ampmodel.fibre import steady_state
+from ampmodel.kernels import beam_shapes
 
 SIGNAL_M = 1030e-9
 A_CORE = math.pi * (5e-6) ** 2
@@ -123,7 +124,7 @@ def test_high_repetition_rate_approaches_cw():
     medium = R.make_fibre(length_m=3.0, slices=40, pump_W=8.0)
     model = F.build_model(medium, SIGNAL_M)
     mean_power = 0.2
-    cw = F.output_figures(F.solve_cw(model, mean_power))["signal_out_W"]
+    cw = steady_state.output_figures(steady_state.solve_cw(model, mean_power))["signal_out_W"]
     gaps = []
     for rate in (1e6, 1e7):
         sol = P.solve_pulse_train(model, np.array([mean_power / rate]), 1e-9, rate)

@@ -13,19 +13,20 @@ from __future__ import annotations
 
 import math
 
+import fibre_reference as R
 import numpy as np
 import pytest
 
-import fibre_reference as R
 from ampmodel.fibre import model as F
+from ampmodel.fibre import steady_state
 
 SIGNAL_M = 1030e-9
 
 
 def solve(medium, signal_W):
-    sol = F.solve_cw(F.build_model(medium, SIGNAL_M), signal_W)
+    sol = steady_state.solve_cw(F.build_model(medium, SIGNAL_M), signal_W)
     assert sol.converged
-    return sol, F.output_figures(sol)
+    return sol, steady_state.output_figures(sol)
 
 
 def marcuse_overlap(wavelength_m, a=5e-6, na=0.07):

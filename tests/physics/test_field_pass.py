@@ -1,4 +1,4 @@
-"""A pass with diffraction (optics.pass_medium_field: chunks of time slices, in threads) against the
+"""A pass with diffraction (pass_medium_field: chunks of time slices, in threads) against the
 split-step model written out plainly on the whole field, and the same on one thread and on two.
 
 References
@@ -17,9 +17,13 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel.beam import field as optics
+from ampmodel.beam import field as field_path
+from ampmodel.beam.field import start_beam
+from ampmodel.beam.field_steps import field_space
+from ampmodel.description import Step
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels import field_step
+from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState
 
 N, NT, NZ, WIDTH, WAVELENGTH, DT = 32, 7, 3, 6e-3, 1.064e-6, 1e-9
@@ -32,7 +36,7 @@ FSAT, INDEX, N2, LOSS, DZ = 6.0e3, 1.8, 3e-18, 3.0, 4e-3
 def make(workers):
     seed = np.sqrt(2e4 * np.exp(-2 * R ** 2 / 1.8e-3 ** 2)) * np.exp(1j * 300.0 * R)
     weights = np.exp(-((np.arange(NT) - 3.0) / 2.0) ** 2)
-    beam = optics.start_beam(seed, weights, X, X, DT, WAVELENGTH, WIDTH, workers)
+    beam = start_beam(seed, weights, X, X, DT, WAVELENGTH, WIDTH, workers)
     gain = np.where(MASK, 0.35, 0.0) * (1.0 + 0.2 * np.arange(NZ))[:, None, None]
     medium = MediumState(name="rod", ln_gain=gain, mask=MASK, saturation_fluence_J_m2=FSAT, slice_length_m=DZ,
                          loss_per_m=LOSS, n2_m2_W=N2)
@@ -94,10 +98,10 @@ def test_pass_in_chunks_and_threads_matches_the_plain_split_step(monkeypatch, re
     """Chunks of 2 time slices (the last one shorter) on 2 threads: field, gain, B-integral and the
     bookkeeping as the plain model to 1e-12."""
     monkeypatch.setattr(field_step, "CHUNK_VALUES", 2 * N * N)
-    monkeypatch.setattr(optics, "substeps", lambda *args, **kwargs: substeps)
+    monkeypatch.setattr(field_path, "substeps", lambda *args, **kwargs: substeps)
     beam, medium = make(workers=2)
     ref_e, ref_g, ref_b, ref = plain_pass(beam, medium, substeps, reverse)
-    out = optics.pass_medium_field(beam, medium, INDEX, reverse=reverse)
+    out = pass_medium_field(beam, medium, INDEX, reverse=reverse)
     area = beam.pixel_area_m2
     tol = 1e-12
     assert np.max(np.abs(beam.field - ref_e)) < tol * np.max(np.abs(ref_e))
@@ -120,8 +124,8 @@ def test_one_thread_and_two_give_the_same_numbers(monkeypatch):
     runs = []
     for workers in (1, 2):
         beam, medium = make(workers)
-        out = optics.pass_medium_field(beam, medium, INDEX)
-        optics.field_space(beam, optics.Step(kind="space", index=1, length_m=0.2))
+        out = pass_medium_field(beam, medium, INDEX)
+        field_space(beam, Step(kind="space", index=1, length_m=0.2))
         runs.append((beam, medium, out))
     (b1, m1, o1), (b2, m2, o2) = runs
     assert np.array_equal(b1.field, b2.field)

@@ -11,15 +11,27 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from physics_reference import (
+    disc,
+    fn_closed,
+    fn_remaining_ln_gain,
+    fn_slices,
+    grid_axes,
+    make_config,
+    make_material,
+    make_medium,
+    max_rel,
+    pass_step,
+    photon_energy,
+    pulse_weights,
+    seed_map,
+)
 from scipy.integrate import quad
 
+from ampmodel.beam.state import BeamState
 from ampmodel.description import Pump, Seed
-from ampmodel.pulsed.passes import BeamState, MediumState, pass_medium
+from ampmodel.pulsed.passes import MediumState, pass_medium
 from ampmodel.simulation import simulate
-
-from physics_reference import (disc, fn_closed, fn_remaining_ln_gain, fn_slices, grid_axes, make_config,
-                               make_material, make_medium, max_rel, pass_step, photon_energy, pulse_weights,
-                               seed_map)
 
 G0 = 8.0
 POINTS, WIDTH = 48, 6e-3          # 0.125 mm pixels

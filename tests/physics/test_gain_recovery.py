@@ -13,12 +13,12 @@ import math
 
 import numpy as np
 import pytest
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
 from scipy.integrate import solve_ivp
+from timing_reference import APERTURE_MM, LENGTH_MM, PUMP_WAVELENGTH, disc_count, flat_config, pixels, side_pump
 
 from ampmodel import load_config, simulate
-
-from timing_reference import disc_count, flat_config, pixels, side_pump, APERTURE_MM, LENGTH_MM, PUMP_WAVELENGTH
 
 TAU = 250e-6
 DELAY_NS = 60_000.0          # 60 us, a quarter of the lifetime

@@ -16,15 +16,14 @@ import math
 
 import numpy as np
 import pytest
+from physics_reference import make_config, make_material, make_medium, pass_step
+from test_diffraction import WAVELENGTH, axes, field_beam
 
-from ampmodel.beam import field as optics
+from ampmodel.beam.field_steps import field_aperture, field_filter, field_relay
 from ampmodel.description import Grid, Seed, Step
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
 from ampmodel.simulation import simulate
-
-from physics_reference import make_config, make_material, make_medium, pass_step
-from test_diffraction import WAVELENGTH, axes, field_beam
 
 
 def gaussian_spot(x, x0, y0, w):
@@ -46,7 +45,7 @@ def test_pinhole_passes_the_gaussian_fraction(a_over_wf):
     beam = field_beam(kd.gaussian_beam(x, x, w, WAVELENGTH, 0.0), width)
     wf = WAVELENGTH * focal / (math.pi * w)
     e_in = beam.energy_J()
-    out = optics.field_filter(beam, Step(kind="filter", index=0, focal_m=focal,
+    out = field_filter(beam, Step(kind="filter", index=0, focal_m=focal,
                                          pinhole_diameter_m=2 * a_over_wf * wf))
     expected = 1.0 - math.exp(-2.0 * a_over_wf ** 2)
     assert out.extras["pinhole_transmission"] == pytest.approx(expected, rel=5e-3)
@@ -67,7 +66,7 @@ def test_filter_removes_ripple_and_inverts_the_image():
     everything = np.ones((points, points), bool)
     before, _ = aperture_figures(beam.fluence[0], everything, area)
     wf = WAVELENGTH * focal / (math.pi * w)
-    optics.field_filter(beam, Step(kind="filter", index=0, focal_m=focal, pinhole_diameter_m=6 * wf))
+    field_filter(beam, Step(kind="filter", index=0, focal_m=focal, pinhole_diameter_m=6 * wf))
     after, _ = aperture_figures(beam.fluence[0], everything, area)
     assert before > 2.3
     assert after == pytest.approx(2.0, rel=2e-2)
@@ -90,7 +89,7 @@ def test_relay_of_unit_magnification_inverts_a_test_pattern_exactly():
     phase = np.exp(1j * 3e3 * x)[None, :]
     beam = field_beam(pattern * phase, width)
     before = beam.field.copy()
-    out = optics.field_relay(beam, Step(kind="relay", index=0, magnification=1.0))
+    out = field_relay(beam, Step(kind="relay", index=0, magnification=1.0))
     assert np.array_equal(beam.field, before[:, ::-1, ::-1])
     assert out.energy_out_J == pytest.approx(out.energy_in_J, rel=1e-14)
 
@@ -104,7 +103,7 @@ def test_relay_magnifies_and_inverts_a_spot():
     f0 = beam.fluence[0]
     e0, peak0 = beam.energy_J(), f0.max()
     dx0, dy0 = d4sigma(f0, x, x)
-    optics.field_relay(beam, Step(kind="relay", index=0, magnification=m))
+    field_relay(beam, Step(kind="relay", index=0, magnification=m))
     f = beam.fluence[0]
     dx1, dy1 = d4sigma(f, x, x)
     xc = float((f.sum(axis=0) * x).sum() / f.sum())
@@ -130,7 +129,7 @@ def test_soft_aperture_transmits_half_on_its_diameter_and_the_gaussian_integral(
     w, a = 1e-3, 1.2e-3
     beam = field_beam(kd.gaussian_beam(x, x, w, WAVELENGTH, 0.0), width)
     e0 = beam.energy_J()
-    optics.field_aperture(beam, Step(kind="aperture", index=0, shape="round", diameter_m=2 * a))
+    field_aperture(beam, Step(kind="aperture", index=0, shape="round", diameter_m=2 * a))
     assert beam.energy_J() / e0 == pytest.approx(1 - math.exp(-2 * a * a / w / w), abs=2e-3)
 
 

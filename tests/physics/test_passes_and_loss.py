@@ -12,13 +12,22 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from physics_reference import (
+    disc,
+    fn_closed,
+    loss_step,
+    make_config,
+    make_material,
+    make_medium,
+    max_rel,
+    pass_step,
+    photon_energy,
+    seed_map,
+)
 from scipy.integrate import solve_ivp
 
 from ampmodel.description import Seed
 from ampmodel.simulation import simulate
-
-from physics_reference import (disc, fn_closed, loss_step, make_config, make_material, make_medium, max_rel,
-                               pass_step, photon_energy, seed_map)
 
 MATERIAL = make_material()
 FSAT = photon_energy(MATERIAL.wavelength_m) / MATERIAL.emission_cross_section_m2

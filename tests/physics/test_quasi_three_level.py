@@ -13,12 +13,21 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from physics_reference import (
+    disc,
+    fn_closed,
+    fn_remaining_ln_gain,
+    make_config,
+    make_material,
+    make_medium,
+    max_rel,
+    pass_step,
+    photon_energy,
+    seed_map,
+)
 
 from ampmodel.description import Pump, Seed
 from ampmodel.simulation import simulate
-
-from physics_reference import (disc, fn_closed, fn_remaining_ln_gain, make_config, make_material, make_medium,
-                               max_rel, pass_step, photon_energy, seed_map)
 
 SIGMA_E, SIGMA_A = 2.0e-24, 0.1e-24          # m²
 SIGMA_AP, SIGMA_EP = 0.8e-24, 0.16e-24       # m², at the pump wavelength

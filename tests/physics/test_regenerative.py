@@ -14,11 +14,21 @@ import math
 
 import numpy as np
 import pytest
+from timing_reference import (
+    APERTURE_MM,
+    BEAM_MM,
+    FSAT,
+    TAU_SHORT,
+    disc_count,
+    flat_config,
+    fn,
+    pixels,
+    pump_ln_gain_inf,
+    relax,
+    side_pump,
+)
 
 from ampmodel import load_config, simulate
-
-from timing_reference import (APERTURE_MM, BEAM_MM, FSAT, TAU_SHORT, disc_count, flat_config, fn, pixels,
-                              pump_ln_gain_inf, relax, side_pump)
 
 T1, T2 = 0.9, 0.97
 G0 = 2.0

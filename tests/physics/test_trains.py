@@ -15,11 +15,22 @@ import math
 import numpy as np
 import pytest
 from scipy.optimize import brentq
+from timing_reference import (
+    APERTURE_MM,
+    BEAM_MM,
+    FSAT,
+    PUMP_WAVELENGTH,
+    WAVELENGTH,
+    disc_count,
+    flat_config,
+    fn,
+    pixels,
+    pump_ln_gain_inf,
+    relax,
+    side_pump,
+)
 
 from ampmodel import load_config, simulate
-
-from timing_reference import (APERTURE_MM, BEAM_MM, FSAT, PUMP_WAVELENGTH, WAVELENGTH, disc_count, flat_config,
-                              fn, pixels, pump_ln_gain_inf, relax, side_pump)
 
 TAU = 100e-6
 T = 0.85

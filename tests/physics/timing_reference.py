@@ -15,7 +15,8 @@ import copy
 import math
 
 import numpy as np
-from scipy.constants import c as LIGHT_SPEED, h as PLANCK
+from scipy.constants import c as LIGHT_SPEED
+from scipy.constants import h as PLANCK
 
 WAVELENGTH = 1000e-9
 SIGMA_E = 3.0e-23          # m² (3e-19 cm²)

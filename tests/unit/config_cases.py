@@ -10,7 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from ampmodel.config.load import ConfigError, load_config
+from ampmodel.config.checks import ConfigError
+from ampmodel.config.load import load_config
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 MINIMAL = DATA / "good_minimal.toml"

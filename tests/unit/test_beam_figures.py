@@ -13,8 +13,8 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel.kernels.beam_figures import aperture_figures, d4sigma, m_squared
 from ampmodel.kernels import diffraction as kd
+from ampmodel.kernels.beam_figures import aperture_figures, d4sigma, m_squared
 
 N, WIDTH = 256, 12e-3
 X = (np.arange(N) - (N - 1) / 2) * (WIDTH / N)

@@ -11,15 +11,17 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from ampmodel import bench, load_config, simulate
+from ampmodel import load_config, simulate
+from ampmodel.bench import cases
+from ampmodel.bench.report import table_text
 
 
 @pytest.mark.parametrize("n2", [True, False])
 def test_reference_loop_equals_simulate(n2):
-    config = load_config(bench.bench_config(24, 8, 4, 3, n2=n2))
-    fluence, ln_gain, mask, fsat, reverses = bench.reference_arrays(config)
+    config = load_config(cases.bench_config(24, 8, 4, 3, n2=n2))
+    fluence, ln_gain, mask, fsat, reverses = cases.reference_arrays(config)
     assert list(reverses) == [False, True, False]
-    bench.reference_loop(fluence, ln_gain, mask, fsat, reverses)
+    cases.reference_loop(fluence, ln_gain, mask, fsat, reverses)
     result = simulate(config)
     out = result.steps[-1].fluence_J_m2
     lit = out > 0
@@ -40,7 +42,7 @@ def test_table_marks_each_figure():
                                 "passed": None, "detail": "not available"},
                           "c": {"key": "c", "label": "three", "value": 2.0, "unit": "s", "target": "<= 0.5 s",
                                 "passed": False, "detail": "d3"}}}
-    lines = bench.table_text(report).splitlines()
+    lines = table_text(report).splitlines()
     assert lines[1].split() == ["figure", "measured", "target", "result"]
     assert lines[2].split()[-1] == "pass" and lines[3].split()[-1] == "n/a" and lines[4].split()[-1] == "FAIL"
     assert "2 s" in lines[4] and "- b: not available" in lines

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import copy
 import math
+
 try:
     import tomllib
 except ModuleNotFoundError:  # Python < 3.11
@@ -10,11 +11,13 @@ except ModuleNotFoundError:  # Python < 3.11
 from pathlib import Path
 
 import pytest
+from config_cases import MINIMAL as GOOD
+from config_cases import good, one_problem, problems_of, step_problems
 
-from ampmodel.config.load import ConfigError, PathError, apply_overrides, dump_toml, load_config, resolve_path
+from ampmodel.config.checks import ConfigError, PathError
+from ampmodel.config.load import load_config
+from ampmodel.config.text import apply_overrides, dump_toml, resolve_path
 from ampmodel.description import Limits
-
-from config_cases import MINIMAL as GOOD, good, one_problem, problems_of, step_problems
 
 ROOT = Path(__file__).resolve().parents[2]
 

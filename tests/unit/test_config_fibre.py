@@ -4,10 +4,11 @@ from __future__ import annotations
 import math
 
 import pytest
+from config_cases import FIBRE as GOOD
+from config_cases import good as _good
+from config_cases import one_problem
 
 from ampmodel.config.load import load_config
-
-from config_cases import FIBRE as GOOD, good as _good, one_problem
 
 
 def good() -> dict:

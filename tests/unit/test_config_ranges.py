@@ -15,8 +15,9 @@ import pytest
 
 from ampmodel.config import checks as config_checks
 from ampmodel.config import schema as S
-from ampmodel.config.load import ConfigError, load_config
-from ampmodel.config.fibre import FIBRE_MEDIUM, FIBRE_PUMP
+from ampmodel.config.checks import ConfigError, expected, rule
+from ampmodel.config.load import load_config
+from ampmodel.config.schema import FIBRE_MEDIUM, FIBRE_PUMP
 from ampmodel.units import split_unit
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -108,16 +109,16 @@ def test_a_value_beyond_the_range_names_the_key_and_the_range(table, key, spec):
     lines = [line for line in info.value.problems if line.startswith(f"<dict>: {path} = ") and "out of range" in line]
     assert len(lines) == 1, info.value.problems
     line = lines[0]
-    assert f": out of range: must be {S.expected(spec)} (" in line     # the allowed range, as the schema states it
+    assert f": out of range: must be {expected(spec)} (" in line     # the allowed range, as the schema states it
     assert config_checks._fmt(spec.le if spec.le is not None else spec.lt) in line
     assert "a plausible range" in line
 
 
 def test_the_ranges_are_written_as_toml_writes_numbers():
-    assert S.rule(S.SEED["energy_J"]) == "> 0 and <= 1e6"
-    assert S.rule(S.SEED["duration_ns"]) == "from 1e-6 to 1e7"
-    assert S.rule(S.MATERIAL_TABLE["emission_cross_section_cm2"]) == "from 1e-24 to 1e-16"
-    assert S.expected(S.STEP_KINDS["lens"]["focal_mm"]) == "a non-zero number from -1e8 to 1e8"
+    assert rule(S.SEED["energy_J"]) == "> 0 and <= 1e6"
+    assert rule(S.SEED["duration_ns"]) == "from 1e-6 to 1e7"
+    assert rule(S.MATERIAL_TABLE["emission_cross_section_cm2"]) == "from 1e-24 to 1e-16"
+    assert expected(S.STEP_KINDS["lens"]["focal_mm"]) == "a non-zero number from -1e8 to 1e8"
 
 
 @pytest.mark.parametrize("text", ["2 * 0.005", "1e-3/2", "__import__('os').getcwd()", "0.01 if True else 1"])

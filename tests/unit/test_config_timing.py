@@ -3,16 +3,18 @@ repetition rate and the [train] table; their SI values and their problem message
 from __future__ import annotations
 
 import copy
+
 try:
     import tomllib
 except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib
 
 import pytest
+from config_cases import FIBRE, good, problems_of, step_problems
+from config_cases import MINIMAL as GOOD
 
-from ampmodel.config.load import apply_overrides, dump_toml, load_config
-
-from config_cases import FIBRE, MINIMAL as GOOD, good, problems_of, step_problems
+from ampmodel.config.load import load_config
+from ampmodel.config.text import apply_overrides, dump_toml
 
 C = 299792458.0
 

@@ -16,7 +16,7 @@ import threading
 import numpy as np
 import pytest
 
-from ampmodel.pulsed import chunks
+from ampmodel.beam import chunks
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels import field_step as fs
 

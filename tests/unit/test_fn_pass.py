@@ -16,9 +16,10 @@ import math
 import numpy as np
 import pytest
 
-from ampmodel.pulsed import passes as layout
+from ampmodel.beam.state import BeamState
 from ampmodel.kernels import fn_pass
 from ampmodel.kernels.frantz_nodvik import fn_slice_linear
+from ampmodel.pulsed import passes as layout
 
 TOL = 1e-12      # relative: a few hundred updates of a few ulp each cannot reach it; a wrong update does
 
@@ -181,7 +182,7 @@ def test_blocks_of_a_pass_agree_with_one_block(monkeypatch):
     ln_gain = np.where(mask, rng.uniform(0.05, 0.4, (nz, n, n)), 0.0)
 
     def run(block_size, n2, loss):
-        beam = layout.BeamState(fluence.copy(), np.zeros_like(fluence), xs, xs, 1e-9, 1.064e-6)
+        beam = BeamState(fluence.copy(), np.zeros_like(fluence), xs, xs, 1e-9, 1.064e-6)
         medium = layout.MediumState("rod", ln_gain.copy(), mask, 6.7e3, 2e-3, loss, n2)
         monkeypatch.setattr(layout, "block_pixels", lambda nt, nz: block_size)
         oc = layout.pass_medium(beam, medium, reverse=True)

@@ -14,12 +14,13 @@ from decimal import Decimal, localcontext
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.integrate import quad
 
 from ampmodel.kernels import beam_shapes
-from ampmodel.kernels.frantz_nodvik import fn_slice, fn_total, square_pulse_power
 from ampmodel.kernels.fn_pass import log_mean
+from ampmodel.kernels.frantz_nodvik import fn_slice, fn_total, square_pulse_power
 
 EPS = np.finfo(float).eps
 X_GRID = np.array([1e-12, 1e-9, 1e-6, 1e-3, 0.1, 0.5, 1.0, 2.0, 10.0, 36.0, 50.0, 100.0, 700.0, 1e3, 5e3, 1e4])

@@ -7,8 +7,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from ampmodel.materials.material import MATERIAL_KEYS
 from ampmodel.materials import registry
+from ampmodel.materials.material import MATERIAL_KEYS
 from ampmodel.units import factor, si_name
 
 EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",

@@ -13,11 +13,10 @@ import matplotlib.image as mpimg
 import numpy as np
 import pytest
 
-from ampmodel.description import Config, Grid, Limits, Medium, Seed, Step
+from ampmodel.description import Config, Grid, Limits, Medium, Seed, Step, step_label
 from ampmodel.materials.material import Material
-from ampmodel.description import step_label
-from ampmodel.plots.run import make_plots
 from ampmodel.output.result import MediumRecord, Result, StepRecord
+from ampmodel.plots.run import make_plots
 from ampmodel.units import photon_energy_J
 
 WAVELENGTH_M = 1064e-9

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import math
+
 try:
     import tomllib
 except ModuleNotFoundError:  # Python < 3.11
@@ -11,12 +12,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from ampmodel.config.load import ConfigError, load_config
+from ampmodel.config.checks import ConfigError
+from ampmodel.config.load import load_config
+from ampmodel.plots.sweep import path_label, scale_for
+from ampmodel.studies.points import point_raw, sweep_points
 from ampmodel.studies.sizing import Limit, parse_limit, parse_target, parse_within
 from ampmodel.studies.spread import distributions, draw, statistics
-from ampmodel.plots.sweep import path_label, scale_for
 from ampmodel.studies.store import _as_array, config_hash, table_columns
-from ampmodel.studies.sweeps import point_raw, sweep_points
 from ampmodel.units import unit_of
 
 ROOT = Path(__file__).resolve().parents[2]

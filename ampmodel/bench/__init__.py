@@ -1,0 +1,30 @@
+"""The benchmark behind ``ampmodel bench``: speed and memory figures, measured side by side in one run.
+
+Every ratio compares two things timed in the same run one after the other, each repeated and the best
+time kept (the least disturbed by other work on the machine). Single-threaded work in this process
+(simulate, the plain loop, the scaling) is timed in CPU time (time.process_time): on a machine shared
+with other jobs, waiting for a core is not counted; the wall times are reported beside. The sweep and
+the start-up are wall times (they are about processes). The targets live here and only here: tests
+never assert a time.
+
+Figures (the full set; ``quick`` runs the same measurements on small cases, for a test):
+
+* ``pulsed_ratio``: :func:`ampmodel.simulate` on the benchmark case (a four-pass Nd:YAG rod, 256²
+  pixels, 64 time slices, 20 z-slices, no diffraction; the built-in Nd:YAG has n2, so the B-integral is
+  tracked) against :func:`cases.reference_loop`, a plain numpy loop doing the same slice updates on the same
+  arrays (target <= 1.0);
+* ``pulsed_composite_ratio``: the same case with n2 = 0: no result needs the inside of the medium, and
+  the solver traverses it by composite slices (same target);
+* ``diffraction_ratio``: the same case with diffraction (128², the field path) against the bare FFTs it
+  needs, the faster of batched over the whole field and in cache-sized chunks on the same threads
+  (:func:`measure.measure_diffraction`; target <= 1.5), or "not available" without the field path;
+* ``sweep_speedup``: 8 independent runs on 2 workers against 1 (target >= 1.7);
+* ``scaling_spread``: time per pixel·slice·step at 128², 256², 512² (flat within 25 %);
+* ``memory_ratio``: peak memory of the 512² case (resident, measured in a child process, less the
+  interpreter and its modules measured the same way) against the arrays it must hold
+  (:func:`ampmodel.pulsed.memory.required_array_bytes`; target <= 1.5);
+* ``memory_peak_MB``: the peak of the 256² four-pass case, interpreter included (target <= 600 MB);
+* ``memory_estimate_ratio``: :func:`ampmodel.simulation.memory_estimate_bytes` against that measured peak
+  (the guard that refuses too-large runs; target 1.0 to 1.3: never below the real peak);
+* ``startup_s``: wall time of ``ampmodel --help`` in a new process (target <= 0.5 s).
+"""

@@ -1,0 +1,145 @@
+"""What the command line prints of a run: its tables (media, steps, totals) built from summary.json,
+as lines of text; ``cli.py`` prints them."""
+from __future__ import annotations
+
+import math
+
+from ampmodel.safety import SAFETY_NOTE
+
+
+def quantity_text(value: float, unit: str) -> str:
+    """``value`` with the SI prefix that suits it: ``quantity_text(0.0123, "J")`` is ``"12.3 mJ"``."""
+    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n")):
+        if abs(value) >= scale:
+            return f"{value / scale:.4g} {prefix}{unit}"
+    return f"{value:.3g} {unit}"
+
+
+def media_lines(summary: dict) -> list[str]:
+    """One line per bulk medium: its small-signal gain, stored energy (cw: saturated gain) and pump."""
+    out: list[str] = []
+    cw = summary["mode"] == "cw"
+    for m in summary["media"]:
+        line = f"  medium {m['name']} ({m['material']}): on-axis small-signal gain {m['small_signal_gain_on_axis']:.4g}"
+        if cw:
+            line += f", saturated {m['saturated_gain_on_axis']:.4g}"
+            if "absorbed_pump_power_W" in m:
+                line += (f", absorbed pump {quantity_text(m['absorbed_pump_power_W'], 'W')} of "
+                         f"{quantity_text(m['pump_power_W'], 'W')}, photon balance error {m['photon_balance_error']:.1e}")
+        else:
+            line += f", stored energy {quantity_text(m['stored_energy_J'], 'J')}"
+            if "absorbed_pump_energy_J" in m:
+                line += f", absorbed pump {quantity_text(m['absorbed_pump_energy_J'], 'J')}"
+        out.append(line)
+    return out
+
+
+def cw_table_lines(summary: dict) -> list[str]:
+    """The steps of a cw run in power, and its totals."""
+    out: list[str] = []
+    out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {'power in':>11} {'power out':>11} {'gain':>8} {'peak W/cm²':>10}")
+    for s in summary["steps"]:
+        kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        out.append(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {quantity_text(s['power_in_W'], 'W'):>11} "
+                   f"{quantity_text(s['power_out_W'], 'W'):>11} {s['gain']:>8.4g} {s['peak_intensity_W_cm2']:>10.3g}")
+    line = (f"input {quantity_text(summary['input_power_W'], 'W')} -> output {quantity_text(summary['output_power_W'], 'W')} "
+            f"(gain {summary['gain']:.4g})")
+    if "optical_efficiency" in summary:
+        line += (f"; absorbed pump {quantity_text(summary['absorbed_pump_power_W'], 'W')}, optical-to-optical efficiency "
+                 f"{100 * summary['optical_efficiency']:.1f} %")
+    out.append(line)
+    out.append(f"peak intensity {summary['peak_intensity_W_cm2']:.3g} W/cm², steady state after {summary['cw_iterations']} "
+               f"sweeps (residual {summary['cw_residual']:.1e}), power balance error {summary['power_balance_error']:.1e}")
+    return out
+
+
+def fibre_lines(summary: dict) -> list[str]:
+    """The table of a layout of fibres (cw or pulsed)."""
+    out: list[str] = []
+    cw = summary["mode"] == "cw"
+    for m in summary["media"]:
+        when = "with the pump alone" if cw else "before a pulse"
+        line = (f"  fibre {m['name']} ({m['material']}, {m['length_m']:g} m): mode-field diameter "
+                f"{m['mode_field_diameter_um']:.3g} µm, overlap {m['signal_overlap']:.3f}, small-signal gain "
+                f"{m['small_signal_gain_dB']:.1f} dB {when}")
+        if "pump_power_W" in m:
+            line += f", pump {quantity_text(m['pump_power_W'], 'W')} (absorbed {quantity_text(m['absorbed_pump_power_W'], 'W')})"
+        out.append(line)
+    unit, key = ("W", "power") if cw else ("J", "energy")
+    out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {key + ' in':>11} {key + ' out':>11} {'gain dB':>8}")
+    for s in summary["steps"]:
+        gain = 10 * math.log10(s["gain"]) if s["gain"] > 0 else float("-inf")
+        out.append(f"{s['index']:>4}  {s['kind']:<8} {(s['medium'] or ''):<10} {quantity_text(s[key + '_in_' + unit], unit):>11} "
+                   f"{quantity_text(s[key + '_out_' + unit], unit):>11} {gain:>8.2f}")
+    if cw:
+        out.append(f"input {quantity_text(summary['input_power_W'], 'W')} -> output {quantity_text(summary['output_power_W'], 'W')} "
+                   f"(gain {summary['gain_dB']:.2f} dB, noise figure {summary['noise_figure_dB']:.2f} dB); residual pump "
+                   f"{quantity_text(summary['pump_power_out_W'], 'W')}, ASE forward {quantity_text(summary['ase_forward_W'], 'W')}, "
+                   f"backward {quantity_text(summary['ase_backward_W'], 'W')}")
+        out.append(f"steady state: {summary['cw_iterations']} iterations, last change {summary['cw_residual']:.1e}; "
+                   f"photon balance error {summary['photon_balance_error']:.1e}")
+        return out
+    rate = summary.get("repetition_rate_Hz")
+    out.append(f"input {quantity_text(summary['input_energy_J'], 'J')} -> output {quantity_text(summary['output_energy_J'], 'J')} "
+               f"(gain {summary['gain_dB']:.2f} dB), peak power {quantity_text(summary['output_peak_power_W'], 'W')}, "
+               f"FWHM {summary['output_pulse_duration_ns']:.3g} ns"
+               + (f", mean power {quantity_text(summary['output_power_W'], 'W')} at {quantity_text(rate, 'Hz')}" if rate else
+               " (a single pulse)"))
+    out.append(f"stored {quantity_text(summary['stored_energy_J'], 'J')} -> {quantity_text(summary['stored_energy_final_J'], 'J')}, "
+               f"B-integral {summary['b_integral_rad']:.3g} rad, peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm² "
+               f"(axis), residual pump {quantity_text(summary['pump_power_out_W'], 'W')}, ASE forward "
+               f"{quantity_text(summary['ase_forward_W'], 'W')}, backward {quantity_text(summary['ase_backward_W'], 'W')}, energy balance "
+               f"error {summary['energy_balance_error']:.1e}")
+    return out
+
+
+def table_lines(summary: dict) -> list[str]:
+    """The steps of a bulk run (energy; cw: power), repeats, a pulse train, and its totals."""
+    if summary["mode"] == "cw":
+        return cw_table_lines(summary)
+    out: list[str] = []
+    out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {'energy in':>11} {'energy out':>11} {'gain':>8} "
+               f"{'peak J/cm²':>10} {'B rad':>6}")
+    for s in summary["steps"]:
+        kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        out.append(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {quantity_text(s['energy_in_J'], 'J'):>11} "
+                   f"{quantity_text(s['energy_out_J'], 'J'):>11} {s['gain']:>8.4g} {s['peak_fluence_J_cm2']:>10.3g} "
+                   f"{s['b_integral_rad']:>6.2f}")
+    out.append(f"input {quantity_text(summary['input_energy_J'], 'J')} -> output {quantity_text(summary['output_energy_J'], 'J')} "
+               f"(gain {summary['gain']:.4g}); stored {quantity_text(summary['stored_energy_J'], 'J')} -> "
+               f"{quantity_text(summary['stored_energy_final_J'], 'J')}, extraction {100 * summary['extraction_efficiency']:.1f} %")
+    for s in summary["steps"]:
+        if s["kind"] == "repeat":
+            rule = "at the peak" if s.get("until") == "peak" else "after the count"
+            out.append(f"step {s['index']} repeat: {s['round_trip_count']} round trips of {s['round_trip_ns']:.4g} ns, "
+                       f"dumped {rule}; build-up time {s['build_up_time_ns']:.4g} ns")
+    train = summary.get("train")
+    if train:
+        n = train["pulses_to_steady_state"]
+        if n is None:
+            settle = "the pulses do not settle to it (see the warnings)"
+        else:
+            est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
+            settle = f"within {train['tolerance']:g} after {n} pulse{'s' if n != 1 else ''}{est}"
+        out.append(f"pulse train at {quantity_text(train['repetition_rate_Hz'], 'Hz')}: steady state {quantity_text(train['pulse_energy_J'], 'J')} "
+                   f"per pulse, {quantity_text(train['average_power_W'], 'W')} average; stored before each pulse "
+                   f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
+    out.append(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
+               f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
+               f"energy balance error {summary['energy_balance_error']:.1e}")
+    return out
+
+
+def run_report_lines(s: dict) -> list[str]:
+    """What `ampmodel run` prints of a run: its table, its warnings and the safety note."""
+    out: list[str] = []
+    if s.get("layout") == "fibre":
+        out += fibre_lines(s)
+    else:
+        out += media_lines(s) + table_lines(s)
+    if s["warnings"]:
+        out.append("warnings:")
+        for w in s["warnings"]:
+            out.append(f"  - {w}")
+    out.append(SAFETY_NOTE)
+    return out
