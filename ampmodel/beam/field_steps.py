@@ -18,21 +18,21 @@ from ampmodel.kernels import beam_shapes
 from ampmodel.kernels import diffraction as kd
 
 
-def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:
-    """Run ``change`` on the field; the energy difference is returned as passive loss by default,
-    or as the keys ``change`` returns."""
+def _simple(beam: FieldBeam, change: Callable[[StepOutcome], str]) -> StepOutcome:
+    """Run ``change`` on the field; it may fill in the outcome's other fields and returns where the
+    energy difference went: "passive" (a loss), "clipped" (an aperture) or "edge" (the window's
+    absorbing edge)."""
     fluence = fluence_of(beam.field)
     e_in = float(fluence.sum() * beam.pixel_area_m2)
     peak_f, peak_i = fluence_peaks(fluence, beam.dt_s)
-    extras = change() or {}
-    e_out = beam.energy_J()
-    kind = extras.pop("_loss", "passive")
-    outcome = StepOutcome(e_in, e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i, extras=extras)
-    lost = e_in - e_out
-    if kind == "clipped":
+    outcome = StepOutcome(e_in, e_in, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
+    lost_to = change(outcome)
+    outcome.energy_out_J = beam.energy_J()
+    lost = e_in - outcome.energy_out_J
+    if lost_to == "clipped":
         outcome.clipped_J = lost
-    elif kind == "edge":
-        outcome.extras["edge_absorbed_J"] = lost
+    elif lost_to == "edge":
+        outcome.edge_absorbed_J = lost
     else:
         outcome.passive_loss_J = lost
     return outcome
@@ -40,26 +40,27 @@ def _simple(beam: FieldBeam, change: Callable[[], dict | None]) -> StepOutcome:
 
 def field_loss(beam: FieldBeam, step: Step) -> StepOutcome:
     """A lumped loss: the amplitude times sqrt(transmission)."""
-    def change():
+    def change(outcome: StepOutcome) -> str:
         beam.field *= math.sqrt(step.transmission)
+        return "passive"
     return _simple(beam, change)
 
 
 def field_aperture(beam: FieldBeam, step: Step) -> StepOutcome:
     """A centred aperture, hard (grey rim pixels) or soft (super-Gaussian ``order``): the field times
     the amplitude transmission of :func:`~ampmodel.kernels.diffraction.aperture_amplitude`."""
-    def change():
+    def change(outcome: StepOutcome) -> str:
         beam.field *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order)
-        return {"_loss": "clipped"}
+        return "clipped"
     return _simple(beam, change)
 
 
 def field_space(beam: FieldBeam, step: Step) -> StepOutcome:
     """Free space of ``length_m`` in air, in sub-steps with the absorbing edge (module docstring)."""
-    def change():
-        n = substeps(beam, step.length_m, 1.0)
-        advance(beam, step.length_m, 1.0, n)
-        return {"_loss": "edge", "substeps": n}
+    def change(outcome: StepOutcome) -> str:
+        outcome.substeps = substeps(beam, step.length_m, 1.0)
+        advance(beam, step.length_m, 1.0, outcome.substeps)
+        return "edge"
     return _simple(beam, change)
 
 
@@ -78,20 +79,19 @@ def _beam_radius(beam: FieldBeam, tail: float = 1e-6) -> float:
 def field_lens(beam: FieldBeam, step: Step) -> StepOutcome:
     """A thin lens in air: the phase exp(−i·k·r²/(2f)). Warns when the lens phase is undersampled
     over the beam (its local spatial frequency k·r/|f| beyond 80 % of the sampling limit π/dx)."""
-    def change():
+    def change(outcome: StepOutcome) -> str:
         beam.field *= kd.lens_phase(beam.x_m, beam.y_m, beam.wavelength_m, step.focal_m)
         dx = float(beam.x_m[1] - beam.x_m[0])
         r = _beam_radius(beam, tail=1e-4)
         k = 2.0 * math.pi / beam.wavelength_m
         local = k * r / abs(step.focal_m)
         limit = kd.CLEAR_FRACTION * math.pi / dx
-        out = {"_loss": "passive"}
         if local > limit:
             points = fast_even_points(math.ceil(beam.width_m * local / (kd.CLEAR_FRACTION * math.pi)))
-            out["warnings"] = [f"the lens phase is undersampled at the beam's edge (r = {r * 1e3:.3g} mm): its "
-                               f"local spatial frequency is {local / limit:.2g} times 80 % of the grid's "
-                               f"sampling limit; grid.points = {points} (at this width) would resolve it"]
-        return out
+            outcome.warnings = [f"the lens phase is undersampled at the beam's edge (r = {r * 1e3:.3g} mm): its "
+                                f"local spatial frequency is {local / limit:.2g} times 80 % of the grid's "
+                                f"sampling limit; grid.points = {points} (at this width) would resolve it"]
+        return "passive"
     return _simple(beam, change)
 
 
@@ -99,19 +99,18 @@ def field_filter(beam: FieldBeam, step: Step) -> StepOutcome:
     """A spatial filter (lens, pinhole in the focal plane, lens; a 4f system): the pinhole is a mask on
     the angular spectrum, |k_t| <= k·a/f, and the image is inverted
     (:func:`~ampmodel.kernels.diffraction.pinhole_filter`, which explains the method)."""
-    def change():
+    def change(outcome: StepOutcome) -> str:
         radius = step.pinhole_diameter_m / 2.0
-        beam.field, pad, passed = kd.pinhole_filter(beam.field, beam.width_m, beam.wavelength_m, step.focal_m,
+        beam.field, _, outcome.pinhole_transmission = kd.pinhole_filter(beam.field, beam.width_m, beam.wavelength_m, step.focal_m,
                                                     radius, beam.workers)
         beam.fft_count += 2 * beam.field.shape[0]
         dx = float(beam.x_m[1] - beam.x_m[0])
         focal_half_width = beam.wavelength_m * step.focal_m / (2.0 * dx)   # the grid's reach in the focal plane
-        out = {"_loss": "clipped", "padding": pad, "pinhole_transmission": passed}
         if radius >= focal_half_width:
-            out["warnings"] = [f"the pinhole (radius {radius * 1e6:.3g} µm) is wider than the focal plane the grid "
-                               f"reaches (half-width λf/(2dx) = {focal_half_width * 1e6:.3g} µm): it removes "
-                               "nothing on this grid; raise grid.points or narrow the pinhole"]
-        return out
+            outcome.warnings = [f"the pinhole (radius {radius * 1e6:.3g} µm) is wider than the focal plane the grid "
+                                f"reaches (half-width λf/(2dx) = {focal_half_width * 1e6:.3g} µm): it removes "
+                                "nothing on this grid; raise grid.points or narrow the pinhole"]
+        return "clipped"
     return _simple(beam, change)
 
 
@@ -122,7 +121,7 @@ def field_relay(beam: FieldBeam, step: Step) -> StepOutcome:
     interpolated (cubic splines on the real and imaginary parts) and each time slice is rescaled to
     the energy of the part of the input that the image keeps inside the window (energy conserved;
     the rest is counted as clipped by the window). Relay lenses and their apertures are ideal."""
-    def change():
+    def change(outcome: StepOutcome) -> str:
         m = step.magnification
         image = kd.image_scaled(beam.field, beam.x_m, m)
         if m != 1.0:
@@ -140,7 +139,7 @@ def field_relay(beam: FieldBeam, step: Step) -> StepOutcome:
         else:
             beam.b_integral = beam.b_integral[:, ::-1, ::-1].copy()
         beam.field = image
-        return {"_loss": "clipped"}
+        return "clipped"
     return _simple(beam, change)
 
 

@@ -7,9 +7,12 @@ returns a :class:`StepOutcome` with its energy bookkeeping.
 """
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
+
+from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
 
 
 @dataclass
@@ -35,9 +38,56 @@ class BeamState:
         return float(self.fluence.sum() * self.pixel_area_m2)
 
 
+@dataclass(frozen=True)
+class BeamFigures:
+    """The beam's shape over a clear aperture, from its fluence map (definitions in
+    kernels/beam_figures.py and the README): D4σ diameters (mm), peak-to-mean modulation and fill
+    factor. Its fields are summary.json keys of the seed and of each step."""
+
+    d4sigma_x_mm: float
+    d4sigma_y_mm: float
+    modulation_peak_to_mean: float
+    fill_factor: float
+
+    @classmethod
+    def of(cls, fluence_map: np.ndarray, x_m: np.ndarray, y_m: np.ndarray, aperture: np.ndarray | None,
+           pixel_area_m2: float) -> BeamFigures:
+        """The figures of ``fluence_map`` (Ny, Nx) in J/m² over ``aperture`` (Ny, Nx) bool (None: all)."""
+        dx4, dy4 = d4sigma(fluence_map, x_m, y_m)
+        inside = aperture if aperture is not None else np.ones(fluence_map.shape, dtype=bool)
+        modulation, fill = aperture_figures(fluence_map, inside, pixel_area_m2)
+        return cls(dx4 * 1e3, dy4 * 1e3, modulation, fill)
+
+    def as_dict(self) -> dict[str, float]:
+        return dataclasses.asdict(self)
+
+
+@dataclass
+class RepeatOutcome:
+    """A repeat's round trips: the energy after each round trip run (the discarded one of
+    ``until = "peak"`` included, J), the round trips kept (the dump after the last of them), the
+    round-trip time (s), whether the energy fell before ``max_count`` (until = "peak"), and the
+    outcome of each inner step in the dump round trip."""
+
+    round_trip_energies_J: list[float]
+    dump_round_trip: int
+    round_trip_s: float
+    peak_found: bool
+    inner: list[StepOutcome]
+
+
 @dataclass
 class StepOutcome:
-    """Energy bookkeeping and peaks of one step (J, J/m², W/m², rad)."""
+    """Energy bookkeeping and peaks of one step (J, J/m², W/m², rad), and what else the step reports.
+
+    edge_absorbed_J : field path: the energy the window's absorbing edge took
+    substeps : field path: diffraction sub-steps of a free-space step or of each medium slice
+    pinhole_transmission : spatial filter: the fraction of the energy through the pinhole
+    warnings : the step's own warnings (an undersampled lens phase, a pinhole wider than the grid)
+    beam : the beam figures after the step; peak_power_W : the largest power (W) entering or
+        leaving it (both set by the pulsed layout loop)
+    repeat : a repeat step's round trips
+    """
 
     energy_in_J: float
     energy_out_J: float
@@ -47,7 +97,13 @@ class StepOutcome:
     peak_fluence_J_m2: float = 0.0
     peak_intensity_W_m2: float = 0.0
     b_integral_step_rad: float = 0.0
-    extras: dict = field(default_factory=dict)
+    edge_absorbed_J: float = 0.0
+    substeps: int | None = None
+    pinhole_transmission: float | None = None
+    warnings: list[str] = field(default_factory=list)
+    beam: BeamFigures | None = None
+    peak_power_W: float | None = None
+    repeat: RepeatOutcome | None = None
 
 
 def fluence_peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:

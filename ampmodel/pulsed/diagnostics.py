@@ -33,8 +33,9 @@ _CLIP_WORDS = {"filter": "the pinhole rejects", "relay": "the window cuts off",
 
 
 def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
-    """A step's summary entry: SPEC section 4's keys and more; a repeat adds its round trips and the
-    entries of its steps in the dump round trip."""
+    """A step's summary entry (index, kind, medium, energies in and out, gain, peaks, B-integral,
+    clipped, passive and extracted energy, delay, beam figures, peak power); a repeat adds its round
+    trips and the entries of its steps in the dump round trip."""
     entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
              "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
              "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
@@ -44,17 +45,18 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
              "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
              "extracted_energy_J": oc.extracted_J, "delay_ns": step.delay_s * 1e9}
     if config.grid.diffraction:
-        entry["edge_absorbed_energy_J"] = oc.extras.get("edge_absorbed_J", 0.0)
-    entry.update(oc.extras.get("beam", {}))
-    if "peak_power_W" in oc.extras:
-        entry["peak_power_W"] = oc.extras["peak_power_W"]
+        entry["edge_absorbed_energy_J"] = oc.edge_absorbed_J
+    if oc.beam is not None:
+        entry.update(oc.beam.as_dict())
+    if oc.peak_power_W is not None:
+        entry["peak_power_W"] = oc.peak_power_W
     if step.kind == "pass":
         entry["reverse"] = step.reverse
     if step.kind == "repeat":
-        x = oc.extras
-        energies = x["round_trip_energies_J"]
-        round_trip_s = x["round_trip_s"]
-        dump = x["dump_round_trip"]
+        rt = oc.repeat
+        energies = rt.round_trip_energies_J
+        round_trip_s = rt.round_trip_s
+        dump = rt.dump_round_trip
         before = [oc.energy_in_J] + list(energies[:-1])
         round_trips = [{"round_trip": k, "energy_J": e, "time_ns": k * round_trip_s * 1e9,
                         "gain": e / b if b > 0 else 0.0, "kept": k <= dump, "dumped": k == dump}
@@ -66,10 +68,10 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
             "build_up_time_ns": dump * round_trip_s * 1e9,
             "energy_per_round_trip_J": list(energies),
             "round_trips": round_trips,
-            "steps": [_step_entry(config, s, o) for s, o in zip(step.steps, x["inner"])],
+            "steps": [_step_entry(config, s, o) for s, o in zip(step.steps, rt.inner, strict=True)],
         })
         if step.until is not None:
-            entry["peak_found"] = x["peak_found"]
+            entry["peak_found"] = rt.peak_found
             entry["max_count"] = step.max_count
     return entry
 
@@ -79,8 +81,8 @@ def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> l
     checked one by one, not the repeat as a whole)."""
     limits = config.limits
     pulse_s = config.seed.duration_s
-    warnings = [f"{label}: {text}" for text in oc.extras.get("warnings", ())]
-    edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
+    warnings = [f"{label}: {text}" for text in oc.warnings]
+    edge_lost = oc.edge_absorbed_J
     if step.kind != "repeat" and oc.energy_in_J > 0:
         if oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
             what = _CLIP_WORDS.get(step.kind, "the aperture clips")
@@ -117,114 +119,23 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
               extra_warnings: list[str] | None = None) -> dict[str, Any]:
     """Build the summary.json dict of a pulsed run.
 
-    ``beam`` is the final beam (fluence path ``layout.BeamState`` or field path ``optics.FieldBeam``);
-    ``seed_beam`` the seed's beam figures; ``extra_warnings`` are added as they are (grid checks).
+    ``beam`` is the final beam (fluence path ``beam.state.BeamState`` or field path
+    ``beam.field.FieldBeam``); ``seed_beam`` the seed's beam figures; ``extra_warnings`` are added as
+    they are (grid checks).
     """
     limits, seed = config.limits, config.seed
     pixel_area = beam.pixel_area_m2
-    dx = float(beam.x_m[1] - beam.x_m[0])
     e_in = float(seed_map.sum() * pixel_area)
     e_out = beam.energy_J()
     warnings: list[str] = []
-
-    media_summary = []
-    stored_before = stored_after = 0.0
-    for m in config.media:
-        rec = media[m.name]
-        voxel = rec.slice_length_m * pixel_area
-        s0 = gain_maps.stored_energy_J(rec.gain_initial_per_m, rec.saturation_fluence_J_m2, voxel)
-        s1 = gain_maps.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
-        # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
-        ext = rec.saturation_fluence_J_m2 * voxel * sum(         # slice by slice: no (Nz, Ny, Nx) temporary
-            float((g0 - g1).sum()) for g0, g1 in zip(rec.gain_initial_per_m, rec.gain_final_per_m))
-        stored_before, stored_after = stored_before + s0, stored_after + s1
-        g0_axis = gain_maps.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
-        entry = {"name": m.name, "material": m.material.name,
-                 "small_signal_gain_on_axis": g0_axis,
-                 "small_signal_gain_on_axis_final": gain_maps.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
-                 "stored_energy_J": s0, "stored_energy_final_J": s1, "extracted_energy_J": ext,
-                 "saturation_fluence_J_cm2": rec.saturation_fluence_J_m2 * J_CM2,
-                 "quasi_three_level": m.material.quasi_three_level}
-        if m.material.n2_m2_W > 0:
-            entry["critical_power_W"] = critical_power_W(m.material.wavelength_m, m.material.refractive_index,
-                                                         m.material.n2_m2_W)
-        if rec.pumped_J or rec.decayed_J:
-            # time passed in the layout: the gain map also changed by pumping and decay
-            entry["extracted_energy_J"] = ext + rec.pumped_J - rec.decayed_J
-            entry["pump_stored_energy_J"] = rec.pumped_J
-            entry["decayed_energy_J"] = rec.decayed_J
-        gm = maps[m.name]
-        if m.pump is not None and m.pump.continuous:
-            entry["absorbed_pump_power_W"] = gm.absorbed_pump_W
-            entry["pump_power_W"] = m.pump.power_W
-        elif m.pump is not None:
-            entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
-            entry["pump_energy_J"] = m.pump.energy_J
-            if gm.pump_limited_voxels:
-                warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
-                                f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
-        media_summary.append(entry)
-        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, limits))
-
-    steps = []
-    self_focusing: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)
-    peak_fluence = float(seed_map.max())
-    peak_intensity = 0.0   # every step records the peaks of the beam entering it
-    lost = 0.0
-    b_total = 0.0
-    pulse_s = seed.duration_s
-    for step, oc in zip(config.steps, outcomes):
-        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
-        peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
-        edge_lost = oc.extras.get("edge_absorbed_J", 0.0)
-        lost += oc.clipped_J + oc.passive_loss_J + edge_lost
-        steps.append(_step_entry(config, step, oc))
-        label = step_label(config.steps, step.index)
-        warnings.extend(_step_warnings(config, step, oc, label))
-        if step.kind == "repeat":
-            for inner, ioc in zip(step.steps, oc.extras["inner"]):
-                warnings.extend(_step_warnings(config, inner, ioc, step_label(config.steps, step.index, inner.index)))
-            if step.until is not None and not oc.extras["peak_found"] and oc.energy_out_J > 0:
-                warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
-                                f"trips; the pulse was dumped after the last; raise max_count or check the "
-                                f"cavity's gain and loss")
-        # the media a step passes: a pass's own, a repeat's (at the repeat's peak power, after the dump)
-        passed = [step.medium] if step.kind == "pass" else \
-            list(dict.fromkeys(s.medium for s in step.steps if s.kind == "pass"))
-        for name in passed if "peak_power_W" in oc.extras else ():
-            mat = config.medium(name).material
-            if mat.n2_m2_W > 0:
-                ratio = oc.extras["peak_power_W"] / critical_power_W(mat.wavelength_m, mat.refractive_index,
-                                                                     mat.n2_m2_W)
-                worst = self_focusing.get(name)
-                if ratio > 1.0 and (worst is None or ratio > worst[0]):
-                    self_focusing[name] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
-                elif ratio > 1.0:
-                    self_focusing[name] = worst[:3] + (worst[3] + 1,)
-    for name, (ratio, index, oc, count) in self_focusing.items():
-        mat = config.medium(name).material
-        p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
-        beam_fig = oc.extras.get("beam", {})
-        radius = 0.25e-3 * (beam_fig.get("d4sigma_x_mm", 0.0) + beam_fig.get("d4sigma_y_mm", 0.0))
-        z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
-        length = config.medium(name).length_m
-        collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
-                    f"the {length * 1e3:g} mm medium (an estimate)"
-                    if np.isfinite(z_sf) and radius > 0 else "")
-        if collapse and z_sf > 10.0 * length:
-            collapse += (": whole-beam collapse is far off, and the small-scale self-focusing of beam ripples "
-                         "is what the B-integral measures")
-        passes = f" ({count} passes above it)" if count > 1 else ""
-        warnings.append(
-            f"medium {name}: peak power up to {oc.extras['peak_power_W']:.3g} W in {step_label(config.steps, index)}, "
-            f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
-            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
-            + ("the field path includes the Kerr phase" if config.grid.diffraction else
-               "set grid.diffraction = true to include the Kerr phase in the beam"))
+    media_summary, stored_before, stored_after = _media_entries(config, media, maps, pixel_area, warnings)
+    steps, lost, peak_fluence, peak_intensity = _step_entries(config, outcomes, float(seed_map.max()), warnings)
+    warnings.extend(_self_focusing_warnings(config, outcomes))
     b_total = float(beam.b_integral.max()) if beam.b_integral.size else 0.0
     if b_total > limits.b_integral_total_rad:
         warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
                         f"in total (common practice)")
+    dx = float(beam.x_m[1] - beam.x_m[0])
     warnings.extend(seed_grid_warnings(seed.diameter_m, dx, seed_map, config.grid.width_m, limits))
     warnings.extend(extra_warnings or ())
     if seed.shape != "flat" and config.grid.time_slices < 16:
@@ -251,7 +162,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         "peak_intensity_W_cm2": peak_intensity * W_CM2,
         "b_integral_rad": b_total,
         "energy_balance_error": balance,
-        "pulse_duration_ns": pulse_s * 1e9,
+        "pulse_duration_ns": seed.duration_s * 1e9,
         "time_slice_ns": beam.dt_s * 1e9,
         "diffraction": config.grid.diffraction,
         "seed_beam": dict(seed_beam or {}),
@@ -260,3 +171,114 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         "media": media_summary,
         "safety": SAFETY_NOTE,
     }
+
+
+def _media_entries(config: Config, media: Mapping[str, MediumRecord], maps: Mapping[str, gain_maps.GainMap],
+                   pixel_area: float, warnings: list[str]) -> tuple[list[dict[str, Any]], float, float]:
+    """Each medium's summary entry (gain, stored and extracted energy, pump), with its warnings added
+    to ``warnings``; and the stored energy of all media before and after (J)."""
+    entries = []
+    stored_before = stored_after = 0.0
+    for m in config.media:
+        rec = media[m.name]
+        voxel = rec.slice_length_m * pixel_area
+        s0 = gain_maps.stored_energy_J(rec.gain_initial_per_m, rec.saturation_fluence_J_m2, voxel)
+        s1 = gain_maps.stored_energy_J(rec.gain_final_per_m, rec.saturation_fluence_J_m2, voxel)
+        # Energy given to the beam: Fsat·∫ (g_before − g_after) dV over every voxel (also absorbing ones).
+        ext = rec.saturation_fluence_J_m2 * voxel * sum(         # slice by slice: no (Nz, Ny, Nx) temporary
+            float((g0 - g1).sum()) for g0, g1 in zip(rec.gain_initial_per_m, rec.gain_final_per_m, strict=True))
+        stored_before, stored_after = stored_before + s0, stored_after + s1
+        g0_axis = gain_maps.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m)
+        entry = {"name": m.name, "material": m.material.name,
+                 "small_signal_gain_on_axis": g0_axis,
+                 "small_signal_gain_on_axis_final": gain_maps.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
+                 "stored_energy_J": s0, "stored_energy_final_J": s1, "extracted_energy_J": ext,
+                 "saturation_fluence_J_cm2": rec.saturation_fluence_J_m2 * J_CM2,
+                 "quasi_three_level": m.material.quasi_three_level}
+        if m.material.n2_m2_W > 0:
+            entry["critical_power_W"] = critical_power_W(m.material.wavelength_m, m.material.refractive_index,
+                                                         m.material.n2_m2_W)
+        if rec.pumped_J or rec.decayed_J:
+            # time passed in the layout: the gain map also changed by pumping and decay
+            entry["extracted_energy_J"] = ext + rec.pumped_J - rec.decayed_J
+            entry["pump_stored_energy_J"] = rec.pumped_J
+            entry["decayed_energy_J"] = rec.decayed_J
+        gm = maps[m.name]
+        if m.pump is not None and m.pump.continuous:
+            entry["absorbed_pump_power_W"] = gm.absorbed_pump_W
+            entry["pump_power_W"] = m.pump.power_W
+        elif m.pump is not None:
+            entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
+            entry["pump_energy_J"] = m.pump.energy_J
+            if gm.pump_limited_voxels:
+                warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
+                                f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
+        entries.append(entry)
+        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, config.limits))
+    return entries, stored_before, stored_after
+
+
+def _step_entries(config: Config, outcomes: list[StepOutcome], peak_fluence: float,
+                  warnings: list[str]) -> tuple[list[dict[str, Any]], float, float, float]:
+    """Each step's summary entry, with its warnings added to ``warnings``; the energy lost on the way
+    (clipped, passive loss, window edge; J) and the peak fluence (J/m², from the seed's
+    ``peak_fluence`` on) and intensity (W/m²) over the layout."""
+    steps = []
+    lost = peak_intensity = 0.0        # every step records the peaks of the beam entering it
+    for step, oc in zip(config.steps, outcomes, strict=True):
+        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
+        peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
+        lost += oc.clipped_J + oc.passive_loss_J + oc.edge_absorbed_J
+        steps.append(_step_entry(config, step, oc))
+        label = step_label(config.steps, step.index)
+        warnings.extend(_step_warnings(config, step, oc, label))
+        if step.kind == "repeat":
+            for inner, ioc in zip(step.steps, oc.repeat.inner, strict=True):
+                warnings.extend(_step_warnings(config, inner, ioc, step_label(config.steps, step.index, inner.index)))
+            if step.until is not None and not oc.repeat.peak_found and oc.energy_out_J > 0:
+                warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
+                                f"trips; the pulse was dumped after the last; raise max_count or check the "
+                                f"cavity's gain and loss")
+    return steps, lost, peak_fluence, peak_intensity
+
+
+def _self_focusing_warnings(config: Config, outcomes: list[StepOutcome]) -> list[str]:
+    """Per medium with n2, a warning when the peak power passing it exceeds the critical power for
+    self-focusing: the worst step, how many passes are above it, and Marburger's collapse distance."""
+    worst_of: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)
+    for step, oc in zip(config.steps, outcomes, strict=True):
+        if oc.peak_power_W is None:
+            continue
+        # the media a step passes: a pass's own, a repeat's (at the repeat's peak power, after the dump)
+        passed = [step.medium] if step.kind == "pass" else \
+            list(dict.fromkeys(s.medium for s in step.steps if s.kind == "pass"))
+        for name in passed:
+            mat = config.medium(name).material
+            if mat.n2_m2_W > 0:
+                ratio = oc.peak_power_W / critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+                worst = worst_of.get(name)
+                if ratio > 1.0 and (worst is None or ratio > worst[0]):
+                    worst_of[name] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
+                elif ratio > 1.0:
+                    worst_of[name] = worst[:3] + (worst[3] + 1,)
+    warnings = []
+    for name, (ratio, index, oc, count) in worst_of.items():
+        mat = config.medium(name).material
+        p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+        radius = 0.25e-3 * (oc.beam.d4sigma_x_mm + oc.beam.d4sigma_y_mm) if oc.beam is not None else 0.0
+        z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
+        length = config.medium(name).length_m
+        collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
+                    f"the {length * 1e3:g} mm medium (an estimate)"
+                    if np.isfinite(z_sf) and radius > 0 else "")
+        if collapse and z_sf > 10.0 * length:
+            collapse += (": whole-beam collapse is far off, and the small-scale self-focusing of beam ripples "
+                         "is what the B-integral measures")
+        passes = f" ({count} passes above it)" if count > 1 else ""
+        warnings.append(
+            f"medium {name}: peak power up to {oc.peak_power_W:.3g} W in {step_label(config.steps, index)}, "
+            f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
+            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
+            + ("the field path includes the Kerr phase" if config.grid.diffraction else
+               "set grid.diffraction = true to include the Kerr phase in the beam"))
+    return warnings

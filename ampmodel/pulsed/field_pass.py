@@ -147,4 +147,4 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     return StepOutcome(e_in * area, float(final.sum()) * area, clipped_J=clipped * area,
                        passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
                        peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
-                       extras={"edge_absorbed_J": edge_lost * area, "substeps": n_sub})
+                       edge_absorbed_J=edge_lost * area, substeps=n_sub)

@@ -19,7 +19,7 @@ from typing import Callable
 
 import numpy as np
 
-from ampmodel.beam.state import StepOutcome
+from ampmodel.beam.state import RepeatOutcome, StepOutcome
 from ampmodel.description import Config, Step
 from ampmodel.output.result import StepRecord
 from ampmodel.pulsed.clocks import Timeline
@@ -70,7 +70,7 @@ def run_repeat(step: Step, beam, states: dict[str, MediumState], timeline: Timel
                tick: Callable[[], None] | None = None) -> StepOutcome:
     """Run a repeat's steps round trip after round trip; see the module docstring.
 
-    ``beam`` is a ``layout.BeamState`` or an ``optics.FieldBeam``; ``act(step, beam, tick)`` applies
+    ``beam`` is a ``beam.state.BeamState`` or a ``beam.field.FieldBeam``; ``act(step, beam, tick)`` applies
     one inner step to it.
 
     Returns
@@ -78,11 +78,8 @@ def run_repeat(step: Step, beam, states: dict[str, MediumState], timeline: Timel
     StepOutcome
         Energies in (entering the repeat) and out (after the dump round trip); clipped, passive-loss
         and extracted energy summed over the round trips kept; peaks over them; the B-integral added.
-        ``extras``: ``round_trip_energies_J`` (after each round trip run, the discarded one of
-        ``until = "peak"`` included), ``dump_round_trip`` (round trips kept), ``round_trip_s``,
-        ``peak_found`` (until: the energy fell before ``max_count``), ``inner`` (the StepOutcome of
-        each inner step in the dump round trip), ``edge_absorbed_J`` (field path: taken by the
-        window's absorbing edge over the round trips kept).
+        ``repeat``: the round trips (:class:`~ampmodel.beam.state.RepeatOutcome`);
+        ``edge_absorbed_J`` (field path): taken by the window's absorbing edge over the round trips kept.
     """
     e_in = beam.energy_J()
     b_start = beam.b_integral.copy()
@@ -112,7 +109,7 @@ def run_repeat(step: Step, beam, states: dict[str, MediumState], timeline: Timel
         clipped += sum(o.clipped_J for o in inner)
         passive += sum(o.passive_loss_J for o in inner)
         extracted += sum(o.extracted_J for o in inner)
-        edge += sum(o.extras.get("edge_absorbed_J", 0.0) for o in inner)
+        edge += sum(o.edge_absorbed_J for o in inner)
         peak_f = max([peak_f] + [o.peak_fluence_J_m2 for o in inner])
         peak_i = max([peak_i] + [o.peak_intensity_W_m2 for o in inner])
         if energy <= 0.0:
@@ -121,9 +118,8 @@ def run_repeat(step: Step, beam, states: dict[str, MediumState], timeline: Timel
     b_added = float((beam.b_integral - b_start).max()) if beam.b_integral.size else 0.0
     return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, passive_loss_J=passive, extracted_J=extracted,
                        peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i, b_integral_step_rad=b_added,
-                       extras={"round_trip_energies_J": energies, "dump_round_trip": kept,
-                               "round_trip_s": round_trip_s, "peak_found": peak_found, "inner": last_inner,
-                               "edge_absorbed_J": edge})
+                       edge_absorbed_J=edge,
+                       repeat=RepeatOutcome(energies, kept, round_trip_s, peak_found, last_inner))
 
 
 def run_step(step: Step, beam, states: dict[str, MediumState], timeline: Timeline, act: Act,
@@ -146,8 +142,8 @@ def step_record(step: Step, beam, outcome: StepOutcome, fluence_map: np.ndarray,
     record = StepRecord(index=step.index, kind=step.kind, medium=step.medium, fluence_J_m2=fluence_map,
                         power_W=power, b_integral_rad=beam.b_integral.max(axis=0))
     if step.kind == "repeat":
-        energies = np.asarray(outcome.extras["round_trip_energies_J"], dtype=float)
-        times = outcome.extras["round_trip_s"] * np.arange(1, energies.size + 1)
+        energies = np.asarray(outcome.repeat.round_trip_energies_J, dtype=float)
+        times = outcome.repeat.round_trip_s * np.arange(1, energies.size + 1)
         record.datasets = {"round_trip_energy": (energies, "J"), "round_trip_end_time": (times, "s")}
     return record
 

@@ -1,5 +1,8 @@
-"""Orchestration: validated description -> initial state -> steps in order -> diagnostics -> Result."""
+"""A pulsed run: the gain maps and the seed on the grid, the steps of the layout in order (or a pulse
+train to its periodic steady state), the diagnostics, the Result."""
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -7,138 +10,189 @@ from ampmodel.beam import field as field_path
 from ampmodel.beam import grid_checks
 from ampmodel.beam.field_steps import FIELD_STEP_ACTIONS
 from ampmodel.beam.fluence_steps import FLUENCE_STEP_ACTIONS
-from ampmodel.beam.state import BeamState, StepOutcome
+from ampmodel.beam.state import BeamFigures, BeamState, StepOutcome
+from ampmodel.config.checks import ConfigError
 from ampmodel.description import Config, Step, step_label
 from ampmodel.kernels import beam_shapes
-from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
 from ampmodel.media import gain_maps
+from ampmodel.media.gain_maps import GainMap
 from ampmodel.output.result import MediumRecord, Result, StepRecord
 from ampmodel.progress import progress_bar
-from ampmodel.pulsed import diagnostics, trains
-from ampmodel.pulsed import repeats as timing
+from ampmodel.pulsed import diagnostics, repeats, trains
 from ampmodel.pulsed.clocks import Timeline, medium_clocks
 from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState, pass_medium
 
 
+@dataclass
+class PulsedLayout:
+    """A pulsed run's initial state and its step loop.
+
+    x_m : (Nx,) pixel centres (the grid is square); maps : medium name -> its gain map as built;
+    states : medium name -> the state the passes deplete; t_s, weights, dt_s : the time slices, the
+    share of the seed's energy in each and their width; seed_map : (Ny, Nx) the seed's fluence (J/m²);
+    seed_field : the seed's field at the start plane (field path, or a seed with a waist) or None;
+    seed_power_W : (Nt,) the seed's power; apertures : step index -> the clear aperture its beam
+    figures are taken over.
+    """
+
+    config: Config
+    x_m: np.ndarray
+    maps: dict[str, GainMap]
+    states: dict[str, MediumState]
+    t_s: np.ndarray
+    weights: np.ndarray
+    dt_s: float
+    seed_map: np.ndarray
+    seed_field: np.ndarray | None
+    seed_power_W: np.ndarray
+    timeline: Timeline
+    apertures: dict[int, np.ndarray]
+
+    @classmethod
+    def build(cls, config: Config) -> PulsedLayout:
+        """The gain maps first (their construction's temporaries are freed before the beam is
+        allocated), then the seed and the media's clocks."""
+        grid, seed = config.grid, config.seed
+        x = beam_shapes.pixel_centres(grid.points, grid.width_m)
+        maps = {m.name: gain_maps.gain_map(m, x, x) for m in config.media}
+        states = {m.name: _medium_state(m, maps[m.name]) for m in config.media}
+        t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
+        seed_field = None
+        if grid.diffraction or seed.waist_m is not None:
+            seed_field = _seed_field(config, x, x)
+            seed_map = field_path.fluence_of(seed_field)
+        else:
+            seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
+        area = float((x[1] - x[0]) ** 2)
+        seed_power = weights * seed_map.sum() * area / dt
+        return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
+                   Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states))
+
+    @property
+    def pixel_area_m2(self) -> float:
+        return float((self.x_m[1] - self.x_m[0]) ** 2)
+
+    def new_beam(self):
+        """A fresh seed pulse on the grid (a field beam with diffraction)."""
+        grid, seed = self.config.grid, self.config.seed
+        if grid.diffraction:
+            return field_path.start_beam(self.seed_field, self.weights, self.x_m, self.x_m, self.dt_s,
+                                         seed.wavelength_m, grid.width_m, grid.fft_workers)
+        fluence = self.weights[:, None, None] * self.seed_map[None, :, :]
+        return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=self.x_m, y_m=self.x_m,
+                         dt_s=self.dt_s, wavelength_m=seed.wavelength_m)
+
+    def act(self, step: Step, beam, tick) -> StepOutcome:
+        """One step that is not a repeat, on the field path or the fluence path."""
+        diffraction = self.config.grid.diffraction
+        if step.kind == "pass":
+            state = self.states[step.medium]
+            if diffraction:
+                index = self.config.medium(step.medium).material.refractive_index
+                return pass_medium_field(beam, state, index, reverse=step.reverse, tick=tick)
+            return pass_medium(beam, state, reverse=step.reverse, tick=tick)
+        return (FIELD_STEP_ACTIONS if diffraction else FLUENCE_STEP_ACTIONS)[step.kind](beam, step)
+
+    def run_layout(self, beam, tick=None, record: bool = True):
+        """The steps in order on ``beam`` (each followed by its delay; repeats round trip by round
+        trip): their outcomes, the beam after each (``record``) and the grid checks."""
+        config, diffraction = self.config, self.config.grid.diffraction
+        outcomes: list[StepOutcome] = []
+        records: list[StepRecord] = []
+        checks = [("the seed", grid_checks.check_grid(beam))] if diffraction and record else []
+        power_before = float(self.seed_power_W.max()) if self.seed_power_W.size else 0.0
+        for step in config.steps:
+            outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick)
+            if record:
+                fluence = beam.fluence
+                fluence_map = fluence.sum(axis=0)
+                power = fluence.sum(axis=(1, 2)) * self.pixel_area_m2 / self.dt_s
+                power_after = float(power.max()) if power.size else 0.0
+                if diffraction:
+                    checks.append((step_label(config.steps, step.index),
+                                   grid_checks.check_grid(beam, fluence=fluence)))
+                outcome.beam = BeamFigures.of(fluence_map, self.x_m, self.x_m, self.apertures[step.index],
+                                              self.pixel_area_m2)
+                outcome.peak_power_W = max(power_before, power_after)
+                power_before = power_after
+                records.append(repeats.step_record(step, beam, outcome, fluence_map, power))
+            outcomes.append(outcome)
+        return outcomes, records, checks
+
+
 def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
-    """Run a validated configuration and return its Result (nothing is written).
+    """Run a validated pulsed configuration of bulk media and return its Result (nothing is written).
 
     Parameters
     ----------
     config : Config from :func:`ampmodel.load_config`
     progress : True shows a progress bar on stderr, None shows it on an interactive terminal
     """
-    grid, seed = config.grid, config.seed
-    x = beam_shapes.pixel_centres(grid.points, grid.width_m)
-    y = x.copy()
-    # The gain maps first: their construction's temporaries are freed before the beam is allocated.
-    maps = {m.name: gain_maps.gain_map(m, x, y) for m in config.media}
-    states = {}
-    for m in config.media:
-        gm = maps[m.name]
-        states[m.name] = MediumState(
-            name=m.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
-            saturation_fluence_J_m2=m.material.saturation_fluence_J_m2, slice_length_m=gm.slice_length_m,
-            loss_per_m=m.loss_per_m, n2_m2_W=m.material.n2_m2_W)
-
-    t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
-    if grid.diffraction or seed.waist_m is not None:
-        seed_field = _seed_field(config, x, y)
-        seed_map = field_path.fluence_of(seed_field)
-    else:
-        seed_map = beam_shapes.seed_fluence(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
-
-    def new_beam():
-        """A fresh seed pulse on the grid (a field beam with diffraction)."""
-        if grid.diffraction:
-            return field_path.start_beam(seed_field, weights, x, y, dt, seed.wavelength_m, grid.width_m,
-                                     grid.fft_workers)
-        fluence = weights[:, None, None] * seed_map[None, :, :]
-        return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=x, y_m=y, dt_s=dt,
-                         wavelength_m=seed.wavelength_m)
-
-    beam = new_beam()
-    area = beam.pixel_area_m2
-    seed_power = weights * seed_map.sum() * area / dt
-
-    timeline = Timeline(medium_clocks(config, maps, area))
-    apertures = _clear_apertures(config, states)
-
-    def act(step: Step, beam, tick) -> StepOutcome:
-        """One step that is not a repeat, on the field path or the fluence path."""
-        if grid.diffraction and step.kind == "pass":
-            index = config.medium(step.medium).material.refractive_index
-            return pass_medium_field(beam, states[step.medium], index, reverse=step.reverse, tick=tick)
-        if grid.diffraction:
-            return FIELD_STEP_ACTIONS[step.kind](beam, step)
-        if step.kind == "pass":
-            return pass_medium(beam, states[step.medium], reverse=step.reverse, tick=tick)
-        return FLUENCE_STEP_ACTIONS[step.kind](beam, step)
-
-    def run_layout(beam, tick=None, record: bool = True):
-        """The steps in order on ``beam`` (each followed by its delay; repeats round trip by round
-        trip): their outcomes, the beam after each (``record``) and the grid checks."""
-        outcomes: list[StepOutcome] = []
-        records: list[StepRecord] = []
-        checks = [("the seed", grid_checks.check_grid(beam))] if grid.diffraction and record else []
-        power_before = float(seed_power.max()) if seed_power.size else 0.0
-        for step in config.steps:
-            outcome = timing.run_step(step, beam, states, timeline, act, tick)
-            if record:
-                fluence = beam.fluence
-                fluence_map = fluence.sum(axis=0)
-                power = fluence.sum(axis=(1, 2)) * area / dt
-                if grid.diffraction:
-                    label = step_label(config.steps, step.index)
-                    checks.append((label, grid_checks.check_grid(beam, fluence=fluence)))
-                outcome.extras["beam"] = beam_figures(fluence_map, x, y, apertures[step.index], area)
-                outcome.extras["peak_power_W"] = max(power_before, float(power.max()) if power.size else 0.0)
-                power_before = float(power.max()) if power.size else 0.0
-                records.append(timing.step_record(step, beam, outcome, fluence_map, power))
-            outcomes.append(outcome)
-        return outcomes, records, checks
-
+    run = PulsedLayout.build(config)
+    beam = run.new_beam()
     train = None
-    if seed.repetition_rate_Hz is not None:
+    if config.seed.repetition_rate_Hz is not None:
         with progress_bar(progress, unit="pulse", desc="pulse train") as bar:
-            train = trains.run_train(config, new_beam, run_layout, states, timeline, seed_map,
+            train = trains.run_train(config, run.new_beam, run.run_layout, run.states, run.timeline, run.seed_map,
                                      bar.update if bar is not None else None)
         beam, outcomes, records, checks = train.beam, train.outcomes, train.records, train.checks
         initial_ln_gain, pumped, decayed = train.ln_gain_before, train.pumped_J, train.decayed_J
     else:
         initial_ln_gain = None               # the gain maps as built (no copy)
-        with progress_bar(progress, total=timing.slice_passes(config), unit="slice", desc="amplifying") as bar:
-            outcomes, records, checks = run_layout(beam, tick=bar.update if bar is not None else None)
-        pumped = {n: c.pumped_J for n, c in timeline.clocks.items()}
-        decayed = {n: c.decayed_J for n, c in timeline.clocks.items()}
+        with progress_bar(progress, total=repeats.slice_passes(config), unit="slice", desc="amplifying") as bar:
+            outcomes, records, checks = run.run_layout(beam, tick=bar.update if bar is not None else None)
+        pumped = {n: c.pumped_J for n, c in run.timeline.clocks.items()}
+        decayed = {n: c.decayed_J for n, c in run.timeline.clocks.items()}
+    media = _media_records(run, initial_ln_gain, pumped, decayed)
+    summary = _summary(run, beam, outcomes, media, checks, train)
+    return Result(config=config, x_m=run.x_m, y_m=run.x_m.copy(), t_s=run.t_s, seed_fluence_J_m2=run.seed_map,
+                  seed_power_W=run.seed_power_W, steps=records, media=media, summary=summary,
+                  output_field=beam.field if config.grid.diffraction else None,
+                  train=train.datasets if train is not None else {})
 
-    media_records = {}
-    for m in config.media:
-        s = states[m.name]
+
+def _medium_state(medium, gm: GainMap) -> MediumState:
+    return MediumState(name=medium.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
+                       saturation_fluence_J_m2=medium.material.saturation_fluence_J_m2,
+                       slice_length_m=gm.slice_length_m, loss_per_m=medium.loss_per_m,
+                       n2_m2_W=medium.material.n2_m2_W)
+
+
+def _media_records(run: PulsedLayout, initial_ln_gain: dict[str, np.ndarray] | None, pumped: dict[str, float],
+                   decayed: dict[str, float]) -> dict[str, MediumRecord]:
+    """Each medium's gain before the first and after the last pass (a train: before the steady-state
+    pulse), with its pumped and decayed energy over the layout."""
+    out = {}
+    for m in run.config.media:
+        s = run.states[m.name]
         final = np.divide(s.ln_gain, s.slice_length_m, out=s.ln_gain)      # the state is done: in place
-        initial = maps[m.name].gain_per_m if initial_ln_gain is None else initial_ln_gain[m.name] / s.slice_length_m
-        media_records[m.name] = MediumRecord(
-            name=m.name, gain_initial_per_m=initial, gain_final_per_m=final,
-            slice_length_m=s.slice_length_m,
+        initial = run.maps[m.name].gain_per_m if initial_ln_gain is None else initial_ln_gain[m.name] / s.slice_length_m
+        out[m.name] = MediumRecord(
+            name=m.name, gain_initial_per_m=initial, gain_final_per_m=final, slice_length_m=s.slice_length_m,
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
             material=m.material.name, sources=dict(m.material.sources),
             pumped_J=pumped[m.name], decayed_J=decayed[m.name])
+    return out
+
+
+def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[str, MediumRecord],
+             checks: list, train) -> dict:
+    """The summary.json dict: the diagnostics, the grid's warnings, the layout time and the train's."""
+    config, grid = run.config, run.config.grid
     grid_warnings = grid_checks.grid_warnings(checks, config.limits, grid.width_m, grid.points)
-    seed_aperture = apertures[config.steps[0].index] if config.steps else np.ones_like(seed_map, dtype=bool)
-    summary = diagnostics.summarise(config, beam, seed_map, outcomes, media_records, maps,
-                                    seed_beam=beam_figures(seed_map, x, y, seed_aperture, area),
-                                    extra_warnings=grid_warnings)
-    summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else timeline.elapsed_s) * 1e9
+    seed_aperture = (run.apertures[config.steps[0].index] if config.steps
+                     else np.ones_like(run.seed_map, dtype=bool))
+    seed_beam = BeamFigures.of(run.seed_map, run.x_m, run.x_m, seed_aperture, run.pixel_area_m2)
+    summary = diagnostics.summarise(config, beam, run.seed_map, outcomes, media, run.maps,
+                                    seed_beam=seed_beam.as_dict(), extra_warnings=grid_warnings)
+    summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else run.timeline.elapsed_s) * 1e9
     if train is not None:
         summary["average_power_W"] = train.summary["average_power_W"]
         summary["train"] = train.summary
         summary["warnings"].extend(train.warnings)
-    return Result(config=config, x_m=x, y_m=y, t_s=t, seed_fluence_J_m2=seed_map, seed_power_W=seed_power,
-                  steps=records, media=media_records, summary=summary,
-                  output_field=beam.field if grid.diffraction else None,
-                  train=train.datasets if train is not None else {})
+    return summary
 
 
 def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -146,10 +200,9 @@ def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     seed = config.seed
     try:
         return beam_shapes.seed_start_field(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
-                                      seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
-                                      m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed)
+                                            seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
+                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed)
     except ValueError as exc:
-        from ampmodel.config.checks import ConfigError
         raise ConfigError([f"{config.source}: seed: {exc}"]) from None
 
 
@@ -167,14 +220,3 @@ def _clear_apertures(config: Config, states: dict[str, MediumState]) -> dict[int
         chosen = ahead[0] if ahead else (passes[-1][1] if passes else None)
         out[step.index] = states[chosen.medium].mask if chosen is not None else fallback
     return out
-
-
-def beam_figures(fluence_map: np.ndarray, x: np.ndarray, y: np.ndarray, aperture: np.ndarray | None,
-                 pixel_area_m2: float) -> dict[str, float]:
-    """D4σ diameters (mm), peak-to-mean modulation and fill factor over ``aperture`` of a fluence map
-    (definitions in kernels/beam_figures.py and the README)."""
-    dx4, dy4 = d4sigma(fluence_map, x, y)
-    inside = aperture if aperture is not None else np.ones(fluence_map.shape, dtype=bool)
-    modulation, fill = aperture_figures(fluence_map, inside, pixel_area_m2)
-    return {"d4sigma_x_mm": dx4 * 1e3, "d4sigma_y_mm": dy4 * 1e3, "modulation_peak_to_mean": modulation,
-            "fill_factor": fill}

@@ -112,8 +112,8 @@ def test_pass_in_chunks_and_threads_matches_the_plain_split_step(monkeypatch, re
     for got, key in ((out.energy_in_J, "e_in"), (out.clipped_J, "clipped"), (out.energy_out_J, "e_out"),
                      (out.extracted_J, "gained"), (out.passive_loss_J, "passive")):
         assert got == pytest.approx(ref[key] * area, rel=tol), key
-    assert out.extras["edge_absorbed_J"] == pytest.approx(ref["edge"] * area, rel=1e-6, abs=tol * out.energy_in_J)
-    assert out.extras["substeps"] == substeps
+    assert out.edge_absorbed_J == pytest.approx(ref["edge"] * area, rel=1e-6, abs=tol * out.energy_in_J)
+    assert out.substeps == substeps
     assert beam.fft_count == 2 * NT * substeps * (NZ + 1)
 
 

@@ -48,8 +48,8 @@ def test_pinhole_passes_the_gaussian_fraction(a_over_wf):
     out = field_filter(beam, Step(kind="filter", index=0, focal_m=focal,
                                          pinhole_diameter_m=2 * a_over_wf * wf))
     expected = 1.0 - math.exp(-2.0 * a_over_wf ** 2)
-    assert out.extras["pinhole_transmission"] == pytest.approx(expected, rel=5e-3)
-    assert beam.energy_J() / e_in <= out.extras["pinhole_transmission"] * (1 + 1e-12)
+    assert out.pinhole_transmission == pytest.approx(expected, rel=5e-3)
+    assert beam.energy_J() / e_in <= out.pinhole_transmission * (1 + 1e-12)
     assert out.clipped_J == pytest.approx(e_in - beam.energy_J(), rel=1e-12)
 
 
