@@ -57,67 +57,15 @@ def photon_balance(st: CwMedium, pixel_area_m2: float) -> dict[str, float]:
 def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, CwMedium],
               media: dict[str, MediumRecord], x_m: np.ndarray) -> dict[str, Any]:
     """Build the summary.json dict of a cw run."""
-    limits, seed_cfg = config.limits, config.seed
     dx = float(x_m[1] - x_m[0])
     area = dx * dx
     p_in = float(seed.sum() * area)
     p_out = sweep.outcomes[-1].power_out_W if sweep.outcomes else p_in
     warnings: list[str] = []
-
-    media_summary, extracted, absorbed_total, pump_total, photon_errors = [], 0.0, 0.0, 0.0, []
-    for m in config.media:
-        st, rec = states[m.name], media[m.name]
-        ext = extracted_power_W(st, area)
-        extracted += ext
-        entry: dict[str, Any] = {
-            "name": m.name, "material": m.material.name, "broadening": m.material.broadening,
-            "small_signal_gain_on_axis": gain_maps.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m),
-            "saturated_gain_on_axis": gain_maps.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
-            "saturation_intensity_W_cm2": rec.saturation_intensity_W_m2 * W_CM2,
-            "extracted_power_W": ext, "quasi_three_level": m.material.quasi_three_level,
-            "internal_slices": int(st.gain.shape[0])}
-        if st.pump is not None:
-            field = st.pump_field
-            absorbed_W = float(field.absorbed.sum() * area * st.pump.photon_energy_J)
-            absorbed_total += absorbed_W
-            pump_total += st.pump.power_W
-            balance = photon_balance(st, area)
-            photon_errors.append(balance["photon_balance_error"])
-            entry.update({"pump_power_W": st.pump.power_W, "absorbed_pump_power_W": absorbed_W,
-                          "absorbed_pump_fraction": absorbed_W / st.pump.power_W,
-                          "pump_power_transmitted_W": field.transmitted_W,
-                          "pump_settling_iterations": st.initial_iterations, **balance})
-        media_summary.append(entry)
-        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, limits))
-
-    steps, lost, peak = [], 0.0, float(seed.max())
-    for step, oc in zip(config.steps, sweep.outcomes):
-        lost += oc.clipped_W + oc.passive_loss_W
-        peak = max(peak, oc.peak_intensity_W_m2)
-        entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
-                 "power_in_W": oc.power_in_W, "power_out_W": oc.power_out_W,
-                 "gain": oc.power_out_W / oc.power_in_W if oc.power_in_W > 0 else 0.0,
-                 "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2, "b_integral_rad": 0.0,
-                 "clipped_power_W": oc.clipped_W, "passive_loss_W": oc.passive_loss_W}
-        if step.kind == "pass":
-            entry.update(reverse=step.reverse, extracted_power_W=oc.extracted_W)
-        steps.append(entry)
-        label = step_label(config.steps, step.index)
-        if oc.power_in_W > 0 and oc.clipped_W > limits.clipped_fraction * oc.power_in_W:
-            warnings.append(f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} % of the power "
-                            f"(more than {100 * limits.clipped_fraction:g} %)")
-        damage, what = None, ""
-        if step.kind == "pass":
-            mat = config.medium(step.medium).material
-            damage, what = mat.damage_intensity_W_m2, mat.name
-        elif step.damage_intensity_W_m2:
-            damage, what = step.damage_intensity_W_m2, "this optic"
-        if damage and oc.peak_intensity_W_m2 > limits.damage_fraction * damage:
-            warnings.append(f"{label}: peak intensity {oc.peak_intensity_W_m2 * W_CM2:.3g} W/cm² is above "
-                            f"{100 * limits.damage_fraction:g} % of the cw damage intensity of {what} "
-                            f"({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are estimates: "
-                            f"verify with your optics' data")
-    warnings.extend(seed_grid_warnings(seed_cfg.diameter_m, dx, seed, config.grid.width_m, limits))
+    media_summary, extracted, absorbed_total, pump_total, photon_errors = _media_entries(
+        config, states, media, area, warnings)
+    steps, lost, peak = _step_entries(config, sweep, float(seed.max()), warnings)
+    warnings.extend(seed_grid_warnings(config.seed.diameter_m, dx, seed, config.grid.width_m, config.limits))
 
     balance = (p_in + extracted - p_out - lost) / p_out if p_out > 0 else 0.0
     summary: dict[str, Any] = {
@@ -148,3 +96,71 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
         "safety": SAFETY_NOTE,
     })
     return summary
+
+
+def _media_entries(config: Config, states: dict[str, CwMedium], media: dict[str, MediumRecord], area: float,
+                   warnings: list[str]) -> tuple[list[dict[str, Any]], float, float, float, list[float]]:
+    """Each medium's summary entry (gains, extracted power, pump and its photon balance), with its
+    warnings added to ``warnings``; the extracted, absorbed pump and pump power of all media (W) and
+    the photon balance error of each pumped one."""
+    entries, extracted, absorbed_total, pump_total, photon_errors = [], 0.0, 0.0, 0.0, []
+    for m in config.media:
+        st, rec = states[m.name], media[m.name]
+        ext = extracted_power_W(st, area)
+        extracted += ext
+        entry: dict[str, Any] = {
+            "name": m.name, "material": m.material.name, "broadening": m.material.broadening,
+            "small_signal_gain_on_axis": gain_maps.on_axis_gain(rec.gain_initial_per_m, rec.slice_length_m),
+            "saturated_gain_on_axis": gain_maps.on_axis_gain(rec.gain_final_per_m, rec.slice_length_m),
+            "saturation_intensity_W_cm2": rec.saturation_intensity_W_m2 * W_CM2,
+            "extracted_power_W": ext, "quasi_three_level": m.material.quasi_three_level,
+            "internal_slices": int(st.gain.shape[0])}
+        if st.pump is not None:
+            field = st.pump_field
+            absorbed_W = float(field.absorbed.sum() * area * st.pump.photon_energy_J)
+            absorbed_total += absorbed_W
+            pump_total += st.pump.power_W
+            balance = photon_balance(st, area)
+            photon_errors.append(balance["photon_balance_error"])
+            entry.update({"pump_power_W": st.pump.power_W, "absorbed_pump_power_W": absorbed_W,
+                          "absorbed_pump_fraction": absorbed_W / st.pump.power_W,
+                          "pump_power_transmitted_W": field.transmitted_W,
+                          "pump_settling_iterations": st.initial_iterations, **balance})
+        entries.append(entry)
+        warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, config.limits))
+    return entries, extracted, absorbed_total, pump_total, photon_errors
+
+
+def _step_entries(config: Config, sweep: Sweep, peak: float,
+                  warnings: list[str]) -> tuple[list[dict[str, Any]], float, float]:
+    """Each step's summary entry in power, with its clipping and damage warnings added to
+    ``warnings``; the power lost on the way (W) and the peak intensity (W/m², from the seed's ``peak``)."""
+    limits = config.limits
+    steps, lost = [], 0.0
+    for step, oc in zip(config.steps, sweep.outcomes, strict=True):
+        lost += oc.clipped_W + oc.passive_loss_W
+        peak = max(peak, oc.peak_intensity_W_m2)
+        entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
+                 "power_in_W": oc.power_in_W, "power_out_W": oc.power_out_W,
+                 "gain": oc.power_out_W / oc.power_in_W if oc.power_in_W > 0 else 0.0,
+                 "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2, "b_integral_rad": 0.0,
+                 "clipped_power_W": oc.clipped_W, "passive_loss_W": oc.passive_loss_W}
+        if step.kind == "pass":
+            entry.update(reverse=step.reverse, extracted_power_W=oc.extracted_W)
+        steps.append(entry)
+        label = step_label(config.steps, step.index)
+        if oc.power_in_W > 0 and oc.clipped_W > limits.clipped_fraction * oc.power_in_W:
+            warnings.append(f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} % of the power "
+                            f"(more than {100 * limits.clipped_fraction:g} %)")
+        damage, what = None, ""
+        if step.kind == "pass":
+            mat = config.medium(step.medium).material
+            damage, what = mat.damage_intensity_W_m2, mat.name
+        elif step.damage_intensity_W_m2:
+            damage, what = step.damage_intensity_W_m2, "this optic"
+        if damage and oc.peak_intensity_W_m2 > limits.damage_fraction * damage:
+            warnings.append(f"{label}: peak intensity {oc.peak_intensity_W_m2 * W_CM2:.3g} W/cm² is above "
+                            f"{100 * limits.damage_fraction:g} % of the cw damage intensity of {what} "
+                            f"({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are estimates: "
+                            f"verify with your optics' data")
+    return steps, lost, peak

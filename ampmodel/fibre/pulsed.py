@@ -114,11 +114,11 @@ def amplify_pulse(model: FibreModel, n2_before: np.ndarray, energy_J: np.ndarray
                        loss_J=lost)
 
 
-def _pump_ase_channels(model: FibreModel) -> np.ndarray:
+def pump_ase_channels(model: FibreModel) -> np.ndarray:
     return np.array([k for k in range(len(model.labels)) if k not in (model.signal, model.probe)], dtype=int)
 
 
-def _between_pulse_powers(model: FibreModel, n2: np.ndarray, ch: np.ndarray):
+def between_pulse_powers(model: FibreModel, n2: np.ndarray, ch: np.ndarray):
     """Nodes (Kc, Nz + 1) and slice means (Kc, Nz) of the pump and ASE channels for populations n2
     (indexed by position z for both directions)."""
     h = model.slice_length_m
@@ -151,7 +151,7 @@ class Recovery:
 def recover(model: FibreModel, n2_start: np.ndarray, period_s: float, steps: int) -> Recovery:
     """Let the pump (and ASE) rebuild the inversion for ``period_s`` after a pulse, in ``steps`` steps."""
     m = model
-    ch = _pump_ase_channels(m)
+    ch = pump_ase_channels(m)
     inv_tau = 1.0 / m.lifetime_s
     up, tot = m.rate_up[ch].T, m.rate_total[ch].T              # (R, Kc)
     fwd = m.direction[ch] > 0
@@ -171,9 +171,9 @@ def recover(model: FibreModel, n2_start: np.ndarray, period_s: float, steps: int
         return target + (n2_from - target) * np.exp(-rate * tau_step)
 
     for _ in range(steps):
-        _, means = _between_pulse_powers(m, n2, ch)
+        _, means = between_pulse_powers(m, n2, ch)
         mid = settle(n2, means, 0.5 * dt)
-        nodes, means = _between_pulse_powers(m, mid, ch)
+        nodes, means = between_pulse_powers(m, mid, ch)
         n2 = settle(n2, means, dt)
         leaving = nodes[np.arange(ch.size), out_end]
         entering = m.launch_W[ch]
@@ -190,10 +190,20 @@ def recovery_steps(model: FibreModel, n2: np.ndarray, period_s: float) -> int:
     """Time steps for one period: at least 8, and at least sixteen per shortest population time
     constant 1/(1/τ + W_up + W_down) met in the fibre, at most 20000 (the midpoint steps are second
     order: sixteen per time constant keep the pulse energy within about 1e-4 of the converged value)."""
-    ch = _pump_ase_channels(model)
-    _, means = _between_pulse_powers(model, n2, ch)
+    ch = pump_ase_channels(model)
+    _, means = between_pulse_powers(model, n2, ch)
     fastest = float(np.max(1.0 / model.lifetime_s + model.rate_total[ch].T @ means))
     return int(min(20000, max(8, math.ceil(16 * period_s * fastest))))
+
+
+@dataclass(frozen=True)
+class PeriodFigures:
+    """The pump and the ASE averaged over the period between pulses (W)."""
+
+    pump_out_W: float
+    ase_forward_W: float
+    ase_backward_W: float
+    pump_absorbed_W: float
 
 
 @dataclass
@@ -205,7 +215,7 @@ class PulseTrainSolution:
     recovery : the period between pulses (None for a single pulse)
     periods : fixed-point iterations (each one period simulated); residual : largest population change
     of the last one; converged : residual below the tolerance
-    between : period-averaged pump and ASE figures (W)
+    between : the pump and ASE averaged over the period between pulses
     """
 
     model: FibreModel
@@ -220,7 +230,7 @@ class PulseTrainSolution:
     residual: float
     converged: bool
     tolerance: float
-    between: dict
+    between: PeriodFigures
 
 
 def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repetition_rate_Hz: float | None,
@@ -244,8 +254,8 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
         cw = solve_cw(model, 0.0)
         x = cw.n2
         fig = output_figures(cw)
-        between = {"pump_out_W": fig["pump_out_W"], "ase_forward_W": fig["ase_forward_W"],
-                   "ase_backward_W": fig["ase_backward_W"], "pump_absorbed_W": fig["pump_absorbed_W"]}
+        between = PeriodFigures(fig["pump_out_W"], fig["ase_forward_W"], fig["ase_backward_W"],
+                                fig["pump_absorbed_W"])
         pulse = amplify_pulse(model, x, energy_J, dt_s, n2_index_m2_W)
         return PulseTrainSolution(model=model, repetition_rate_Hz=None, energy_in_J=np.asarray(energy_J),
                                   dt_s=dt_s, n2_before=x, n2_after=pulse.n2_after, pulse=pulse, recovery=None,
@@ -272,8 +282,7 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
         ys, gs = ys[-8:], gs[-8:]
         x = np.clip(anderson_step(ys, gs), 0.0, 1.0).reshape(shape)
     pulse = amplify_pulse(model, x, energy_J, dt_s, n2_index_m2_W)
-    between = {"pump_out_W": rec.pump_out_W, "ase_forward_W": rec.ase_forward_W,
-               "ase_backward_W": rec.ase_backward_W, "pump_absorbed_W": rec.pump_absorbed_W}
+    between = PeriodFigures(rec.pump_out_W, rec.ase_forward_W, rec.ase_backward_W, rec.pump_absorbed_W)
     return PulseTrainSolution(model=model, repetition_rate_Hz=repetition_rate_Hz, energy_in_J=np.asarray(energy_J),
                               dt_s=dt_s, n2_before=x, n2_after=pulse.n2_after, pulse=pulse, recovery=rec,
                               periods=periods, residual=residual, converged=residual < tolerance,

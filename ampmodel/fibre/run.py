@@ -19,6 +19,7 @@ from ampmodel.description import Config, Medium
 from ampmodel.fibre import model as F
 from ampmodel.fibre import pulsed as FP
 from ampmodel.fibre import steady_state
+from ampmodel.fibre.diagnostics import FibreStage, summarise_fibre
 from ampmodel.kernels import beam_shapes
 from ampmodel.output.result import FibreRecord, MediumRecord, Result, StepRecord
 from ampmodel.progress import progress_bar
@@ -90,7 +91,6 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
     config : a Config whose media are fibres
     progress : True shows a progress counter on stderr, None shows it on an interactive terminal
     """
-    from ampmodel.fibre.diagnostics import summarise_fibre
     seed, grid = config.seed, config.grid
     cw = config.mode == "cw"
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
@@ -111,7 +111,7 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
         tick = bar.update if bar is not None else None
         for step in config.steps:
             if step.kind == "loss":
-                stages.append({"step": step, "loss": True, "input": signal})
+                stages.append(FibreStage(step, signal))
                 signal = signal * step.transmission
             else:
                 medium = config.medium(step.medium)
@@ -122,8 +122,7 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
                     _check_converged(config, medium, "steady state", sol.converged, sol.change, sol.iterations)
                     # the fibre with its pump alone (no signal; ASE as configured): the small-signal state
                     pump_only = steady_state.solve_cw(model, 0.0, tick=tick)
-                    stages.append({"step": step, "model": model, "solution": sol, "pump_only": pump_only,
-                                   "input": signal})
+                    stages.append(FibreStage(step, signal, model, solution=sol, pump_only=pump_only))
                     media[medium.name] = _medium_record(model, medium, pump_only.n2, sol.n2, x)
                     fibres[medium.name] = _cw_record(sol, pump_only)
                     signal = float(sol.power_W[model.signal, -1])
@@ -132,7 +131,7 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
                                                  n2_index_m2_W=medium.material.n2_m2_W, tick=tick)
                     _check_converged(config, medium, "pulse train's steady state", train.converged, train.residual,
                                      train.periods)
-                    stages.append({"step": step, "model": model, "train": train, "input": signal})
+                    stages.append(FibreStage(step, signal, model, train=train))
                     media[medium.name] = _medium_record(model, medium, train.n2_before, train.n2_after, x)
                     fibres[medium.name] = _pulse_record(train)
                     signal = train.pulse.energy_out_J
@@ -188,8 +187,8 @@ def _cw_record(sol: steady_state.CWSolution, pump_only: steady_state.CWSolution)
 
 def _pulse_record(train: FP.PulseTrainSolution) -> FibreRecord:
     m = train.model
-    ch = FP._pump_ase_channels(m)
-    nodes, _ = FP._between_pulse_powers(m, train.n2_before, ch)
+    ch = FP.pump_ase_channels(m)
+    nodes, _ = FP.between_pulse_powers(m, train.n2_before, ch)
     row = {k: i for i, k in enumerate(ch.tolist())}
 
     def channel(k):

@@ -189,6 +189,13 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963): the linear form u = exp(J/Fsat) − 1, u_out = G·u,
     G <- (G + u_out)/(1 + u_out) (kernels/frantz_nodvik.py); the logarithmic mean (b − a)/ln(b/a) =
     a·(r − 1)/ln r, r = b/a (kernels/fn_pass.py).
+
+    Notes
+    -----
+    One long function on purpose (a fused hot kernel): the edge, loss, gain, amplitude and Kerr
+    phase are computed in one pass over the chunk's scratch arrays while they are in cache, and the
+    field is multiplied once; split into calls, each would read the chunk again (docs/performance.md,
+    the field path).
     """
     rows = e.shape[0]
     inside, fsat, half_loss, b_coef = k.inside, k.fsat, k.half_loss, k.b_coef

@@ -11,6 +11,7 @@ medium's clear aperture there is no medium and nothing changes.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -112,3 +113,15 @@ class Timeline:
         self.elapsed_s = 0.0
         for c in self.clocks.values():
             c.pumped_J = c.decayed_J = 0.0
+
+
+def unseeded_n2(c: MediumClock, period_s: float) -> np.ndarray:
+    """(Nz, n) N2 before a pulse of a train pumped long before it without a seed (ions/m³); the
+    medium needs a pump."""
+    tau = c.lifetime_s
+    if c.continuous:
+        n2 = c.rate_per_m3_s * tau
+    else:
+        # pump pulse tp then decay for T − tp, periodic: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
+        n2 = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))
+    return np.minimum(n2, c.n2_max_per_m3) if c.n2_max_per_m3 is not None else n2

@@ -29,7 +29,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
 
     The time slices go through the medium a chunk at a time (kernels.field_step.chunk_rows slices,
     which stay in the processor cache through the transforms and the gain step), in ``beam.workers``
-    threads as a wavefront (ampmodel/chunks.py): a chunk's gain step in a z-slice follows the chunk
+    threads as a wavefront (ampmodel/beam/chunks.py): a chunk's gain step in a z-slice follows the chunk
     before it, so the gain is depleted in time order, as by the whole field slice after slice.
 
     Parameters
@@ -50,14 +50,42 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     beam.b_integral = np.ascontiguousarray(beam.b_integral)
     medium.ln_gain = np.ascontiguousarray(medium.ln_gain)
     nt = beam.field.shape[0]
+    rows = fs.chunk_rows(nt, beam.field.shape[1] * beam.field.shape[2])
+    starts = list(range(0, nt, rows))
+    e_in, clipped, peak_f, peak_i, slice_energy = _clip_entering(beam, medium.mask, rows, starts)
+    n_sub = field_path.substeps(beam, medium.slice_length_m, index,
+                                field_path.spectral_reach(beam, energies=slice_energy))
+    sums, plane, final, b_step = _through_the_slices(beam, medium, index, reverse, n_sub, rows, starts, tick)
+    nz = medium.ln_gain.shape[0]
+    edge_lost = gained = passive = 0.0
+    for c, t0 in enumerate(starts):                         # in order: the same sums whatever the threads
+        energy = float(slice_energy[t0:t0 + rows].sum())
+        for j in range(nz):
+            s_in, s_out, s_gained, s_passive, s_peak = sums[c, j]
+            edge_lost += energy - s_in
+            energy = s_out
+            gained += s_gained
+            passive += s_passive
+            peak_i = max(peak_i, s_peak)
+        edge_lost += energy - final[c]
+    if nz:
+        peak_f = max(peak_f, float(plane.max()) if plane.size else 0.0)
+    return StepOutcome(e_in * area, float(final.sum()) * area, clipped_J=clipped * area,
+                       passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
+                       peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
+                       edge_absorbed_J=edge_lost * area, substeps=n_sub)
+
+
+def _clip_entering(beam: FieldBeam, mask: np.ndarray, rows: int, starts: list[int],
+                   ) -> tuple[float, float, float, float, np.ndarray]:
+    """The beam entering a medium, chunk by chunk: its energy, the part outside the clear aperture
+    ``mask`` (Ny, Nx) (removed from the field), the peak fluence and the peak |E|² of a time slice
+    (each per pixel area, J/m²), and each time slice's energy after the clipping, (Nt,)."""
+    nt = beam.field.shape[0]
     pixels = beam.field.shape[1] * beam.field.shape[2]
     field = beam.field.reshape(nt, pixels)
-    mask = medium.mask.ravel()
-    outside = np.flatnonzero(~mask)
-    rows = fs.chunk_rows(nt, pixels)
-    starts = list(range(0, nt, rows))
-
-    # entering: energy and peaks, then the clipping, chunk by chunk; each slice's energy after it
+    flat_mask = mask.ravel()
+    outside = np.flatnonzero(~flat_mask)
     entry = np.zeros(pixels)                                 # Σ_t |E|² per pixel
     slice_energy = np.empty(nt)
     f_work, scratch = np.empty((rows, pixels)), np.empty((rows, 2 * pixels))
@@ -68,26 +96,33 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
         entry += f.sum(axis=0)
         peak_i = max(peak_i, float(f.max()) if f.size else 0.0)
         if outside.size:
-            np.copyto(e, 0.0, where=~mask)
-            np.copyto(f, 0.0, where=~mask)
+            np.copyto(e, 0.0, where=~flat_mask)
+            np.copyto(f, 0.0, where=~flat_mask)
         f.sum(axis=1, out=slice_energy[t0:t0 + len(e)])
-    del f_work, scratch
-    e_in = float(entry.sum())
-    clipped = float(entry[outside].sum())
     peak_f = float(entry.max()) if entry.size else 0.0
+    return float(entry.sum()), float(entry[outside].sum()), peak_f, peak_i, slice_energy
 
-    fsat = medium.saturation_fluence_J_m2
+
+def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reverse: bool, n_sub: int,
+                        rows: int, starts: list[int], tick: Callable[[], None] | None):
+    """Every chunk of time slices through every z-slice, in threads as a wavefront: diffraction steps
+    (``n_sub`` sub-steps each) and the gain and Kerr steps in time order.
+
+    Returns (sums, plane, final, b_step): the ChunkSums of each chunk and z-slice (chunks, Nz, 5), the
+    fluence leaving each gain step summed over time (Nz, pixels), Σ|E|² of each chunk at the exit and
+    the largest B-integral increment of each chunk."""
+    nt = beam.field.shape[0]
+    pixels = beam.field.shape[1] * beam.field.shape[2]
     dz = medium.slice_length_m
-    half_loss = float(np.exp(-0.5 * medium.loss_per_m * dz))
     b_coef = 2.0 * np.pi / beam.wavelength_m * medium.n2_m2_W * dz / beam.dt_s
     kerr = b_coef > 0.0
     nz = medium.ln_gain.shape[0]
     order = list(range(nz - 1, -1, -1)) if reverse else list(range(nz))
     gain_rows = medium.ln_gain.reshape(nz, pixels)
-    n_sub = field_path.substeps(beam, dz, index, field_path.spectral_reach(beam, energies=slice_energy))
     half, full = beam.transfer(0.5 * dz / n_sub, index), beam.transfer(dz / n_sub, index)
     threads = chunks.thread_count(beam.workers)
-    constants = fs.slice_constants(medium.mask, fsat, half_loss, b_coef, beam.edge)
+    constants = fs.slice_constants(medium.mask, medium.saturation_fluence_J_m2,
+                                   float(np.exp(-0.5 * medium.loss_per_m * dz)), b_coef, beam.edge)
     works = [fs.ChunkWork(rows, pixels, constants.inside.size) for _ in range(min(threads, len(starts)))]
     plane = np.zeros((nz, pixels))                           # Σ_t of the fluence leaving each gain step
     sums = np.zeros((len(starts), nz, 5))                    # ChunkSums of each chunk and z-slice
@@ -130,21 +165,4 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     chunks.run_chunks(len(starts), 2 * nz + 1, stage, threads, ordered=lambda s: s % 2 == 1,
                       after_stage=progress if tick is not None else None)
     beam.fft_count += 2 * nt * n_sub * (nz + 1)
-
-    edge_lost = gained = passive = 0.0
-    for c, t0 in enumerate(starts):                         # in order: the same sums whatever the threads
-        energy = float(slice_energy[t0:t0 + rows].sum())
-        for j in range(nz):
-            s_in, s_out, s_gained, s_passive, s_peak = sums[c, j]
-            edge_lost += energy - s_in
-            energy = s_out
-            gained += s_gained
-            passive += s_passive
-            peak_i = max(peak_i, s_peak)
-        edge_lost += energy - final[c]
-    if nz:
-        peak_f = max(peak_f, float(plane.max()) if plane.size else 0.0)
-    return StepOutcome(e_in * area, float(final.sum()) * area, clipped_J=clipped * area,
-                       passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
-                       edge_absorbed_J=edge_lost * area, substeps=n_sub)
+    return sums, plane, final, b_step

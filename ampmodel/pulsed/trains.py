@@ -1,7 +1,7 @@
 """Pulse trains: an amplifier seeded at ``seed.repetition_rate_Hz``, with the gain recovering between pulses.
 
 Each pulse runs the whole layout (with its delays and repeats) from a fresh seed; for the rest of the
-period T = 1/f every medium relaxes by the exact N2(t) of dN2/dt = R − N2/tau (``timing.py``): a
+period T = 1/f every medium relaxes by the exact N2(t) of dN2/dt = R − N2/tau (``clocks.py``): a
 continuous pump is on all the time, a pulsed pump during its pump pulse, which ends when the next
 seed pulse arrives. The state of the train is the upper-state density N2 of every voxel before a
 pulse; one pulse and the recovery after it map it to the state before the next pulse, x -> Phi(x).
@@ -9,7 +9,7 @@ The train settles to the fixed point x* = Phi(x*), the periodic steady state.
 
 How the fixed point is found (``train.method``):
 
-1. **Direct** ("auto", where it applies): without diffraction every pixel is independent, and for a
+1. **Direct** ("auto", where it applies; ``train_direct.py``): without diffraction every pixel is independent, and for a
    single medium without passive loss inside it (and no bleaching cap acting) the energies a pixel's
    pulse takes out depend only on its column ∫N2 dz: Frantz–Nodvik maps compose over the z-slices
    and time slices, and the relaxation is linear, so the column obeys the same exact solution with
@@ -39,14 +39,12 @@ from typing import Callable
 import numpy as np
 
 from ampmodel.beam.state import BeamState, StepOutcome
-from ampmodel.description import Config, Step, passed_media
-from ampmodel.kernels import beam_shapes
-from ampmodel.kernels.frantz_nodvik import fn_total
-from ampmodel.kernels.inversion import relax_inversion
+from ampmodel.description import Config, passed_media
 from ampmodel.media import gain_maps
 from ampmodel.output.result import StepRecord
-from ampmodel.pulsed.clocks import MediumClock, Timeline
+from ampmodel.pulsed.clocks import MediumClock, Timeline, unseeded_n2
 from ampmodel.pulsed.passes import MediumState
+from ampmodel.pulsed.train_direct import direct_columns, direct_not_applicable
 
 ANDERSON_DEPTH = 6
 FIXED_POINT_TOLERANCE = 1e-10
@@ -122,18 +120,6 @@ def _recover(clocks: dict[str, MediumClock], states: dict[str, MediumState], res
             c.evolve(ln_gain, c.pump_duration_s, pump_on=True)
 
 
-def _unseeded(c: MediumClock, period_s: float) -> np.ndarray:
-    """(Nz, n) N2 before a pulse of a train pumped long before it without a seed (ions/m³); the
-    medium needs a pump."""
-    tau = c.lifetime_s
-    if c.continuous:
-        n2 = c.rate_per_m3_s * tau
-    else:
-        # pump pulse tp then decay for T − tp, periodic: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
-        n2 = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))
-    return np.minimum(n2, c.n2_max_per_m3) if c.n2_max_per_m3 is not None else n2
-
-
 def _anderson(phi: Callable[[np.ndarray], np.ndarray], u0: np.ndarray, tolerance: float, max_iter: int,
               upper: np.ndarray | None) -> tuple[np.ndarray, int, float]:
     """Fixed point of ``phi`` by Anderson acceleration (type II, depth ANDERSON_DEPTH), kept within
@@ -181,118 +167,6 @@ def _anderson(phi: Callable[[np.ndarray], np.ndarray], u0: np.ndarray, tolerance
 
 
 # ----------------------------------------------------------------------------------------------
-# The direct solution per pixel (column integrals)
-# ----------------------------------------------------------------------------------------------
-
-def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str | None:
-    """Why the direct per-pixel solution does not apply to this config (None: it applies)."""
-    if config.train.method == "iterate":
-        return 'not used (train.method = "iterate")'
-    if config.grid.diffraction:
-        return "diffraction couples the pixels"
-    media = passed_media(config.steps)
-    if len(media) != 1:
-        return "the layout passes through more than one medium"
-    medium = config.medium(media[0])
-    if medium.loss_per_m > 0.0:
-        return (f"medium {medium.name} has passive loss inside (loss_per_cm): the energies then depend on "
-                f"where along the medium the gain is")
-    if any(s.kind == "repeat" and s.until is not None for s in config.steps):
-        return 'a repeat stops at the peak: the dump round trip couples the pixels'
-    c = clocks[medium.name]
-    if c.n2_max_per_m3 is not None:
-        mat = medium.material
-        transparency = c.absorption_offset_per_m / c.sum_cross_section_m2
-        steady = float(np.max(c.rate_per_m3_s)) * c.lifetime_s if c.rate_per_m3_s is not None else 0.0
-        if max(steady, transparency) > c.n2_max_per_m3:
-            return f"the bleaching limit of {mat.name} caps the inversion in medium {medium.name}"
-    return None
-
-
-def _column_pulse(steps: tuple[Step, ...], column: np.ndarray, fluence: np.ndarray, c: MediumClock,
-                  q: np.ndarray, x_m: np.ndarray, y_m: np.ndarray, fsat: float,
-                  until_elapsed: list[float]) -> tuple[np.ndarray, np.ndarray]:
-    """One pulse through the layout per pixel, on the column ∫N2 dz (ions/m²) of the one medium:
-    returns (column after, fluence after) and adds the layout's time to ``until_elapsed[0]``."""
-    hv = c.photon_energy_J
-    length = c.slice_length_m * c.rate_per_m3_s.shape[0] if c.rate_per_m3_s is not None else 0.0
-    sum_cs, offset = c.sum_cross_section_m2, c.absorption_offset_per_m
-    def one(s: Step, column: np.ndarray, fluence: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        if s.kind == "pass":
-            ln_g = sum_cs * column - offset * length
-            out = fn_total(fluence, ln_g, fsat)
-            column = np.maximum(column - (out - fluence) / hv, 0.0)    # N2 >= 0 (round-off at G = 1)
-            fluence = out
-        elif s.kind == "loss":
-            fluence = fluence * s.transmission
-        elif s.kind == "aperture":
-            fluence = fluence * beam_shapes.aperture_mask(x_m, y_m, s.shape, s.diameter_m)[c.mask]
-        until_elapsed[0] += s.delay_s
-        return _column_relax(column, c, q, s.delay_s, c.continuous), fluence
-
-    for step in steps:
-        if step.kind == "repeat":
-            rest = step.round_trip_time_s - sum(s.delay_s for s in step.steps)
-            for _ in range(step.count):
-                for s in step.steps:
-                    column, fluence = one(s, column, fluence)
-                column = _column_relax(column, c, q, rest, c.continuous)
-                until_elapsed[0] += rest
-            column = _column_relax(column, c, q, step.delay_s, c.continuous)
-            until_elapsed[0] += step.delay_s
-        else:
-            column, fluence = one(step, column, fluence)
-    return column, fluence
-
-
-def _column_relax(column: np.ndarray, c: MediumClock, q: np.ndarray, duration_s: float, on: bool) -> np.ndarray:
-    if duration_s <= 0.0:
-        return column
-    return relax_inversion(column, q if on else 0.0, c.lifetime_s, duration_s)[0]
-
-
-def direct_columns(config: Config, c: MediumClock, seed_fluence: np.ndarray, x_m: np.ndarray,
-                   y_m: np.ndarray) -> tuple[np.ndarray, float]:
-    """The periodic steady state per pixel of the one medium's column ∫N2 dz (ions/m²), by bisection
-    on Phi(S) − S (decreasing), and the steady output energy (J) it gives."""
-    period = 1.0 / config.seed.repetition_rate_Hz
-    dz = c.slice_length_m
-    q = c.rate_per_m3_s.sum(axis=0) * dz if c.rate_per_m3_s is not None else np.zeros(int(c.mask.sum()))
-    fsat = c.photon_energy_J / c.sum_cross_section_m2
-    f0 = seed_fluence[c.mask]
-    area = float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
-
-    def phi(column: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        elapsed = [0.0]
-        after, fluence = _column_pulse(config.steps, column, f0, c, q, x_m, y_m, fsat, elapsed)
-        rest = period - elapsed[0]
-        if c.continuous:
-            after = _column_relax(after, c, q, rest, True)
-        else:
-            after = _column_relax(after, c, q, rest - c.pump_duration_s, False)
-            after = _column_relax(after, c, q, c.pump_duration_s, True)
-        return after, fluence
-
-    unseeded = _unseeded(c, period)
-    transparency = c.absorption_offset_per_m / c.sum_cross_section_m2 * dz * unseeded.shape[0]
-    lo = np.zeros_like(q)
-    top = np.maximum(unseeded.sum(axis=0) * dz, transparency)
-    hi = top * (1 + 1e-9) + 1e-9 * max(float(top.max()), 1.0)    # room for round-off where there is no gain
-    if np.any(phi(lo)[0] < lo) or np.any(phi(hi)[0] > hi):
-        raise ArithmeticError("the bracket of the direct solution does not hold")
-    for _ in range(200):
-        mid = 0.5 * (lo + hi)
-        up = phi(mid)[0] > mid
-        lo = np.where(up, mid, lo)
-        hi = np.where(up, hi, mid)
-        if np.all(hi - lo <= 4e-16 * hi):
-            break
-    column = 0.5 * (lo + hi)
-    fluence = phi(column)[1]
-    return column, float(fluence.sum() * area)
-
-
-# ----------------------------------------------------------------------------------------------
 # The train
 # ----------------------------------------------------------------------------------------------
 
@@ -305,6 +179,31 @@ def _stored_J(states: dict[str, MediumState], clocks: dict[str, MediumClock]) ->
     return total
 
 
+class _Pulses:
+    """One pulse of the train as a map of the media's state: the upper-state densities before a pulse
+    (the state vector ``u``) to those before the next, with what the pulse did."""
+
+    def __init__(self, new_beam: Callable[[], BeamState], run_layout: Callable, states: dict[str, MediumState],
+                 timeline: Timeline, state: _State, period_s: float, progress: Callable[[], None] | None):
+        self.new_beam, self.run_layout, self.states, self.timeline = new_beam, run_layout, states, timeline
+        self.state, self.period_s, self.progress = state, period_s, progress
+
+    def __call__(self, u: np.ndarray, record: bool = False):
+        """(u after the period, the beam, outcomes, records, the gain maps after the layout (record),
+        each medium's (pumped, decayed) energy over the layout, grid checks)."""
+        clocks = self.timeline.clocks
+        self.state.set(u)
+        self.timeline.reset()
+        beam = self.new_beam()
+        outcomes, records, checks = self.run_layout(beam, record=record)
+        after = {n: s.ln_gain.copy() for n, s in self.states.items()} if record else None
+        layout = {n: (c.pumped_J, c.decayed_J) for n, c in clocks.items()}
+        _recover(clocks, self.states, self.period_s - self.timeline.elapsed_s)
+        if self.progress is not None:
+            self.progress()
+        return self.state.get(), beam, outcomes, records, after, layout, checks
+
+
 def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Callable,
               states: dict[str, MediumState], timeline: Timeline, seed_fluence: np.ndarray,
               progress: Callable[[], None] | None = None) -> TrainRun:
@@ -312,7 +211,7 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     steady pulse (see the module docstring).
 
     ``new_beam()`` gives a fresh seed pulse; ``run_layout(beam, record=...)`` runs the layout on it
-    and returns (outcomes, records, grid checks), as ``solver.simulate`` does for a single pulse.
+    and returns (outcomes, records, grid checks), as ``pulsed.run`` does for a single pulse.
     """
     clocks = timeline.clocks
     rate_Hz = config.seed.repetition_rate_Hz
@@ -321,47 +220,19 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     probe = new_beam()
     x_m, y_m = probe.x_m, probe.y_m
     del probe
-    unseeded = {n: (_unseeded(c, period) if c.rate_per_m3_s is not None else c.n2(states[n].ln_gain))
+    unseeded = {n: (unseeded_n2(c, period) if c.rate_per_m3_s is not None else c.n2(states[n].ln_gain))
                 for n, c in clocks.items()}
     scales = {n: max(float(np.max(np.abs(v))) if v.size else 0.0, 1.0) for n, v in unseeded.items()}
     state = _State(clocks, states, scales)
+    pulse = _Pulses(new_beam, run_layout, states, timeline, state, period, progress)
     u0 = state.join(unseeded)
     upper = state.join({n: np.full(state.sizes[n], c.n2_max_per_m3 if c.n2_max_per_m3 is not None else np.inf)
                         for n, c in clocks.items()})
     upper = upper if np.all(np.isfinite(upper)) else None
     warnings: list[str] = []
 
-    def pulse(u: np.ndarray, record: bool = False):
-        state.set(u)
-        timeline.reset()
-        beam = new_beam()
-        outcomes, records, checks = run_layout(beam, record=record)
-        after = {n: s.ln_gain.copy() for n, s in states.items()} if record else None
-        layout = {n: (c.pumped_J, c.decayed_J) for n, c in clocks.items()}
-        _recover(clocks, states, period - timeline.elapsed_s)
-        if progress is not None:
-            progress()
-        return state.get(), beam, outcomes, records, after, layout, checks
-
     # 1. the fixed point: direct per pixel where it applies, then accelerated iteration of the real map
-    reason = direct_not_applicable(config, clocks)
-    start = u0
-    direct_energy = None
-    if reason is None:
-        (name,) = passed_media(config.steps)
-        c = clocks[name]
-        try:
-            column, direct_energy = direct_columns(config, c, seed_fluence, x_m, y_m)
-        except ArithmeticError as exc:
-            reason = str(exc)
-        else:
-            n2 = dict(unseeded)
-            profile = unseeded[name]
-            col0 = profile.sum(axis=0) * c.slice_length_m
-            shaped = np.where(col0 > 0, profile * (column / np.where(col0 > 0, col0, 1.0)),
-                              column / (c.slice_length_m * profile.shape[0]))
-            n2[name] = shaped
-            start = state.join(n2)
+    start, reason, direct_energy = _fixed_point_start(config, clocks, state, unseeded, u0, seed_fluence, x_m, y_m)
     fp_tolerance = max(min(FIXED_POINT_TOLERANCE, 1e-3 * tolerance), 1e-13)
     u_star, evaluations, residual = _anderson(lambda u: pulse(u)[0], start, fp_tolerance,
                                               MAX_FIXED_POINT_PULSES, upper)
@@ -371,67 +242,22 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
                         f"the last estimate")
 
     # 2. the steady pulse, recorded
-    state.set(u_star)
-    before = {n: s.ln_gain.copy() for n, s in states.items()}
-    stored_before = _stored_J(states, clocks)
-    u_next, beam, outcomes, records, after, layout, checks = pulse(u_star, record=True)
-    e_out = beam.energy_J()
-    e_in = float(seed_fluence.sum() * beam.pixel_area_m2)
-    pumped = sum(c.pumped_J for c in clocks.values())
-    decayed = sum(c.decayed_J for c in clocks.values())
-    extracted = sum(o.extracted_J for o in outcomes)
-    n2_next, n2_star = state.split(u_next), state.split(u_star)
-    change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
-                 for n, c in clocks.items())
-    balance = (pumped - decayed - extracted - change) / pumped if pumped > 0 else 0.0
-    layout_time_s = timeline.elapsed_s
-    state.set(u_star)                        # leave the media as before the steady pulse ...
-    for n, s in states.items():              # ... and then as after its layout (the "final" gain)
-        np.copyto(s.ln_gain, after[n])
+    steady = _steady_pulse(pulse, u_star, seed_fluence)
 
     # 3. the train from its start: pulse after pulse until the output is within the tolerance
-    energies, stored = [], []
-    u = u0
-    settled = None
-    for k in range(1, config.train.max_pulses + 1):
-        state.set(u)
-        stored.append(_stored_J(states, clocks))
-        u, b, *_ = pulse(u)
-        energies.append(b.energy_J())
-        if abs(energies[-1] - e_out) <= tolerance * e_out:
-            settled = k
-            break
-    estimated = False
-    cycle: list[float] = []
-    if settled is None:
-        settled = _estimate_settling(energies, e_out, tolerance)
-        cycle = _cycle(energies, tolerance)
-        if settled is not None:
-            estimated = True
-            warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
-                            f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
-                            f"estimated from the contraction per pulse")
-        elif cycle:
-            warnings.append(f"train: the pulses do not settle to one repeating pulse: after {len(energies)} pulses "
-                            f"they repeat every {len(cycle)} pulses ({', '.join(f'{e:.4g}' for e in cycle)} J); "
-                            f"the single-pulse steady state reported is unstable or absent (a pulse-to-pulse "
-                            f"bifurcation), and the "
-                            f"average power of the cycle is {sum(cycle) / len(cycle) * rate_Hz:.4g} W")
-        else:
-            warnings.append(f"train: the pulses do not settle within {len(energies)} pulses (train.max_pulses) "
-                            f"and do not approach the steady state steadily (the last ones spread over "
-                            f"{min(energies[-10:]):.4g} to {max(energies[-10:]):.4g} J): the steady state "
-                            f"reported may be unstable; raise train.max_pulses to see more of the train")
+    e_out = steady["pulse_energy_J"]
+    energies, stored, settled = _from_the_start(pulse, u0, e_out, tolerance, config.train.max_pulses)
+    settled, estimated, cycle = _settling(energies, e_out, tolerance, settled, rate_Hz, warnings)
     for n, s in states.items():              # the pulse() calls above changed the media: restore
-        np.copyto(s.ln_gain, after[n])
+        np.copyto(s.ln_gain, steady["after"][n])
 
     summary = {
         "repetition_rate_Hz": rate_Hz,
         "period_s": period,
         "pulse_energy_J": e_out,
         "average_power_W": e_out * rate_Hz,
-        "input_average_power_W": e_in * rate_Hz,
-        "stored_energy_before_pulse_J": stored_before,
+        "input_average_power_W": steady["input_energy_J"] * rate_Hz,
+        "stored_energy_before_pulse_J": steady["stored_before_J"],
         "pulses_to_steady_state": settled,
         "pulses_to_steady_state_estimated": estimated,
         "cycle_pulse_energies_J": cycle,
@@ -444,17 +270,113 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
         "direct_pulse_energy_J": direct_energy,
         "fixed_point_pulse_evaluations": evaluations,
         "fixed_point_residual": residual,
-        "pump_stored_power_W": pumped * rate_Hz,
-        "decay_power_W": decayed * rate_Hz,
-        "extracted_power_W": float(extracted * rate_Hz),
-        "energy_balance_error": float(balance),
-        "layout_time_s": layout_time_s,
+        "pump_stored_power_W": steady["pumped_J"] * rate_Hz,
+        "decay_power_W": steady["decayed_J"] * rate_Hz,
+        "extracted_power_W": float(steady["extracted_J"] * rate_Hz),
+        "energy_balance_error": float(steady["balance"]),
+        "layout_time_s": steady["layout_time_s"],
     }
     datasets = {"pulse_energy": (np.asarray(energies), "J"),
                 "stored_energy_before_pulse": (np.asarray(stored), "J")}
-    return TrainRun(beam=beam, outcomes=outcomes, records=records, ln_gain_before=before,
-                    pumped_J={n: v[0] for n, v in layout.items()}, decayed_J={n: v[1] for n, v in layout.items()},
-                    summary=summary, warnings=warnings, datasets=datasets, checks=checks)
+    layout = steady["layout"]
+    return TrainRun(beam=steady["beam"], outcomes=steady["outcomes"], records=steady["records"],
+                    ln_gain_before=steady["before"], pumped_J={n: v[0] for n, v in layout.items()},
+                    decayed_J={n: v[1] for n, v in layout.items()}, summary=summary, warnings=warnings,
+                    datasets=datasets, checks=steady["checks"])
+
+
+def _fixed_point_start(config: Config, clocks: dict[str, MediumClock], state: _State,
+                       unseeded: dict[str, np.ndarray], u0: np.ndarray, seed_fluence: np.ndarray,
+                       x_m: np.ndarray, y_m: np.ndarray) -> tuple[np.ndarray, str | None, float | None]:
+    """Where the fixed-point iteration starts: the direct per-pixel solution shaped along z like the
+    unseeded state where it applies, else the unseeded state; with the reason it does not apply
+    (None when it does) and the direct solution's pulse energy (J)."""
+    reason = direct_not_applicable(config, clocks)
+    if reason is not None:
+        return u0, reason, None
+    (name,) = passed_media(config.steps)
+    c = clocks[name]
+    try:
+        column, direct_energy = direct_columns(config, c, seed_fluence, x_m, y_m)
+    except ArithmeticError as exc:
+        return u0, str(exc), None
+    n2 = dict(unseeded)
+    profile = unseeded[name]
+    col0 = profile.sum(axis=0) * c.slice_length_m
+    n2[name] = np.where(col0 > 0, profile * (column / np.where(col0 > 0, col0, 1.0)),
+                        column / (c.slice_length_m * profile.shape[0]))
+    return state.join(n2), None, direct_energy
+
+
+def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) -> dict:
+    """The steady pulse, recorded: its beam, outcomes, records and grid checks, the gain maps before
+    and after its layout, its energies and the train's energy balance per period. Leaves the media as
+    after its layout (the "final" gain)."""
+    state, states, clocks = pulse.state, pulse.states, pulse.timeline.clocks
+    state.set(u_star)
+    before = {n: s.ln_gain.copy() for n, s in states.items()}
+    stored_before = _stored_J(states, clocks)
+    u_next, beam, outcomes, records, after, layout, checks = pulse(u_star, record=True)
+    pumped = sum(c.pumped_J for c in clocks.values())
+    decayed = sum(c.decayed_J for c in clocks.values())
+    extracted = sum(o.extracted_J for o in outcomes)
+    n2_next, n2_star = state.split(u_next), state.split(u_star)
+    change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
+                 for n, c in clocks.items())
+    balance = (pumped - decayed - extracted - change) / pumped if pumped > 0 else 0.0
+    layout_time_s = pulse.timeline.elapsed_s
+    state.set(u_star)                        # leave the media as before the steady pulse ...
+    for n, s in states.items():              # ... and then as after its layout (the "final" gain)
+        np.copyto(s.ln_gain, after[n])
+    return {"beam": beam, "outcomes": outcomes, "records": records, "checks": checks, "before": before,
+            "after": after, "layout": layout, "pulse_energy_J": beam.energy_J(),
+            "input_energy_J": float(seed_fluence.sum() * beam.pixel_area_m2), "stored_before_J": stored_before,
+            "pumped_J": pumped, "decayed_J": decayed, "extracted_J": extracted, "balance": balance,
+            "layout_time_s": layout_time_s}
+
+
+def _from_the_start(pulse: _Pulses, u0: np.ndarray, e_out: float, tolerance: float,
+                    max_pulses: int) -> tuple[list[float], list[float], int | None]:
+    """The train from its start, pulse after pulse until the output is within ``tolerance`` of the
+    steady ``e_out`` (J): each pulse's energy, the stored energy before each, and the pulse that
+    settled (None: not within ``max_pulses``)."""
+    energies, stored = [], []
+    u = u0
+    for k in range(1, max_pulses + 1):
+        pulse.state.set(u)
+        stored.append(_stored_J(pulse.states, pulse.timeline.clocks))
+        u, b, *_ = pulse(u)
+        energies.append(b.energy_J())
+        if abs(energies[-1] - e_out) <= tolerance * e_out:
+            return energies, stored, k
+    return energies, stored, None
+
+
+def _settling(energies: list[float], e_out: float, tolerance: float, settled: int | None, rate_Hz: float,
+              warnings: list[str]) -> tuple[int | None, bool, list[float]]:
+    """(pulses to the steady state, whether estimated, the repeating cycle of energies) of a train that
+    settled at pulse ``settled`` or, if None, the estimate or the cycle, with a warning for each case."""
+    if settled is not None:
+        return settled, False, []
+    settled = _estimate_settling(energies, e_out, tolerance)
+    cycle = _cycle(energies, tolerance)
+    if settled is not None:
+        warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
+                        f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
+                        f"estimated from the contraction per pulse")
+        return settled, True, cycle
+    if cycle:
+        warnings.append(f"train: the pulses do not settle to one repeating pulse: after {len(energies)} pulses "
+                        f"they repeat every {len(cycle)} pulses ({', '.join(f'{e:.4g}' for e in cycle)} J); "
+                        f"the single-pulse steady state reported is unstable or absent (a pulse-to-pulse "
+                        f"bifurcation), and the "
+                        f"average power of the cycle is {sum(cycle) / len(cycle) * rate_Hz:.4g} W")
+    else:
+        warnings.append(f"train: the pulses do not settle within {len(energies)} pulses (train.max_pulses) "
+                        f"and do not approach the steady state steadily (the last ones spread over "
+                        f"{min(energies[-10:]):.4g} to {max(energies[-10:]):.4g} J): the steady state "
+                        f"reported may be unstable; raise train.max_pulses to see more of the train")
+    return None, False, cycle
 
 
 def _estimate_settling(energies: list[float], steady: float, tolerance: float) -> int | None:
