@@ -1,6 +1,6 @@
 """The validated model description: frozen dataclasses, every quantity SI.
 
-``config.py`` builds these from a TOML file (or a dict) after checking every key; everything
+``config.load`` builds these from a TOML file (or a dict) after checking every key; everything
 downstream (pumping, beams, solver, diagnostics, results) reads only these objects.
 """
 from __future__ import annotations
@@ -140,7 +140,7 @@ class Seed:
     # where the seed is taken (the start plane of the layout); at most one of the two is set:
     waist_m: float | None = None      # distance from the start plane to the waist (> 0: downstream)
     curvature_m: float | None = None  # wavefront radius at the start (> 0 diverging, < 0 converging)
-    m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see optics.py)
+    m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see kernels/beam_shapes.py)
     phase_screen_seed: int = 0        # random seed of that phase screen
     repetition_rate_Hz: float | None = None   # pulses per second: a pulse train (None: one pulse)
 

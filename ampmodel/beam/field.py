@@ -34,7 +34,7 @@ from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels import field_step as fs
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
-SPECTRAL_TAIL = 1e-6
+ANGULAR_TAIL = 1e-6
 MAX_SUBSTEPS = 512
 EDGE_ZONE = (1.0 - kd.CLEAR_FRACTION) / 2.0     # absorbing zone, as a fraction of the window width
 
@@ -128,7 +128,7 @@ def tail_reach(power: np.ndarray, k: np.ndarray, tail: float) -> float:
     return float(np.abs(k[order][min(i, len(k) - 1)]))
 
 
-def spectral_reach(beam: FieldBeam, tail: float = SPECTRAL_TAIL, energies: np.ndarray | None = None) -> float:
+def spectral_reach(beam: FieldBeam, tail: float = ANGULAR_TAIL, energies: np.ndarray | None = None) -> float:
     """Largest of |kx|, |ky| (rad/m) outside which lies less than ``tail`` of the power of the most
     energetic time slice (one 2-D FFT); ``energies``: each slice's Σ|E|², if the caller has them."""
     if energies is None:

@@ -17,7 +17,7 @@ Figures (the full set; ``quick`` runs the same measurements on small cases, for 
   the solver traverses it by composite slices (same target);
 * ``diffraction_ratio``: the same case with diffraction (128², the field path) against the bare FFTs it
   needs, the faster of batched over the whole field and in cache-sized chunks on the same threads
-  (:func:`measure.measure_diffraction`; target <= 1.5), or "not available" without the field path;
+  (:func:`measure.measure_diffraction`; target <= 1.5);
 * ``sweep_speedup``: 8 independent runs on 2 workers against 1 (target >= 1.7);
 * ``scaling_spread``: time per pixel·slice·step at 128², 256², 512² (flat within 25 %);
 * ``memory_ratio``: peak memory of the 512² case (resident, measured in a child process, less the

@@ -2,6 +2,7 @@
 work in this process, wall time for processes and threads), best of a few repeats."""
 from __future__ import annotations
 
+import functools
 import json
 import os
 import subprocess
@@ -41,7 +42,7 @@ def measure_pulsed(size: dict, repeat: int) -> dict[str, Any]:
     for _ in range(repeat):
         fluence, ln_gain, mask, fsat, reverses = reference_arrays(with_n2)
         w0 = time.perf_counter()
-        ref.append(_cpu(lambda: reference_loop(fluence, ln_gain, mask, fsat, reverses))[0])
+        ref.append(_cpu(functools.partial(reference_loop, fluence, ln_gain, mask, fsat, reverses))[0])
         w1 = time.perf_counter()
         t, result = _cpu(lambda: simulate(with_n2))
         w2 = time.perf_counter()
@@ -77,7 +78,7 @@ def measure_scaling(size: dict, repeat: int, known: dict[int, float]) -> dict[in
             per[n] = known[n] / updates
             continue
         config = load_config(bench_config(n, size["time_slices"], size["slices"], size["passes"]))
-        per[n] = min(_cpu(lambda: simulate(config))[0] for _ in range(repeat)) / updates
+        per[n] = min(_cpu(functools.partial(simulate, config))[0] for _ in range(repeat)) / updates
     return per
 
 
@@ -111,17 +112,13 @@ def bare_transforms(field, pairs: int, workers: int, chunked: bool) -> None:
     chunks.run_chunks(len(starts), 1, work, chunks.thread_count(workers), ordered=False)
 
 
-def measure_diffraction(size: dict, repeat: int) -> dict[str, Any] | None:
+def measure_diffraction(size: dict, repeat: int) -> dict[str, Any]:
     """The benchmark case with diffraction (grid.diffraction) against the bare FFTs it needs: the run's 2-D
-    transforms (FieldBeam.fft_count, one time slice each) timed as that many fft2/ifft2 pairs of every
+    transforms (Result.field_transforms, one time slice each) timed as that many fft2/ifft2 pairs of every
     slice of an (Nt, N, N) complex array with the same workers setting, done the two ways
     :func:`bare_transforms` knows (batched over the whole array, and in cache-sized chunks split over the
     threads as the field path runs them); the faster of the two is the reference. Wall time (the
-    transforms use threads), best of ``repeat``, interleaved. None without the field path."""
-    try:
-        from ampmodel.beam import field as optics
-    except ImportError:
-        return None
+    transforms use threads), best of ``repeat``, interleaved."""
     import numpy as np
 
     from ampmodel.config.load import load_config
@@ -130,29 +127,19 @@ def measure_diffraction(size: dict, repeat: int) -> dict[str, Any] | None:
     raw["grid"]["diffraction"] = True
     config = load_config(raw)
     nt, n, workers = config.grid.time_slices, config.grid.points, config.grid.fft_workers
-    beams: list = []
-    start_beam = optics.start_beam
-
-    def capture(*args, **kwargs):                       # the run's FieldBeam, for its FFT count
-        beams.append(start_beam(*args, **kwargs))
-        return beams[-1]
-
     field = np.exp(2j * np.pi * np.random.default_rng(1).random((nt, n, n)))
     sim, cpu, batched, chunked = [], [], [], []
-    optics.start_beam = capture
-    try:
-        for _ in range(repeat):
-            c0 = time.process_time()
-            sim.append(_time(lambda: simulate(config))[0])
-            cpu.append(time.process_time() - c0)
-            pairs = beams[-1].fft_count // (2 * nt)
-            batched.append(_time(lambda: bare_transforms(field, pairs, workers, chunked=False))[0])
-            chunked.append(_time(lambda: bare_transforms(field, pairs, workers, chunked=True))[0])
-    finally:
-        optics.start_beam = start_beam
+    for _ in range(repeat):
+        c0 = time.process_time()
+        elapsed, result = _time(lambda: simulate(config))
+        sim.append(elapsed)
+        cpu.append(time.process_time() - c0)
+        pairs = result.field_transforms // (2 * nt)
+        batched.append(_time(functools.partial(bare_transforms, field, pairs, workers, chunked=False))[0])
+        chunked.append(_time(functools.partial(bare_transforms, field, pairs, workers, chunked=True))[0])
     return {"simulate_s": min(sim), "simulate_cpu_s": min(cpu), "fft_s": min(min(batched), min(chunked)),
             "fft_batched_s": min(batched), "fft_chunked_s": min(chunked), "pairs": pairs,
-            "transforms": beams[-1].fft_count, "points": n, "threads": _threads(workers)}
+            "transforms": result.field_transforms, "points": n, "threads": _threads(workers)}
 
 
 def _threads(workers: int) -> int:
@@ -226,7 +213,7 @@ def measure_sweep(size: dict, repeat: int = 1) -> dict[str, Any]:
             ones.append(t)
             t, two = _time(lambda: parallel(delayed(_sweep_point)(p) for p in points))
             twos.append(t)
-            if any(abs(a - b) > 1e-12 * abs(a) for a, b in zip(one, two)):
+            if any(abs(a - b) > 1e-12 * abs(a) for a, b in zip(one, two, strict=True)):
                 raise RuntimeError("the sweep gave different results on 1 and 2 workers")
     return {"how": f"joblib (loky): {n} independent simulate calls; the sweep machinery is not in this version",
             "one_s": min(ones), "two_s": min(twos), "speedup": min(ones) / min(twos), "startup_s": startup_s,

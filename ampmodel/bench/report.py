@@ -65,12 +65,9 @@ def pulsed_figures(p: dict[str, Any], case: str) -> list[Figure]:
         f"{agree['without_n2']['ln_gain_abs']:.1e}", {"simulate_s": p["composite_s"]})]
 
 
-def diffraction_figure(d: dict[str, Any] | None, size: dict, repeat: int) -> Figure:
+def diffraction_figure(d: dict[str, Any], size: dict, repeat: int) -> Figure:
     """simulate with diffraction against its bare transforms."""
     nt, nz, passes = size["time_slices"], size["slices"], size["passes"]
-    if d is None:
-        return Figure("diffraction_ratio", "with diffraction: simulate / the bare batched FFTs", None, "", "<= 1.5",
-                      None, "not available (no diffraction in this version)")
     dratio = d["simulate_s"] / d["fft_s"]
     return Figure(
         "diffraction_ratio", f"with diffraction, {d['points']}², {nt} t, {nz} z, {passes} passes: simulate / "
@@ -222,6 +219,6 @@ def _load_text(report: dict[str, Any]) -> str:
 
 
 def write_json(report: dict[str, Any], path: Path) -> None:
-    """Write the report atomically (results.write_json)."""
+    """Write the report atomically (output.atomic.write_json)."""
     from ampmodel.output.atomic import write_json as atomic
     atomic(report, path)

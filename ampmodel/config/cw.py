@@ -1,4 +1,4 @@
-"""The checks of a run config that depend on the mode (pulsed or cw), kept apart from ``config.py``.
+"""The checks of a run config that depend on the mode (pulsed or cw), kept apart from ``load.py``.
 
 In cw mode the seed is a continuous beam (``power_W``), a pump is continuous (``power_W``, no
 ``duration_us`` or ``energy_J``), optics carry a damage intensity rather than a damage fluence, the

@@ -1,7 +1,7 @@
-"""Config checks of doped-fibre media and of layouts made of fibres (SPEC section 6).
+"""Config checks of doped-fibre media and of layouts made of fibres.
 
 A fibre is a ``[[medium]]`` with ``kind = "fibre"``. Its keys, and those of its ``[medium.pump]``,
-are schema tables here (the data-driven style of ``config_schema.py``); the checks that involve
+are schema tables here (the data-driven style of ``schema.py``); the checks that involve
 several keys, the material, the seed and the layout follow. A layout with a fibre is made of fibres
 only; its steps are ``pass`` (each fibre once, from z = 0) and ``loss``. ``[grid]`` is optional there
 (``points``: the transverse map of the mode; ``time_slices``: the pulse; ``width_mm``: the map's
@@ -189,7 +189,7 @@ SEED_TRANSVERSE = ("profile", "order", "diameter_mm", "waist_mm", "curvature_mm"
 
 def check_seed(p: Problems, table: dict, fibre_layout: bool, mode: str | None) -> float | None:
     """The seed keys that depend on fibres: no transverse profile in a fibre layout; a repetition rate
-    only for pulses (a bulk train's own checks are in config_timing). Returns the repetition rate in
+    only for pulses (a bulk train's own checks are in config/timing.py). Returns the repetition rate in
     Hz (None when not given)."""
     if fibre_layout:
         for key in SEED_TRANSVERSE:

@@ -25,9 +25,9 @@ from pathlib import Path
 from typing import Any, Iterator, Mapping
 
 from ampmodel.config.checks import Problems, join_path, show
-from ampmodel.materials.material import SPECTRUM_ARRAYS, Spectrum, check_spectrum
+from ampmodel.materials.material import CROSS_SECTION_COLUMNS, Spectrum, check_spectrum
 
-COLUMNS = tuple(SPECTRUM_ARRAYS)            # wavelength_nm, emission_cm2, absorption_cm2
+COLUMNS = tuple(CROSS_SECTION_COLUMNS)            # wavelength_nm, emission_cm2, absorption_cm2
 MAX_BYTES = 10 * 2**20
 MAX_ROWS = 100_000
 
@@ -122,8 +122,8 @@ def spectrum_from_file(p: Problems, table: Mapping[str, Any], path: str) -> Spec
     ``p.data_files``."""
     where = join_path(path, "file")
     name = table.get("file")
-    others = [k for k in table if k in SPECTRUM_ARRAYS]
-    unknown = [k for k in table if k not in ("file", "source") and k not in SPECTRUM_ARRAYS]
+    others = [k for k in table if k in CROSS_SECTION_COLUMNS]
+    unknown = [k for k in table if k not in ("file", "source") and k not in CROSS_SECTION_COLUMNS]
     for key in unknown:
         p.add(join_path(path, key), "unknown key; a spectrum read from a file takes file and source", table[key])
     if others:

@@ -1,6 +1,6 @@
 """Run configs: TOML file (or dict) -> validated :class:`~ampmodel.description.Config`.
 
-The whole config is checked against the schema in ``config_schema.py`` before anything runs. Every
+The whole config is checked against the schema in ``schema.py`` before anything runs. Every
 problem is collected, and :class:`ConfigError` carries them all, one line each::
 
     <file>: <key path> = <value>: <what is wrong / what is allowed>[; did you mean 'x'?]

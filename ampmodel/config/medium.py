@@ -16,8 +16,8 @@ from ampmodel.config.checks import Problems, check_table, expected, join_path, q
 from ampmodel.config.schema import array_of_tables, item_names
 from ampmodel.description import Medium, Pump
 from ampmodel.materials.material import (
+    CROSS_SECTION_STAND_INS,
     MATERIAL_KEYS,
-    SPECTRUM_STANDS_IN,
     Material,
     check_spectrum,
     config_values,
@@ -25,7 +25,7 @@ from ampmodel.materials.material import (
 )
 from ampmodel.units import si_name, to_si
 
-STAND_IN_KEYS = frozenset(key for key, _, _ in SPECTRUM_STANDS_IN)
+STAND_IN_KEYS = frozenset(key for key, _, _ in CROSS_SECTION_STAND_INS)
 
 
 def check_media(p: Problems, raw: dict, mode: str | None = "pulsed") -> tuple[list[Medium] | None, list[str]]:

@@ -1,11 +1,10 @@
 """The run-config schema as data: for every table, its keys with type, range, default and meaning.
 
-``config.py`` walks a config against these tables. Each key is a :class:`Key`; the checks that
-involve several keys at once (exactly one gain specification, keys that depend on the pump
-geometry or the step kind, ...) live in ``config.py``. What every check shares (:class:`Key`,
-:class:`Problems`, :func:`show`, :func:`did_you_mean`, :func:`check_value`, :func:`check_table`) is
-in ``config_checks.py`` and can be imported from here too; this module adds the arrays of tables and
-the dotted value paths (:func:`walk`).
+``load.py``, ``medium.py`` and ``steps.py`` walk a config against these tables. Each key is a
+:class:`~ampmodel.config.checks.Key`; the checks that involve several keys at once (exactly one gain
+specification, keys that depend on the pump geometry or the step kind, ...) live with the tables
+they check. What every check shares (Key, Problems, show, did_you_mean, check_value, check_table) is
+in ``checks.py``; this module adds the arrays of tables and the dotted value paths (:func:`walk`).
 """
 from __future__ import annotations
 

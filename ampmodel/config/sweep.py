@@ -1,10 +1,10 @@
-"""Validation of the [sweep] and [spread] tables (SPEC section 5; README "Sweeps, sizing and tolerance runs").
+"""Validation of the [sweep] and [spread] tables (README "Sweeps, sizing and tolerance runs").
 
 Both tables name values of the config by dotted paths (``"seed.energy_J"``, ``"medium.rod.length_mm"``);
-each path must resolve to a key of the config's schema (``config_schema.leaf_schema``), and the
+each path must resolve to a key of the config's schema (``schema.leaf_schema``), and the
 values given for it are checked against that key's type and range, so that a sweep or a tolerance
 run cannot start with a value a single run would refuse. Problems go to a :class:`Problems` like
-every other check of ``config.py``, which calls :func:`check_sweep` and :func:`check_spread`.
+every other check of ``load.py``, which calls :func:`check_sweep` and :func:`check_spread`.
 """
 from __future__ import annotations
 
@@ -51,7 +51,7 @@ def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
 def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], Any]) -> None:
     """The [sweep] table: paths that resolve to values, non-empty lists of valid values, combine.
 
-    ``builtin(problems, path, name)`` checks a material name (config.py's registry look-up)."""
+    ``builtin(problems, path, name)`` checks a material name (``medium.builtin_material``)."""
     sweep = raw["sweep"]
     lengths: dict[str, int] = {}
     combine = "grid"

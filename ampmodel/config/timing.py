@@ -1,4 +1,4 @@
-"""The checks of a run config that involve time, kept apart from ``config.py``: a ``repeat`` step's own
+"""The checks of a run config that involve time, kept apart from ``load.py``: a ``repeat`` step's own
 keys and its nested ``[[step.steps]]`` (checked with the same step check as the layout's steps, with
 key paths like ``step[3].steps[1].transmission``), a pulse train's pumps and period, and the ion
 density a quasi-three-level medium needs once time passes between steps.
@@ -31,7 +31,7 @@ def all_step_tables(items: list) -> list[tuple[str, dict]]:
 def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[Step, ...]) -> None:
     """Checks that involve time: a pulse train's pumps and period, and the ion density that a
     quasi-three-level medium needs once time passes between steps. A layout of fibres solves its own
-    pulse train (fibre_pulsed.py, checked in config_fibre): its steps take no time here."""
+    pulse train (fibre/pulsed.py, checked in config/fibre.py): its steps take no time here."""
     path_of = {m.name: f"medium[{i}] ({m.name})" for i, m in enumerate(media)}
     passed = passed_media(steps)
     train = seed.repetition_rate_Hz is not None

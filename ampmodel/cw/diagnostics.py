@@ -1,6 +1,6 @@
 """Diagnostics of a cw run: powers, extracted power, pump absorption, photon balance, warnings.
 
-The summary dict follows SPEC section 4 with power in place of energy (summary.json keys carry
+The summary dict is a pulsed run's with power in place of energy (summary.json keys carry
 their units). Warning thresholds are common practice and come from the config's [limits] table:
 peak intensity above ``damage_fraction`` (0.5) of a damage intensity given by the material or by an
 optic; more than ``clipped_fraction`` of the power clipped; fewer than ``pixels_across_beam`` pixels

@@ -44,7 +44,7 @@ def simulate_cw(config: Config, progress: bool | None = False):
     sweep = solve(config, states, seed, x, y, progress)
 
     records = []
-    for step, intensity, oc in zip(config.steps, sweep.maps, sweep.outcomes):
+    for step, intensity, oc in zip(config.steps, sweep.maps, sweep.outcomes, strict=True):
         records.append(StepRecord(index=step.index, kind=step.kind, medium=step.medium, intensity_W_m2=intensity,
                                   axis_z_m=oc.axis_z_m, axis_intensity_W_m2=oc.axis_intensity_W_m2))
     media = {}

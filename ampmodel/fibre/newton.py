@@ -2,7 +2,7 @@
 
 The unknowns are every channel's power at every slice boundary, P (K, Nz + 1), and every ring's
 upper-state fraction in every slice, n2 (R, Nz). The equations are those the relaxation sweeps solve
-one slice at a time (fibre.py): for each channel and slice, the exact passage through the slice,
+one slice at a time (steady_state.py): for each channel and slice, the exact passage through the slice,
 
     P_leave − (P_enter·exp(x) + s·h·φ1(x)) = 0,      x = (g − l)·h,
 

@@ -268,7 +268,8 @@ def solve_pulse_train(model: FibreModel, energy_J: np.ndarray, dt_s: float, repe
     shape = x.shape
     ys, gs = [], []
     residual, periods, rec = np.inf, 0, None
-    for periods in range(1, max_periods + 1):
+    while periods < max_periods:
+        periods += 1
         after = amplify_pulse(model, x, np.array([total])).n2_after
         rec = recover(model, after, period, steps)
         g = rec.n2_end

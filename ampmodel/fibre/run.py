@@ -3,10 +3,10 @@
 The steps are passes through fibres and lumped losses between them. The signal goes from stage to
 stage; the ASE does not (an isolator and a band-pass filter between stages are assumed), and each
 fibre's backward ASE and residual pump leave it at its own ends. CW: each fibre's steady state for the
-signal power reaching it (fibre.py). Pulsed: each fibre's pulse-train steady state for the pulse
-reaching it (fibre_pulsed.py).
+signal power reaching it (steady_state.py). Pulsed: each fibre's pulse-train steady state for the pulse
+reaching it (pulsed.py).
 
-The transverse maps of the Result (SPEC section 4) are the fibre's Gaussian mode (Marcuse's
+The transverse maps of the Result are the fibre's Gaussian mode (Marcuse's
 mode-field radius at the signal wavelength) on the grid, normalised so that they hold the power (cw)
 or energy (pulsed) exactly; a medium's gain maps are the local gain coefficient at the signal,
 g = σe·N2 − σa·N1, of the ring each pixel of the core lies in (zero outside the doped core).

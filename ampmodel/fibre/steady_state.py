@@ -119,11 +119,11 @@ def anderson_step(ys: list[np.ndarray], gs: list[np.ndarray]) -> np.ndarray:
     images g_i = S(y_i): y = g_k − Σ γ_i·(g_{i+1} − g_i), γ minimising |f_k − Σ γ_i·(f_{i+1} − f_i)|,
     f = g − y (D. G. Anderson, J. ACM 12, 547 (1965); H. F. Walker, P. Ni, SIAM J. Numer. Anal. 49,
     1715 (2011))."""
-    f = [g - y for y, g in zip(ys, gs)]
+    f = [g - y for y, g in zip(ys, gs, strict=True)]
     if len(f) < 2:
         return gs[-1]
-    df = np.stack([b - a for a, b in zip(f[:-1], f[1:])], axis=1)
-    dg = np.stack([b - a for a, b in zip(gs[:-1], gs[1:])], axis=1)
+    df = np.stack([b - a for a, b in zip(f[:-1], f[1:], strict=True)], axis=1)
+    dg = np.stack([b - a for a, b in zip(gs[:-1], gs[1:], strict=True)], axis=1)
     gamma = np.linalg.lstsq(df, f[-1], rcond=1e-12)[0]
     return gs[-1] - dg @ gamma
 
@@ -139,7 +139,7 @@ def solve_cw(model: FibreModel, signal_power_W: float, tolerance: float = DEFAUL
     ``max_iterations`` (a strongly absorbed, saturated pump running against a strongly amplified
     signal makes plain relaxation swing between two states), the launched powers are scaled down until
     relaxation settles, then raised back in stages, each solved by Newton's method on the discretised
-    equations (fibre_newton.py) from the stage before.
+    equations (newton.py) from the stage before.
 
     Parameters
     ----------

@@ -104,7 +104,7 @@ def _h_and_slope(x, f, b, inv_isat):
     """H(x) and dH/dx of the inhomogeneous slice (Gauss–Legendre on t = x·s, s in [0, 1])."""
     h = np.zeros_like(x)
     dh = np.zeros_like(x)
-    for s, w in zip(_S, _W):
+    for s, w in zip(_S, _W, strict=True):
         ef = f * np.exp(x * s)
         eb = b * np.exp(x * (1.0 - s))
         root = np.sqrt(1.0 + (ef + eb) * inv_isat)

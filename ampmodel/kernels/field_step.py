@@ -2,7 +2,7 @@
 
 A chunk is a few consecutive time slices of the field, ``e`` (c, Ny, Nx) complex128 (|E|² the fluence of
 each slice, J/m²), small enough that its transforms and the gain and Kerr step run in the processor
-cache. The caller (optics.pass_medium_field) takes each chunk through the medium's slices, and runs
+cache. The caller (pulsed.field_pass.pass_medium_field) takes each chunk through the medium's slices, and runs
 several chunks at once in threads; everything here writes only into the chunk, the gain row it is
 given and the scratch arrays of its :class:`ChunkWork`.
 
@@ -36,7 +36,7 @@ _GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_ac
 
 # Time slices per chunk: about this many pixel values, so that a chunk (16 bytes a value) and its
 # scratch stay in the processor's cache and each numpy call of the gain step is long enough to leave
-# the interpreter lock to the other thread most of its time (DEVELOPERS.md, speed and memory).
+# the interpreter lock to the other thread most of its time (docs/performance.md, the field path).
 CHUNK_VALUES = 65536
 
 

@@ -182,7 +182,7 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
     -----
     One long function on purpose (a fused hot kernel): the loops over time slices and gain slices
     keep every array of the block in cache and in place; split into calls, each would pass over the
-    block again (docs/performance.md, the pulsed pass).
+    block again (docs/performance.md, the hot loop in detail).
     """
     nt, c = x.shape
     nz = ln_gain.shape[0]

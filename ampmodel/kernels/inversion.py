@@ -10,7 +10,7 @@ and over the interval the pump adds R·t ions and spontaneous decay removes
 N2(t) − N2(0) = pumped − decayed exactly.
 
 An optional cap N2 <= N2_max holds the quasi-three-level bleaching limit at the pump wavelength (the
-same cap the gain maps of ``pumping.py`` use): the trajectory is monotonic, reaches the cap at
+same cap the gain maps of ``media/gain_maps.py`` use): the trajectory is monotonic, reaches the cap at
 t* = tau·ln[(N_inf − N2(0))/(N_inf − N2_max)] and stays there; from then on the pump only replaces
 the decays (the rest of it is not absorbed).
 

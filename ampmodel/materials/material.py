@@ -47,16 +47,16 @@ STRING_KEYS = {"name": "material name", "broadening": "line broadening: 'homogen
 BROADENINGS = ("homogeneous", "inhomogeneous")
 
 # Keys a cross-section spectrum can stand in for: (key, spectrum column, wavelength key it is read at).
-SPECTRUM_STANDS_IN = (
+CROSS_SECTION_STAND_INS = (
     ("emission_cross_section_cm2", "emission", "wavelength_nm"),
     ("absorption_cross_section_cm2", "absorption", "wavelength_nm"),
     ("pump_absorption_cross_section_cm2", "absorption", "pump_wavelength_nm"),
     ("pump_emission_cross_section_cm2", "emission", "pump_wavelength_nm"),
 )
-SPECTRUM_ARRAYS = {"wavelength_nm": "wavelengths of the table, strictly increasing",
+CROSS_SECTION_COLUMNS = {"wavelength_nm": "wavelengths of the table, strictly increasing",
                    "emission_cm2": "emission cross-section at each wavelength",
                    "absorption_cm2": "absorption cross-section at each wavelength"}
-SPECTRUM_MAX_CM2 = 1e-16
+CROSS_SECTION_MAX_CM2 = 1e-16
 
 
 @dataclass(frozen=True)
@@ -106,7 +106,7 @@ def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list
     problems: list[tuple[str, Any, str]] = []
     if not isinstance(table, dict):
         return None, [("", table, "must be a table with wavelength_nm, emission_cm2 and absorption_cm2 arrays")]
-    allowed = set(SPECTRUM_ARRAYS) | {"source"}
+    allowed = set(CROSS_SECTION_COLUMNS) | {"source"}
     for key in table:
         if key not in allowed:
             import difflib
@@ -114,7 +114,7 @@ def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list
             problems.append((key, table[key], "unknown key" + (f"; did you mean '{hint[0]}'?" if hint else
                                                                f"; keys: {', '.join(sorted(allowed))}")))
     arrays: dict[str, list[float]] = {}
-    for key, meaning in SPECTRUM_ARRAYS.items():
+    for key, meaning in CROSS_SECTION_COLUMNS.items():
         if key not in table:
             problems.append((key, None, f"missing: {meaning}, an array of numbers"))
             continue
@@ -133,8 +133,8 @@ def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list
             if any(b <= a for a, b in zip(values, values[1:])):
                 problems.append((key, value, "must be strictly increasing"))
                 continue
-        elif not all(0.0 <= v <= SPECTRUM_MAX_CM2 for v in values):
-            problems.append((key, value, f"out of range: cross-sections from 0 to {SPECTRUM_MAX_CM2:g} cm2"))
+        elif not all(0.0 <= v <= CROSS_SECTION_MAX_CM2 for v in values):
+            problems.append((key, value, f"out of range: cross-sections from 0 to {CROSS_SECTION_MAX_CM2:g} cm2"))
             continue
         arrays[key] = values
     if len(arrays) == 3 and len({len(v) for v in arrays.values()}) != 1:
@@ -245,7 +245,7 @@ def material_from_values(values: Mapping[str, object], name: str, description: s
             kwargs["broadening"] = str(value)
     if spectrum is not None:
         kwargs["spectrum"] = spectrum
-        for key, column, at_key in SPECTRUM_STANDS_IN:
+        for key, column, at_key in CROSS_SECTION_STAND_INS:
             at = kwargs.get(si_name(at_key))
             if key in values or at is None or not spectrum.covers(at):
                 continue

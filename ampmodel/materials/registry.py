@@ -41,8 +41,8 @@ except ModuleNotFoundError:  # Python < 3.11
 
 from ampmodel.materials.material import (
     BROADENINGS,
+    CROSS_SECTION_STAND_INS,
     MATERIAL_KEYS,
-    SPECTRUM_STANDS_IN,
     Material,
     check_spectrum,
     config_values,
@@ -146,7 +146,7 @@ def _load_file(path: str | Path) -> Material:
         for key in ("wavelength_nm", "pump_wavelength_nm"):
             if key in values and not spectrum.covers(values[key] * factor(key)):
                 raise _fail(path, key, f"{values[key]:g} lies outside the spectrum ({spectrum.range_nm})")
-    stand_ins = {key for key, _, _ in SPECTRUM_STANDS_IN} if spectrum is not None else set()
+    stand_ins = {key for key, _, _ in CROSS_SECTION_STAND_INS} if spectrum is not None else set()
     missing = [key for key, spec in MATERIAL_KEYS.items()
                if spec.required and key not in values and key not in stand_ins]
     if missing:

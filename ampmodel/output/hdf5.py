@@ -39,7 +39,7 @@ def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
 
 
 def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None) -> None:
-    """Write result.h5 in SPEC section 4's layout (SI units, a ``units`` attribute on every dataset).
+    """Write result.h5 in the layout of the module docstring (SI units, a ``units`` attribute on every dataset).
 
     ``attrs``: further root attributes (a sweep's point files record their index and values).
     The file is written under a temporary name and renamed when whole (``atomic.target``); its last
@@ -179,7 +179,7 @@ _FIBRE_DATASETS = (
 
 
 def _write_fibres(group, fibres: dict[str, FibreRecord]) -> None:
-    """The /fibre/NAME groups (SPEC section 6): powers, ASE and inversion along each fibre."""
+    """The /fibre/NAME groups: powers, ASE and inversion along each fibre."""
     for name, rec in fibres.items():
         fg = group.create_group(name)
         fg.attrs["mode"] = rec.mode

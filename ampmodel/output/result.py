@@ -107,11 +107,13 @@ class Result:
     seed_fluence_J_m2 : (Ny, Nx); seed_power_W : (Nt,) (pulsed; None in cw)
     seed_intensity_W_m2 : (Ny, Nx) (cw; None in pulsed)
     steps : one StepRecord per step, in order; media : name -> MediumRecord
-    summary : the summary.json dict (SPEC section 4)
+    summary : the summary.json dict
     output_field : (Nt, Ny, Nx) complex field after the last step (diffraction runs; |E|² in J/m²)
-    fibres : name -> FibreRecord, for layouts of fibres (SPEC section 6)
+    fibres : name -> FibreRecord, for layouts of fibres
     train : pulse trains: datasets of the train, name -> (array, units), e.g. the energy of each
         pulse from the start of the train (empty for a single pulse)
+    field_transforms : diffraction runs: the 2-D transforms (of one time slice each) the field path
+        made, for the benchmark (0 otherwise; not written to the files)
     """
 
     config: Config
@@ -127,6 +129,7 @@ class Result:
     output_field: np.ndarray | None = None
     fibres: dict[str, FibreRecord] = field(default_factory=dict)
     train: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
+    field_transforms: int = 0
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``: the public

@@ -2,7 +2,7 @@
 diameters, peak-to-mean modulation and fill factor along the layout.
 
 Drawn from the Result's step records and summary (no physics recomputed), on their own Agg canvas
-like the figures of ``plots.py``; made for runs whose summary carries the beam figures.
+like the other figures of a run; made for runs whose summary carries the beam figures.
 """
 from __future__ import annotations
 
@@ -68,7 +68,7 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
     iy, ix = centre_index(result.y_m), centre_index(result.x_m)
     summary_steps = (result.summary or {}).get("steps", [])
     figures = [(result.summary or {}).get("seed_beam", {})] + list(summary_steps)
-    for i, (img, label) in enumerate(zip(maps, labels)):
+    for i, (img, label) in enumerate(zip(maps, labels, strict=True)):
         r, c = divmod(i, cols)
         ax = fig.add_subplot(gs[2 * r, c])
         shown = np.nan_to_num(img) / 1e4

@@ -2,7 +2,7 @@
 
 Drawn from a Result's FibreRecords (SI), shown in the units a laser engineer reads: z in m, powers in
 W on a logarithmic axis (they span decades), ASE as spectral density in dBm/nm, inversion as N2/Nt.
-Each figure has its own Agg canvas and is written atomically (the helpers of plot_common.py).
+Each figure has its own Agg canvas and is written atomically (the helpers of common.py).
 """
 from __future__ import annotations
 
@@ -171,7 +171,7 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
 
 
 def _watts(value: float) -> str:
-    """A power with the prefix that suits its size (plot_common.unit_prefix)."""
+    """A power with the prefix that suits its size (common.unit_prefix)."""
     scale, unit = unit_prefix(value, POWER_UNITS)
     return f"{value / scale:.3g} {unit}"
 

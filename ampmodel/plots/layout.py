@@ -68,7 +68,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     else:
         ax_e.set_ylim(bottom=0, top=max(finite_max(shown) * 1.15, 1e-30) if finite_max(shown) > 0 else 1.0)
     if n <= 14:
-        for p, v in zip(pos, shown):
+        for p, v in zip(pos, shown, strict=True):
             if np.isfinite(v) and (v > 0 or not log_e):
                 ax_e.annotate(f"{v:.3g}", (p, v), textcoords="offset points", xytext=(0, 7),
                               ha="center", fontsize="small")
@@ -89,7 +89,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
         ax_g.set_yscale("log")
         keep = gval_ok > 0
         ax_g.bar(gpos_ok[keep], gval_ok[keep], width=0.6,
-                 color=[c for c, k in zip(colours, keep) if k])
+                 color=[c for c, k in zip(colours, keep, strict=True) if k])
     elif gval_ok.size:
         ax_g.bar(gpos_ok, gval_ok, width=0.6, color=colours)
         ax_g.set_ylim(bottom=0, top=max(1.0, finite_max(gval_ok)) * 1.18)
@@ -97,7 +97,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
         ax_g.set_ylim(0, 2)
     ax_g.axhline(1.0, color="0.3", linestyle=":", linewidth=1.0)
     if n <= 14:
-        for p, g in zip(gpos, gval):
+        for p, g in zip(gpos, gval, strict=True):
             text = f"{g:.3g}" if np.isfinite(g) else "n/a"
             y = g if (np.isfinite(g) and (g > 0 or not log_g)) else (1.0 if log_g else 0.0)
             ax_g.annotate(text, (p, y), textcoords="offset points", xytext=(0, 3), ha="center",

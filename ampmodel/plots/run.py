@@ -3,7 +3,7 @@
 Each figure is a :class:`matplotlib.figure.Figure` drawn on its own Agg canvas (no pyplot, no global
 state, no display needed) and written as a PNG, atomically, into the plot folder of a run.
 
-Arrays in a :class:`~ampmodel.results.Result` are SI; the figures show them in the units a laser
+Arrays in a :class:`~ampmodel.output.result.Result` are SI; the figures show them in the units a laser
 engineer reads: mm across the beam and along the medium, J/cm² for fluence, 1/cm for the gain
 coefficient, and time, power and energy in the prefix that suits their size (ps/ns/µs, W/kW/MW/GW,
 µJ/mJ/J). In a cw run the transverse maps hold intensity (W/m², shown in W/cm²), the step figure
@@ -43,13 +43,13 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
     ``gain_<medium>.png`` for each medium, ``b_integral.png`` when any step has a non-zero
     B-integral, ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
-    (``plots_beam.py``), ``round_trips.png`` for a repeat step (``round_trips_step<N>.png`` when
-    there are several) and ``train.png`` for a pulse train (``plots_time.py``). A cw run writes
+    (``beam.py``), ``round_trips.png`` for a repeat step (``round_trips_step<N>.png`` when
+    there are several) and ``train.png`` for a pulse train (``trains.py``). A cw run writes
     ``intensity_maps.png``, ``power_per_step.png`` and ``gain_<medium>.png`` (the steady-state gain
-    along z and the intensity of each pass; plots_cw.py).
+    along z and the intensity of each pass; cw.py).
     A layout of fibres writes the maps (``intensity_maps.png`` and ``power_per_step.png``
     in cw) and the pulse, then per fibre ``fibre_<name>_powers.png``, ``gain_<name>.png`` (gain and
-    inversion along it) and ``fibre_<name>_ase.png`` (plots_fibre.py).
+    inversion along it) and ``fibre_<name>_ase.png`` (fibre.py).
 
     Parameters
     ----------

@@ -324,7 +324,7 @@ def _legend(ax, groups, warned, axes, others, combine, figure=None) -> None:
     the whole figure when ``figure`` is given)."""
     from matplotlib.lines import Line2D
     handles, labels = ax.get_legend_handles_labels()
-    keep = [(h, lb) for h, lb in zip(handles, labels) if lb != "_warn"]
+    keep = [(h, lb) for h, lb in zip(handles, labels, strict=True) if lb != "_warn"]
     if len(keep) > 12:
         keep = keep[:11] + [(Line2D([], [], ls="none"), f"... {len(keep) - 11} more")]
     if warned.any():

@@ -1,6 +1,5 @@
 """Figures of time in a run: the energy round trip by round trip of a repeat step, and a pulse train
-from its start to its periodic steady state (drawn like the figures of ``plots.py``, whose helpers
-they share)."""
+from its start to its periodic steady state (drawn like the other figures, with the helpers of ``common.py``)."""
 from __future__ import annotations
 
 from pathlib import Path

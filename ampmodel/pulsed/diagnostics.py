@@ -1,6 +1,6 @@
 """Diagnostics of a pulsed run: energies, extraction, peaks, B-integral, energy balance, warnings.
 
-The summary dict follows SPEC section 4 (summary.json); its keys carry their units.
+The summary dict is what summary.json holds (README, "Reading the outputs"); its keys carry their units.
 
 Warning thresholds are common practice (each can be changed in the config's [limits] table):
 peak fluence above half the damage fluence scaled to the pulse length by (tau/tau_ref)^0.5; B-integral
@@ -60,7 +60,7 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
         before = [oc.energy_in_J] + list(energies[:-1])
         round_trips = [{"round_trip": k, "energy_J": e, "time_ns": k * round_trip_s * 1e9,
                         "gain": e / b if b > 0 else 0.0, "kept": k <= dump, "dumped": k == dump}
-                       for k, (e, b) in enumerate(zip(energies, before), start=1)]
+                       for k, (e, b) in enumerate(zip(energies, before, strict=True), start=1)]
         entry.update({
             "round_trip_count": dump,
             "until": step.until, "count": step.count,

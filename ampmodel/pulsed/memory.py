@@ -48,10 +48,10 @@ def memory_estimate_bytes(config: Config) -> int:
 
     The larger of two phases: building the gain maps (the maps so far, and a pumped map's construction
     temporaries, up to four (Nz, Ny, Nx) arrays), and the run (:func:`required_array_bytes` plus the
-    block of a pass, (3·Nt + 5·Nz + 10) rows of its pixels; layout.block_pixels). Checked against the
+    block of a pass, (3·Nt + 5·Nz + 10) rows of its pixels; passes.block_pixels). Checked against the
     measured peak resident memory of runs from 64² to 512² pixels (16 to 256 time slices, 10 to 80
     z-slices, pumped or not, with or without n2 and loss): 2 to 31 % above it, never below
-    (DEVELOPERS.md, memory). A repeat that stops at the peak keeps a copy of the beam and the gain
+    (docs/performance.md, memory). A repeat that stops at the peak keeps a copy of the beam and the gain
     maps, and a pulse train the fixed-point history. The fibre, cw and field (diffraction) paths have
     their own counts.
     """

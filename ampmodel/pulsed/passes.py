@@ -30,13 +30,13 @@ class MediumState:
 
 def _scatter(full: np.ndarray, idx: np.ndarray, block: np.ndarray) -> None:
     """full[:, idx] = block, row by row (several times faster than one fancy assignment)."""
-    for row, values in zip(full, block):
+    for row, values in zip(full, block, strict=True):
         row[idx] = values
 
 
 def block_pixels(nt: int, nz: int) -> int:
     """Pixels per block of a pass: about 32 MB of gathered rows ((2·Nt + 2·Nz) per pixel, float64),
-    between 1024 and 16384 (measured fastest on a 2 MiB L2 cache; DEVELOPERS.md)."""
+    between 1024 and 16384 (measured fastest on a 2 MiB L2 cache; docs/performance.md)."""
     return int(min(16384, max(1024, 32 * 2**20 // (8 * (2 * nt + 2 * nz)))))
 
 
@@ -95,7 +95,8 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
         x /= fsat
         ln_gain = np.take(ln_gain_all, idx, axis=1)
         order = ln_gain[::-1] if reverse else ln_gain
-        part = tick and (lambda f, n=len(idx): tick(f * nz * n / len(active)))
+        share = nz * len(idx) / len(active)                    # z-slices of work in this block
+        part = tick and (lambda f, share=share: tick(f * share))
         if b_coef <= 0.0 and half_loss == 1.0 and fn_pass.composite_valid(order):
             oc = fn_pass.amplify_block_composite(x, order, tick=part)
             b_sum = None

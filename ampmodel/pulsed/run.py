@@ -149,7 +149,8 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
     return Result(config=config, x_m=run.x_m, y_m=run.x_m.copy(), t_s=run.t_s, seed_fluence_J_m2=run.seed_map,
                   seed_power_W=run.seed_power_W, steps=records, media=media, summary=summary,
                   output_field=beam.field if config.grid.diffraction else None,
-                  train=train.datasets if train is not None else {})
+                  train=train.datasets if train is not None else {},
+                  field_transforms=beam.fft_count if config.grid.diffraction else 0)
 
 
 def _medium_state(medium, gm: GainMap) -> MediumState:

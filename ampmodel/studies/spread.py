@@ -99,7 +99,7 @@ def statistics(summaries: Sequence[Mapping[str, Any] | None]) -> dict[str, dict[
 
 @dataclass
 class SpreadResult(SweepResult):
-    """A :class:`~ampmodel.sweeps.SweepResult` of the samples, plus their statistics.
+    """A :class:`~ampmodel.studies.sweeps.SweepResult` of the samples, plus their statistics.
 
     percentiles : figure -> {"unit", "p5", "p50", "p95", "mean", "std", "min", "max", "count"}, in the
         unit the figure's name carries

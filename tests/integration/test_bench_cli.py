@@ -7,6 +7,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 ROOT = Path(__file__).resolve().parents[2]
 KEYS = {"pulsed_ratio", "pulsed_composite_ratio", "diffraction_ratio", "sweep_speedup", "scaling_spread",
         "memory_ratio", "memory_estimate_ratio", "memory_peak_MB", "startup_s"}
@@ -17,6 +19,7 @@ def ampmodel(*args: str) -> subprocess.CompletedProcess:
                           timeout=600)
 
 
+@pytest.mark.slow
 def test_bench_quick_prints_the_table_and_writes_the_figures(tmp_path):
     out = tmp_path / "bench.json"
     proc = ampmodel("bench", "--quick", "--quiet", "--json", str(out))

@@ -27,7 +27,7 @@ def ampmodel(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess
 
 
 def assert_cw_output_contract(out: Path) -> dict:
-    """A cw run folder: SPEC section 4 with power and intensity in place of energy and fluence."""
+    """A cw run folder: the output contract with power and intensity in place of energy and fluence."""
     summary = json.loads((out / "summary.json").read_text())
     assert summary["mode"] == "cw"
     for key in ("input_power_W", "output_power_W", "gain", "peak_intensity_W_cm2", "b_integral_rad",
@@ -58,7 +58,7 @@ def assert_cw_output_contract(out: Path) -> dict:
 
 
 def assert_fibre_outputs(out: Path, summary: dict) -> None:
-    """SPEC section 6: the fibre keys of summary.json, the groups along each fibre in result.h5, the
+    """A layout of fibres: the fibre keys of summary.json, the groups along each fibre in result.h5, the
     fibre figures."""
     for key in ("pump_power_out_W", "ase_forward_W", "ase_backward_W", "gain_dB"):
         assert key in summary, key
@@ -77,7 +77,7 @@ def assert_fibre_outputs(out: Path, summary: dict) -> None:
 
 
 def assert_output_contract(out: Path) -> dict:
-    """The run folder holds SPEC section 4's files, keys, datasets and units attributes."""
+    """The run folder holds the files, keys, datasets and units attributes of the output contract (README, "Reading the outputs")."""
     summary = json.loads((out / "summary.json").read_text())
     if summary.get("mode") == "cw":
         summary = assert_cw_output_contract(out)
@@ -134,6 +134,7 @@ def test_media_prints_every_material_with_sources():
     assert "source" in proc.stdout.lower()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("config", CONFIGS, ids=[c.stem for c in CONFIGS])
 def test_example_configs_check_and_run(config, tmp_path):
     check = ampmodel("check", str(config))

@@ -93,7 +93,7 @@ def test_a_sweep_killed_twice_finishes_with_the_uninterrupted_table(tmp_path):
         target = rng.randint(done + 2, min(done + 6, len(ENERGIES) - 5))
         p = _start(args + ["--out", str(out)], tmp_path, tmp_path / f"kill{kill}.log")
         try:
-            _wait_for(lambda: _complete_points(out) >= target, p)
+            _wait_for(lambda target=target: _complete_points(out) >= target, p)
             time.sleep(rng.uniform(0.0, 0.25))                 # anywhere inside the next points
         finally:
             os.killpg(p.pid, signal.SIGKILL)
@@ -125,6 +125,7 @@ def test_sigterm_stops_a_run_and_leaves_nothing(tmp_path):
     assert not (tmp_path / "runs").exists()                  # made for the run, removed with it
 
 
+@pytest.mark.slow
 def test_ctrl_c_stops_a_sweep_and_prints_the_command_that_resumes_it(tmp_path):
     """Ctrl-C (SIGINT to the whole process group, as a terminal sends it) during a sweep: exit 130, the
     table of the points done, and the exact command; that command computes the rest."""

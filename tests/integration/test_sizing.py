@@ -163,7 +163,7 @@ def test_a_reachable_target_prints_the_value_figures_and_margins(flat, tmp_path)
 ])
 def test_bad_sizing_input_is_exit_2(flat, tmp_path, args, text):
     base = {"--target": "output_energy_J=0.1", "--vary": "medium.rod.small_signal_gain", "--within": "2,50"}
-    for k, v in zip(args[::2], args[1::2]):
+    for k, v in zip(args[::2], args[1::2], strict=True):
         base[k] = v
     extra = [x for k, v in base.items() for x in (k, v)]
     if "--limit" in args:

@@ -136,7 +136,7 @@ def test_zip_order_through_the_api(tmp_path):
                              {"seed.energy_J": 0.004, "step.1.transmission": 0.8},
                              {"seed.energy_J": 0.008, "step.1.transmission": 0.7}]
     assert result.computed == [0, 1, 2] and not result.failed
-    for v, s in zip(result.values, result.summaries):
+    for v, s in zip(result.values, result.summaries, strict=True):
         assert s["input_energy_J"] == pytest.approx(v["seed.energy_J"], rel=1e-12)
         assert s["steps"][1]["gain"] == pytest.approx(v["step.1.transmission"], rel=1e-12)
     rows = read_csv(tmp_path / "zip" / "sweep.csv")
@@ -342,7 +342,7 @@ def test_a_cw_sweep_runs_through_the_same_machinery(tmp_path):
     small = ["grid.points=16", 'sweep."seed.power_W"=[0.5, 2.0]']
     result = api.run_sweep(config, tmp_path / "cw", jobs=1, overrides=small, plots=True)
     assert result.computed == [0, 1] and not result.failed
-    for v, s in zip(result.values, result.summaries):
+    for v, s in zip(result.values, result.summaries, strict=True):
         single = api.simulate(api.load_config(config, [small[0], f"seed.power_W={v['seed.power_W']}"]))
         assert s["output_power_W"] == pytest.approx(single.summary["output_power_W"], rel=1e-12)
     with h5py.File(tmp_path / "cw" / "sweep.h5", "r") as f:

@@ -21,6 +21,7 @@ def run(config: str, out: Path, *extra: str) -> subprocess.CompletedProcess:
     return proc
 
 
+@pytest.mark.slow
 def test_regenerative_amplifier_example(tmp_path):
     out = tmp_path / "regen"
     proc = run("regen_ti_sapphire.toml", out)
@@ -32,7 +33,7 @@ def test_regenerative_amplifier_example(tmp_path):
     assert max(energies) == energies[dump - 1] == repeat["energy_out_J"]
     assert repeat["build_up_time_ns"] == pytest.approx(dump * repeat["round_trip_ns"])
     assert repeat["round_trip_ns"] == pytest.approx(2 * 1.5 / 299792458.0 * 1e9, rel=1e-12)  # two 1.5 m spaces
-    for inner in repeat["steps"]:                 # SPEC's per-step keys on the round trip's steps too
+    for inner in repeat["steps"]:                 # the per-step keys on the round trip's steps too
         for key in ("index", "kind", "energy_in_J", "energy_out_J", "gain", "peak_fluence_J_cm2", "b_integral_rad"):
             assert key in inner
     assert repeat["steps"][-1]["energy_out_J"] == pytest.approx(repeat["energy_out_J"], rel=1e-12)
@@ -46,6 +47,7 @@ def test_regenerative_amplifier_example(tmp_path):
     assert f"{dump} round trips" in proc.stdout and "build-up time" in proc.stdout
 
 
+@pytest.mark.slow
 def test_pulse_train_example(tmp_path):
     out = tmp_path / "train"
     proc = run("khz_end_pumped_train.toml", out)

@@ -29,14 +29,14 @@ ISAT = MAT.saturation_intensity_W_m2
 
 
 def double_pass(broadening="homogeneous", power_W=5.0, mirror=0.9, small_signal_gain=8.0, profile="flat",
-                loss_per_m=0.0, solver=Solver(), extra=(), points=16):
+                loss_per_m=0.0, solver=None, extra=(), points=16):
     mat = dataclasses.replace(MAT, broadening=broadening)
     medium = make_medium(mat, length_m=0.05, diameter_m=4e-3, slices=20, small_signal_gain=small_signal_gain,
                          loss_per_m=loss_per_m)
     seed = Seed(wavelength_m=1064e-9, power_W=power_W, profile=profile, diameter_m=3e-3)
     steps = (pass_step(0), loss_step(1, mirror), pass_step(2, reverse=True)) + tuple(extra)
     return Config(title="cw double pass", mode="cw", grid=Grid(points=points, width_m=6e-3), media=(medium,),
-                  seed=seed, steps=steps, solver=solver), medium
+                  seed=seed, steps=steps, solver=solver or Solver()), medium
 
 
 def bvp_output(i_in, g0, length, mirror, exponent):

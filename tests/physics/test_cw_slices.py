@@ -85,8 +85,8 @@ def test_inhomogeneous_kernel_matches_the_closed_form():
     u_out = u_in * np.exp(x)
     mid = u_in > 1e-3
     assert np.max(np.abs(phi_direct(u_out[mid]) - phi_direct(u_in[mid]) - c[mid])) < 1e-11
-    for ui, ci, uo in zip(u_in[::7], c[::7], u_out[::7]):               # root found independently
-        root = brentq(lambda v: phi_direct(v) - phi_direct(ui) - ci, ui, ui * np.exp(ci) * 1.01, xtol=1e-300,
+    for ui, ci, uo in zip(u_in[::7], c[::7], u_out[::7], strict=True):               # root found independently
+        root = brentq(lambda v, ui=ui, ci=ci: phi_direct(v) - phi_direct(ui) - ci, ui, ui * np.exp(ci) * 1.01, xtol=1e-300,
                       rtol=1e-14)
         assert uo == pytest.approx(root, rel=1e-10)
 
@@ -105,8 +105,8 @@ def test_inhomogeneous_kernel_with_both_directions_matches_quad():
     f, b = 10.0 ** rng.uniform(-4, 2, 12), 10.0 ** rng.uniform(-4, 2, 12)
     c = rng.uniform(-2.0, 2.0, 12)                          # negative: an absorbing slice
     x = inhomogeneous_slice_gain(f * ISAT, b * ISAT, c, ISAT)
-    for fi, bi, ci, xi in zip(f, b, c, x):
-        h, _ = quad(lambda t: np.sqrt(1.0 + fi * np.exp(t) + bi * np.exp(xi - t)), 0.0, xi, epsabs=1e-14, epsrel=1e-13)
+    for fi, bi, ci, xi in zip(f, b, c, x, strict=True):
+        h, _ = quad(lambda t, fi=fi, bi=bi, xi=xi: np.sqrt(1.0 + fi * np.exp(t) + bi * np.exp(xi - t)), 0.0, xi, epsabs=1e-14, epsrel=1e-13)
         assert h == pytest.approx(ci, rel=1e-11)
 
 

@@ -70,7 +70,7 @@ def test_energy_balance_with_clipping_and_losses(lossy_run):
     assert abs((e_in + extracted - e_out - lost) / e_out) < 1e-12
     # the chain of steps: each step starts with what the last one left
     energies = [e_in] + [st["energy_out_J"] for st in s["steps"]]
-    for st, before in zip(s["steps"], energies):
+    for st, before in zip(s["steps"], energies[:-1], strict=True):
         assert st["energy_in_J"] == pytest.approx(before, rel=1e-13)
     for st in s["steps"]:
         if st["kind"] != "pass":                              # no gain: out = in − losses
@@ -104,7 +104,7 @@ def test_summary_agrees_with_hdf5(lossy_run, tmp_path):
         stored = FSAT * slice_length * area * np.clip(g0[()], 0.0, None).sum()
 
     assert summary["output_energy_J"] == pytest.approx(step_fluence[-1].sum() * area, rel=1e-12)
-    for entry, fl in zip(summary["steps"], step_fluence):
+    for entry, fl in zip(summary["steps"], step_fluence, strict=True):
         assert entry["energy_out_J"] == pytest.approx(fl.sum() * area, rel=1e-12)
     assert summary["input_energy_J"] == pytest.approx(seed_fluence.sum() * area, rel=1e-12)
     assert summary["stored_energy_J"] == pytest.approx(stored, rel=1e-12)

@@ -142,8 +142,8 @@ def test_two_way_ase_matches_solve_bvp():
     dnu = R.LIGHT_SPEED / edges[:-1] - R.LIGHT_SPEED / edges[1:]
     gp = (5e-6 / 62.5e-6) ** 2
     channels = [(SIGNAL_M, signal_overlap(), 1, 0.0), (976e-9, gp, -1, 0.0)]
-    channels += [(w, signal_overlap(w), 1, d) for w, d in zip(centres, dnu)]
-    channels += [(w, signal_overlap(w), -1, d) for w, d in zip(centres, dnu)]
+    channels += [(w, signal_overlap(w), 1, d) for w, d in zip(centres, dnu, strict=True)]
+    channels += [(w, signal_overlap(w), -1, d) for w, d in zip(centres, dnu, strict=True)]
     rhs = overlap_model_rhs(channels)
     fwd = [0] + list(range(2, 2 + bins))
     bwd = [1] + list(range(2 + bins, 2 + 2 * bins))

@@ -78,7 +78,7 @@ def test_square_pulse_shape_follows_frantz_nodvik():
         return p_in / (1 - (1 - 1 / g0) * math.exp(-p_in * time / esat))
 
     edges = np.linspace(0.0, length_s, slices + 1)
-    expected = [quad(p_out, a, b, epsabs=0, epsrel=1e-12, limit=200)[0] for a, b in zip(edges[:-1], edges[1:])]
+    expected = [quad(p_out, a, b, epsabs=0, epsrel=1e-12, limit=200)[0] for a, b in zip(edges[:-1], edges[1:], strict=True)]
     assert sol.pulse.energy_out_J == pytest.approx(np.array(expected), rel=1e-9)
     assert sol.pulse.energy_out_J[0] > 5 * sol.pulse.energy_out_J[-1]      # the leading edge takes the gain
 

@@ -113,5 +113,5 @@ def test_distributed_loss_second_order_splitting():
     # Symmetric splitting (half loss, gain, half loss) is second order: doubling the slices divides
     # the error by ~4 (first order would give ~2; the ODE reference is 1e-10, far below the errors).
     errors = [_distributed_loss_error(n) for n in (4, 8, 16)]
-    for coarse, fine in zip(errors, errors[1:]):
+    for coarse, fine in zip(errors[:-1], errors[1:], strict=True):
         assert 3.6 < coarse / fine < 4.4, errors

@@ -1,4 +1,4 @@
-"""Config of fibre media and fibre layouts (SPEC section 6): SI values, defaults, the checks across keys."""
+"""Config of fibre media and fibre layouts: SI values, defaults, the checks across keys."""
 from __future__ import annotations
 
 import math

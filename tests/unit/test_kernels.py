@@ -99,7 +99,7 @@ def test_finite_on_extreme_grid():
     assert np.all(out >= 0.0)
     # against the high-precision evaluation of the closed form, to the round-off bound of the
     # log-domain form (at most ~2e-13 relative, at the corners x = 1e4 or |ln G| = 69)
-    for xi, gi, yi in zip(x.ravel(), ln_g.ravel(), out.ravel()):
+    for xi, gi, yi in zip(x.ravel(), ln_g.ravel(), out.ravel(), strict=True):
         exact = _fn_decimal(xi, gi)
         assert abs(yi - exact) <= _roundoff(xi, gi, exact), (xi, gi, yi, exact)
 
@@ -207,8 +207,8 @@ def test_log_mean():
     a = 10 ** rng.uniform(-5, 5, 200)
     b = a * 10 ** rng.uniform(-3, 3, 200)
     lm = log_mean(a, b)
-    for ai, bi, li in zip(a, b, lm):
-        ref = quad(lambda s: ai * (bi / ai) ** s, 0.0, 1.0, epsabs=0.0, epsrel=1e-13)[0]
+    for ai, bi, li in zip(a, b, lm, strict=True):
+        ref = quad(lambda s, ai=ai, bi=bi: ai * (bi / ai) ** s, 0.0, 1.0, epsabs=0.0, epsrel=1e-13)[0]
         assert li == pytest.approx(ref, rel=1e-12)
     np.testing.assert_allclose(log_mean(b, a), lm, rtol=1e-14)         # symmetric
     # equal and nearly equal values: the arithmetic mean, continuous across the switch-over
