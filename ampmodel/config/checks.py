@@ -169,6 +169,83 @@ def _looks_like_expression(s: str) -> bool:
             and re.search(r"[\d)]\s*[*/+\-^%]+\s*[\d(.]", s) is not None)
 
 
+def _check_floats(value: Any, key: Key, want: str) -> tuple[Any, str | None]:
+    """Check a "floats" value: an array of finite numbers within the bounds, ``key.size`` of them when given."""
+    numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                              for v in value)
+    if not numbers:
+        return None, f"must be {want}, not {type_name(value)}"
+    if key.size is not None and len(value) != key.size:
+        return None, f"must be {want}, not {len(value)}"
+    if not all(math.isfinite(v) for v in value):
+        return None, f"must be {want}; nan and inf are not allowed"
+    if not all(_in_range(float(v), key) for v in value):
+        return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+    return [float(v) for v in value], None
+
+
+def _check_number(value: Any, key: Key, want: str) -> tuple[Any, str | None]:
+    """Check a "float" or "int" value: its type (a hint for a quoted number or an expression) and range."""
+    kind = key.kind
+    if isinstance(value, bool):
+        return None, f"must be {want}, not a boolean (true/false)"
+    if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
+        return None, f"must be {want}: write {int(value)}, without a decimal point"
+    ok_types = (int,) if kind == "int" else (int, float)
+    if not isinstance(value, ok_types):
+        hint = ""
+        if isinstance(value, str) and _looks_numeric(value):
+            hint = "; write the number without quotes"
+        elif isinstance(value, str) and _looks_like_expression(value):
+            hint = "; a config is data: expressions are not evaluated, write the number itself"
+        return None, f"must be {want}, not {type_name(value)}{hint}"
+    if kind == "float":
+        value = float(value)
+        if not math.isfinite(value):
+            return None, f"must be {want}; nan and inf are not allowed"
+    if not _in_range(value, key):
+        return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+    return value, None
+
+
+def _check_bounds(value: Any, want: str) -> tuple[Any, str | None]:
+    """Check a "bounds" value: two finite numbers, the lower first; returns them as floats."""
+    if not isinstance(value, list) or len(value) != 2:
+        return None, f"must be {want}, not {type_name(value)}" + (
+            f" of {len(value)} values" if isinstance(value, list) else "")
+    if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
+        return None, f"must be {want}; both bounds must be numbers"
+    value = [float(v) for v in value]
+    if not all(math.isfinite(v) for v in value):
+        return None, f"must be {want}; nan and inf are not allowed"
+    if not value[0] < value[1]:
+        return None, f"must be {want}: the lower bound comes first and must be below the upper"
+    return value, None
+
+
+def _type_problem(value: Any, key: Key, want: str) -> str | None:
+    """The problem with a value of a "bool", "str", "table", "material" or "ref" key, or None."""
+    kind = key.kind
+    if kind == "bool":
+        if not isinstance(value, bool):
+            return f"must be true or false, not {type_name(value)}"
+    elif kind == "str":
+        if not isinstance(value, str):
+            return f"must be {want}, not {type_name(value)}"
+        if key.choices and value not in key.choices:
+            return f"must be {want}{did_you_mean(value, key.choices)}"
+    elif kind == "table":
+        if not isinstance(value, dict):
+            return f"must be a table, not {type_name(value)}"
+    elif kind == "material":
+        if not isinstance(value, (str, dict)):
+            return f"must be {want}, not {type_name(value)}"
+    elif kind == "ref":
+        if isinstance(value, bool) or not isinstance(value, (str, int)):
+            return f"must be {want}, not {type_name(value)}"
+    return None
+
+
 def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
     """Check the type and range of one value.
 
@@ -190,65 +267,15 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
         return None, msg
     want = expected(key)
     if kind == "floats":
-        numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
-                                                  for v in value)
-        if not numbers:
-            return None, f"must be {want}, not {type_name(value)}"
-        if key.size is not None and len(value) != key.size:
-            return None, f"must be {want}, not {len(value)}"
-        if not all(math.isfinite(v) for v in value):
-            return None, f"must be {want}; nan and inf are not allowed"
-        if not all(_in_range(float(v), key) for v in value):
-            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
-        return [float(v) for v in value], None
+        return _check_floats(value, key, want)
     if kind in ("float", "int"):
-        if isinstance(value, bool):
-            return None, f"must be {want}, not a boolean (true/false)"
-        if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
-            return None, f"must be {want}: write {int(value)}, without a decimal point"
-        ok_types = (int,) if kind == "int" else (int, float)
-        if not isinstance(value, ok_types):
-            hint = ""
-            if isinstance(value, str) and _looks_numeric(value):
-                hint = "; write the number without quotes"
-            elif isinstance(value, str) and _looks_like_expression(value):
-                hint = "; a config is data: expressions are not evaluated, write the number itself"
-            return None, f"must be {want}, not {type_name(value)}{hint}"
-        if kind == "float":
-            value = float(value)
-            if not math.isfinite(value):
-                return None, f"must be {want}; nan and inf are not allowed"
-        if not _in_range(value, key):
-            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
-        return value, None
-    if kind == "bool":
-        if not isinstance(value, bool):
-            return None, f"must be true or false, not {type_name(value)}"
-    elif kind == "str":
-        if not isinstance(value, str):
-            return None, f"must be {want}, not {type_name(value)}"
-        if key.choices and value not in key.choices:
-            return None, f"must be {want}{did_you_mean(value, key.choices)}"
-    elif kind == "table":
-        if not isinstance(value, dict):
-            return None, f"must be a table, not {type_name(value)}"
-    elif kind == "material":
-        if not isinstance(value, (str, dict)):
-            return None, f"must be {want}, not {type_name(value)}"
-    elif kind == "ref":
-        if isinstance(value, bool) or not isinstance(value, (str, int)):
-            return None, f"must be {want}, not {type_name(value)}"
-    elif kind == "bounds":
-        if not isinstance(value, list) or len(value) != 2:
-            return None, f"must be {want}, not {type_name(value)}" + (
-                f" of {len(value)} values" if isinstance(value, list) else "")
-        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
-            return None, f"must be {want}; both bounds must be numbers"
-        value = [float(v) for v in value]
-        if not all(math.isfinite(v) for v in value):
-            return None, f"must be {want}; nan and inf are not allowed"
-        if not value[0] < value[1]:
-            return None, f"must be {want}: the lower bound comes first and must be below the upper"
+        return _check_number(value, key, want)
+    if kind == "bounds":
+        value, problem = _check_bounds(value, want)
+    else:
+        problem = _type_problem(value, key, want)
+    if problem:
+        return None, problem
     msg = _unavailable(value, key)
     return (None, msg) if msg else (value, None)
 
