@@ -11,7 +11,7 @@ import difflib
 import json
 import math
 import re
-from typing import Any, Iterable, Mapping, Sequence
+from typing import Any, Callable, Iterable, Mapping, Sequence
 
 from ampmodel.config.keys import ANY, Key
 
@@ -329,6 +329,26 @@ class Problems:
 
     def __len__(self) -> int:
         return len(self.lines)
+
+
+KeysProblem = tuple | Callable[[list[str]], tuple] | None
+"""A problem of :func:`given_keys`: ``(path, message)`` or ``(path, message, value)`` as
+:meth:`Problems.add` takes them, or a function of the given keys that returns one; None: allowed."""
+
+
+def given_keys(p: Problems, table: Mapping[str, Any], keys: Iterable[str], *, none: KeysProblem = None,
+               one: KeysProblem = None, several: KeysProblem = None) -> list[str]:
+    """The keys of ``keys`` that ``table`` gives (in the order of ``keys``), with a problem when their
+    number is not allowed: ``none`` when none is given, ``one`` when one is, ``several`` when more are.
+
+    Exactly one of the keys: ``none`` and ``several``; at most one: ``several``; a pair given together
+    or not at all: ``one``.
+    """
+    given = [k for k in keys if k in table]
+    problem = (none, one, several)[min(len(given), 2)]
+    if problem is not None:
+        p.add(*(problem(given) if callable(problem) else problem))
+    return given
 
 
 def join_path(path: str, key: Any) -> str:

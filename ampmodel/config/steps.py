@@ -16,6 +16,7 @@ from ampmodel.config.checks import (
     check_value,
     did_you_mean,
     expected,
+    given_keys,
     join_path,
     quoted_list,
 )
@@ -36,6 +37,18 @@ def check_steps(p: Problems, raw: dict, names: list[str], mode: str | None = "pu
     if len(steps) < len(items) or any(s is None for s in steps):
         return None
     return steps
+
+
+DAMAGE_PAIR = ("damage_fluence_J_cm2", "damage_pulse_ns")
+
+
+def _half_damage_pair(path: str):
+    """The problem of a step that gives one of its damage fluence and pulse length without the other."""
+    def problem(given: list[str]) -> tuple[str, str]:
+        missing = "damage_pulse_ns" if given[0] == "damage_fluence_J_cm2" else "damage_fluence_J_cm2"
+        return join_path(path, missing), (f"missing: {given[0]} is given; give both damage_fluence_J_cm2 and "
+                                          "damage_pulse_ns (the pulse length the fluence was quoted at), or neither")
+    return problem
 
 
 def _wrong_kind_message(kind: str, schema: Mapping[str, Key]):
@@ -117,11 +130,8 @@ def _step(p: Problems, i: int, item: dict, names: list[str], mode: str | None = 
         fields.update(config_timing.repeat(p, i, item, v, path, names, mode, _step))
     config_cw.step_keys(p, item, path, mode)
     fields.update(config_cw.cw_fields(v))
-    damage = [k for k in ("damage_fluence_J_cm2", "damage_pulse_ns") if k in item]
-    if len(damage) == 1 and config_cw.damage_pair_needed(mode):
-        missing = "damage_pulse_ns" if damage[0] == "damage_fluence_J_cm2" else "damage_fluence_J_cm2"
-        p.add(join_path(path, missing), f"missing: {damage[0]} is given; give both damage_fluence_J_cm2 and "
-                                        "damage_pulse_ns (the pulse length the fluence was quoted at), or neither")
+    half_pair = _half_damage_pair(path) if config_cw.damage_pair_needed(mode) else None
+    damage = given_keys(p, item, DAMAGE_PAIR, one=half_pair)
     for key in damage:
         if key in v:
             fields[si_name(key)] = to_si(key, v[key])
