@@ -35,6 +35,7 @@ from ampmodel.config.checks import ConfigError, PathError, check_value, close_ma
 from ampmodel.config.load import load_config
 from ampmodel.config.schema import leaf_schema, walk
 from ampmodel.description import Config
+from ampmodel.output.summary import is_number
 
 RTOL = 1e-10
 XTOL_RELATIVE = 1e-12
@@ -200,8 +201,8 @@ class _Runs:
 
     def figure_of(self, s: Mapping[str, Any], figure: str, option: str = "--target") -> float:
         value = s.get(figure)
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            figures = [k for k, v in s.items() if isinstance(v, (int, float)) and not isinstance(v, bool)]
+        if not is_number(value):
+            figures = [k for k, v in s.items() if is_number(v)]
             hits = close_matches(figure, figures)
             hint = f"; did you mean {quoted_list(hits)}?" if hits else ""
             raise ConfigError([f"{self.config.source}: {option} {figure}: not a figure of summary.json{hint} (figures: "
