@@ -338,11 +338,11 @@ KeysProblem = tuple | Callable[[list[str]], tuple] | None
 
 def given_keys(p: Problems, table: Mapping[str, Any], keys: Iterable[str], *, none: KeysProblem = None,
                one: KeysProblem = None, several: KeysProblem = None) -> list[str]:
-    """The keys of ``keys`` that ``table`` gives (in the order of ``keys``), with a problem when their
-    number is not allowed: ``none`` when none is given, ``one`` when one is, ``several`` when more are.
+    """The keys of ``keys`` that ``table`` gives, in that order; a problem when their number is not allowed.
 
-    Exactly one of the keys: ``none`` and ``several``; at most one: ``several``; a pair given together
-    or not at all: ``one``.
+    ``none``, ``one``, ``several``: the problem (a ``KeysProblem``) when none, one or more than one of
+    the keys is given. Exactly one of the keys: ``none`` and ``several``; at most one: ``several``; a
+    pair given together or not at all: ``one``.
     """
     given = [k for k in keys if k in table]
     problem = (none, one, several)[min(len(given), 2)]

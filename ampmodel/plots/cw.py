@@ -119,8 +119,7 @@ def _plot_axis_gain(ax1, g0_axis: np.ndarray, g1_axis: np.ndarray, dz_mm: float)
 
 
 def _plot_pass_intensities(ax2, result: Result, passes: list) -> list:
-    """Draw the on-axis intensity (W/m², shown in W/cm² or kW/cm²) of each pass along z with its direction;
-    return the lines for the legend."""
+    """Draw each pass's on-axis intensity (W/m², in W/cm² or kW/cm²) along z; return the lines for the legend."""
     steps = {s.index: s for s in getattr(result.config, "steps", ())}
     peak = max([finite_max(r.axis_intensity_W_m2) for r in passes if r.axis_intensity_W_m2 is not None] + [0.0]) / 1e4
     factor, unit = _intensity_unit(peak)
@@ -143,8 +142,7 @@ def _plot_pass_intensities(ax2, result: Result, passes: list) -> list:
 
 
 def _plot_pump_along_z(ax2, result: Result, name: str, pixel: tuple[int, int], nz: int, dz_mm: float):
-    """Draw an end pump's intensity (W/m², shown in kW/cm²) at ``pixel`` (y, x) along the ``nz`` slices on a
-    right axis; return its line, or None (no pump, or a side pump)."""
+    """Draw an end pump's intensity (W/m², in kW/cm²) at ``pixel`` (y, x) along z; its line, or None if none."""
     med = result.media[name]
     try:
         pump_cfg = result.config.medium(name).pump

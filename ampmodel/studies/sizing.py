@@ -316,8 +316,7 @@ def _checked_search(base: Config, vary: str, within: tuple[float, float], limits
 
 def _crossing(runs: _Runs, goal: float, low: float, high: float, xtol: float,
               rtol: float) -> tuple[float | None, float, float]:
-    """Where the target figure equals ``goal`` in [low, high] (an end, or brentq between them), None when
-    it is on one side of ``goal`` at both ends; and the figure minus ``goal`` at both ends."""
+    """Where the figure meets ``goal`` in [low, high] (None: not bracketed); the figure minus ``goal`` at the ends."""
     from scipy.optimize import brentq
 
     def f(x: float) -> float:
@@ -343,8 +342,7 @@ def _unreachable_message(figure: str, goal: float, vary: str, within: tuple[floa
 
 def _first_limit(runs: _Runs, crossed: Sequence[Limit], x: float, within: tuple[float, float], f_low: float,
                  xtol: float, rtol: float) -> tuple[tuple[float, Limit] | None, list[str]]:
-    """The crossed limit met first on the way to the answer ``x`` and where it is met (brentq), or None
-    when every one is crossed over the whole range; and those reasons."""
+    """The crossed limit met first on the way to ``x`` and where (None: all crossed over the range); the reasons."""
     from scipy.optimize import brentq
     low, high = within
     first: tuple[float, Limit] | None = None

@@ -222,8 +222,7 @@ def remove_stale_parts(out: Path) -> int:
 
 
 def reset_folder(out: Path, table_stem: str, derived: Sequence[str]) -> None:
-    """Remove what an earlier start left that this one writes again (the caller holds the folder's
-    lock): temporary files, the table and the files derived from it."""
+    """Remove the temporary files, the table and the files derived from it (the caller holds the lock)."""
     remove_stale_parts(out)
     # the table and what is derived from it are written again at the end: until then no
     # earlier table may stand for this start's points
@@ -266,8 +265,7 @@ def point_matches(found: dict | None, hash_: str, values: Mapping[str, Any]) -> 
 
 
 def found_points(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> tuple[list[dict | None], list[int]]:
-    """The summaries of the points done in ``out`` (None for the others) and the indices of the points to
-    compute; a point file that is partial or made for other values is removed."""
+    """The summaries of the points done (None for others) and the points to compute; stale point files removed."""
     summaries: list[dict | None] = [None] * len(values)
     todo: list[int] = []
     for i, v in enumerate(values):
@@ -284,8 +282,7 @@ def found_points(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> 
 
 def collect_late_points(out: Path, todo: Sequence[int], values: Sequence[Mapping[str, Any]], hash_: str,
                         summaries: list, failed: Mapping[int, str]) -> None:
-    """Fill ``summaries`` with the points of ``todo`` whose files are done but not yet counted (neither
-    in ``summaries`` nor in ``failed``)."""
+    """Add to ``summaries`` the points of ``todo`` whose files are done but were neither reported nor failed."""
     for i in todo:
         if summaries[i] is None and i not in failed:
             found = read_point(point_path(out, i))

@@ -231,8 +231,7 @@ def _point_tasks(kind: str, base: Config, raws: list[dict], texts: list[str], va
 
 @contextmanager
 def _folder_errors(out: Path, kind: str, total: int, previous: dict | None, created: bool) -> Iterator[None]:
-    """The errors of a start in its folder: a new folder the dask cluster never wrote into is removed
-    (BackendError); a write error becomes an OutputError that says how far the start got."""
+    """On a BackendError, remove a new folder the cluster never wrote into; make a write error an OutputError."""
     try:
         yield
     except BackendError:
