@@ -1,7 +1,7 @@
-"""What every config check shares: :class:`Key` (type, range, default and meaning of one key),
-:class:`Problems` (the collected problem lines), :func:`show` (a value as it reads in TOML),
-:func:`did_you_mean`, :func:`check_value` (type and range of one value) and :func:`check_table` (one
-table against its schema). The tables themselves are in ``config_schema.py``.
+"""What every config check shares: :class:`Problems` (the collected problem lines), :func:`show` (a
+value as it reads in TOML), :func:`did_you_mean`, :func:`check_value` (type and range of one value)
+and :func:`check_table` (one table against its schema). What a key is (:class:`Key`) is in
+``keys.py``; the tables themselves are in ``schema.py``.
 """
 from __future__ import annotations
 
@@ -11,93 +11,13 @@ import difflib
 import json
 import math
 import re
-from dataclasses import dataclass
-from typing import Any, Iterable, Mapping, Sequence
+from typing import Any, Callable, Iterable, Mapping, Sequence
+
+from ampmodel.config.keys import ANY, Key
 
 PLAUSIBLE_NOTE = "; a plausible range: a value outside it is usually a slip of unit"
-ANY = object()
-"""Marks an ``unavailable`` entry that applies whatever the value is."""
 NO_VALUE = object()
 """Marks a problem that has no value to show (a missing key)."""
-
-
-@dataclass(frozen=True)
-class Key:
-    """One config key.
-
-    Parameters
-    ----------
-    kind : str
-        "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
-        "material" (a built-in name or a table), "ref" (a medium name or index), "floats" (an array
-        of numbers, each within the bounds; ``size`` entries when given) or "bounds" (an array of two
-        numbers, lower < upper).
-    meaning : str
-        What the key means, in a few words (used in the problem messages).
-    required : bool
-        The key must be given (where the table itself is given).
-    default : object
-        The value used when the key is absent (config units); None: no default.
-    gt, ge, lt, le : float or None
-        Bounds (config units): greater than, greater or equal, less than, less or equal.
-    nonzero : bool
-        Zero is not allowed (any sign otherwise).
-    zero_ok : bool
-        Zero is allowed besides the range ``ge .. le``.
-    choices : tuple of str
-        For strings: the allowed values.
-    unavailable : tuple of (value, message)
-        Values that are valid names but not available in this version (``ANY``: every value).
-    plausible : bool
-        The bounds are a plausible range of a physical quantity rather than a definition (a value
-        outside it is almost always a slip of unit): the message says so.
-    """
-
-    kind: str
-    meaning: str = ""
-    required: bool = False
-    default: Any = None
-    gt: float | None = None
-    ge: float | None = None
-    lt: float | None = None
-    le: float | None = None
-    nonzero: bool = False
-    zero_ok: bool = False
-    choices: tuple[str, ...] = ()
-    unavailable: tuple[tuple[Any, str], ...] = ()
-    size: int | None = None
-    plausible: bool = False
-
-
-def number(meaning: str, **bounds: Any) -> Key:
-    """A float key (ints accepted); ``bounds`` are the other :class:`Key` fields."""
-    return Key("float", meaning, **bounds)
-
-
-def quantity(meaning: str, **bounds: Any) -> Key:
-    """A physical quantity: a float key whose bounds are its plausible range (README, "Plausible
-    ranges"; common practice, wide enough for any laboratory or facility amplifier)."""
-    return Key("float", meaning, plausible=True, **bounds)
-
-
-def integer(meaning: str, low: int, high: int, **more: Any) -> Key:
-    """An integer key in ``low .. high``."""
-    return Key("int", meaning, ge=low, le=high, **more)
-
-
-def choice(meaning: str, choices: tuple[str, ...], **more: Any) -> Key:
-    """A string key that takes one of ``choices``."""
-    return Key("str", meaning, choices=choices, **more)
-
-
-def flag(meaning: str, **more: Any) -> Key:
-    """A boolean key."""
-    return Key("bool", meaning, **more)
-
-
-def text(meaning: str, **more: Any) -> Key:
-    """A free string key."""
-    return Key("str", meaning, **more)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -249,6 +169,83 @@ def _looks_like_expression(s: str) -> bool:
             and re.search(r"[\d)]\s*[*/+\-^%]+\s*[\d(.]", s) is not None)
 
 
+def _check_floats(value: Any, key: Key, want: str) -> tuple[Any, str | None]:
+    """Check a "floats" value: an array of finite numbers within the bounds, ``key.size`` of them when given."""
+    numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                              for v in value)
+    if not numbers:
+        return None, f"must be {want}, not {type_name(value)}"
+    if key.size is not None and len(value) != key.size:
+        return None, f"must be {want}, not {len(value)}"
+    if not all(math.isfinite(v) for v in value):
+        return None, f"must be {want}; nan and inf are not allowed"
+    if not all(_in_range(float(v), key) for v in value):
+        return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+    return [float(v) for v in value], None
+
+
+def _check_number(value: Any, key: Key, want: str) -> tuple[Any, str | None]:
+    """Check a "float" or "int" value: its type (a hint for a quoted number or an expression) and range."""
+    kind = key.kind
+    if isinstance(value, bool):
+        return None, f"must be {want}, not a boolean (true/false)"
+    if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
+        return None, f"must be {want}: write {int(value)}, without a decimal point"
+    ok_types = (int,) if kind == "int" else (int, float)
+    if not isinstance(value, ok_types):
+        hint = ""
+        if isinstance(value, str) and _looks_numeric(value):
+            hint = "; write the number without quotes"
+        elif isinstance(value, str) and _looks_like_expression(value):
+            hint = "; a config is data: expressions are not evaluated, write the number itself"
+        return None, f"must be {want}, not {type_name(value)}{hint}"
+    if kind == "float":
+        value = float(value)
+        if not math.isfinite(value):
+            return None, f"must be {want}; nan and inf are not allowed"
+    if not _in_range(value, key):
+        return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
+    return value, None
+
+
+def _check_bounds(value: Any, want: str) -> tuple[Any, str | None]:
+    """Check a "bounds" value: two finite numbers, the lower first; returns them as floats."""
+    if not isinstance(value, list) or len(value) != 2:
+        return None, f"must be {want}, not {type_name(value)}" + (
+            f" of {len(value)} values" if isinstance(value, list) else "")
+    if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
+        return None, f"must be {want}; both bounds must be numbers"
+    value = [float(v) for v in value]
+    if not all(math.isfinite(v) for v in value):
+        return None, f"must be {want}; nan and inf are not allowed"
+    if not value[0] < value[1]:
+        return None, f"must be {want}: the lower bound comes first and must be below the upper"
+    return value, None
+
+
+def _type_problem(value: Any, key: Key, want: str) -> str | None:
+    """The problem with a value of a "bool", "str", "table", "material" or "ref" key, or None."""
+    kind = key.kind
+    if kind == "bool":
+        if not isinstance(value, bool):
+            return f"must be true or false, not {type_name(value)}"
+    elif kind == "str":
+        if not isinstance(value, str):
+            return f"must be {want}, not {type_name(value)}"
+        if key.choices and value not in key.choices:
+            return f"must be {want}{did_you_mean(value, key.choices)}"
+    elif kind == "table":
+        if not isinstance(value, dict):
+            return f"must be a table, not {type_name(value)}"
+    elif kind == "material":
+        if not isinstance(value, (str, dict)):
+            return f"must be {want}, not {type_name(value)}"
+    elif kind == "ref":
+        if isinstance(value, bool) or not isinstance(value, (str, int)):
+            return f"must be {want}, not {type_name(value)}"
+    return None
+
+
 def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
     """Check the type and range of one value.
 
@@ -270,65 +267,15 @@ def check_value(value: Any, key: Key) -> tuple[Any, str | None]:
         return None, msg
     want = expected(key)
     if kind == "floats":
-        numbers = isinstance(value, list) and all(isinstance(v, (int, float)) and not isinstance(v, bool)
-                                                  for v in value)
-        if not numbers:
-            return None, f"must be {want}, not {type_name(value)}"
-        if key.size is not None and len(value) != key.size:
-            return None, f"must be {want}, not {len(value)}"
-        if not all(math.isfinite(v) for v in value):
-            return None, f"must be {want}; nan and inf are not allowed"
-        if not all(_in_range(float(v), key) for v in value):
-            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
-        return [float(v) for v in value], None
+        return _check_floats(value, key, want)
     if kind in ("float", "int"):
-        if isinstance(value, bool):
-            return None, f"must be {want}, not a boolean (true/false)"
-        if kind == "int" and isinstance(value, float) and math.isfinite(value) and value.is_integer():
-            return None, f"must be {want}: write {int(value)}, without a decimal point"
-        ok_types = (int,) if kind == "int" else (int, float)
-        if not isinstance(value, ok_types):
-            hint = ""
-            if isinstance(value, str) and _looks_numeric(value):
-                hint = "; write the number without quotes"
-            elif isinstance(value, str) and _looks_like_expression(value):
-                hint = "; a config is data: expressions are not evaluated, write the number itself"
-            return None, f"must be {want}, not {type_name(value)}{hint}"
-        if kind == "float":
-            value = float(value)
-            if not math.isfinite(value):
-                return None, f"must be {want}; nan and inf are not allowed"
-        if not _in_range(value, key):
-            return None, f"out of range: must be {want} ({key.meaning}{PLAUSIBLE_NOTE if key.plausible else ''})"
-        return value, None
-    if kind == "bool":
-        if not isinstance(value, bool):
-            return None, f"must be true or false, not {type_name(value)}"
-    elif kind == "str":
-        if not isinstance(value, str):
-            return None, f"must be {want}, not {type_name(value)}"
-        if key.choices and value not in key.choices:
-            return None, f"must be {want}{did_you_mean(value, key.choices)}"
-    elif kind == "table":
-        if not isinstance(value, dict):
-            return None, f"must be a table, not {type_name(value)}"
-    elif kind == "material":
-        if not isinstance(value, (str, dict)):
-            return None, f"must be {want}, not {type_name(value)}"
-    elif kind == "ref":
-        if isinstance(value, bool) or not isinstance(value, (str, int)):
-            return None, f"must be {want}, not {type_name(value)}"
-    elif kind == "bounds":
-        if not isinstance(value, list) or len(value) != 2:
-            return None, f"must be {want}, not {type_name(value)}" + (
-                f" of {len(value)} values" if isinstance(value, list) else "")
-        if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value):
-            return None, f"must be {want}; both bounds must be numbers"
-        value = [float(v) for v in value]
-        if not all(math.isfinite(v) for v in value):
-            return None, f"must be {want}; nan and inf are not allowed"
-        if not value[0] < value[1]:
-            return None, f"must be {want}: the lower bound comes first and must be below the upper"
+        return _check_number(value, key, want)
+    if kind == "bounds":
+        value, problem = _check_bounds(value, want)
+    else:
+        problem = _type_problem(value, key, want)
+    if problem:
+        return None, problem
     msg = _unavailable(value, key)
     return (None, msg) if msg else (value, None)
 
@@ -382,6 +329,26 @@ class Problems:
 
     def __len__(self) -> int:
         return len(self.lines)
+
+
+KeysProblem = tuple | Callable[[list[str]], tuple] | None
+"""A problem of :func:`given_keys`: ``(path, message)`` or ``(path, message, value)`` as
+:meth:`Problems.add` takes them, or a function of the given keys that returns one; None: allowed."""
+
+
+def given_keys(p: Problems, table: Mapping[str, Any], keys: Iterable[str], *, none: KeysProblem = None,
+               one: KeysProblem = None, several: KeysProblem = None) -> list[str]:
+    """The keys of ``keys`` that ``table`` gives, in that order; a problem when their number is not allowed.
+
+    ``none``, ``one``, ``several``: the problem (a ``KeysProblem``) when none, one or more than one of
+    the keys is given. Exactly one of the keys: ``none`` and ``several``; at most one: ``several``; a
+    pair given together or not at all: ``one``.
+    """
+    given = [k for k in keys if k in table]
+    problem = (none, one, several)[min(len(given), 2)]
+    if problem is not None:
+        p.add(*(problem(given) if callable(problem) else problem))
+    return given
 
 
 def join_path(path: str, key: Any) -> str:

@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from ampmodel.config import schema as S
-from ampmodel.config.checks import Problems, check_table, expected, join_path
+from ampmodel.config.checks import Problems, check_table, expected, given_keys, join_path
 from ampmodel.description import Solver
 from ampmodel.materials.material import Material
 from ampmodel.units import si_name, to_si
@@ -56,10 +56,9 @@ def pump_keys(p: Problems, table: dict, path: str, mode: str | None, material: M
                         f"'{material.name}' is inhomogeneously broadened; give the medium a small_signal_gain "
                         "instead of [medium.pump], or a material with broadening = \"homogeneous\"")
         return
-    if "energy_J" in table and "power_W" in table:
-        p.add(path, "both energy_J and power_W given: give one (power_W is multiplied by duration_us)")
-    elif "energy_J" not in table and "power_W" not in table:
-        p.add(join_path(path, "energy_J"), "missing: the pump energy energy_J (or power_W), a number > 0")
+    given_keys(p, table, ("energy_J", "power_W"),
+               none=(join_path(path, "energy_J"), "missing: the pump energy energy_J (or power_W), a number > 0"),
+               several=(path, "both energy_J and power_W given: give one (power_W is multiplied by duration_us)"))
     if "duration_us" not in table:
         p.add(join_path(path, "duration_us"), f"missing: {S.PUMP['duration_us'].meaning}, "
                                               f"{expected(S.PUMP['duration_us'])}; or continuous = true "

@@ -13,7 +13,7 @@ from __future__ import annotations
 import dataclasses
 
 from ampmodel.config import schema as S
-from ampmodel.config.checks import Problems, allowed_keys, check_table, did_you_mean, join_path, quoted_list
+from ampmodel.config.checks import Problems, allowed_keys, check_table, did_you_mean, given_keys, join_path, quoted_list
 from ampmodel.config.schema import FIBRE_MEDIUM, FIBRE_PUMP
 from ampmodel.description import Fibre, FibrePump, Grid, Medium, Seed, Step
 from ampmodel.kernels import fibre_modes as fm
@@ -51,9 +51,9 @@ def fibre_medium(p: Problems, item: dict, path: str, name: str, material: Materi
     """One fibre medium: its keys, the material it needs, its pump."""
     before = len(p)
     v = check_table(p, item, path, FIBRE_MEDIUM, skip=("material",), unknown=_unknown)
-    if ("core_na" in item) == ("mode_field_diameter_um" in item):
-        p.add(path, "give exactly one of core_na (the mode field from Marcuse's formula) and "
-                    "mode_field_diameter_um")
+    mode_field = (path, "give exactly one of core_na (the mode field from Marcuse's formula) and "
+                        "mode_field_diameter_um")
+    given_keys(p, item, ("core_na", "mode_field_diameter_um"), none=mode_field, several=mode_field)
     core, clad = v.get("core_diameter_um"), v.get("cladding_diameter_um")
     if core is not None and clad is not None and clad <= core:
         p.add(join_path(path, "cladding_diameter_um"), f"must be larger than the core diameter ({core:g} um)", clad)
@@ -196,11 +196,9 @@ def check_seed(p: Problems, table: dict, fibre_layout: bool, mode: str | None) -
             if key in table:
                 p.add(join_path("seed", key), "a fibre's mode carries the signal: remove the transverse keys "
                                               f"({', '.join(SEED_TRANSVERSE)})", table[key])
-    rates = [k for k in ("repetition_rate_Hz", "repetition_rate_kHz") if k in table]
-    if len(rates) > 1:
-        p.add("seed", "both repetition_rate_Hz and repetition_rate_kHz given: give one")
-        return None
-    if not rates:
+    rates = given_keys(p, table, ("repetition_rate_Hz", "repetition_rate_kHz"),
+                       several=("seed", "both repetition_rate_Hz and repetition_rate_kHz given: give one"))
+    if len(rates) != 1:
         return None
     key = rates[0]
     if mode == "cw":

@@ -30,6 +30,7 @@ from ampmodel.config.checks import (
     Problems,
     check_table,
     expected,
+    given_keys,
     join_path,
     type_name,
 )
@@ -214,7 +215,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     if not fibre_layout and "diameter_mm" not in table:
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
     rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
-    durations = [k for k in S.DURATION_KEYS if k in table]
+    durations: list[str] = []          # the pulsed seed's duration key, checked below
     if mode == "pulsed":
         for key in S.CW_SEED_KEYS:
             if key in table:
@@ -223,12 +224,11 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         if "energy_J" not in table:
             p.add("seed.energy_J", f"missing: the pulse energy, {expected(S.SEED['energy_J'])} "
                                    '(required when mode = "pulsed")')
-        if len(durations) > 1:
-            p.add("seed", f"several durations ({', '.join(durations)}): give exactly one of "
-                          f"{', '.join(S.DURATION_KEYS)}")
-        elif not durations:
-            p.add("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or duration_ps, "
-                                      "duration_fs, duration_us")
+        durations = given_keys(p, table, S.DURATION_KEYS,
+                               none=("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or "
+                                                         "duration_ps, duration_fs, duration_us"),
+                               several=lambda given: ("seed", f"several durations ({', '.join(given)}): give exactly "
+                                                              f"one of {', '.join(S.DURATION_KEYS)}"))
     elif mode == "cw":
         for key in S.PULSED_SEED_KEYS:
             if key in table:
@@ -236,10 +236,9 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                       table[key])
         if "power_W" not in table:
             p.add("seed.power_W", f"missing: the beam power, {expected(S.SEED['power_W'])}")
-    wavefront = [k for k in S.SEED_WAVEFRONT_KEYS if k in table]
-    if len(wavefront) > 1:
-        p.add("seed", "both waist_mm and curvature_mm given: give one (the waist position fixes the "
-                      "wavefront curvature of a Gaussian seed)")
+    given_keys(p, table, S.SEED_WAVEFRONT_KEYS,
+               several=("seed", "both waist_mm and curvature_mm given: give one (the waist position fixes the "
+                                "wavefront curvature of a Gaussian seed)"))
     wavelength_nm = v.get("wavelength_nm")
     if "wavelength_nm" not in table and media is not None:
         wavelength_nm = media[0].material.wavelength_m / 1e-9

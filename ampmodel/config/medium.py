@@ -12,7 +12,7 @@ from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
 from ampmodel.config import files as config_files
 from ampmodel.config import schema as S
-from ampmodel.config.checks import Problems, check_table, expected, join_path, quoted_list, type_name
+from ampmodel.config.checks import Problems, check_table, expected, given_keys, join_path, quoted_list, type_name
 from ampmodel.config.schema import array_of_tables, item_names
 from ampmodel.description import Medium, Pump
 from ampmodel.materials.material import (
@@ -67,20 +67,17 @@ def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "p
         return config_fibre.fibre_medium(p, item, path, name, _material(p, item, path, name))
     v = check_table(p, item, path, S.MEDIUM, skip=("material",))
     material = _material(p, item, path, name)
-    if "diameter_mm" in item and "width_mm" in item:
-        p.add(path, "both diameter_mm and width_mm given: give diameter_mm (round aperture) "
-                    "or width_mm (square aperture), not both")
-    elif "diameter_mm" not in item and "width_mm" not in item:
-        p.add(join_path(path, "diameter_mm"), "missing: the clear aperture, diameter_mm (round) "
-                                              "or width_mm (square), a number > 0")
+    given_keys(p, item, ("diameter_mm", "width_mm"),
+               none=(join_path(path, "diameter_mm"), "missing: the clear aperture, diameter_mm (round) "
+                                                     "or width_mm (square), a number > 0"),
+               several=(path, "both diameter_mm and width_mm given: give diameter_mm (round aperture) "
+                              "or width_mm (square aperture), not both"))
     aperture_key = "width_mm" if "width_mm" in item else "diameter_mm"
-    gains = [k for k in S.GAIN_KEYS if k in item]
-    if len(gains) > 1:
-        p.add(path, f"two gain specifications ({', '.join(S.GAIN_NAMES[g] for g in gains)}): "
-                    "give exactly one of small_signal_gain, stored_energy_J, [medium.pump]")
-    elif not gains:
-        p.add(path, "no gain specification: give exactly one of small_signal_gain, stored_energy_J, "
-                    "[medium.pump]")
+    given_keys(p, item, S.GAIN_KEYS,
+               none=(path, "no gain specification: give exactly one of small_signal_gain, stored_energy_J, "
+                           "[medium.pump]"),
+               several=lambda gains: (path, f"two gain specifications ({', '.join(S.GAIN_NAMES[g] for g in gains)}): "
+                                            "give exactly one of small_signal_gain, stored_energy_J, [medium.pump]"))
     pump = None
     if isinstance(item.get("pump"), dict):
         doping = item.get("doping_per_m3") if isinstance(item.get("doping_per_m3"), (int, float)) else None

@@ -1,31 +1,19 @@
 """The run-config schema as data: for every table, its keys with type, range, default and meaning.
 
 ``load.py``, ``medium.py`` and ``steps.py`` walk a config against these tables. Each key is a
-:class:`~ampmodel.config.checks.Key`; the checks that involve several keys at once (exactly one gain
+:class:`~ampmodel.config.keys.Key`; the checks that involve several keys at once (exactly one gain
 specification, keys that depend on the pump geometry or the step kind, ...) live with the tables
-they check. What every check shares (Key, Problems, show, did_you_mean, check_value, check_table) is
-in ``checks.py``; this module adds the arrays of tables and the dotted value paths (:func:`walk`).
+they check. What every check shares (Problems, show, did_you_mean, check_value, check_table) is in
+``checks.py``, Key and its builders in ``keys.py``; this module adds the arrays of tables and the
+dotted value paths (:func:`walk`).
 """
 from __future__ import annotations
 
 import dataclasses
 from typing import Any, Mapping
 
-from ampmodel.config.checks import (
-    Key,
-    PathError,
-    Problems,
-    choice,
-    did_you_mean,
-    flag,
-    integer,
-    join_path,
-    number,
-    quantity,
-    show,
-    text,
-    type_name,
-)
+from ampmodel.config.checks import PathError, Problems, did_you_mean, join_path, show, type_name
+from ampmodel.config.keys import Key, choice, flag, integer, number, quantity, text
 from ampmodel.description import Limits, Solver
 from ampmodel.materials.material import BROADENINGS, MATERIAL_KEYS
 
@@ -317,7 +305,7 @@ def split_path(path: str) -> list[str]:
     if quoted:
         raise PathError(f"unbalanced quote in {path!r}")
     segs = [p if q else p.strip() for p, q in parts]
-    if any(not s for s, (_, q) in zip(segs, parts) if not q):
+    if any(not s for s, (_, q) in zip(segs, parts, strict=True) if not q):
         raise PathError(f"empty part in {path!r}; write the path like medium.rod.length_mm")
     return segs
 

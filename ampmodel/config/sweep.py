@@ -20,6 +20,7 @@ from ampmodel.config.checks import (
     close_matches,
     did_you_mean,
     expected,
+    given_keys,
     join_path,
     quoted_list,
 )
@@ -114,15 +115,14 @@ def check_spread(p: Problems, raw: dict) -> None:
         if spec.kind != "float":
             p.add(path, f"only numbers can spread; {leaf} takes {expected(spec)}", entry)
             continue
-        given = [d for d in S.DISTRIBUTIONS if d in entry]
         v = check_table(p, entry, path, S.DISTRIBUTIONS)
-        if len(given) != 1:
-            if not [k for k in entry if k not in S.DISTRIBUTIONS]:   # unknown keys are reported already
-                p.add(path, f"give exactly one distribution, normal (relative standard deviation) or "
-                            f"uniform (bounds), e.g. {S.SPREAD_HINT}", entry)
+        unknown = [k for k in entry if k not in S.DISTRIBUTIONS]     # reported already: no second problem
+        distribution = None if unknown else (path, "give exactly one distribution, normal (relative standard "
+                                                   f"deviation) or uniform (bounds), e.g. {S.SPREAD_HINT}", entry)
+        if len(given_keys(p, entry, S.DISTRIBUTIONS, none=distribution, several=distribution)) != 1:
             continue
         if "uniform" in v:
-            for bound, value in zip(("lower", "upper"), v["uniform"]):
+            for bound, value in zip(("lower", "upper"), v["uniform"], strict=True):
                 _, message = check_value(value, spec)
                 if message:
                     p.add(join_path(path, "uniform"), f"the {bound} bound {value:g} is not an allowed value of "

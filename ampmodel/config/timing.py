@@ -8,7 +8,7 @@ from __future__ import annotations
 from typing import Any, Callable
 
 from ampmodel.config import schema as S
-from ampmodel.config.checks import Problems, join_path, type_name
+from ampmodel.config.checks import Problems, given_keys, join_path, type_name
 from ampmodel.description import Medium, Seed, Step, longest_layout_time_s, passed_media
 from ampmodel.units import to_si
 
@@ -88,12 +88,11 @@ def repeat(p: Problems, i: int, item: dict, v: dict, path: str, names: list[str]
     """A repeat's own keys and its [[step.steps]] (each checked by ``step``, config._step): the fields
     of its Step."""
     fields: dict[str, Any] = {}
-    if "count" in item and "until" in item:
-        p.add(path, 'both count and until given: give count (a fixed number of round trips) or until = "peak" '
-                    "(stop after the round trip of largest energy), not both")
-    elif "count" not in item and "until" not in item:
-        p.add(join_path(path, "count"), 'missing: the number of round trips count, an integer >= 1; or '
-                                        'until = "peak" (with max_count, the safety limit)')
+    given_keys(p, item, ("count", "until"),
+               none=(join_path(path, "count"), 'missing: the number of round trips count, an integer >= 1; or '
+                                               'until = "peak" (with max_count, the safety limit)'),
+               several=(path, 'both count and until given: give count (a fixed number of round trips) or '
+                              'until = "peak" (stop after the round trip of largest energy), not both'))
     if "max_count" in item and "until" not in item:
         p.add(join_path(path, "max_count"), 'applies with until = "peak" only (the safety limit on the round '
                                             "trips); with count, remove it", item["max_count"])

@@ -6,6 +6,7 @@ import sys
 from typing import Any, Sequence
 
 from ampmodel.config.checks import show
+from ampmodel.output.summary import is_number, scalar_keys
 
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
 TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
@@ -17,7 +18,7 @@ QUIET_FIGURES = ("energy_balance_error", "power_balance_error", "photon_balance_
 
 
 def _num(v: Any) -> str:
-    if isinstance(v, bool) or not isinstance(v, (int, float)):
+    if not is_number(v):
         return show(v, 16)
     if v != v:
         return "-"
@@ -26,9 +27,9 @@ def _num(v: Any) -> str:
 
 def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
-    print("  ".join(h.rjust(w) for h, w in zip(header, widths)))
+    print("  ".join(h.rjust(w) for h, w in zip(header, widths, strict=True)))
     for r in rows:
-        print("  ".join(c.rjust(w) for c, w in zip(r, widths)))
+        print("  ".join(c.rjust(w) for c, w in zip(r, widths, strict=True)))
 
 
 def _safety() -> None:
@@ -83,7 +84,6 @@ def _head(result, label: str) -> None:
 
 def print_sweep(result, quiet: bool = False) -> int:
     """Print a sweep's outcome: counts, a table of the points (up to 40), warnings, files."""
-    from ampmodel.output.summary import scalar_keys
     print(f"ampmodel sweep: {result.title}")
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:
@@ -93,7 +93,7 @@ def print_sweep(result, quiet: bool = False) -> int:
             keys.remove("peak_intensity_W_cm2")
         rows = [[f"{i:04d}"] + [_num(v[p]) for p in result.paths] +
                 [_num(s.get(k)) if s else "FAILED" for k in keys] + [str(len(s["warnings"])) if s else "-"]
-                for i, (v, s) in enumerate(zip(result.values, result.summaries))]
+                for i, (v, s) in enumerate(zip(result.values, result.summaries, strict=True))]
         _table(["point"] + result.paths + keys + ["warnings"], rows)
     elif not quiet:
         print(f"(the table of {len(result.values)} points is in {result.table_csv})")

@@ -35,6 +35,7 @@ from ampmodel.config.checks import ConfigError, PathError, check_value, close_ma
 from ampmodel.config.load import load_config
 from ampmodel.config.schema import leaf_schema, walk
 from ampmodel.description import Config
+from ampmodel.output.summary import is_number
 
 RTOL = 1e-10
 XTOL_RELATIVE = 1e-12
@@ -154,7 +155,7 @@ def _check_vary(config: Config, vary: str, within: tuple[float, float]) -> None:
     if spec.kind != "float":
         raise ConfigError([f"{src}: --vary {vary}: sizing varies a continuous number; {leaf} is not one"])
     problems = []
-    for end, value in zip(("low", "high"), within):
+    for end, value in zip(("low", "high"), within, strict=True):
         _, message = check_value(value, spec)
         if message:
             problems.append(f"{src}: --within: the {end} end {value:g} is not an allowed value of {leaf}: {message}")
@@ -200,8 +201,8 @@ class _Runs:
 
     def figure_of(self, s: Mapping[str, Any], figure: str, option: str = "--target") -> float:
         value = s.get(figure)
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            figures = [k for k, v in s.items() if isinstance(v, (int, float)) and not isinstance(v, bool)]
+        if not is_number(value):
+            figures = [k for k, v in s.items() if is_number(v)]
             hits = close_matches(figure, figures)
             hint = f"; did you mean {quoted_list(hits)}?" if hits else ""
             raise ConfigError([f"{self.config.source}: {option} {figure}: not a figure of summary.json{hint} (figures: "
@@ -258,43 +259,24 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
     ----------
     R. P. Brent, Algorithms for Minimization without Derivatives (1973); scipy.optimize.brentq.
     """
-    from scipy.optimize import brentq
-
     from ampmodel.studies.sweeps import load
     base = load(config, overrides)
     figure, goal = target
-    low, high = float(within[0]), float(within[1])
-    if not low < high:
-        raise ConfigError([f"{base.source}: --within {low:g},{high:g}: the low end must be below the high end"])
-    limits = [parse_limit(lim) if isinstance(lim, str) else lim for lim in limits]
-    _check_vary(base, vary, (low, high))
-    if not rtol >= 4 * sys.float_info.epsilon:
-        raise ValueError("rtol must be at least 4 x machine epsilon (scipy.optimize.brentq)")
-    xtol = XTOL_RELATIVE * max(abs(low), abs(high)) if xtol is None else float(xtol)
+    (low, high), limits, xtol = _checked_search(base, vary, within, limits, xtol, rtol)
     runs = _Runs(base, vary, figure, report, keep_result)
     if report:
         report(f"sizing {base.source}: {figure} = {goal:g} by {vary} within [{low:g}, {high:g}]")
-
-    def f(x: float) -> float:
-        return runs.figure_of(runs.summary(x), figure) - goal
-
     for lim in limits:                       # a misspelt figure fails now, before the search
         runs.figure_of(runs.summary(low), lim.figure, f"--limit {lim}:")
-    f_low, f_high = f(low), f(high)
+    x, f_low, f_high = _crossing(runs, goal, low, high, xtol, rtol)
     common = dict(vary=vary, target=(figure, goal), within=(low, high), evaluations=runs.evaluations,
                   xtol=xtol, rtol=rtol)
-    if f_low == 0 or f_high == 0 or (f_low < 0) != (f_high < 0):
-        x = low if f_low == 0 else high if f_high == 0 else brentq(f, low, high, xtol=xtol, rtol=rtol)
-    else:
-        side = "above" if f_low > 0 else "below"
-        msg = (f"no solution in range: {figure} is {side} the target {goal:g} at both ends of {vary} = "
-               f"[{low:g}, {high:g}] ({f_low + goal:.6g} and {f_high + goal:.6g}); the target is out of reach "
-               f"there: widen --within, or change another value (if {figure} is not monotonic in {vary}, "
-               f"a narrower range may bracket it)")
+    if x is None:
+        msg = _unreachable_message(figure, goal, vary, (low, high), f_low, f_high)
         return SizingResult(status="unreachable", value=None, summary=None, margins=[], message=msg, **common)
     s = runs.summary(x)
     margins = _margins(runs, s, limits)
-    crossed = [lim for lim, m in zip(limits, margins) if m["margin"] < 0]
+    crossed = [lim for lim, m in zip(limits, margins, strict=True) if m["margin"] < 0]
     if not crossed:
         msg = (f"found: {vary} = {x:.10g} gives {figure} = {runs.figure_of(s, figure):.10g} (target {goal:g}; "
                f"brentq, xtol {xtol:.2g}, rtol {rtol:.2g}, {len(runs.evaluations)} runs)" +
@@ -303,6 +285,66 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
                             result=runs.result_at(x) if keep_result else None, **common)
 
     # A limit is crossed at the answer: find where each crossed limit is met, from the end where it holds.
+    first, reasons = _first_limit(runs, crossed, x, (low, high), f_low, xtol, rtol)
+    if first is None:
+        msg = (f"no solution in range: {figure} reaches {goal:g} at {vary} = {x:.10g}, but "
+               f"{'; '.join(reasons)}")
+        return SizingResult(status="limited", value=None, summary=None, margins=margins, message=msg, **common)
+    x_lim, lim = first
+    s_lim = runs.summary(x_lim)
+    msg = (f"no solution in range: a limit is crossed first. {lim.figure} reaches {lim.value:g} at {vary} = "
+           f"{x_lim:.10g}, where {figure} = {runs.figure_of(s_lim, figure):.6g} (target {goal:g}, reached at "
+           f"{vary} = {x:.6g} with {lim.figure} = {runs.figure_of(s, lim.figure):.6g})")
+    return SizingResult(status="limited", value=x_lim, summary=s_lim, margins=_margins(runs, s_lim, limits),
+                        message=msg, limiting=lim, result=runs.result_at(x_lim) if keep_result else None,
+                        **common)
+
+
+def _checked_search(base: Config, vary: str, within: tuple[float, float], limits: Sequence[Limit | str],
+                    xtol: float | None, rtol: float) -> tuple[tuple[float, float], list[Limit], float]:
+    """The range, the limits and ``xtol`` of a search, checked (ConfigError, ValueError for ``rtol``)."""
+    low, high = float(within[0]), float(within[1])
+    if not low < high:
+        raise ConfigError([f"{base.source}: --within {low:g},{high:g}: the low end must be below the high end"])
+    limits = [parse_limit(lim) if isinstance(lim, str) else lim for lim in limits]
+    _check_vary(base, vary, (low, high))
+    if not rtol >= 4 * sys.float_info.epsilon:
+        raise ValueError("rtol must be at least 4 x machine epsilon (scipy.optimize.brentq)")
+    xtol = XTOL_RELATIVE * max(abs(low), abs(high)) if xtol is None else float(xtol)
+    return (low, high), limits, xtol
+
+
+def _crossing(runs: _Runs, goal: float, low: float, high: float, xtol: float,
+              rtol: float) -> tuple[float | None, float, float]:
+    """Where the figure meets ``goal`` in [low, high] (None: not bracketed); the figure minus ``goal`` at the ends."""
+    from scipy.optimize import brentq
+
+    def f(x: float) -> float:
+        return runs.figure_of(runs.summary(x), runs.figure) - goal
+
+    f_low, f_high = f(low), f(high)
+    if f_low == 0 or f_high == 0 or (f_low < 0) != (f_high < 0):
+        x = low if f_low == 0 else high if f_high == 0 else brentq(f, low, high, xtol=xtol, rtol=rtol)
+        return x, f_low, f_high
+    return None, f_low, f_high
+
+
+def _unreachable_message(figure: str, goal: float, vary: str, within: tuple[float, float], f_low: float,
+                         f_high: float) -> str:
+    """Why there is no answer: the figure minus ``goal`` has one sign at both ends (``f_low``, ``f_high``)."""
+    low, high = within
+    side = "above" if f_low > 0 else "below"
+    return (f"no solution in range: {figure} is {side} the target {goal:g} at both ends of {vary} = "
+            f"[{low:g}, {high:g}] ({f_low + goal:.6g} and {f_high + goal:.6g}); the target is out of reach "
+            f"there: widen --within, or change another value (if {figure} is not monotonic in {vary}, "
+            f"a narrower range may bracket it)")
+
+
+def _first_limit(runs: _Runs, crossed: Sequence[Limit], x: float, within: tuple[float, float], f_low: float,
+                 xtol: float, rtol: float) -> tuple[tuple[float, Limit] | None, list[str]]:
+    """The crossed limit met first on the way to ``x`` and where (None: all crossed over the range); the reasons."""
+    from scipy.optimize import brentq
+    low, high = within
     first: tuple[float, Limit] | None = None
     reasons = []
     for lim in crossed:
@@ -317,15 +359,4 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
         x_lim = brentq(g, min(start, x), max(start, x), xtol=xtol, rtol=rtol)
         if first is None or abs(x_lim - start) < abs(first[0] - start):
             first = (x_lim, lim)
-    if first is None:
-        msg = (f"no solution in range: {figure} reaches {goal:g} at {vary} = {x:.10g}, but "
-               f"{'; '.join(reasons)}")
-        return SizingResult(status="limited", value=None, summary=None, margins=margins, message=msg, **common)
-    x_lim, lim = first
-    s_lim = runs.summary(x_lim)
-    msg = (f"no solution in range: a limit is crossed first. {lim.figure} reaches {lim.value:g} at {vary} = "
-           f"{x_lim:.10g}, where {figure} = {runs.figure_of(s_lim, figure):.6g} (target {goal:g}, reached at "
-           f"{vary} = {x:.6g} with {lim.figure} = {runs.figure_of(s, lim.figure):.6g})")
-    return SizingResult(status="limited", value=x_lim, summary=s_lim, margins=_margins(runs, s_lim, limits),
-                        message=msg, limiting=lim, result=runs.result_at(x_lim) if keep_result else None,
-                        **common)
+    return first, reasons

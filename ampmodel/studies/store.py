@@ -106,7 +106,7 @@ def _differences(old: Any, new: Any, path: str = "", out: list | None = None) ->
             else:
                 _differences(old[k], new[k], sub, out)
     elif isinstance(old, list) and isinstance(new, list) and len(old) == len(new):
-        for i, (a, b) in enumerate(zip(old, new)):
+        for i, (a, b) in enumerate(zip(old, new, strict=True)):
             _differences(a, b, f"{path}[{i}]", out)
     elif old != new:
         out.append(f"{path}: {_show(old)} -> {_show(new)}")
@@ -205,10 +205,29 @@ def undo_new_folder(out: Path, created: bool) -> None:
             pass
 
 
+def make_points_folder(out: Path) -> None:
+    """Create ``out`` and its points/; a write error (full disk, no permission) as an OutputError."""
+    try:
+        (out / POINTS).mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        if atomic.is_write_error(exc):
+            raise atomic.OutputError(atomic.describe_write_error(exc, out), out) from None
+        raise
+
+
 def remove_stale_parts(out: Path) -> int:
     """Delete temporary files left by writers that were killed (the caller holds the folder's lock):
     in the folder, its points/ and its plots/."""
     return atomic.remove_parts(out, out / POINTS, out / PLOTS)
+
+
+def reset_folder(out: Path, table_stem: str, derived: Sequence[str]) -> None:
+    """Remove the temporary files, the table and the files derived from it (the caller holds the lock)."""
+    remove_stale_parts(out)
+    # the table and what is derived from it are written again at the end: until then no
+    # earlier table may stand for this start's points
+    for name in (f"{table_stem}.h5", f"{table_stem}.csv", *derived):
+        (out / name).unlink(missing_ok=True)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -238,6 +257,37 @@ def read_point(path: Path) -> dict | None:
                     "summary": json.loads(f.attrs["summary"])}
     except Exception:   # a truncated or foreign file: h5py raises OSError, KeyError, ValueError, ...
         return None
+
+
+def point_matches(found: dict | None, hash_: str, values: Mapping[str, Any]) -> bool:
+    """Whether a point file (as :func:`read_point` reads it) was made for this config and these values."""
+    return bool(found) and found["config_hash"] == hash_ and found["values"] == values_key(values)
+
+
+def found_points(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> tuple[list[dict | None], list[int]]:
+    """The summaries of the points done (None for others) and the points to compute; stale point files removed."""
+    summaries: list[dict | None] = [None] * len(values)
+    todo: list[int] = []
+    for i, v in enumerate(values):
+        path = point_path(out, i)
+        found = read_point(path) if path.exists() else None
+        if point_matches(found, hash_, v):
+            summaries[i] = found["summary"]
+        else:
+            if path.exists():
+                path.unlink()     # partial, or made for other values: computed again
+            todo.append(i)
+    return summaries, todo
+
+
+def collect_late_points(out: Path, todo: Sequence[int], values: Sequence[Mapping[str, Any]], hash_: str,
+                        summaries: list, failed: Mapping[int, str]) -> None:
+    """Add to ``summaries`` the points of ``todo`` whose files are done but were neither reported nor failed."""
+    for i in todo:
+        if summaries[i] is None and i not in failed:
+            found = read_point(point_path(out, i))
+            if point_matches(found, hash_, values[i]):
+                summaries[i] = found["summary"]
 
 
 # ----------------------------------------------------------------------------------------------

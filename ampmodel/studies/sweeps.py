@@ -15,9 +15,10 @@ import re
 import sys
 import tempfile
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Mapping, Sequence
+from typing import Any, Callable, Iterator, Mapping, Sequence
 
 from ampmodel.config.checks import ConfigError
 from ampmodel.config.files import inline_files
@@ -33,11 +34,6 @@ __all__ = ["run_sweep", "SweepResult", "sweep_points", "run_points", "time_sweep
            "FolderError"]
 FolderError = store.FolderError
 PREFLIGHT_TIMEOUT_S = 60.0
-
-
-# ----------------------------------------------------------------------------------------------
-# Points
-# ----------------------------------------------------------------------------------------------
 
 
 # ----------------------------------------------------------------------------------------------
@@ -166,12 +162,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     written: full disk, no permission), WorkerLost (a worker process died): the points done so far
     are kept, the table lists them, and ``exc.progress`` (a :class:`Progress`) says how far it got.
     """
-    if backend not in BACKENDS:
-        raise ValueError(f"backend must be one of {BACKENDS}, not {backend!r}")
-    if scheduler and backend != "dask":
-        raise ValueError("a scheduler address needs the dask backend")
-    if jobs is not None and jobs < 1:
-        raise ValueError(f"jobs must be 1 or more, not {jobs}")
+    _check_options(backend, jobs, scheduler)
     start = time.perf_counter()
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
@@ -180,69 +171,69 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     hash_ = store.config_hash(hashed)
     notes: list[str] = []
     created = not out.exists()
-    try:
-        (out / store.POINTS).mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        if is_write_error(exc):
-            raise OutputError(describe_write_error(exc, out), out) from None
-        raise
-    try:
-        with store.folder_lock(out):
-            store.remove_stale_parts(out)
-            # the table and what is derived from it are written again at the end: until then no
-            # earlier table may stand for this start's points
-            for name in (f"{table_stem}.h5", f"{table_stem}.csv", *derived):
-                (out / name).unlink(missing_ok=True)
-            store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
-            summaries: list[dict | None] = [None] * len(values)
-            todo: list[int] = []
-            for i, v in enumerate(values):
-                path = store.point_path(out, i)
-                found = store.read_point(path) if path.exists() else None
-                if found and found["config_hash"] == hash_ and found["values"] == store.values_key(v):
-                    summaries[i] = found["summary"]
-                else:
-                    if path.exists():
-                        path.unlink()     # partial, or made for other values: computed again
-                    todo.append(i)
-            pending = set(todo)
-            reused = [i for i in range(len(values)) if i not in pending]
-            # absolute paths: workers on other machines have working directories of their own
-            tasks = [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
-                               store.point_attrs(kind, i, values[i], hash_),
-                               parent_pid=os.getpid() if backend == "loky" else 0) for i in todo]
-            failed: dict[int, str] = {}
-            seconds: dict[int, float] = {}
-            used = 0
-            attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
-                     "paths": json.dumps(paths), **(table_attrs or {})}
+    store.make_points_folder(out)
+    with _folder_errors(out, kind, len(values), previous, created), store.folder_lock(out):
+        store.reset_folder(out, table_stem, derived)
+        store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
+        summaries, todo = store.found_points(out, values, hash_)
+        pending = set(todo)
+        reused = [i for i in range(len(values)) if i not in pending]
+        tasks = _point_tasks(kind, base, raws, texts, values, todo, out, hash_, backend)
+        failed: dict[int, str] = {}
+        seconds: dict[int, float] = {}
+        used = 0
+        attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
+                 "paths": json.dumps(paths), **(table_attrs or {})}
 
-            def table() -> tuple[Path, Path]:
-                done = [s is not None for s in summaries]
-                return store.write_table(out, table_stem, kind, store.table_columns(paths, list(values), summaries),
-                                         done, attrs)
+        def table() -> tuple[Path, Path]:
+            done = [s is not None for s in summaries]
+            return store.write_table(out, table_stem, kind, store.table_columns(paths, list(values), summaries),
+                                     done, attrs)
 
-            if tasks:
-                try:
-                    used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
-                                progress, timeout_s, len(values), len(reused), kind, notes)
-                except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
-                    # points a worker finished while the news was on its way: in the folder, so in the table
-                    for i in todo:
-                        if summaries[i] is None and i not in failed:
-                            found = store.read_point(store.point_path(out, i))
-                            if found and found["config_hash"] == hash_ and found["values"] == store.values_key(values[i]):
-                                summaries[i] = found["summary"]
-                    _stop(exc, table, out, kind, sum(s is not None for s in summaries), len(values))
-                    raise
-            h5, csv = table()
-            result = SweepResult(out=out, kind=kind, title=base.title, paths=list(paths), values=[dict(v) for v in values],
-                                 summaries=summaries, computed=[i for i in todo if i not in failed],
-                                 reused=reused, failed=failed, table_h5=h5, table_csv=csv,
-                                 seconds=time.perf_counter() - start, jobs=used, backend=backend,
-                                 point_seconds=seconds, notes=notes)
-            if finish is not None:
-                finish(result)
+        if tasks:
+            try:
+                used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
+                            progress, timeout_s, len(values), len(reused), kind, notes)
+            except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
+                # points a worker finished while the news was on its way: in the folder, so in the table
+                store.collect_late_points(out, todo, values, hash_, summaries, failed)
+                _stop(exc, table, out, kind, sum(s is not None for s in summaries), len(values))
+                raise
+        h5, csv = table()
+        result = SweepResult(out=out, kind=kind, title=base.title, paths=list(paths), values=[dict(v) for v in values],
+                             summaries=summaries, computed=[i for i in todo if i not in failed],
+                             reused=reused, failed=failed, table_h5=h5, table_csv=csv,
+                             seconds=time.perf_counter() - start, jobs=used, backend=backend,
+                             point_seconds=seconds, notes=notes)
+        if finish is not None:
+            finish(result)
+    return result
+
+
+def _check_options(backend: str, jobs: int | None, scheduler: str | None) -> None:
+    """Refuse a backend, a worker count or a scheduler address that cannot be used (ValueError)."""
+    if backend not in BACKENDS:
+        raise ValueError(f"backend must be one of {BACKENDS}, not {backend!r}")
+    if scheduler and backend != "dask":
+        raise ValueError("a scheduler address needs the dask backend")
+    if jobs is not None and jobs < 1:
+        raise ValueError(f"jobs must be 1 or more, not {jobs}")
+
+
+def _point_tasks(kind: str, base: Config, raws: list[dict], texts: list[str], values: Sequence[Mapping[str, Any]],
+                 todo: list[int], out: Path, hash_: str, backend: str) -> list[PointTask]:
+    """What the workers get for the points ``todo``: each point's config and the file to write."""
+    # absolute paths: workers on other machines have working directories of their own
+    return [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
+                      store.point_attrs(kind, i, values[i], hash_),
+                      parent_pid=os.getpid() if backend == "loky" else 0) for i in todo]
+
+
+@contextmanager
+def _folder_errors(out: Path, kind: str, total: int, previous: dict | None, created: bool) -> Iterator[None]:
+    """On a BackendError, remove a new folder the cluster never wrote into; make a write error an OutputError."""
+    try:
+        yield
     except BackendError:
         if previous is None:      # a new folder that the cluster never wrote into: leave nothing behind
             store.undo_new_folder(out, created)
@@ -250,10 +241,9 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     except OSError as exc:
         if is_write_error(exc):   # the manifest, the table or the plots: the folder or the disk
             error = OutputError(describe_write_error(exc, out), out)
-            error.progress = getattr(exc, "progress", None) or Progress(out, kind, None, len(values))
+            error.progress = getattr(exc, "progress", None) or Progress(out, kind, None, total)
             raise error from None
         raise
-    return result
 
 
 @dataclass
