@@ -67,7 +67,7 @@ def parse_spectrum_csv(text: str) -> dict[str, list[float]]:
             raise FileProblem(f"line {number}: expected {len(header)} numbers separated by commas "
                               f"({', '.join(header)}), got {len(fields)} field{'s' if len(fields) != 1 else ''}: "
                               f"{show(stripped, 60)}")
-        for name, text_value in zip(header, fields):
+        for name, text_value in zip(header, fields, strict=True):
             try:
                 value = float(text_value)
             except ValueError:

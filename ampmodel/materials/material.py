@@ -130,7 +130,7 @@ def check_spectrum(table: Any, need_source: bool) -> tuple[Spectrum | None, list
             if not all(150.0 <= v <= 20000.0 for v in values):
                 problems.append((key, value, "out of range: wavelengths from 150 to 20000 nm"))
                 continue
-            if any(b <= a for a, b in zip(values, values[1:])):
+            if any(b <= a for a, b in zip(values[:-1], values[1:], strict=True)):
                 problems.append((key, value, "must be strictly increasing"))
                 continue
         elif not all(0.0 <= v <= CROSS_SECTION_MAX_CM2 for v in values):

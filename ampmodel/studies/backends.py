@@ -138,14 +138,14 @@ def preflight(client, folder: Path, timeout_s: float) -> list[dict[str, str]]:
     try:
         wait(futures, timeout=timeout_s)
     except (DaskTimeout, TimeoutError):
-        late = [w for w, f in zip(workers, futures) if not f.done()]
+        late = [w for w, f in zip(workers, futures, strict=True) if not f.done()]
         client.cancel(futures)
         raise BackendError(f"{len(late)} of {len(workers)} dask workers did not answer a short task "
                            f"importing ampmodel within {timeout_s:g} s ({', '.join(late[:4])}); a worker "
                            f"that cannot unpickle a task may never answer: check that ampmodel is "
                            f"installed on every worker") from None
     answers, problems = [], []
-    for w, f in zip(workers, futures):
+    for w, f in zip(workers, futures, strict=True):
         if f.status == "error":
             problems.append(f"worker {w} cannot import ampmodel: {_describe(f.exception())}")
             continue

@@ -37,8 +37,9 @@ def sweep_points(table: Mapping[str, Any]) -> tuple[list[str], list[dict[str, An
     """
     paths = [k for k in table if k != "combine"]
     lists = [list(table[p]) for p in paths]
-    combos = zip(*lists) if table.get("combine", "grid") == "zip" else itertools.product(*lists)
-    return paths, [dict(zip(paths, c)) for c in combos]
+    # "zip": the config check made the lists equally long
+    combos = zip(*lists, strict=True) if table.get("combine", "grid") == "zip" else itertools.product(*lists)
+    return paths, [dict(zip(paths, c, strict=True)) for c in combos]
 
 
 def point_raw(raw: Mapping[str, Any], values: Mapping[str, Any], title: str) -> dict:

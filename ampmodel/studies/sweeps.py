@@ -346,7 +346,7 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
               jobs: int | None = None, backend: str = "loky", scheduler: str | None = None,
               overrides: Sequence[str] = (), progress: bool = False, plots: bool = True,
               timeout_s: float = PREFLIGHT_TIMEOUT_S) -> SweepResult:
-    """Run the sweep in a config's [sweep] table (SPEC section 5), in parallel, resumable.
+    """Run the sweep in a config's [sweep] table, in parallel, resumable.
 
     Parameters
     ----------
