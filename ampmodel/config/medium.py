@@ -15,6 +15,7 @@ from ampmodel.config import schema as S
 from ampmodel.config.checks import Problems, check_table, expected, given_keys, join_path, quoted_list, type_name
 from ampmodel.config.schema import array_of_tables, item_names
 from ampmodel.description import Medium, Pump
+from ampmodel.materials import registry
 from ampmodel.materials.material import (
     CROSS_SECTION_STAND_INS,
     MATERIAL_KEYS,
@@ -94,20 +95,8 @@ def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "p
         doping_per_m3=v.get("doping_per_m3"), kind=v["kind"])
 
 
-def _registry():
-    """The built-in materials (imported when first needed)."""
-    from ampmodel.materials import registry
-    return registry
-
-
 def builtin_material(p: Problems, path: str, name: str) -> Material | None:
     """A built-in material by name; an unknown name is a problem listing the close ones."""
-    try:
-        registry = _registry()
-    except ImportError:
-        p.add(path, "the built-in materials cannot be loaded in this installation; give a "
-                    "[medium.material] table instead", name)
-        return None
     for known, material in p.builtin.items():        # a rerun: the data its result file recorded
         if known.casefold() == name.casefold():
             p.used_builtin[known] = material

@@ -29,6 +29,7 @@ import numpy as np
 
 from ampmodel.beam.fluence_steps import FLUENCE_STEP_ACTIONS
 from ampmodel.beam.state import BeamState
+from ampmodel.config.checks import ConfigError
 from ampmodel.cw.medium import CwMedium, pump_sweep
 from ampmodel.description import Config, Step
 from ampmodel.kernels.cw_saturation import homogeneous_slice_gain, inhomogeneous_slice_gain
@@ -193,7 +194,6 @@ def solve(config: Config, states: dict[str, CwMedium], seed: np.ndarray, x_m: np
             if residual > previous and damping > MIN_DAMPING:
                 damping = max(MIN_DAMPING, damping / 2.0)
             previous = residual
-    from ampmodel.config.checks import ConfigError
     raise ConfigError([f"{config.source}: solver.max_iterations = {solver.max_iterations}: the cw steady state "
                        f"did not converge: the gain still changed by {residual:.1e} (relative) in the last "
                        f"sweep, above solver.tolerance = {solver.tolerance:g}; raise solver.max_iterations, or "

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ampmodel.config.checks import ConfigError
 from ampmodel.description import Config, Medium
 from ampmodel.fibre import model as F
 from ampmodel.fibre import pulsed as FP
@@ -64,7 +65,6 @@ def _medium_record(model: F.FibreModel, medium: Medium, before: np.ndarray, afte
 def _check_converged(config: Config, medium: Medium, what: str, converged: bool, change: float,
                      iterations: int) -> None:
     if not converged:
-        from ampmodel.config.checks import ConfigError
         raise ConfigError([f"{config.source}: medium {medium.name}: the {what} did not converge (last change "
                            f"{change:.1e} after {iterations} iterations); more slices, a weaker pump or a shorter "
                            f"fibre bring it within reach"])

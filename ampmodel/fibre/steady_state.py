@@ -24,6 +24,7 @@ from typing import Callable
 import numpy as np
 
 from ampmodel.fibre.model import PROBE_BANDWIDTH_HZ, FibreModel
+from ampmodel.fibre.newton import newton
 from ampmodel.kernels import fibre_rates as fr
 
 DEFAULT_TOLERANCE = 1e-9
@@ -155,7 +156,6 @@ def solve_cw(model: FibreModel, signal_power_W: float, tolerance: float = DEFAUL
     -------
     CWSolution
     """
-    from ampmodel.fibre.newton import newton
     launch = model.launch_W.copy()
     launch[model.signal] = signal_power_W
     sol = _relax(model, launch, max(tolerance, POLISH_FROM), max_iterations, tick)

@@ -13,6 +13,9 @@ import math
 import numpy as np
 from scipy.special import erf
 
+from ampmodel.kernels import diffraction as kd
+from ampmodel.kernels.beam_figures import m_squared as measure_m2
+
 # Half-width of the time window in units of the FWHM (see the module docstring).
 HALF_WINDOW_FWHM = {"gaussian": 2.5, "sech2": 5.0, "flat": 0.5}
 SECH2_FWHM_FACTOR = 2.0 * math.acosh(math.sqrt(2.0))   # sech²(t/T) has FWHM = 1.7627·T
@@ -168,8 +171,6 @@ def seed_start_field(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m:
     ----------
     H. Kogelnik and T. Li, Appl. Opt. 5, 1550 (1966); ISO 11146-1 (second-moment widths and M²).
     """
-    from ampmodel.kernels import diffraction as kd
-    from ampmodel.kernels.beam_figures import m_squared as measure_m2
 
     if profile == "gaussian" and m_squared == 1.0 and waist_m is not None:
         field = kd.gaussian_beam(x_m, y_m, diameter_m / 2.0, wavelength_m, -waist_m)

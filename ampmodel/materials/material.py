@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any, Mapping
 
+from ampmodel.kernels.fibre_rates import interpolate_cross_sections
 from ampmodel.units import photon_energy_J, si_name, to_si
 
 
@@ -80,7 +81,6 @@ class Spectrum:
         """(sigma_e, sigma_a) in m² at ``wavelength_m`` (scalar or array, inside the table)."""
         import numpy as np
 
-        from ampmodel.kernels.fibre_rates import interpolate_cross_sections
         return interpolate_cross_sections(np.asarray(self.wavelength_m), np.asarray(self.emission_m2),
                                           np.asarray(self.absorption_m2), wavelength_m)
 

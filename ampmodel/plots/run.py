@@ -16,14 +16,18 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ampmodel.plots.beam import has_beam_figures, plot_beam_size, plot_beam_steps
 from ampmodel.plots.common import (
     finite_max,
     is_cw,
     safe_name,
 )
+from ampmodel.plots.cw import plot_cw_gain
+from ampmodel.plots.fibre import make_fibre_plots
 from ampmodel.plots.gain import plot_medium_gain
 from ampmodel.plots.layout import b_integrals, plot_b_integral, plot_energy_per_step, plot_pulse_power
 from ampmodel.plots.maps import plot_fluence_maps
+from ampmodel.plots.trains import plot_round_trips, plot_train
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -68,7 +72,6 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     if not cw and np.asarray(result.t_s).size:
         paths.append(plot_pulse_power(result, out / "pulse_power.png"))
     if getattr(result, "fibres", None):
-        from ampmodel.plots.fibre import make_fibre_plots
         return paths + make_fibre_plots(result, out, set())
     used: set[str] = set()
     for name in result.media:
@@ -77,17 +80,14 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
             stem += "_"
         used.add(stem)
         if cw:
-            from ampmodel.plots.cw import plot_cw_gain
             paths.append(plot_cw_gain(result, name, out / f"gain_{stem}.png"))
         else:
             paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
     if not cw and result.steps and finite_max(b_integrals(result)[0]) > 0:
         paths.append(plot_b_integral(result, out / "b_integral.png"))
-    from ampmodel.plots.beam import has_beam_figures, plot_beam_size, plot_beam_steps
     if result.steps and has_beam_figures(result):
         paths.append(plot_beam_steps(result, out / "beam_steps.png"))
         paths.append(plot_beam_size(result, out / "beam_size.png"))
-    from ampmodel.plots.trains import plot_round_trips, plot_train
     repeats = [e for e in (result.summary or {}).get("steps", []) if isinstance(e, dict) and e.get("kind") == "repeat"]
     for entry in repeats:
         name = "round_trips.png" if len(repeats) == 1 else f"round_trips_step{entry.get('index')}.png"

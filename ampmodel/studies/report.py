@@ -7,6 +7,7 @@ from typing import Any, Sequence
 
 from ampmodel.config.checks import show
 from ampmodel.output.summary import is_number, scalar_keys
+from ampmodel.safety import SAFETY_NOTE
 
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
 TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
@@ -33,7 +34,6 @@ def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
 
 
 def _safety() -> None:
-    from ampmodel.safety import SAFETY_NOTE
     print(SAFETY_NOTE)
 
 

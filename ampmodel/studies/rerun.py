@@ -29,7 +29,13 @@ except ModuleNotFoundError:  # Python < 3.11
 
 from ampmodel._version import __version__
 from ampmodel.config.checks import ConfigError
+from ampmodel.config.files import inline_stored_files
 from ampmodel.config.load import load_config
+from ampmodel.materials import registry
+from ampmodel.materials.material import material_differences, material_from_dict, material_to_dict
+from ampmodel.output.atomic import write_json
+from ampmodel.output.hdf5 import read_provenance
+from ampmodel.output.run_folder import claim, partial_folder
 from ampmodel.output.summary import DEFAULT_RTOL, Difference, compare_summaries, plain
 
 
@@ -82,7 +88,6 @@ def read_stored(path: Path) -> tuple[dict[str, Any], list[str]]:
         The file is missing, not HDF5, incomplete (no ``complete = True`` while it has other
         markers of this version) or not a result file (no config or summary).
     """
-    from ampmodel.output.hdf5 import read_provenance
     if not path.is_file():
         raise _problem(path, "no such result file; give the result.h5 of a run (or a sweep's points/NNNN.h5)")
     try:
@@ -104,7 +109,6 @@ def read_stored(path: Path) -> tuple[dict[str, Any], list[str]]:
 def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool):
     """The Config of the stored run (material data and data files as recorded unless
     ``current_materials``)."""
-    from ampmodel.materials.material import material_from_dict
     text = stored["config"]
     try:
         raw = tomllib.loads(text)
@@ -113,7 +117,6 @@ def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool)
     builtin = None
     if not current_materials and stored.get("builtin_materials"):
         builtin = {name: material_from_dict(d) for name, d in stored["builtin_materials"].items()}
-    from ampmodel.config.files import inline_stored_files
     raw = inline_stored_files(raw, stored.get("data_files") or {})
     label = f"{path} (its stored config)"
     try:
@@ -133,11 +136,9 @@ def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool)
 
 def _material_report(path: Path, stored: Mapping[str, Any]) -> dict[str, list[str]]:
     """Differences between the stored material data and what today's files and code give."""
-    from ampmodel.materials.material import material_differences, material_to_dict
     out: dict[str, list[str]] = {}
     recorded = stored.get("builtin_materials") or {}
     if recorded:
-        from ampmodel.materials import registry
         for name, data in recorded.items():
             try:
                 now = material_to_dict(registry.get(name))
@@ -192,8 +193,6 @@ def rerun(path: str | os.PathLike, out: str | os.PathLike | None = None, *, rtol
     ConfigError : not a complete result file, or its config is not valid in this version
     OutputError : the new folder cannot be written
     """
-    from ampmodel.output.atomic import write_json
-    from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.simulation import simulate
     path = Path(path)
     stored, notes = read_stored(path)

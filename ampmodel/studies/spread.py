@@ -40,6 +40,8 @@ import numpy as np
 
 from ampmodel.config import schema as S
 from ampmodel.description import Config
+from ampmodel.output.atomic import target, write_json
+from ampmodel.output.summary import scalar_keys
 from ampmodel.studies.sweeps import PREFLIGHT_TIMEOUT_S, SweepResult, default_folder, load_with_table, run_points
 from ampmodel.units import unit_of
 
@@ -83,7 +85,6 @@ def draw(dists: Mapping[str, Mapping[str, Any]], samples: int, random_seed: int)
 
 def statistics(summaries: Sequence[Mapping[str, Any] | None]) -> dict[str, dict[str, float]]:
     """Percentiles (5, 50, 95), mean, std (ddof 1), min, max and count of every summary scalar."""
-    from ampmodel.output.summary import scalar_keys
     out = {}
     for key in scalar_keys(summaries):
         data = np.array([float(s[key]) for s in summaries if s and isinstance(s.get(key), (int, float))])
@@ -115,13 +116,11 @@ class SpreadResult(SweepResult):
 
 
 def _write_stats(out: Path, result: SpreadResult, base: Config) -> None:
-    from ampmodel.output.atomic import write_json
     write_json({"source": base.source, "title": base.title, "samples": result.samples,
                 "random_seed": result.random_seed, "distributions": result.distributions,
                 "samples_ran": len(result.values) - len(result.failed),
                 "failed": sorted(result.failed), "percentile_method": "numpy.percentile, linear (type 7)",
                 "percentiles": result.percentiles}, out / "spread.json")
-    from ampmodel.output.atomic import target
     with target(out / "spread.csv") as tmp:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
