@@ -245,19 +245,19 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     steady = _steady_pulse(pulse, u_star, seed_fluence)
 
     # 3. the train from its start: pulse after pulse until the output is within the tolerance
-    e_out = steady["pulse_energy_J"]
+    e_out = steady.pulse_energy_J
     energies, stored, settled = _from_the_start(pulse, u0, e_out, tolerance, config.train.max_pulses)
     settled, estimated, cycle = _settling(energies, e_out, tolerance, settled, rate_Hz, warnings)
     for n, s in states.items():              # the pulse() calls above changed the media: restore
-        np.copyto(s.ln_gain, steady["after"][n])
+        np.copyto(s.ln_gain, steady.after[n])
 
     summary = {
         "repetition_rate_Hz": rate_Hz,
         "period_s": period,
         "pulse_energy_J": e_out,
         "average_power_W": e_out * rate_Hz,
-        "input_average_power_W": steady["input_energy_J"] * rate_Hz,
-        "stored_energy_before_pulse_J": steady["stored_before_J"],
+        "input_average_power_W": steady.input_energy_J * rate_Hz,
+        "stored_energy_before_pulse_J": steady.stored_before_J,
         "pulses_to_steady_state": settled,
         "pulses_to_steady_state_estimated": estimated,
         "cycle_pulse_energies_J": cycle,
@@ -270,19 +270,19 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
         "direct_pulse_energy_J": direct_energy,
         "fixed_point_pulse_evaluations": evaluations,
         "fixed_point_residual": residual,
-        "pump_stored_power_W": steady["pumped_J"] * rate_Hz,
-        "decay_power_W": steady["decayed_J"] * rate_Hz,
-        "extracted_power_W": float(steady["extracted_J"] * rate_Hz),
-        "energy_balance_error": float(steady["balance"]),
-        "layout_time_s": steady["layout_time_s"],
+        "pump_stored_power_W": steady.pumped_J * rate_Hz,
+        "decay_power_W": steady.decayed_J * rate_Hz,
+        "extracted_power_W": float(steady.extracted_J * rate_Hz),
+        "energy_balance_error": float(steady.balance),
+        "layout_time_s": steady.layout_time_s,
     }
     datasets = {"pulse_energy": (np.asarray(energies), "J"),
                 "stored_energy_before_pulse": (np.asarray(stored), "J")}
-    layout = steady["layout"]
-    return TrainRun(beam=steady["beam"], outcomes=steady["outcomes"], records=steady["records"],
-                    ln_gain_before=steady["before"], pumped_J={n: v[0] for n, v in layout.items()},
+    layout = steady.layout
+    return TrainRun(beam=steady.beam, outcomes=steady.outcomes, records=steady.records,
+                    ln_gain_before=steady.before, pumped_J={n: v[0] for n, v in layout.items()},
                     decayed_J={n: v[1] for n, v in layout.items()}, summary=summary, warnings=warnings,
-                    datasets=datasets, checks=steady["checks"])
+                    datasets=datasets, checks=steady.checks)
 
 
 def _fixed_point_start(config: Config, clocks: dict[str, MediumClock], state: _State,
@@ -308,10 +308,33 @@ def _fixed_point_start(config: Config, clocks: dict[str, MediumClock], state: _S
     return state.join(n2), None, direct_energy
 
 
-def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) -> dict:
-    """The steady pulse, recorded: its beam, outcomes, records and grid checks, the gain maps before
-    and after its layout, its energies and the train's energy balance per period. Leaves the media as
-    after its layout (the "final" gain)."""
+@dataclass
+class _SteadyPulse:
+    """The steady pulse, recorded: its beam, outcomes, records and grid checks; the gain maps (ln G)
+    before and after its layout; each medium's (pumped, decayed) energy over the layout (J); the
+    energies in and out (J), the stored energy before it (J), the energy pumped, decayed and extracted
+    over the period (J), the train's energy balance per period and the layout's time (s)."""
+
+    beam: BeamState
+    outcomes: list
+    records: list
+    checks: list
+    before: dict[str, np.ndarray]
+    after: dict[str, np.ndarray]
+    layout: dict[str, tuple[float, float]]
+    pulse_energy_J: float
+    input_energy_J: float
+    stored_before_J: float
+    pumped_J: float
+    decayed_J: float
+    extracted_J: float
+    balance: float
+    layout_time_s: float
+
+
+def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) -> _SteadyPulse:
+    """The steady pulse, recorded (:class:`_SteadyPulse`). Leaves the media as after its layout (the
+    "final" gain)."""
     state, states, clocks = pulse.state, pulse.states, pulse.timeline.clocks
     state.set(u_star)
     before = {n: s.ln_gain.copy() for n, s in states.items()}
@@ -328,11 +351,9 @@ def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) 
     state.set(u_star)                        # leave the media as before the steady pulse ...
     for n, s in states.items():              # ... and then as after its layout (the "final" gain)
         np.copyto(s.ln_gain, after[n])
-    return {"beam": beam, "outcomes": outcomes, "records": records, "checks": checks, "before": before,
-            "after": after, "layout": layout, "pulse_energy_J": beam.energy_J(),
-            "input_energy_J": float(seed_fluence.sum() * beam.pixel_area_m2), "stored_before_J": stored_before,
-            "pumped_J": pumped, "decayed_J": decayed, "extracted_J": extracted, "balance": balance,
-            "layout_time_s": layout_time_s}
+    return _SteadyPulse(beam, outcomes, records, checks, before, after, layout, beam.energy_J(),
+                        float(seed_fluence.sum() * beam.pixel_area_m2), stored_before, pumped, decayed,
+                        extracted, balance, layout_time_s)
 
 
 def _from_the_start(pulse: _Pulses, u0: np.ndarray, e_out: float, tolerance: float,
