@@ -16,7 +16,7 @@ from ampmodel.cw.medium import CwMedium
 from ampmodel.cw.steady_state import Sweep
 from ampmodel.description import Config, step_label
 from ampmodel.diagnostics import W_CM2, seed_grid_warnings, transverse_gain_warnings
-from ampmodel.media import cw_pump, gain_maps
+from ampmodel.media import gain_maps
 from ampmodel.output.result import MediumRecord
 from ampmodel.safety import SAFETY_NOTE
 
@@ -41,7 +41,7 @@ def photon_balance(st: CwMedium, pixel_area_m2: float) -> dict[str, float]:
     pump, levels, field = st.pump, st.levels, st.pump_field
     dv = st.dz_m * pixel_area_m2
     absorbed = float(field.absorbed.sum() * pixel_area_m2)
-    n2 = np.where(st.mask, cw_pump.upper_population(st.gain, levels), 0.0)
+    n2 = np.where(st.mask, levels.n2_per_m3(st.gain), 0.0)
     decays = float(n2.sum() * dv / levels.lifetime_s)
     added = extracted_power_W(st, pixel_area_m2) / levels.photon_energy_J
     sigma_ap = (pump.bleach_m2 - pump.create_b_m2) / (1.0 - pump.quantum_efficiency) \

@@ -10,7 +10,9 @@ import numpy as np
 
 from ampmodel.description import Medium
 from ampmodel.kernels import beam_shapes
-from ampmodel.media import cw_pump, gain_maps
+from ampmodel.media import cw_pump, gain_maps, pumping
+from ampmodel.media.ions import Ions
+from ampmodel.media.pumping import PumpField, PumpModel
 
 # Sub-slices per slice with passive loss. The symmetric splitting of the loss around the gain step
 # is second order: against scipy.integrate.solve_ivp the relative error of the output intensity is
@@ -40,12 +42,12 @@ class CwMedium:
     sub: int
     dz_m: float
     homogeneous: bool
-    levels: cw_pump.SignalLevels
+    levels: Ions
     g0: np.ndarray
     isat: np.ndarray | float
     gain: np.ndarray
-    pump: cw_pump.CwPump | None = None
-    pump_field: cw_pump.PumpField | None = None
+    pump: PumpModel | None = None
+    pump_field: PumpField | None = None
     entering: dict[int, np.ndarray] = field(default_factory=dict)
     forward: np.ndarray | None = None
     backward: np.ndarray | None = None
@@ -72,13 +74,6 @@ def loss_substeps(medium: Medium, g0_max_per_m: float) -> int:
     return int(min(MAX_LOSS_SUBSTEPS, max(1, math.ceil(math.sqrt(q / LOSS_SPLIT_LIMIT)))))
 
 
-def _levels(medium: Medium) -> cw_pump.SignalLevels:
-    mat = medium.material
-    return cw_pump.SignalLevels(sigma_e_m2=mat.emission_cross_section_m2, sigma_a_m2=mat.absorption_cross_section_m2,
-                                lifetime_s=mat.upper_lifetime_s, photon_energy_J=mat.photon_energy_J,
-                                nt_per_m3=medium.doping_per_m3 or mat.doping_per_m3)
-
-
 def _relative_change(new: np.ndarray, old: np.ndarray, scale: float) -> float:
     return float(np.max(np.abs(new - old))) / scale if new.size else 0.0
 
@@ -86,8 +81,8 @@ def _relative_change(new: np.ndarray, old: np.ndarray, scale: float) -> float:
 def pump_sweep(st: CwMedium, pixel_area_m2: float) -> tuple[np.ndarray, np.ndarray]:
     """Run the pump through a pumped medium at its current gain (``st.pump_field``) and return the
     small-signal gain g0 (1/m) and saturation intensity (W/m²) of each voxel that it gives."""
-    n2 = cw_pump.upper_population(st.gain, st.levels)
-    st.pump_field = cw_pump.sweep(st.pump, n2, st.mask, st.dz_m, pixel_area_m2)
+    n2 = st.levels.n2_per_m3(st.gain)
+    st.pump_field = pumping.sweep(st.pump, n2, st.mask, st.dz_m, pixel_area_m2)
     return cw_pump.small_signal(st.pump, st.levels, st.pump_field.mean_flux, st.mask)
 
 
@@ -108,7 +103,7 @@ def pump_only(st: CwMedium, pixel_area_m2: float, tolerance: float, max_iteratio
 def build_medium(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, solver) -> CwMedium:
     """A medium's cw state before the signal: its small-signal gain map (pump settled if pumped)."""
     mask = beam_shapes.aperture_mask(x_m, y_m, medium.aperture, medium.diameter_m)
-    levels = _levels(medium)
+    levels = Ions.of(medium)
     homogeneous = medium.material.broadening != "inhomogeneous"
     pixel_area = float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
     if medium.pump is None:
@@ -117,7 +112,7 @@ def build_medium(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, solver) -> Cw
         g0 = np.repeat(g, sub, axis=0)
         return CwMedium(medium, mask, sub, medium.length_m / (medium.slices * sub), homogeneous, levels,
                         g0=g0, isat=medium.material.saturation_intensity_W_m2, gain=g0.copy())
-    pump = cw_pump.build_pump(medium, x_m, y_m, mask)
+    pump = pumping.build_pump(medium, x_m, y_m, mask)
 
     def settle(sub: int) -> CwMedium:
         nz = medium.slices * sub
