@@ -1,13 +1,12 @@
 """The media's clocks: their pumping and decay while the steps of a layout take time.
 
 A step may take time (``Step.delay_s``: a ``delay_ns`` in the config, or length/c for a ``space``
-step); during it every medium relaxes by the exact solution of dN2/dt = R − N2/tau
-(:func:`ampmodel.kernels.inversion.relax_inversion`), with R the medium's pump rate when its pump is
-on (a continuous pump always; a pulsed pump only in the pump window of a pulse train) and 0
-otherwise. The gain map holds g = (sigma_e + sigma_a)·N2 − sigma_a·Nt, so N2 is recovered from it
-voxel by voxel (four-level media: g = sigma_e·N2, no Nt needed) and written back in place. Outside a
-medium's clear aperture there is no medium and nothing changes.
-
+step); during it every medium's upper-level density evolves by the rate equations: with its pump on
+(a continuous pump always; a pulsed pump only in the pump window of a pulse train) the pump crosses
+the medium and bleaches it (``kernels/pump_rates.py``: the same model that built the gain map), and
+with it off N2 decays exactly, N2(t) = N2(0)·exp(−t/τ). The gain map holds g = (σe + σa)·N2 − σa·Nt
+at the material's wavelength, so N2 is recovered from it voxel by voxel (``media/ions.py``) and
+written back in place. Outside a medium's clear aperture there is no medium and nothing changes.
 """
 from __future__ import annotations
 
@@ -17,17 +16,26 @@ from dataclasses import dataclass
 import numpy as np
 
 from ampmodel.description import Config
+from ampmodel.kernels import pump_rates as pr
+from ampmodel.kernels.fixed_point import anderson
 from ampmodel.kernels.inversion import relax_inversion
 from ampmodel.media.gain_maps import GainMap
+from ampmodel.media.ions import Ions
+from ampmodel.media.pumping import PumpModel
 from ampmodel.pulsed.passes import MediumState
+
+# The periodic state of a train pumped before its first pulse: to this relative change per period.
+UNSEEDED_TOLERANCE = 1e-12
+UNSEEDED_MAX_PERIODS = 400
 
 
 @dataclass
 class MediumClock:
     """What one medium needs to evolve in time, and what its pump and decay did so far.
 
-    rate_per_m3_s : (Nz, n) pump rate at the n voxels of each slice inside the clear aperture
-        (ions/m³/s while the pump is on), or None without a pump
+    ions : the medium's ions; pump : its pump on the grid (None without one)
+    rate_per_m3_s : (Nz, n) the small-signal pump rate at the n voxels of each slice inside the clear
+        aperture (ions/m³/s, unbleached; for estimates), or None without a pump
     pumped_J, decayed_J : energy put into and lost from the upper state so far, counted at the
         signal photon energy (h·nu_s per ion, the unit of the stored energy)
     """
@@ -36,16 +44,36 @@ class MediumClock:
     mask: np.ndarray
     slice_length_m: float
     voxel_volume_m3: float
-    sum_cross_section_m2: float       # sigma_e + sigma_a at the signal
-    absorption_offset_per_m: float    # sigma_a·Nt: g = (sigma_e + sigma_a)·N2 − sigma_a·Nt
-    lifetime_s: float
-    photon_energy_J: float
+    ions: Ions
+    pump: PumpModel | None = None
     rate_per_m3_s: np.ndarray | None = None
     continuous: bool = False
     pump_duration_s: float = 0.0
-    n2_max_per_m3: float | None = None
     pumped_J: float = 0.0
     decayed_J: float = 0.0
+
+    @property
+    def sum_cross_section_m2(self) -> float:
+        """σe + σa at the signal: g = (σe + σa)·N2 − σa·Nt."""
+        return self.ions.sum_cross_section_m2
+
+    @property
+    def absorption_offset_per_m(self) -> float:
+        """σa·Nt (0 for a four-level line)."""
+        return self.ions.ground_absorption_per_m
+
+    @property
+    def lifetime_s(self) -> float:
+        return self.ions.lifetime_s
+
+    @property
+    def photon_energy_J(self) -> float:
+        return self.ions.photon_energy_J
+
+    @property
+    def n2_max_per_m3(self) -> float | None:
+        """The doping: no voxel holds more excited ions (None where it is not known)."""
+        return self.ions.nt_per_m3
 
     def n2(self, ln_gain: np.ndarray) -> np.ndarray:
         """(Nz, n) upper-state density (ions/m³) of the voxels inside the aperture."""
@@ -55,17 +83,27 @@ class MediumClock:
         """Write the density ``n2`` (Nz, n) back into the gain map, in place."""
         ln_gain[:, self.mask] = (self.sum_cross_section_m2 * n2 - self.absorption_offset_per_m) * self.slice_length_m
 
+    def advance(self, n2: np.ndarray, duration_s: float, pump_on: bool) -> tuple[np.ndarray, float, float]:
+        """N2 (Nz, n) after ``duration_s`` with the pump on or off: (N2, ions created, ions decayed),
+        the ion counts summed over the voxels per m³ (times the voxel volume: ions)."""
+        if pump_on and self.pump is not None:
+            p = self.pump
+            out = pr.pump_interval(n2, p.flux_in[self.mask], self.slice_length_m, duration_s, p.alpha0_per_m,
+                                   p.bleach_m2, p.create_b_m2, p.quantum_efficiency, self.lifetime_s,
+                                   p.back_reflectance, side=p.side)
+            return out.n2, float(out.created.sum()), float(out.decayed.sum())
+        end, pumped, decayed = relax_inversion(n2, 0.0, self.lifetime_s, duration_s)
+        return end, float(np.sum(pumped)), float(np.sum(decayed))
+
     def evolve(self, ln_gain: np.ndarray, duration_s: float, pump_on: bool) -> None:
-        """Pump (when on) and decay for ``duration_s``: the exact N2(t), in place, with the bookkeeping."""
+        """Pump (when on) and decay for ``duration_s``, in place, with the bookkeeping."""
         if duration_s <= 0.0:
             return
-        rate = self.rate_per_m3_s if (pump_on and self.rate_per_m3_s is not None) else 0.0
-        n2, pumped, decayed = relax_inversion(self.n2(ln_gain), rate, self.lifetime_s, duration_s,
-                                              self.n2_max_per_m3)
+        n2, created, decayed = self.advance(self.n2(ln_gain), duration_s, pump_on)
         self.set_n2(ln_gain, n2)
         scale = self.photon_energy_J * self.voxel_volume_m3
-        self.pumped_J += float(np.sum(pumped)) * scale
-        self.decayed_J += float(np.sum(decayed)) * scale
+        self.pumped_J += created * scale
+        self.decayed_J += decayed * scale
 
 
 def medium_clocks(config: Config, maps: dict[str, GainMap], pixel_area_m2: float) -> dict[str, MediumClock]:
@@ -73,18 +111,12 @@ def medium_clocks(config: Config, maps: dict[str, GainMap], pixel_area_m2: float
     clocks = {}
     for m in config.media:
         gm = maps[m.name]
-        mat = m.material
-        nt = m.doping_per_m3 or mat.doping_per_m3 or 0.0
         rate = gm.pump_rate_per_m3_s[:, gm.mask] if gm.pump_rate_per_m3_s is not None else None
         clocks[m.name] = MediumClock(
             name=m.name, mask=gm.mask, slice_length_m=gm.slice_length_m,
-            voxel_volume_m3=gm.slice_length_m * pixel_area_m2,
-            sum_cross_section_m2=mat.emission_cross_section_m2 + mat.absorption_cross_section_m2,
-            absorption_offset_per_m=mat.absorption_cross_section_m2 * nt, lifetime_s=mat.upper_lifetime_s,
-            photon_energy_J=mat.photon_energy_J, rate_per_m3_s=rate,
-            continuous=m.pump is not None and m.pump.continuous,
-            pump_duration_s=(m.pump.duration_s or 0.0) if m.pump is not None else 0.0,
-            n2_max_per_m3=gm.n2_max_per_m3 if mat.quasi_three_level else None)
+            voxel_volume_m3=gm.slice_length_m * pixel_area_m2, ions=gm.ions or Ions.of(m), pump=gm.pump,
+            rate_per_m3_s=rate, continuous=m.pump is not None and m.pump.continuous,
+            pump_duration_s=(m.pump.duration_s or 0.0) if m.pump is not None else 0.0)
     return clocks
 
 
@@ -117,11 +149,29 @@ class Timeline:
 
 def unseeded_n2(c: MediumClock, period_s: float) -> np.ndarray:
     """(Nz, n) N2 before a pulse of a train pumped long before it without a seed (ions/m³); the
-    medium needs a pump."""
-    tau = c.lifetime_s
+    medium needs a pump. A continuous pump: its steady state. A pulsed pump: the periodic state of its
+    pump pulse (at the end of the period) and the decay until the next, by Anderson acceleration from
+    the estimate without bleaching."""
+    p, tau = c.pump, c.lifetime_s
+    nz, n = c.rate_per_m3_s.shape
     if c.continuous:
-        n2 = c.rate_per_m3_s * tau
-    else:
-        # pump pulse tp then decay for T − tp, periodic: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
-        n2 = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))
-    return np.minimum(n2, c.n2_max_per_m3) if c.n2_max_per_m3 is not None else n2
+        n2, _, _, _ = pr.steady_columns(p.flux_in[c.mask], c.slice_length_m, nz, p.alpha0_per_m, p.bleach_m2,
+                                        p.create_b_m2, p.quantum_efficiency, tau, p.back_reflectance, side=p.side)
+        return n2
+    # the estimate without bleaching: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
+    guess = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))
+    if c.n2_max_per_m3 is not None:
+        guess = np.minimum(guess, c.n2_max_per_m3)
+    if p.bleach_m2 <= 0.0:
+        return guess
+    rest = period_s - c.pump_duration_s
+    scale = max(float(guess.max()), 1e-300)
+
+    def period(u: np.ndarray) -> np.ndarray:
+        n2 = u.reshape(nz, n) * scale
+        n2 = relax_inversion(n2, 0.0, tau, rest)[0]
+        n2 = c.advance(n2, c.pump_duration_s, pump_on=True)[0]
+        return (n2 / scale).ravel()
+
+    u, _, _ = anderson(period, (guess / scale).ravel(), UNSEEDED_TOLERANCE, UNSEEDED_MAX_PERIODS)
+    return u.reshape(nz, n) * scale

@@ -204,18 +204,30 @@ def _media_entries(config: Config, media: Mapping[str, MediumRecord], maps: Mapp
             entry["pump_stored_energy_J"] = rec.pumped_J
             entry["decayed_energy_J"] = rec.decayed_J
         gm = maps[m.name]
-        if m.pump is not None and m.pump.continuous:
-            entry["absorbed_pump_power_W"] = gm.absorbed_pump_W
-            entry["pump_power_W"] = m.pump.power_W
-        elif m.pump is not None:
-            entry["absorbed_pump_energy_J"] = gm.absorbed_pump_J
-            entry["pump_energy_J"] = m.pump.energy_J
-            if gm.pump_limited_voxels:
-                warnings.append(f"medium {m.name}: the pump reaches the quasi-three-level bleaching limit "
-                                f"in {gm.pump_limited_voxels} voxels; their inversion is capped there")
+        entry.update(_pump_entry(m, gm))
+        fraction = gm.ions.upper_fraction(rec.gain_initial_per_m[:, gm.mask]) if gm.ions is not None else None
+        if fraction is not None:
+            entry["upper_state_fraction_max"] = float(fraction.max()) if fraction.size else 0.0
         entries.append(entry)
         warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, config.limits))
     return entries, stored_before, stored_after
+
+
+def _pump_entry(m, gm: gain_maps.GainMap) -> dict[str, Any]:
+    """A pumped medium's pump figures: energy (a continuous pump: power) delivered, absorbed and
+    leaving; a pump pulse's storage efficiency (ions still excited at its end over ions it created)
+    and the pump's photon balance (delivered − absorbed − leaving, relative)."""
+    if m.pump is None:
+        return {}
+    if m.pump.continuous:
+        return {"pump_power_W": m.pump.power_W, "absorbed_pump_power_W": gm.absorbed_pump_W,
+                "transmitted_pump_power_W": gm.transmitted_pump_W}
+    delivered = m.pump.energy_J * m.pump.transfer_efficiency
+    stored = gm.pumped_ions - gm.decayed_ions
+    return {"pump_energy_J": m.pump.energy_J, "absorbed_pump_energy_J": gm.absorbed_pump_J,
+            "transmitted_pump_energy_J": gm.transmitted_pump_J,
+            "storage_efficiency": stored / gm.pumped_ions if gm.pumped_ions > 0 else 0.0,
+            "pump_photon_balance_error": (delivered - gm.absorbed_pump_J - gm.transmitted_pump_J) / delivered}
 
 
 def _step_entries(config: Config, outcomes: list[StepOutcome], peak_fluence: float,

@@ -55,7 +55,10 @@ class PulsedLayout:
         allocated), then the seed and the media's clocks."""
         grid, seed = config.grid, config.seed
         x = beam_shapes.pixel_centres(grid.points, grid.width_m)
-        maps = {m.name: gain_maps.gain_map(m, x, x) for m in config.media}
+        try:
+            maps = {m.name: gain_maps.gain_map(m, x, x) for m in config.media}
+        except gain_maps.GainMapError as exc:
+            raise ConfigError([f"{config.source}: {exc}"]) from None
         states = {m.name: _medium_state(m, maps[m.name]) for m in config.media}
         t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
         seed_field = None

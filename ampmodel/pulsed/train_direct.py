@@ -1,5 +1,5 @@
 """The direct solution of a pulse train's steady state, pixel by pixel: where every pixel is
-independent (no diffraction, one medium, no passive loss inside it, no bleaching cap acting), a
+independent (no diffraction, one medium, no passive loss inside it, a pump that does not bleach), a
 pixel's pulse depends only on its column ∫N2 dz, and the fixed point of the column map is found per
 pixel by bisection (``trains.py`` explains where it applies and how it starts the iteration).
 """
@@ -30,12 +30,9 @@ def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str
     if any(s.kind == "repeat" and s.until is not None for s in config.steps):
         return 'a repeat stops at the peak: the dump round trip couples the pixels'
     c = clocks[medium.name]
-    if c.n2_max_per_m3 is not None:
-        mat = medium.material
-        transparency = c.absorption_offset_per_m / c.sum_cross_section_m2
-        steady = float(np.max(c.rate_per_m3_s)) * c.lifetime_s if c.rate_per_m3_s is not None else 0.0
-        if max(steady, transparency) > c.n2_max_per_m3:
-            return f"the bleaching limit of {mat.name} caps the inversion in medium {medium.name}"
+    if c.pump is not None and c.pump.bleach_m2 > 0.0:
+        return (f"the pump bleaches medium {medium.name} (its absorption follows the inversion along each "
+                f"column, so a column's pumping is not a function of its ∫N2 dz)")
     return None
 
 

@@ -40,6 +40,7 @@ import numpy as np
 
 from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.description import Config, passed_media
+from ampmodel.kernels.fixed_point import anderson
 from ampmodel.media import gain_maps
 from ampmodel.output.result import StepRecord
 from ampmodel.pulsed.clocks import MediumClock, Timeline, unseeded_n2
@@ -120,52 +121,6 @@ def _recover(clocks: dict[str, MediumClock], states: dict[str, MediumState], res
             c.evolve(ln_gain, c.pump_duration_s, pump_on=True)
 
 
-def _anderson(phi: Callable[[np.ndarray], np.ndarray], u0: np.ndarray, tolerance: float, max_iter: int,
-              upper: np.ndarray | None) -> tuple[np.ndarray, int, float]:
-    """Fixed point of ``phi`` by Anderson acceleration (type II, depth ANDERSON_DEPTH), kept within
-    the physical bounds 0 <= u <= upper. Returns (the fixed point, map evaluations, residual
-    max|phi(u) − u|/max|u|)."""
-    x = u0
-    dfs: list[np.ndarray] = []
-    dgs: list[np.ndarray] = []
-    f_prev = g_prev = None
-    best = (math.inf, u0)
-    best_at = 0
-    for k in range(1, max_iter + 1):
-        g = phi(x)
-        f = g - x
-        res = float(np.max(np.abs(f)) / max(float(np.max(np.abs(g))), 1e-300))
-        if res < best[0]:
-            best = (res, g)
-            best_at = k
-        elif k - best_at >= STAGNATION_PULSES:      # no progress (the map may have no fixed point,
-            # e.g. when the dump round trip of a repeat jumps from one pulse to the next)
-            return best[1], k, best[0]
-        elif res > 10.0 * best[0]:        # the extrapolation went astray: restart from the best image
-            dfs.clear()
-            dgs.clear()
-            x, f_prev, g_prev = best[1], None, None
-            continue
-        if res <= tolerance:
-            return g, k, res
-        if f_prev is not None:
-            dfs.append(f - f_prev)
-            dgs.append(g - g_prev)
-            if len(dfs) > ANDERSON_DEPTH:
-                dfs.pop(0)
-                dgs.pop(0)
-        f_prev, g_prev = f, g
-        if dfs:
-            gamma = np.linalg.lstsq(np.stack(dfs, axis=1), f, rcond=None)[0]
-            x = g - np.stack(dgs, axis=1) @ gamma
-        else:
-            x = g
-        np.maximum(x, 0.0, out=x)
-        if upper is not None:
-            np.minimum(x, upper, out=x)
-    return best[1], max_iter, best[0]
-
-
 # ----------------------------------------------------------------------------------------------
 # The train
 # ----------------------------------------------------------------------------------------------
@@ -234,8 +189,8 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     # 1. the fixed point: direct per pixel where it applies, then accelerated iteration of the real map
     start, reason, direct_energy = _fixed_point_start(config, clocks, state, unseeded, u0, seed_fluence, x_m, y_m)
     fp_tolerance = max(min(FIXED_POINT_TOLERANCE, 1e-3 * tolerance), 1e-13)
-    u_star, evaluations, residual = _anderson(lambda u: pulse(u)[0], start, fp_tolerance,
-                                              MAX_FIXED_POINT_PULSES, upper)
+    u_star, evaluations, residual = anderson(lambda u: pulse(u)[0], start, fp_tolerance, MAX_FIXED_POINT_PULSES, upper,
+                                             depth=ANDERSON_DEPTH, stagnation=STAGNATION_PULSES)
     if residual > fp_tolerance:
         warnings.append(f"train: the periodic steady state was not reached to {fp_tolerance:.0e} in "
                         f"{evaluations} pulse evaluations (residual {residual:.1e}); the figures are those of "

@@ -56,8 +56,10 @@ def test_pulse_train_example(tmp_path):
     assert train["repetition_rate_Hz"] == 10000.0
     assert train["pulse_energy_J"] == summary["output_energy_J"]
     assert summary["average_power_W"] == pytest.approx(10000.0 * summary["output_energy_J"], rel=1e-12)
-    assert train["direct_solution"] == "applied"
-    assert train["direct_pulse_energy_J"] == pytest.approx(train["pulse_energy_J"], rel=1e-9)
+    # the crystal's doping is known, so its pump bleaches it: the fixed point is iterated on the whole
+    # state (the per-pixel column solution needs a pump that does not follow the inversion)
+    assert train["direct_solution"].startswith("not applicable: the pump bleaches medium")
+    assert train["fixed_point_residual"] < 1e-9
     assert 1 < train["pulses_to_steady_state"] == len(train["pulse_energies_J"])
     assert not train["pulses_to_steady_state_estimated"]
     assert abs(train["energy_balance_error"]) < 1e-12

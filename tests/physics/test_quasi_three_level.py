@@ -2,8 +2,9 @@
 
 Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963) hold unchanged with Fsat = hν/(σe + σa); the gain
 then saturates towards transparency (G → 1) and the extractable fluence is Fsat·ln G0. Pumping can at
-most reach N2/Nt = σa,p/(σa,p + σe,p) at the pump wavelength (the steady state of the two-level rate equation
-under pump alone, e.g. W. Koechner, Solid-State Laser Engineering).
+most reach N2/Nt = σa,p/(σa,p + σe,p) at the pump wavelength (the steady state of the two-level rate
+equation under a strong pump, e.g. W. Koechner, Solid-State Laser Engineering), and it bleaches the
+pump's absorption on the way.
 
 Material numbers are Yb:YAG-like (from memory — verify): σe = 2.0e-20 cm²,
 σa = 0.1e-20 cm² at 1030 nm, τ = 0.95 ms; at 940 nm σa,p = 0.8e-20 cm², σe,p = 0.16e-20 cm²; 1 at.%
@@ -106,14 +107,35 @@ def test_transparency_from_above():
     assert remaining_prev < 1e-12                                         # reached transparency
 
 
+def reference_pumping(length_m: float, flux0: float, duration_s: float, tau_s: float, cells: int = 800):
+    """N2(z) (1/m³) at the end of a flat end-pump pulse by the method of lines, written out here
+    independently of the code: the rate equation of each of ``cells`` thin cells in time
+    (scipy.integrate.solve_ivp), dN2/dt = (σa,p·(Nt − N2) − σe,p·N2)·Φ(z) − N2/τ (η = 1), with
+    Φ(z) = Φ0·exp(−∫0^z α dz'), α = σa,p·(Nt − N2) − σe,p·N2, the integral by the trapezoid rule on
+    the cell centres (T. Y. Fan and R. L. Byer, IEEE J. Quantum Electron. 23, 605 (1987), from memory
+    — verify)."""
+    from scipy.integrate import cumulative_trapezoid, solve_ivp
+    z = (np.arange(cells) + 0.5) * length_m / cells
+
+    def rhs(_, n2):
+        alpha = SIGMA_AP * (DOPING - n2) - SIGMA_EP * n2
+        flux = flux0 * np.exp(-cumulative_trapezoid(alpha, z, initial=0.0) - alpha[0] * z[0])
+        return (SIGMA_AP * (DOPING - n2) - SIGMA_EP * n2) * flux - n2 / tau_s
+
+    sol = solve_ivp(rhs, (0.0, duration_s), np.zeros(cells), method="LSODA", rtol=1e-10, atol=1e10)
+    return z, sol.y[:, -1]
+
+
 def test_pumped_quasi_three_level_medium():
-    # End pumping (Beer–Lambert along z) of a long Yb:YAG-like rod: the front reaches the bleaching
-    # limit N2/Nt = σa,p/(σa,p + σe,p) and is capped there; the far end, hardly pumped, absorbs
+    # End pumping of a long Yb:YAG-like rod, strong enough to bleach its front: N2 along z against an
+    # independent method-of-lines solution; the front approaches the bleaching limit
+    # N2/Nt = σa,p/(σa,p + σe,p) and never passes it; the far end, hardly pumped, absorbs
     # (g = (σe+σa)·N2 − σa·Nt < 0).
-    length, diameter, alpha = 40e-3, 2e-3, SIGMA_AP * DOPING                # α L = 4.4
-    pump = Pump(geometry="end", energy_J=3.0, duration_s=1e-3, wavelength_m=940e-9, profile="flat",
+    length, diameter, alpha = 100e-3, 2e-3, SIGMA_AP * DOPING               # α L = 11 unbleached
+    energy, tp, tau = 3.0, 1e-3, 0.95e-3
+    pump = Pump(geometry="end", energy_J=energy, duration_s=tp, wavelength_m=940e-9, profile="flat",
                 absorption_per_m=alpha)
-    medium = make_medium(YB, length_m=length, diameter_m=diameter, slices=20, pump=pump, doping_per_m3=DOPING)
+    medium = make_medium(YB, length_m=length, diameter_m=diameter, slices=40, pump=pump, doping_per_m3=DOPING)
     seed = Seed(wavelength_m=1030e-9, energy_J=2e-3, duration_s=10e-9, profile="gaussian", diameter_m=1.5e-3)
     n, width = 24, 3e-3
     res = simulate(make_config(medium, seed, [pass_step(0)], points=n, width_m=width, time_slices=16))
@@ -122,23 +144,20 @@ def test_pumped_quasi_three_level_medium():
     g = rec.gain_initial_per_m[:, inside]
     n2 = (g + SIGMA_A * DOPING) / (SIGMA_E + SIGMA_A)          # from g = σe·N2 − σa·(Nt − N2)
     limit = SIGMA_AP / (SIGMA_AP + SIGMA_EP)
-    assert np.max(n2 / DOPING) <= limit * (1 + 1e-12)
-    assert np.max(n2 / DOPING) == pytest.approx(limit, rel=1e-12)  # the cap is reached (not a vacuous bound)
+    assert np.max(n2 / DOPING) <= limit
+    assert np.max(n2 / DOPING) > 0.75 * limit                        # the front is bleached (not a vacuous bound)
     assert np.all(g[-1] < 0.0)                                       # the unpumped far end absorbs
     assert g[-1] == pytest.approx(np.full_like(g[-1], g[-1, 0]))     # flat pump: all pixels alike
     assert np.all(rec.gain_initial_per_m[:, ~inside] == 0.0)         # no medium outside the aperture
-    assert any("bleaching limit" in w for w in res.summary["warnings"])
 
-    # Below the cap, N2 is the Beer–Lambert absorbed density times η/hν_p (Koechner, as above):
-    # slice k absorbs E·(exp(−α z_k) − exp(−α z_{k+1})) over the aperture area A·dz.
-    dz = length / 20
-    z = np.arange(21) * dz
-    tau, tp = 0.95e-3, 1e-3
-    eta = tau / tp * (1 - np.exp(-tp / tau))
-    pixel_area = (width / n) ** 2
-    density = 3.0 * (np.exp(-alpha * z[:-1]) - np.exp(-alpha * z[1:])) / (inside.sum() * pixel_area * dz)
-    n2_expected = np.minimum(density * eta / photon_energy(940e-9), limit * DOPING)
-    assert max_rel(n2[:, 0], n2_expected) < 1e-10      # N2 from g: cancellation in g + σa·Nt costs ~1e-13
+    # N2 along z: the slices' values against the reference's mean over each slice
+    flux0 = energy / tp / photon_energy(940e-9) / (inside.sum() * (width / n) ** 2)
+    z, ref = reference_pumping(length, flux0, tp, tau)
+    slice_means = ref.reshape(40, -1).mean(axis=1)
+    assert np.max(np.abs(n2[:, 0] - slice_means)) < 2e-3 * slice_means.max()
+    entry = res.summary["media"][0]
+    assert abs(entry["pump_photon_balance_error"]) < 1e-12
+    assert entry["absorbed_pump_energy_J"] + entry["transmitted_pump_energy_J"] == pytest.approx(energy, rel=1e-12)
 
     # The pulse through this gain map, absorbing slices included, still follows FN per pixel:
     # output = FN(F_in, Σ_z g·dz) with Fsat = hν/(σe+σa) (Frantz & Nodvik 1963, composition).
