@@ -158,6 +158,7 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_check(args) -> int:
+    from ampmodel.config.checks import ConfigError
     from ampmodel.kernels import beam_shapes
     from ampmodel.media import gain_maps
     from ampmodel.simulation import check_memory
@@ -185,7 +186,10 @@ def cmd_check(args) -> int:
             print(line)
         return EXIT_OK
     for m in config.media:
-        gm = gain_maps.gain_map(m, x, x)
+        try:
+            gm = gain_maps.gain_map(m, x, x)
+        except gain_maps.GainMapError as exc:
+            raise ConfigError([f"{config.source}: {exc}"]) from None
         stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
                                          gm.slice_length_m * (x[1] - x[0]) ** 2)
         print(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "

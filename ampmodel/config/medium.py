@@ -5,6 +5,7 @@ standing in for scalar values, and its [medium.pump].
 from __future__ import annotations
 
 import dataclasses
+import math
 from types import MappingProxyType
 from typing import Any
 
@@ -85,7 +86,7 @@ def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "p
         pump = _pump(p, item["pump"], join_path(path, "pump"), material, doping, mode)
     if len(p) > before or material is None:
         return None
-    return Medium(
+    medium = Medium(
         name=name, material=material, length_m=to_si("length_mm", v["length_mm"]),
         diameter_m=to_si(aperture_key, v[aperture_key]),
         aperture="square" if aperture_key == "width_mm" else "round",
@@ -93,6 +94,37 @@ def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "p
         small_signal_gain=v.get("small_signal_gain"),
         stored_energy_J=v.get("stored_energy_J"), pump=pump,
         doping_per_m3=v.get("doping_per_m3"), kind=v["kind"])
+    _check_ion_ceiling(p, medium, path)
+    return medium if len(p) == before else None
+
+
+def _check_ion_ceiling(p: Problems, medium: Medium, path: str) -> None:
+    """A given small-signal gain or stored energy must fit in the doping: every ion excited gives
+    g = σe·Nt at the material's wavelength (ln G0 = σe·Nt·L), and the stored energy down to
+    transparency Fsat·σe·Nt·V."""
+    nt = medium.doping_per_m3 or medium.material.doping_per_m3
+    if not nt:
+        return
+    g_max = medium.material.emission_cross_section_m2 * nt
+    doping = "doping_per_m3" if medium.doping_per_m3 else "the material's doping_per_m3"
+    fix = f"lower it, lengthen the medium or raise {doping}"
+    ln_max = g_max * medium.length_m
+    if medium.small_signal_gain is not None and math.log(medium.small_signal_gain) > ln_max:
+        p.add(join_path(path, "small_signal_gain"),
+              f"more than the doping can give: with every ion excited the single-pass gain at "
+              f"{medium.material.wavelength_m * 1e9:g} nm is exp(σe·Nt·L) = {_gain_text(ln_max)}; {fix}",
+              medium.small_signal_gain)
+    if medium.stored_energy_J is not None:
+        area = medium.diameter_m ** 2 * (1.0 if medium.aperture == "square" else math.pi / 4.0)
+        e_max = medium.material.saturation_fluence_J_m2 * g_max * area * medium.length_m
+        if medium.stored_energy_J > e_max:
+            p.add(join_path(path, "stored_energy_J"),
+                  f"more than the doping can store: with every ion excited the extractable energy of the "
+                  f"clear aperture is Fsat·σe·Nt·V = {e_max:.4g} J; {fix}", medium.stored_energy_J)
+
+
+def _gain_text(ln_gain: float) -> str:
+    return f"{math.exp(ln_gain):.4g}" if ln_gain < 700.0 else f"exp({ln_gain:.4g})"
 
 
 def builtin_material(p: Problems, path: str, name: str) -> Material | None:
