@@ -11,7 +11,7 @@ from ampmodel.materials import registry
 from ampmodel.materials.material import MATERIAL_KEYS
 from ampmodel.units import factor, si_name
 
-EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
+EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG", "Yb:CaF2",
             "Ti:sapphire", "Cr:LiSAF", "alexandrite", "Yb:silica fibre", "Er:silica fibre"]
 
 # Product codes (letters, hyphen, digits, as glass makers number their melts) must not appear in the
