@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import re
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -11,7 +12,7 @@ from ampmodel.materials import registry
 from ampmodel.materials.material import MATERIAL_KEYS
 from ampmodel.units import factor, si_name
 
-EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
+EXPECTED = ["Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG", "Yb:CaF2",
             "Ti:sapphire", "Cr:LiSAF", "alexandrite", "Yb:silica fibre", "Er:silica fibre"]
 
 # Product codes (letters, hyphen, digits, as glass makers number their melts) must not appear in the
@@ -268,3 +269,114 @@ def test_fibre_spectra_peaks():
     assert 972e-9 <= yb.wavelength_m[i] <= 978e-9 and 2.4e-24 <= yb.absorption_m2[i] <= 2.8e-24
     j = int(np.argmax(er.absorption_m2))
     assert 1525e-9 <= er.wavelength_m[j] <= 1535e-9 and 5e-25 <= er.absorption_m2[j] <= 7e-25
+
+
+# --- the built-in spectra against their files' scalar values, and McCumber's relation ---------------
+
+KT_CM_PER_K = 0.6950348   # Boltzmann's constant in cm^-1 per kelvin
+
+# (scalar key, spectrum column, wavelength key it is read at)
+SCALAR_READINGS = [("emission_cross_section_cm2", "emission_cm2", "wavelength_nm"),
+                   ("absorption_cross_section_cm2", "absorption_cm2", "wavelength_nm"),
+                   ("pump_absorption_cross_section_cm2", "absorption_cm2", "pump_wavelength_nm"),
+                   ("pump_emission_cross_section_cm2", "emission_cm2", "pump_wavelength_nm")]
+
+
+def _files_with_spectra() -> dict[str, dict]:
+    """Material name -> the file's data as read (config units), for the built-in files with a spectrum."""
+    found = {}
+    for path in sorted(registry.DATA_DIR.glob("*.toml")):
+        with path.open("rb") as handle:
+            data = registry.tomllib.load(handle)
+        if "spectrum" in data:
+            found[data["name"]] = data
+    return found
+
+
+def _table_at(data: dict, column: str, wavelength_nm: float) -> float:
+    table = data["spectrum"]
+    return float(np.interp(wavelength_nm, table["wavelength_nm"], table[column]))
+
+
+def test_the_bulk_materials_carry_spectra():
+    assert {"Nd:YAG", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG", "Yb:CaF2", "Ti:sapphire",
+            "Yb:silica fibre", "Er:silica fibre"} <= set(_files_with_spectra())
+
+
+@pytest.mark.parametrize("name", sorted(_files_with_spectra()))
+def test_spectrum_meets_the_scalar_values(name):
+    """Where a file gives both a scalar cross-section and a spectrum, they agree within 1 % at the
+    scalar's wavelength; a scalar 0 (a four-level line, no emission at the pump) allows a table value
+    below 1 % of the emission cross-section at the lasing wavelength."""
+    data = _files_with_spectra()[name]
+    emission_nm = _table_at(data, "emission_cm2", data["wavelength_nm"]["value"])
+    checked = 0
+    for key, column, at_key in SCALAR_READINGS:
+        if key not in data or at_key not in data:
+            continue
+        scalar, table = data[key]["value"], _table_at(data, column, data[at_key]["value"])
+        if scalar == 0.0:
+            assert table <= 0.01 * emission_nm, (name, key, table)
+        else:
+            assert table == pytest.approx(scalar, rel=0.01, abs=0.0), (name, key, table, scalar)
+        checked += 1
+    material = registry.get(name)      # the loaded material: its scalars as given, or read from the table
+    se, _ = material.cross_sections_m2(material.wavelength_m)
+    assert float(se) == pytest.approx(material.emission_cross_section_m2, rel=0.01, abs=0.0)
+    assert checked or "emission_cross_section_cm2" not in data     # a file without scalars: fibres
+
+
+def _mccumber_fit(spectrum) -> tuple[float, float, int] | None:
+    """Fit ln(sigma_a/sigma_e) against photon energy over the table's wavelengths where both exceed 1 %
+    of their peaks: (temperature K, largest residual, number of points), or None with fewer than 3."""
+    wavelength_nm = np.array(spectrum.wavelength_m) * 1e9
+    se, sa = np.array(spectrum.emission_m2), np.array(spectrum.absorption_m2)
+    both = (se > 0.01 * se.max()) & (sa > 0.01 * sa.max())
+    if both.sum() < 3:
+        return None
+    energy_cm = 1e7 / wavelength_nm[both]
+    log_ratio = np.log(sa[both] / se[both])
+    slope, intercept = np.polyfit(energy_cm, log_ratio, 1)
+    residual = log_ratio - (slope * energy_cm + intercept)
+    return 1.0 / (slope * KT_CM_PER_K), float(np.max(np.abs(residual))), int(both.sum())
+
+
+MCCUMBER_SPECTRA = ["Er:silica fibre", "Ti:sapphire", "Yb:CaF2", "Yb:YAG", "Yb:silica fibre"]
+
+
+def test_the_mccumber_check_covers_every_spectrum_with_overlapping_bands():
+    with_overlap = [name for name in registry.names() if registry.get(name).spectrum is not None
+                    and _mccumber_fit(registry.get(name).spectrum) is not None]
+    assert with_overlap == MCCUMBER_SPECTRA
+
+
+@pytest.mark.parametrize("name", MCCUMBER_SPECTRA)
+def test_spectrum_obeys_mccumber(name):
+    """McCumber's relation sigma_a/sigma_e = exp((h nu - eps)/kT) (D. E. McCumber, Phys. Rev. 136, A954
+    (1964)): where both cross-sections are given, ln(sigma_a/sigma_e) is a straight line in photon
+    energy whose slope 1/kT is a plausible temperature. The Yb:YAG, Yb:CaF2 and Ti:sapphire tables
+    were built with the relation, the fibre tables in their wings."""
+    temperature_K, worst, points = _mccumber_fit(registry.get(name).spectrum)
+    assert points >= 3
+    assert 200.0 <= temperature_K <= 450.0, temperature_K
+    assert worst < 0.1, worst     # within 10 % of the straight line everywhere
+
+
+def test_refractive_indices_match_published_dispersion_formulas():
+    """The hosts' indices against Sellmeier formulas of the literature as one dispersion package
+    gives them (no download at run time): undoped YAG (D. E. Zelmon et al., Appl. Opt. 37, 4933 (1998)),
+    sapphire (I. H. Malitson, J. Opt. Soc. Am. 52, 1377 (1962); extraordinary index for the
+    pi-polarised Ti:sapphire) and CaF2 (I. H. Malitson, Appl. Opt. 2, 1103 (1963)). The package has no
+    phosphate or silicate laser glass, so the glasses are not checked here."""
+    ndispers = pytest.importorskip("ndispers")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")      # the package warns that its formulas have no temperature term
+        yag = ndispers.media.glasses.YAG()
+        sapphire = ndispers.media.crystals.Sapphire()
+        caf2 = ndispers.media.glasses.CaF2()
+        for name, index in [("Nd:YAG", lambda um: yag.n(um, 20.0)), ("Yb:YAG", lambda um: yag.n(um, 20.0)),
+                            ("Ti:sapphire", lambda um: sapphire.n(um, np.pi / 2, 20.0, pol="e")),
+                            ("Yb:CaF2", lambda um: caf2.n(um, 20.0))]:
+            material = registry.get(name)
+            expected = float(index(material.wavelength_m * 1e6))
+            assert material.refractive_index == pytest.approx(expected, rel=0.01), (name, expected)
