@@ -176,7 +176,7 @@ def cmd_check(args) -> int:
     if config.mode == "cw":
         from ampmodel.cw.medium import build_medium
         for m in config.media:
-            st = build_medium(m, x, x, config.solver)
+            st = build_medium(m, x, x, config.solver, config.seed.wavelength_m)
             g = st.coarse(st.g0)
             line = (f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
                     f"{gain_maps.on_axis_gain(g, m.length_m / m.slices):.4g}")

@@ -143,6 +143,10 @@ class Seed:
     m_squared: float = 1.0            # beam quality M² (> 1: a random phase screen, see kernels/beam_shapes.py)
     phase_screen_seed: int = 0        # random seed of that phase screen
     repetition_rate_Hz: float | None = None   # pulses per second: a pulse train (None: one pulse)
+    # a stretched pulse: the FWHM of its spectrum, swept linearly across the pulse (None: narrowband),
+    # λ(t) = λ0 ± bandwidth·t/duration from the pulse centre; "up": longer wavelengths later
+    bandwidth_m: float | None = None
+    chirp: str = "up"
 
 
 @dataclass(frozen=True)

@@ -6,6 +6,8 @@ Warning thresholds are common practice; each can be changed in the config's [lim
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 J_CM2 = 1e-4   # J/m² -> J/cm²
@@ -44,3 +46,49 @@ def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, wid
         warnings.append(f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm window "
                         f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
     return warnings
+
+
+# Time-bandwidth products Δν·Δt (FWHM) of transform-limited pulses of each shape (Gaussian 2·ln2/π;
+# sech² 0.315; the flat pulse's sinc² spectrum 0.886): textbook values (e.g. J.-C. Diels and
+# W. Rudolph, Ultrashort Laser Pulse Phenomena, Academic Press, table 1.1; from memory — verify).
+TIME_BANDWIDTH = {"gaussian": 2.0 * math.log(2.0) / math.pi, "sech2": 0.315, "flat": 0.886}
+LIGHT_SPEED_M_S = 299_792_458.0
+
+
+def transform_limit_bandwidth_m(shape: str, duration_s: float, wavelength_m: float) -> float:
+    """FWHM (m) of the spectrum of a transform-limited pulse of this shape and duration (FWHM; flat:
+    full width): Δλ = λ²·Δν/c with Δν = TIME_BANDWIDTH/duration."""
+    return wavelength_m ** 2 * TIME_BANDWIDTH[shape] / duration_s / LIGHT_SPEED_M_S
+
+
+def transform_limit_duration_s(bandwidth_m: float, wavelength_m: float) -> float:
+    """The shortest Gaussian pulse (FWHM, s) a spectrum of FWHM ``bandwidth_m`` at ``wavelength_m``
+    supports: Δt = 2·ln2/π · λ²/(c·Δλ) (an estimate: the spectrum taken as Gaussian)."""
+    return TIME_BANDWIDTH["gaussian"] * wavelength_m ** 2 / (LIGHT_SPEED_M_S * bandwidth_m)
+
+
+def spectrum_J_m(energies_J: np.ndarray, wavelength_step_m: float) -> np.ndarray:
+    """(Nt,) spectral energy density (J/m) of a chirped pulse whose time slice t carries
+    ``energies_J[t]`` over a wavelength interval ``wavelength_step_m`` (all alike: a linear chirp)."""
+    return np.asarray(energies_J, dtype=float) / abs(wavelength_step_m)
+
+
+def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray) -> tuple[float, float]:
+    """The energy-weighted centre wavelength (m) of a pulse's slices and the full width at half
+    maximum of its spectrum (m; linear interpolation between the slices, whose wavelengths are evenly
+    spaced). (nan, nan) for a pulse without energy."""
+    e = np.asarray(energies_J, dtype=float)
+    wl = np.asarray(wavelengths_m, dtype=float)
+    total = float(e.sum())
+    if total <= 0.0 or e.size < 2:
+        return float("nan"), float("nan")
+    order = np.argsort(wl)
+    e, wl = e[order], wl[order]
+    centre = float((e * wl).sum() / total)
+    half = 0.5 * float(e.max())
+    above = np.flatnonzero(e >= half)
+    i, j = above[0], above[-1]
+    step = float(wl[1] - wl[0])
+    left = wl[i] - (e[i] - half) / (e[i] - e[i - 1]) * step if i > 0 else wl[0]
+    right = wl[j] + (e[j] - half) / (e[j] - e[j + 1]) * step if j < e.size - 1 else wl[-1]
+    return centre, float(right - left)

@@ -34,7 +34,7 @@ from ampmodel.config.checks import (
     join_path,
     type_name,
 )
-from ampmodel.config.medium import builtin_material, check_media
+from ampmodel.config.medium import builtin_material, check_media, check_seed_spectrum
 from ampmodel.config.steps import check_steps
 from ampmodel.config.sweep import check_spread, check_sweep
 from ampmodel.config.text import (
@@ -169,6 +169,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         check_sweep(p, raw, builtin_material)
     if isinstance(raw.get("spread"), dict):
         check_spread(p, raw)
+    if media is not None and seed is not None and not fibre_layout and len(p) == 0:
+        check_seed_spectrum(p, media, seed)
     if mode == "cw" and grid is not None and grid.diffraction:
         p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
                                   "set grid.diffraction = false", True)
@@ -250,7 +252,9 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                 order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else 0.0,
                 waist_m=to_si("waist_mm", v["waist_mm"]) if "waist_mm" in v else None,
                 curvature_m=to_si("curvature_mm", v["curvature_mm"]) if "curvature_mm" in v else None,
-                m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz)
+                m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz,
+                bandwidth_m=to_si("bandwidth_nm", v["bandwidth_nm"]) if "bandwidth_nm" in v else None,
+                chirp=v["chirp"])
 
 
 # --- steps ------------------------------------------------------------------------------------

@@ -9,13 +9,16 @@ import math
 from types import MappingProxyType
 from typing import Any
 
+import numpy as np
+
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
 from ampmodel.config import files as config_files
 from ampmodel.config import schema as S
 from ampmodel.config.checks import Problems, check_table, expected, given_keys, join_path, quoted_list, type_name
 from ampmodel.config.schema import array_of_tables, item_names
-from ampmodel.description import Medium, Pump
+from ampmodel.description import Medium, Pump, Seed
+from ampmodel.kernels import beam_shapes
 from ampmodel.materials import registry
 from ampmodel.materials.material import (
     CROSS_SECTION_STAND_INS,
@@ -280,3 +283,39 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
         back_reflectance=v.get("back_reflectance", 0.0), absorbed_fraction=v.get("absorbed_fraction", 1.0),
         transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"],
         power_W=power_W, continuous=continuous or mode == "cw")
+
+
+def check_seed_spectrum(p: Problems, media: list[Medium], seed: Seed) -> None:
+    """The seed against the cross-sections of the bulk media it meets: a seed away from a material's
+    wavelength, or a stretched one, needs the material's cross-section spectrum (the scalar values hold
+    at its wavelength only); the spectrum must cover the seed's centre; a material that absorbs there
+    needs its doping."""
+    key = "seed.bandwidth_nm" if seed.bandwidth_m else "seed.wavelength_nm"
+    value = seed.bandwidth_m * 1e9 if seed.bandwidth_m else seed.wavelength_m * 1e9
+    low, high = beam_shapes.wavelength_span_m(seed.shape, seed.wavelength_m, seed.bandwidth_m)
+    for m in media:
+        if m.kind == "fibre":
+            continue
+        mat = m.material
+        at_line = not seed.bandwidth_m and abs(seed.wavelength_m - mat.wavelength_m) <= 1e-9 * mat.wavelength_m
+        if at_line:
+            continue
+        if mat.spectrum is None:
+            what = (f"a stretched seed of {value:g} nm bandwidth" if seed.bandwidth_m else
+                    f"a seed at {value:g} nm")
+            p.add(key, f"medium {m.name}: {what} needs the cross-sections of {mat.name} at its wavelengths, and "
+                       f"the material gives them at {mat.wavelength_m * 1e9:g} nm only; give its "
+                       f"[medium.material.spectrum] table, or set seed.wavelength_nm = {mat.wavelength_m * 1e9:g} "
+                       f"without bandwidth_nm", value)
+            continue
+        if not mat.spectrum.covers(seed.wavelength_m):
+            p.add("seed.wavelength_nm", f"medium {m.name}: outside the cross-section spectrum of {mat.name} "
+                                        f"({mat.spectrum.range_nm}); give a wavelength inside it",
+                  seed.wavelength_m * 1e9)
+            continue
+        nt = m.doping_per_m3 or mat.doping_per_m3
+        span = np.linspace(max(low, mat.spectrum.wavelength_m[0]), min(high, mat.spectrum.wavelength_m[-1]), 257)
+        if not nt and float(np.max(mat.spectrum.at(span)[1])) > 0.0:
+            p.add(join_path(f"medium[{media.index(m)}] ({m.name})", "doping_per_m3"),
+                  f"missing: {mat.name} absorbs at the seed's wavelengths, which needs its ion density; give "
+                  f"doping_per_m3 (the medium's or its material's)")

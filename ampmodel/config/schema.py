@@ -109,7 +109,8 @@ BEAM_PROFILES = ("gaussian", "flat", "supergaussian")
 DURATION_KEYS = ("duration_ns", "duration_ps", "duration_fs", "duration_us")
 DURATION_RANGES = {"duration_ns": (1e-6, 1e7), "duration_ps": (1e-3, 1e10), "duration_fs": (1.0, 1e13),
                    "duration_us": (1e-9, 1e4)}        # 1 fs to 10 ms in each unit
-PULSED_SEED_KEYS = ("energy_J", "shape") + DURATION_KEYS
+PULSED_SEED_KEYS = ("energy_J", "shape", "bandwidth_nm", "chirp") + DURATION_KEYS
+CHIRPS = ("up", "down")
 CW_SEED_KEYS = ("power_W",)
 SEED: dict[str, Key] = {
     "wavelength_nm": quantity("seed wavelength", ge=150.0, le=20000.0),
@@ -129,6 +130,8 @@ SEED: dict[str, Key] = {
     "repetition_rate_Hz": quantity("pulses per second: a pulse train (bulk or fibre layouts)", gt=0, le=1e10),
     "repetition_rate_kHz": quantity("thousands of pulses per second: a pulse train (bulk or fibre layouts)", gt=0,
                                     le=1e7),
+    "bandwidth_nm": quantity("FWHM of the spectrum of a stretched (linearly chirped) pulse", gt=0, le=2000.0),
+    "chirp": choice("direction of the chirp: up, longer wavelengths later; down, shorter", CHIRPS, default="up"),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")

@@ -100,18 +100,24 @@ def pump_only(st: CwMedium, pixel_area_m2: float, tolerance: float, max_iteratio
     return max_iterations
 
 
-def build_medium(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, solver) -> CwMedium:
-    """A medium's cw state before the signal: its small-signal gain map (pump settled if pumped)."""
+def build_medium(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, solver,
+                 wavelength_m: float | None = None) -> CwMedium:
+    """A medium's cw state before the signal: its small-signal gain map (pump settled if pumped), at
+    the signal's ``wavelength_m`` (default the material's): the gain and saturation intensity follow
+    the cross-sections there."""
     mask = beam_shapes.aperture_mask(x_m, y_m, medium.aperture, medium.diameter_m)
-    levels = Ions.of(medium)
+    at_line = Ions.of(medium)
+    levels = at_line.at_wavelength(medium, wavelength_m or medium.material.wavelength_m)
     homogeneous = medium.material.broadening != "inhomogeneous"
     pixel_area = float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
     if medium.pump is None:
-        g = gain_maps.gain_map(medium, x_m, y_m).gain_per_m
+        g = levels.gain_per_m(at_line.n2_per_m3(gain_maps.gain_map(medium, x_m, y_m).gain_per_m))
+        g = np.where(mask, g, 0.0)
         sub = loss_substeps(medium, float(np.abs(g).max()))
         g0 = np.repeat(g, sub, axis=0)
+        isat = levels.photon_energy_J / (levels.sum_cross_section_m2 * levels.lifetime_s)
         return CwMedium(medium, mask, sub, medium.length_m / (medium.slices * sub), homogeneous, levels,
-                        g0=g0, isat=medium.material.saturation_intensity_W_m2, gain=g0.copy())
+                        g0=g0, isat=isat, gain=g0.copy())
     pump = pumping.build_pump(medium, x_m, y_m, mask)
 
     def settle(sub: int) -> CwMedium:

@@ -102,6 +102,26 @@ def time_slices(shape: str, duration_s: float, n: int) -> tuple[np.ndarray, np.n
     return t, weights, dt
 
 
+def slice_wavelengths(t_s: np.ndarray, duration_s: float, wavelength_m: float, bandwidth_m: float | None,
+                      chirp: str = "up") -> np.ndarray:
+    """(Nt,) wavelength of each time slice (m): a stretched, linearly chirped pulse sweeps
+    λ(t) = λ0 ± bandwidth·t/duration across it (t from the pulse centre; "up": longer wavelengths
+    later), so that its spectrum has the pulse's shape and a FWHM of ``bandwidth_m``; a narrowband
+    pulse (``bandwidth_m`` None) is at λ0 in every slice."""
+    t = np.asarray(t_s, dtype=float)
+    if not bandwidth_m:
+        return np.full(t.shape, float(wavelength_m))
+    sign = 1.0 if chirp == "up" else -1.0
+    return wavelength_m + sign * bandwidth_m * t / duration_s
+
+
+def wavelength_span_m(shape: str, wavelength_m: float, bandwidth_m: float | None) -> tuple[float, float]:
+    """The shortest and longest wavelength a pulse's time slices reach (m): the window of
+    :func:`time_slices` swept by the chirp of :func:`slice_wavelengths`."""
+    half = HALF_WINDOW_FWHM[shape] * (bandwidth_m or 0.0)
+    return wavelength_m - half, wavelength_m + half
+
+
 def seed_fluence(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m: float, order: float,
                  energy_J: float) -> np.ndarray:
     """(Ny, Nx) seed fluence (J/m²) whose sum over the grid times the pixel area equals ``energy_J``."""

@@ -160,7 +160,8 @@ def slice_constants(mask: np.ndarray, fsat: float, half_loss: float, b_coef: flo
 
 
 def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work: ChunkWork, plane: np.ndarray,
-                    b_increment: np.ndarray | None) -> ChunkSums:
+                    b_increment: np.ndarray | None,
+                    spectral: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None) -> ChunkSums:
     """The gain and Kerr step of one z-slice on a chunk of time slices, in place.
 
     First the absorbing edge (``k.edge``, if the propagation left it to this step). Then half the
@@ -179,6 +180,9 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     work : the thread's scratch arrays (:class:`ChunkWork`, at least c rows)
     plane : (P,) += Σ over the chunk's time slices of the fluence leaving (the peak fluence per plane)
     b_increment : (c, P) += the Kerr phase (rad), or None without n2
+    spectral : for time slices that are not all at the material's wavelength, the chunk's rows of
+        (Fsat0/Fsat_t, a_t, c_t) of :func:`~ampmodel.kernels.fn_pass.amplify_block_spectral` (the
+        log-domain form then), else None
 
     Returns
     -------
@@ -234,7 +238,7 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         g = np.take(ln_gain, inside, out=work.ln_gain, mode="clip")
         lowest = float(x.min())
         mean = None
-        linear = _linear_valid(x, g, half_loss, lowest, f_max / fsat)
+        linear = spectral is None and _linear_valid(x, g, half_loss, lowest, f_max / fsat)
         if linear:
             xo = _fn_linear(x, g, half_loss, work, rows)   # J_out/Fsat before the second half loss
             d = work.u[:rows]                               # with loss: J_in·half_loss (the map's input)
@@ -251,7 +255,10 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
             if kerr:
                 mean = work.w[:rows]
                 mean[...] = 0.0
-            oc = fn_pass.amplify_block(xo, g[None, :], half_loss, mean, linear=False)
+            if spectral is None:
+                oc = fn_pass.amplify_block(xo, g[None, :], half_loss, mean, linear=False)
+            else:
+                oc = fn_pass.amplify_block_spectral(xo, g[None, :], *spectral, half_loss=half_loss, b_sum=mean)
             if lossy:
                 gained, passive = oc.gained * fsat, oc.passive_loss * fsat
         ln_gain[inside] = g

@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ampmodel.description import Medium
+from ampmodel.units import photon_energy_J
 
 
 @dataclass(frozen=True)
@@ -66,8 +67,57 @@ class Ions:
         """N2 (1/m³) from the gain coefficient g (1/m) at λ0."""
         return (np.asarray(gain_per_m) + self.ground_absorption_per_m) / self.sum_cross_section_m2
 
+    def at_wavelength(self, medium: Medium, wavelength_m: float) -> Ions:
+        """The same ions seen at another wavelength: the cross-sections there (from the material's
+        spectrum) and that photon energy; itself at the material's wavelength."""
+        mat = medium.material
+        if abs(wavelength_m - mat.wavelength_m) <= 1e-9 * mat.wavelength_m:
+            return self
+        sigma_e, sigma_a = (float(v) for v in mat.spectrum.at(wavelength_m))
+        return Ions(sigma_e, sigma_a, self.lifetime_s, photon_energy_J(wavelength_m), self.nt_per_m3)
+
     def upper_fraction(self, gain_per_m: np.ndarray) -> np.ndarray | None:
         """N2/Nt from g, or None where Nt is not known."""
         if not self.nt_per_m3:
             return None
         return self.n2_per_m3(gain_per_m) / self.nt_per_m3
+
+
+@dataclass(frozen=True)
+class SliceCrossSections:
+    """How each time slice of a pulse meets a medium, against the material's wavelength λ0.
+
+    With the state held as g0 = (σe + σa)_0·N2 − σa0·Nt at λ0, the slice at λ_t sees
+    g_t = scale_t·g0 + offset_t and the saturation fluence Fsat_t = Fsat0/ratio_t:
+
+    scale : (Nt,) (σe + σa)_t/(σe + σa)_0 (0 where the ions do not see λ_t)
+    offset_per_m : (Nt,) (scale_t·σa0 − σa_t)·Nt (1/m)
+    ratio : (Nt,) Fsat0/Fsat_t = scale_t·λ_t/λ0
+    outside : (Nt,) bool, λ_t beyond the material's cross-section table (taken as unseen)
+    """
+
+    scale: np.ndarray
+    offset_per_m: np.ndarray
+    ratio: np.ndarray
+    outside: np.ndarray
+
+
+def slice_cross_sections(medium: Medium, wavelengths_m: np.ndarray) -> SliceCrossSections | None:
+    """The cross-sections each time slice meets (:class:`SliceCrossSections`), from the material's
+    spectrum; None when every slice is at the material's wavelength (the plain Frantz–Nodvik pass).
+    The config checks made sure that a seed away from λ0 meets a material with a spectrum."""
+    mat = medium.material
+    wl = np.asarray(wavelengths_m, dtype=float)
+    if np.all(np.abs(wl - mat.wavelength_m) <= 1e-9 * mat.wavelength_m):
+        return None
+    spectrum = mat.spectrum
+    lo, hi = spectrum.wavelength_m[0], spectrum.wavelength_m[-1]
+    outside = (wl < lo * (1 - 1e-12)) | (wl > hi * (1 + 1e-12))
+    sigma_e, sigma_a = spectrum.at(np.clip(wl, lo, hi))
+    sigma_e = np.where(outside, 0.0, sigma_e)
+    sigma_a = np.where(outside, 0.0, sigma_a)
+    ions = Ions.of(medium)
+    scale = (sigma_e + sigma_a) / ions.sum_cross_section_m2
+    nt = ions.nt_per_m3 or 0.0
+    offset = (scale * ions.sigma_a_m2 - sigma_a) * nt
+    return SliceCrossSections(scale, offset, scale * wl / mat.wavelength_m, outside)

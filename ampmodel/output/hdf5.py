@@ -59,17 +59,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
             for key, value in (attrs or {}).items():
                 f.attrs[key] = value
             cw = result.config.mode == "cw"
-            g = f.create_group("grid")
-            _dataset(g, "x", result.x_m, "m")
-            _dataset(g, "y", result.y_m, "m")
-            if not cw:
-                _dataset(g, "t", result.t_s, "s")
-            s = f.create_group("seed")
-            if cw:
-                _dataset(s, "intensity", result.seed_intensity_W_m2, "W/m^2")
-            else:
-                _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
-                _dataset(s, "power", result.seed_power_W, "W")
+            _grid_and_seed(f, result, cw)
             steps = f.create_group("steps")
             for rec in result.steps:
                 sg = steps.create_group(f"{rec.index:03d}")
@@ -115,6 +105,25 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in result.train.items():
                     _dataset(tg, name, np.asarray(data), units)
             f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
+
+
+def _grid_and_seed(f, result: Result, cw: bool) -> None:
+    """/grid (x, y, t, a chirped seed's wavelengths) and /seed (its map, power and spectrum)."""
+    g = f.create_group("grid")
+    _dataset(g, "x", result.x_m, "m")
+    _dataset(g, "y", result.y_m, "m")
+    if not cw:
+        _dataset(g, "t", result.t_s, "s")
+    if result.wavelength_m is not None:
+        _dataset(g, "wavelength", result.wavelength_m, "m", meaning="wavelength of each time slice (chirped seed)")
+    s = f.create_group("seed")
+    if cw:
+        _dataset(s, "intensity", result.seed_intensity_W_m2, "W/m^2")
+        return
+    _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
+    _dataset(s, "power", result.seed_power_W, "W")
+    if result.seed_spectrum_J_m is not None:
+        _dataset(s, "spectrum", result.seed_spectrum_J_m, "J/m", meaning="spectral energy density at /grid/wavelength")
 
 
 def _provenance(f, config: Config) -> None:

@@ -114,6 +114,8 @@ class Result:
         pulse from the start of the train (empty for a single pulse)
     field_transforms : diffraction runs: the 2-D transforms (of one time slice each) the field path
         made, for the benchmark (0 otherwise; not written to the files)
+    wavelength_m : (Nt,) the wavelength of each time slice of a chirped seed (None: narrowband)
+    seed_spectrum_J_m : (Nt,) the chirped seed's spectral energy density at those wavelengths (J/m)
     """
 
     config: Config
@@ -130,6 +132,8 @@ class Result:
     fibres: dict[str, FibreRecord] = field(default_factory=dict)
     train: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
     field_transforms: int = 0
+    wavelength_m: np.ndarray | None = None
+    seed_spectrum_J_m: np.ndarray | None = None
 
     def save(self, directory: str | os.PathLike, plots: bool = True) -> Path:
         """Write result.h5, summary.json and (optionally) plots/*.png into ``directory``: the public

@@ -27,6 +27,7 @@ from ampmodel.plots.fibre import make_fibre_plots
 from ampmodel.plots.gain import plot_medium_gain
 from ampmodel.plots.layout import b_integrals, plot_b_integral, plot_energy_per_step, plot_pulse_power
 from ampmodel.plots.maps import plot_fluence_maps
+from ampmodel.plots.spectra import has_spectrum, plot_spectra
 from ampmodel.plots.trains import plot_round_trips, plot_train
 
 if TYPE_CHECKING:
@@ -48,7 +49,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     ``gain_<medium>.png`` for each medium, ``b_integral.png`` when any step has a non-zero
     B-integral, ``beam_steps.png`` and ``beam_size.png`` when the summary holds the beam figures
     (``beam.py``), ``round_trips.png`` for a repeat step (``round_trips_step<N>.png`` when
-    there are several) and ``train.png`` for a pulse train (``trains.py``). A cw run writes
+    there are several), ``train.png`` for a pulse train (``trains.py``) and ``spectrum.png`` for a
+    chirped seed (``spectra.py``). A cw run writes
     ``intensity_maps.png``, ``power_per_step.png`` and ``gain_<medium>.png`` (the steady-state gain
     along z and the intensity of each pass; cw.py).
     A layout of fibres writes the maps (``intensity_maps.png`` and ``power_per_step.png``
@@ -94,4 +96,6 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
         paths.append(plot_round_trips(result, entry, out / name))
     if isinstance((result.summary or {}).get("train"), dict):
         paths.append(plot_train(result, out / "train.png"))
+    if has_spectrum(result):
+        paths.append(plot_spectra(result, out / "spectrum.png"))
     return paths

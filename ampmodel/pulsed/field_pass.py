@@ -129,6 +129,8 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
     final = np.zeros(len(starts))                            # Σ|E|² of each chunk at the exit
     b_step = np.zeros(len(starts))
     b_all = beam.b_integral.reshape(nt, pixels)
+    sp = medium.spectral
+    spectral = None if sp is None else (sp.ratio, sp.scale, sp.offset_per_m * dz)
 
     def stage(thread: int, c: int, s: int) -> None:
         """Stage 2j: the diffraction step before gain step j (or the last half step, j = nz);
@@ -139,8 +141,9 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
         work = works[thread]
         inc = work.b_increment[:len(e)] if kerr else None
         if s % 2:
+            rows_spectral = None if spectral is None else tuple(a[t0:t0 + len(e)] for a in spectral)
             sums[c, j] = fs.gain_kerr_chunk(e.reshape(len(e), pixels), gain_rows[order[j]], constants, work,
-                                            plane[j], inc)
+                                            plane[j], inc, rows_spectral)
             return
         if s == 0 and kerr:
             inc[...] = 0.0

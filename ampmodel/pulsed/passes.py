@@ -10,13 +10,16 @@ import numpy as np
 
 from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.kernels import fn_pass
+from ampmodel.media.ions import SliceCrossSections
 
 
 @dataclass
 class MediumState:
     """A medium as the beam meets it: ln G per voxel (depleted pass after pass) and its constants.
 
-    ln_gain : (Nz, Ny, Nx) g·dz per voxel; mask : (Ny, Nx) clear aperture
+    ln_gain : (Nz, Ny, Nx) g·dz per voxel at the material's wavelength; mask : (Ny, Nx) clear aperture
+    spectral : how each time slice of the pulse meets the medium when they are not all at the
+        material's wavelength (None: the plain pass at its Fsat)
     """
 
     name: str
@@ -26,6 +29,7 @@ class MediumState:
     slice_length_m: float
     loss_per_m: float
     n2_m2_W: float
+    spectral: SliceCrossSections | None = None
 
 
 def _scatter(full: np.ndarray, idx: np.ndarray, block: np.ndarray) -> None:
@@ -97,13 +101,7 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
         order = ln_gain[::-1] if reverse else ln_gain
         share = nz * len(idx) / len(active)                    # z-slices of work in this block
         part = tick and (lambda f, share=share: tick(f * share))
-        if b_coef <= 0.0 and half_loss == 1.0 and fn_pass.composite_valid(order):
-            oc = fn_pass.amplify_block_composite(x, order, tick=part)
-            b_sum = None
-        else:
-            b_sum = np.zeros_like(x) if b_coef > 0.0 else None
-            oc = fn_pass.amplify_block(x, order, half_loss, b_sum,
-                                       linear=fn_pass.linear_form_valid(x, order, half_loss), tick=part)
+        oc, b_sum = _amplify(x, order, medium.spectral, half_loss, b_coef > 0.0, dz, part)
         x *= fsat
         e_out += float(x.sum())
         _scatter(fluence, idx, x)
@@ -122,3 +120,20 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
                        b_integral_step_rad=b_step)
 
 
+def _amplify(x: np.ndarray, order: np.ndarray, spectral: SliceCrossSections | None, half_loss: float,
+             b_needed: bool, dz_m: float, part) -> tuple[fn_pass.BlockOutcome, np.ndarray | None]:
+    """A block through the gain slices by the evaluation that suits it: per time slice's own
+    cross-sections (a pulse away from the material's wavelength), composite slices (no result needs
+    the inside of the medium), or the linear or log-domain form; and the B-integral sums (or None)."""
+    if spectral is not None:
+        b_sum = np.zeros_like(x) if b_needed else None
+        oc = fn_pass.amplify_block_spectral(x, order, spectral.ratio, spectral.scale, spectral.offset_per_m * dz_m,
+                                            half_loss, b_sum)
+        if part:
+            part(1.0)
+        return oc, b_sum
+    if not b_needed and half_loss == 1.0 and fn_pass.composite_valid(order):
+        return fn_pass.amplify_block_composite(x, order, tick=part), None
+    b_sum = np.zeros_like(x) if b_needed else None
+    return fn_pass.amplify_block(x, order, half_loss, b_sum, linear=fn_pass.linear_form_valid(x, order, half_loss),
+                                 tick=part), b_sum

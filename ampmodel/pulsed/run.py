@@ -16,9 +16,10 @@ from ampmodel.description import Config, Step, step_label
 from ampmodel.kernels import beam_shapes
 from ampmodel.media import gain_maps
 from ampmodel.media.gain_maps import GainMap
+from ampmodel.media.ions import SliceCrossSections, slice_cross_sections
 from ampmodel.output.result import MediumRecord, Result, StepRecord
 from ampmodel.progress import progress_bar
-from ampmodel.pulsed import diagnostics, repeats, trains
+from ampmodel.pulsed import diagnostics, repeats, spectra, trains
 from ampmodel.pulsed.clocks import Timeline, medium_clocks
 from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState, pass_medium
@@ -33,7 +34,7 @@ class PulsedLayout:
     share of the seed's energy in each and their width; seed_map : (Ny, Nx) the seed's fluence (J/m²);
     seed_field : the seed's field at the start plane (field path, or a seed with a waist) or None;
     seed_power_W : (Nt,) the seed's power; apertures : step index -> the clear aperture its beam
-    figures are taken over.
+    figures are taken over; wavelengths_m : (Nt,) the wavelength of each time slice.
     """
 
     config: Config
@@ -48,6 +49,7 @@ class PulsedLayout:
     seed_power_W: np.ndarray
     timeline: Timeline
     apertures: dict[int, np.ndarray]
+    wavelengths_m: np.ndarray
 
     @classmethod
     def build(cls, config: Config) -> PulsedLayout:
@@ -59,8 +61,11 @@ class PulsedLayout:
             maps = {m.name: gain_maps.gain_map(m, x, x) for m in config.media}
         except gain_maps.GainMapError as exc:
             raise ConfigError([f"{config.source}: {exc}"]) from None
-        states = {m.name: _medium_state(m, maps[m.name]) for m in config.media}
         t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
+        wavelengths = beam_shapes.slice_wavelengths(t, seed.duration_s, seed.wavelength_m, seed.bandwidth_m,
+                                                    seed.chirp)
+        states = {m.name: _medium_state(m, maps[m.name], slice_cross_sections(m, wavelengths))
+                  for m in config.media}
         seed_field = None
         if grid.diffraction or seed.waist_m is not None:
             seed_field = _seed_field(config, x, x)
@@ -70,7 +75,7 @@ class PulsedLayout:
         area = float((x[1] - x[0]) ** 2)
         seed_power = weights * seed_map.sum() * area / dt
         return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
-                   Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states))
+                   Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states), wavelengths)
 
     @property
     def pixel_area_m2(self) -> float:
@@ -149,18 +154,22 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
         decayed = {n: c.decayed_J for n, c in run.timeline.clocks.items()}
     media = _media_records(run, initial_ln_gain, pumped, decayed)
     summary = _summary(run, beam, outcomes, media, checks, train)
+    seed_spectrum = spectra.add_spectra(config, summary, records, run.wavelengths_m, run.seed_power_W, run.dt_s,
+                                        run.states)
+    chirped = seed_spectrum is not None
     return Result(config=config, x_m=run.x_m, y_m=run.x_m.copy(), t_s=run.t_s, seed_fluence_J_m2=run.seed_map,
                   seed_power_W=run.seed_power_W, steps=records, media=media, summary=summary,
+                  wavelength_m=run.wavelengths_m if chirped else None, seed_spectrum_J_m=seed_spectrum,
                   output_field=beam.field if config.grid.diffraction else None,
                   train=train.datasets if train is not None else {},
                   field_transforms=beam.fft_count if config.grid.diffraction else 0)
 
 
-def _medium_state(medium, gm: GainMap) -> MediumState:
+def _medium_state(medium, gm: GainMap, spectral: SliceCrossSections | None) -> MediumState:
     return MediumState(name=medium.name, ln_gain=gm.gain_per_m * gm.slice_length_m, mask=gm.mask,
                        saturation_fluence_J_m2=medium.material.saturation_fluence_J_m2,
                        slice_length_m=gm.slice_length_m, loss_per_m=medium.loss_per_m,
-                       n2_m2_W=medium.material.n2_m2_W)
+                       n2_m2_W=medium.material.n2_m2_W, spectral=spectral)
 
 
 def _media_records(run: PulsedLayout, initial_ln_gain: dict[str, np.ndarray] | None, pumped: dict[str, float],

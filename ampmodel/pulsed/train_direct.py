@@ -29,6 +29,9 @@ def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str
                 f"where along the medium the gain is")
     if any(s.kind == "repeat" and s.until is not None for s in config.steps):
         return 'a repeat stops at the peak: the dump round trip couples the pixels'
+    seed, mat = config.seed, medium.material
+    if seed.bandwidth_m or abs(seed.wavelength_m - mat.wavelength_m) > 1e-9 * mat.wavelength_m:
+        return "the seed's time slices meet the medium away from its wavelength (their own cross-sections)"
     c = clocks[medium.name]
     if c.pump is not None and c.pump.bleach_m2 > 0.0:
         return (f"the pump bleaches medium {medium.name} (its absorption follows the inversion along each "

@@ -113,7 +113,7 @@ def test_other_units_and_keys():
     raw["medium"][0].pop("diameter_mm")
     raw["medium"][0].update(width_mm=5, doping_per_m3=1.4e26, slices=7)
     raw["medium"][0]["material"].update(absorption_cross_section_cm2=1e-21, n2_m2_W=7e-20,
-                                        broadening="inhomogeneous", name="my crystal")
+                                        broadening="inhomogeneous", name="my crystal", wavelength_nm=1060)
     raw["limits"] = {"damage_fraction": 0.3, "pixels_across_beam": 12}
     config = load_config(raw)
     assert config.seed.duration_s == pytest.approx(5e-10)
@@ -473,3 +473,25 @@ def test_dump_toml_round_trips():
         assert tomllib.loads(dump_toml(data)) == data, path.name
     nan = tomllib.loads(dump_toml({"x": float("nan")}))["x"]
     assert math.isnan(nan)
+
+
+def test_a_seed_off_the_materials_wavelength_needs_its_spectrum():
+    """The scalar cross-sections hold at the material's wavelength only: a seed elsewhere, or a
+    stretched seed, is refused with the key and the fix; with a spectrum table it is accepted, and a
+    centre outside the table is refused."""
+    raw = good()
+    raw["seed"]["wavelength_nm"] = 1060.0
+    line = one_problem(raw)
+    assert "seed.wavelength_nm = 1060.0" in line and "a seed at 1060 nm needs the cross-sections" in line
+    assert "[medium.material.spectrum]" in line
+    raw = good()
+    raw["seed"]["bandwidth_nm"] = 4.0
+    line = one_problem(raw)
+    assert "seed.bandwidth_nm = 4.0" in line and "a stretched seed of 4 nm bandwidth" in line
+    raw["medium"][0]["material"]["spectrum"] = {"wavelength_nm": [1050.0, 1064.0, 1080.0],
+                                                "emission_cm2": [1e-20, 2.8e-19, 1e-20],
+                                                "absorption_cm2": [0.0, 0.0, 0.0]}
+    config = load_config(raw)
+    assert config.seed.bandwidth_m == pytest.approx(4e-9) and config.seed.chirp == "up"
+    raw["seed"]["wavelength_nm"] = 1100.0
+    assert "outside the cross-section spectrum" in one_problem(raw)
