@@ -57,7 +57,7 @@ def simulate_cw(config: Config, progress: bool | None = False):
             name=m.name, gain_initial_per_m=initial[m.name], gain_final_per_m=st.coarse(st.gain),
             slice_length_m=m.length_m / m.slices, saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2, material=m.material.name,
-            sources=dict(m.material.sources), pump_intensity_W_m2=pump_i)
+            sources=dict(m.material.sources), pump_intensity_W_m2=pump_i, ions=st.levels, mask=st.mask)
     summary = cw_diagnostics.summarise(config, seed, sweep, states, media, x)
     return Result(config=config, x_m=x, y_m=y, t_s=np.zeros(0), seed_fluence_J_m2=None, seed_power_W=None,
                   steps=records, media=media, summary=summary, seed_intensity_W_m2=seed)

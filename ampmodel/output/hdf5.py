@@ -94,6 +94,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                              saturation_intensity_units="W/m^2")
                 _dataset(mg, "gain_initial", m.gain_initial_per_m, "1/m", **attrs)
                 _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
+                _upper_state(mg, m)
                 if m.pump_intensity_W_m2 is not None:
                     _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
                              meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
@@ -105,6 +106,20 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in result.train.items():
                     _dataset(tg, name, np.asarray(data), units)
             f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
+
+
+def _upper_state(group, m) -> None:
+    """/media/NAME/upper_state_fraction_initial and _final: N2/Nt of each voxel, from the gain maps
+    through g = (σe + σa)·N2 − σa·Nt (the record's ions; nothing where the doping is not known)."""
+    ions = m.ions
+    if ions is None or not ions.nt_per_m3:
+        return
+    for when, gain in (("initial", m.gain_initial_per_m), ("final", m.gain_final_per_m)):
+        fraction = ions.upper_fraction(gain)
+        if m.mask is not None:
+            fraction = np.where(m.mask[None, :, :], fraction, 0.0)
+        _dataset(group, f"upper_state_fraction_{when}", fraction, "1",
+                 meaning="N2/Nt of each voxel (0 outside the clear aperture: no medium there)")
 
 
 def _grid_and_seed(f, result: Result, cw: bool) -> None:

@@ -97,6 +97,9 @@ class MediumRecord:
     pump_intensity_W_m2: np.ndarray | None = None
     pumped_J: float = 0.0             # put into the upper state by the pump during the layout (h·nu_s per ion)
     decayed_J: float = 0.0            # lost by spontaneous decay during the layout
+    # g = (σe + σa)·N2 − σa·Nt at the wavelength of the gain maps: N2/Nt follows from g (None: Nt unknown)
+    ions: Any = None
+    mask: np.ndarray | None = None     # (Ny, Nx) the clear aperture (outside it there is no medium)
 
 
 @dataclass

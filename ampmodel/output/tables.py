@@ -124,6 +124,10 @@ def table_lines(summary: dict) -> list[str]:
         out.append(f"pulse train at {quantity_text(train['repetition_rate_Hz'], 'Hz')}: steady state {quantity_text(train['pulse_energy_J'], 'J')} "
                    f"per pulse, {quantity_text(train['average_power_W'], 'W')} average; stored before each pulse "
                    f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
+    if "output_transform_limit_ps" in summary:
+        out.append(f"spectrum: centre {summary['output_centre_nm']:.5g} nm, FWHM {summary['output_bandwidth_nm']:.4g} nm; "
+                   f"it supports pulses down to {summary['output_transform_limit_ps'] * 1e3:.4g} fs (transform "
+                   f"limit of a Gaussian spectrum, an estimate)")
     out.append(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
                f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
                f"energy balance error {summary['energy_balance_error']:.1e}")

@@ -186,7 +186,8 @@ def _media_records(run: PulsedLayout, initial_ln_gain: dict[str, np.ndarray] | N
             saturation_fluence_J_m2=m.material.saturation_fluence_J_m2,
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2,
             material=m.material.name, sources=dict(m.material.sources),
-            pumped_J=pumped[m.name], decayed_J=decayed[m.name])
+            pumped_J=pumped[m.name], decayed_J=decayed[m.name], ions=run.maps[m.name].ions,
+            mask=run.maps[m.name].mask)
     return out
 
 

@@ -185,3 +185,14 @@ def test_a_narrowband_seed_reports_its_transform_limit():
     expected = (LINE_NM * 1e-9) ** 2 * 2 * math.log(2) / math.pi / 1e-9 / LIGHT_SPEED * 1e9
     assert result.summary["output_bandwidth_nm"] == pytest.approx(expected, rel=1e-12)
     assert result.wavelength_m is None and result.seed_spectrum_J_m is None
+
+
+def test_a_cw_seed_away_from_the_line_sees_the_cross_section_there():
+    """cw mode, small signal: a seed at half the peak cross-section gets sqrt(G0), as a pulse does."""
+    raw = config({"wavelength_nm": LINE_NM + LINE_FWHM_NM / 2})
+    raw["mode"] = "cw"
+    raw["seed"] = {"power_W": 1e-9, "profile": "flat", "diameter_mm": 2.0,
+                   "wavelength_nm": LINE_NM + LINE_FWHM_NM / 2}
+    raw["grid"].pop("time_slices")
+    result = run(raw)
+    assert result.summary["gain"] == pytest.approx(math.sqrt(1000.0), rel=1e-8)
