@@ -11,7 +11,14 @@ import time
 from pathlib import Path
 from typing import Any, Callable
 
-from ampmodel.bench.cases import bench_config, reference_arrays, reference_loop
+from ampmodel.bench.cases import (
+    SPECTRAL_BANDWIDTH_NM,
+    bench_config,
+    reference_arrays,
+    reference_loop,
+    reference_loop_spectral,
+    spectral_arrays,
+)
 
 
 def _time(fn: Callable[[], Any]) -> tuple[float, Any]:
@@ -29,15 +36,17 @@ def _cpu(fn: Callable[[], Any]) -> tuple[float, Any]:
     return time.process_time() - t0, out
 
 
-def measure_pulsed(size: dict, repeat: int) -> dict[str, Any]:
-    """Best times of the reference loop, simulate with n2 and simulate without, interleaved; and how
-    closely the outputs agree (output fluence, relative; final ln G, absolute)."""
+def measure_pulsed(size: dict, repeat: int, lit: str = "slab") -> dict[str, Any]:
+    """Best times of the reference loop, simulate with n2 and simulate without, interleaved, on the
+    ``lit`` case (:func:`cases.bench_config`); and how closely the outputs agree (output fluence,
+    relative; final ln G, absolute)."""
     import numpy as np
 
     from ampmodel.config.load import load_config
     from ampmodel.simulation import simulate
     args = (size["points"], size["time_slices"], size["slices"], size["passes"])
-    with_n2, without = load_config(bench_config(*args)), load_config(bench_config(*args, n2=False))
+    with_n2 = load_config(bench_config(*args, lit=lit))
+    without = load_config(bench_config(*args, n2=False, lit=lit))
     ref, sim, comp, wall = [], [], [], {"reference": [], "simulate": []}
     for _ in range(repeat):
         fluence, ln_gain, mask, fsat, reverses = reference_arrays(with_n2)
@@ -54,17 +63,45 @@ def measure_pulsed(size: dict, repeat: int) -> dict[str, Any]:
     agree = {}
     for name, res in (("with_n2", result), ("without_n2", result0)):
         out = res.steps[-1].fluence_J_m2
-        lit = out > 0
+        lit_px = out > 0
         rec = res.media["rod"]
         agree[name] = {
-            "fluence_rel": float(np.max(np.abs(out[lit] / fluence.sum(axis=0)[lit] - 1.0))),
+            "fluence_rel": float(np.max(np.abs(out[lit_px] / fluence.sum(axis=0)[lit_px] - 1.0))),
             "ln_gain_abs": float(np.max(np.abs(rec.gain_final_per_m * rec.slice_length_m - ln_gain)))}
     lit_pixels = int(np.count_nonzero(result.steps[-1].fluence_J_m2))
+    per_pass = size["time_slices"] * size["slices"] * size["passes"]
     return {"reference_s": min(ref), "simulate_s": min(sim), "composite_s": min(comp), "agree": agree,
             "wall_reference_s": min(wall["reference"]), "wall_simulate_s": min(wall["simulate"]),
             "lit_pixels": lit_pixels, "pixels": size["points"] ** 2,
-            "updates": size["points"] ** 2 * size["time_slices"] * size["slices"] * size["passes"],
+            "updates": size["points"] ** 2 * per_pass, "lit_updates": lit_pixels * per_pass,
             "b_integral_rad": result.summary["b_integral_rad"]}
+
+
+def measure_spectral(size: dict, repeat: int) -> dict[str, Any]:
+    """The slab case with a stretched seed (every time slice at its own wavelength): simulate against
+    :func:`cases.reference_loop_spectral` (the plain loop on populations), best CPU times interleaved, and
+    how closely they agree (output fluence, relative; final N2, relative to the doping)."""
+    import numpy as np
+
+    from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
+    args = (size["points"], size["time_slices"], size["slices"], size["passes"])
+    config = load_config(bench_config(*args, bandwidth_nm=SPECTRAL_BANDWIDTH_NM))
+    ref, sim = [], []
+    for _ in range(repeat):
+        arrays = spectral_arrays(config)
+        ref.append(_cpu(functools.partial(reference_loop_spectral, *arrays))[0])
+        t, result = _cpu(lambda: simulate(config))
+        sim.append(t)
+    fluence, n2, nt = arrays[0], arrays[1], arrays[5]
+    out = result.steps[-1].fluence_J_m2
+    rec = result.media["rod"]
+    n2_sim = rec.ions.n2_per_m3(rec.gain_final_per_m)
+    return {"reference_s": min(ref), "simulate_s": min(sim),
+            "updates": size["points"] ** 2 * size["time_slices"] * size["slices"] * size["passes"],
+            "fluence_rel": float(np.max(np.abs(out / fluence.sum(axis=0) - 1.0))),
+            "n2_rel": float(np.max(np.abs(n2_sim - n2)) / nt),
+            "output_bandwidth_nm": result.summary["output_bandwidth_nm"]}
 
 
 def measure_scaling(size: dict, repeat: int, known: dict[int, float]) -> dict[int, float]:
@@ -123,7 +160,7 @@ def measure_diffraction(size: dict, repeat: int) -> dict[str, Any]:
 
     from ampmodel.config.load import load_config
     from ampmodel.simulation import simulate
-    raw = bench_config(size["diffraction_grid"], size["time_slices"], size["slices"], size["passes"])
+    raw = bench_config(size["diffraction_grid"], size["time_slices"], size["slices"], size["passes"], lit="rod")
     raw["grid"]["diffraction"] = True
     config = load_config(raw)
     nt, n, workers = config.grid.time_slices, config.grid.points, config.grid.fft_workers
@@ -190,7 +227,7 @@ def measure_sweep(size: dict, repeat: int = 1) -> dict[str, Any]:
         timer = sweeps.time_sweep
     except (ImportError, AttributeError):
         timer = None
-    raw = bench_config(size["sweep_grid"], size["time_slices"], size["slices"], size["passes"])
+    raw = bench_config(size["sweep_grid"], size["time_slices"], size["slices"], size["passes"], lit="rod")
     n = size["sweep_points"]
     idle = idle_cpus()
     if timer is not None:

@@ -126,6 +126,10 @@ def _media_entries(config: Config, states: dict[str, CwMedium], media: dict[str,
                           "absorbed_pump_fraction": absorbed_W / st.pump.power_W,
                           "pump_power_transmitted_W": field.transmitted_W,
                           "pump_settling_iterations": st.initial_iterations, **balance})
+        if st.levels.nt_per_m3:
+            # the largest N2/Nt without the signal (N2 grows with g, so that of the largest gain)
+            g_max = float(np.max(rec.gain_initial_per_m, where=st.mask[None, :, :], initial=-np.inf))
+            entry["upper_state_fraction_max"] = float(st.levels.upper_fraction(g_max)) if np.isfinite(g_max) else 0.0
         entries.append(entry)
         warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, config.limits))
     return entries, extracted, absorbed_total, pump_total, photon_errors

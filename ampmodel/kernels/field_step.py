@@ -28,7 +28,7 @@ from typing import NamedTuple
 import numpy as np
 import scipy.fft
 
-from ampmodel.kernels import fn_pass
+from ampmodel.kernels import fn_pass, fn_spectral
 from ampmodel.kernels.diffraction import phase_factor_into
 
 _GUARD_EQUAL = 1e-200     # (r − 1)/ln r -> 1 at r = 1 (as fn_pass.log_mean_accumulate)
@@ -161,7 +161,7 @@ def slice_constants(mask: np.ndarray, fsat: float, half_loss: float, b_coef: flo
 
 def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work: ChunkWork, plane: np.ndarray,
                     b_increment: np.ndarray | None,
-                    spectral: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None) -> ChunkSums:
+                    spectral: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None) -> ChunkSums:
     """The gain and Kerr step of one z-slice on a chunk of time slices, in place.
 
     First the absorbing edge (``k.edge``, if the propagation left it to this step). Then half the
@@ -181,8 +181,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
     plane : (P,) += Σ over the chunk's time slices of the fluence leaving (the peak fluence per plane)
     b_increment : (c, P) += the Kerr phase (rad), or None without n2
     spectral : for time slices that are not all at the material's wavelength, the chunk's rows of
-        (Fsat0/Fsat_t, a_t, c_t) of :func:`~ampmodel.kernels.fn_pass.amplify_block_spectral` (the
-        log-domain form then), else None
+        (Fsat0/Fsat_t, a_t, c_t, floor_t) of :func:`~ampmodel.kernels.fn_spectral.amplify_block_spectral`,
+        else None
 
     Returns
     -------
@@ -258,7 +258,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
             if spectral is None:
                 oc = fn_pass.amplify_block(xo, g[None, :], half_loss, mean, linear=False)
             else:
-                oc = fn_pass.amplify_block_spectral(xo, g[None, :], *spectral, half_loss=half_loss, b_sum=mean)
+                ratio, scale, offset, floor = spectral
+                oc = fn_spectral.amplify_block_spectral(xo, g[None, :], ratio, scale, offset, half_loss, mean, floor)
             if lossy:
                 gained, passive = oc.gained * fsat, oc.passive_loss * fsat
         ln_gain[inside] = g

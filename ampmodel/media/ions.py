@@ -94,12 +94,15 @@ class SliceCrossSections:
     offset_per_m : (Nt,) (scale_t·σa0 − σa_t)·Nt (1/m)
     ratio : (Nt,) Fsat0/Fsat_t = scale_t·λ_t/λ0
     outside : (Nt,) bool, λ_t beyond the material's cross-section table (taken as unseen)
+    absorption_per_m : (Nt,) σa_t·Nt, the absorption slice t meets where no ion is excited (its lowest
+        gain, −σa_t·Nt)
     """
 
     scale: np.ndarray
     offset_per_m: np.ndarray
     ratio: np.ndarray
     outside: np.ndarray
+    absorption_per_m: np.ndarray
 
 
 def slice_cross_sections(medium: Medium, wavelengths_m: np.ndarray) -> SliceCrossSections | None:
@@ -120,4 +123,4 @@ def slice_cross_sections(medium: Medium, wavelengths_m: np.ndarray) -> SliceCros
     scale = (sigma_e + sigma_a) / ions.sum_cross_section_m2
     nt = ions.nt_per_m3 or 0.0
     offset = (scale * ions.sigma_a_m2 - sigma_a) * nt
-    return SliceCrossSections(scale, offset, scale * wl / mat.wavelength_m, outside)
+    return SliceCrossSections(scale, offset, scale * wl / mat.wavelength_m, outside, sigma_a * nt)

@@ -205,9 +205,10 @@ def _media_entries(config: Config, media: Mapping[str, MediumRecord], maps: Mapp
             entry["decayed_energy_J"] = rec.decayed_J
         gm = maps[m.name]
         entry.update(_pump_entry(m, gm))
-        fraction = gm.ions.upper_fraction(rec.gain_initial_per_m[:, gm.mask]) if gm.ions is not None else None
-        if fraction is not None:
-            entry["upper_state_fraction_max"] = float(fraction.max()) if fraction.size else 0.0
+        if gm.ions is not None and gm.ions.nt_per_m3:
+            # N2 grows with g: the largest fraction is that of the largest gain (no copy of the map)
+            g_max = float(np.max(rec.gain_initial_per_m, where=gm.mask[None, :, :], initial=-np.inf))
+            entry["upper_state_fraction_max"] = float(gm.ions.upper_fraction(g_max)) if np.isfinite(g_max) else 0.0
         entries.append(entry)
         warnings.extend(transverse_gain_warnings(m.name, rec.gain_initial_per_m, m.diameter_m, config.limits))
     return entries, stored_before, stored_after

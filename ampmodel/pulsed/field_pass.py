@@ -130,7 +130,7 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
     b_step = np.zeros(len(starts))
     b_all = beam.b_integral.reshape(nt, pixels)
     sp = medium.spectral
-    spectral = None if sp is None else (sp.ratio, sp.scale, sp.offset_per_m * dz)
+    spectral = None if sp is None else (sp.ratio, sp.scale, sp.offset_per_m * dz, -sp.absorption_per_m * dz)
 
     def stage(thread: int, c: int, s: int) -> None:
         """Stage 2j: the diffraction step before gain step j (or the last half step, j = nz);

@@ -9,7 +9,7 @@ from typing import Callable
 import numpy as np
 
 from ampmodel.beam.state import BeamState, StepOutcome
-from ampmodel.kernels import fn_pass
+from ampmodel.kernels import fn_pass, fn_spectral
 from ampmodel.media.ions import SliceCrossSections
 
 
@@ -127,8 +127,9 @@ def _amplify(x: np.ndarray, order: np.ndarray, spectral: SliceCrossSections | No
     the inside of the medium), or the linear or log-domain form; and the B-integral sums (or None)."""
     if spectral is not None:
         b_sum = np.zeros_like(x) if b_needed else None
-        oc = fn_pass.amplify_block_spectral(x, order, spectral.ratio, spectral.scale, spectral.offset_per_m * dz_m,
-                                            half_loss, b_sum)
+        oc = fn_spectral.amplify_block_spectral(x, order, spectral.ratio, spectral.scale,
+                                                spectral.offset_per_m * dz_m, half_loss, b_sum,
+                                                floor=-spectral.absorption_per_m * dz_m)
         if part:
             part(1.0)
         return oc, b_sum

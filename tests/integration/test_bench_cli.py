@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 ROOT = Path(__file__).resolve().parents[2]
-KEYS = {"pulsed_ratio", "pulsed_composite_ratio", "diffraction_ratio", "sweep_speedup", "scaling_spread",
+KEYS = {"pulsed_ratio", "pulsed_composite_ratio", "pulsed_rod_ratio", "pulsed_spectral_ratio", "diffraction_ratio", "sweep_speedup", "scaling_spread",
         "memory_ratio", "memory_estimate_ratio", "memory_peak_MB", "startup_s"}
 
 
@@ -40,6 +40,10 @@ def test_bench_quick_prints_the_table_and_writes_the_figures(tmp_path):
     # the reference loop and the solver computed the same thing
     agree = report["figures"]["pulsed_ratio"]["numbers"]["agree"]
     assert agree["with_n2"]["fluence_rel"] < 1e-12 and agree["without_n2"]["fluence_rel"] < 1e-12
+    numbers = report["figures"]["pulsed_ratio"]["numbers"]
+    assert numbers["lit_pixels"] == numbers["pixels"]          # every pixel lit: the ratio shows the kernel
+    spectral = report["figures"]["pulsed_spectral_ratio"]["numbers"]
+    assert spectral["fluence_rel"] < 1e-12 and spectral["n2_rel"] < 1e-12
     assert f"wrote {out}" in proc.stdout
 
 

@@ -135,15 +135,21 @@ def test_pulsed_and_cw_pumping_agree_in_the_steady_state():
     seed = Seed(wavelength_m=1030e-9, energy_J=1e-6, duration_s=1e-9, profile="gaussian", diameter_m=2e-3)
     cont = yb_medium(Pump(energy_J=None, duration_s=None, power_W=400.0, continuous=True, **common))
     longp = yb_medium(Pump(energy_J=400.0 * 30 * TAU, duration_s=30 * TAU, **common))
-    maps = [simulate(make_config(m, seed, [pass_step(0)], points=16, width_m=6e-3, time_slices=4))
-            .media["rod"].gain_initial_per_m for m in (cont, longp)]
+    runs = [simulate(make_config(m, seed, [pass_step(0)], points=16, width_m=6e-3, time_slices=4))
+            for m in (cont, longp)]
+    maps = [r.media["rod"].gain_initial_per_m for r in runs]
     cw_config = dataclasses.replace(make_config(cont, dataclasses.replace(seed, energy_J=None, power_W=1e-3,
                                                                           duration_s=None),
                                                 [pass_step(0)], points=16, width_m=6e-3, time_slices=1), mode="cw")
-    cw = simulate(cw_config).media["rod"].gain_initial_per_m
+    cw_run = simulate(cw_config)
+    cw = cw_run.media["rod"].gain_initial_per_m
     scale = float(np.abs(maps[0]).max())
     assert np.max(np.abs(maps[1] - maps[0])) < 1e-8 * scale
     assert np.max(np.abs(cw - maps[0])) < 1e-6 * scale
+    # the same populations: the largest N2/Nt agrees, and stays below the bleaching limit σa,p/(σa,p + σe,p)
+    fractions = [r.summary["media"][0]["upper_state_fraction_max"] for r in (*runs, cw_run)]
+    assert fractions == pytest.approx([fractions[0]] * 3, rel=1e-6)
+    assert 0.1 < fractions[0] < SAP / (SAP + SEP)
 
 
 def test_no_pump_excites_more_ions_than_the_doping_holds():
