@@ -33,11 +33,13 @@ class Pump:
 
     ``geometry``: "end" (Beer–Lambert along z) or "side" (transverse profile, uniform along z).
     ``energy_J``: pulsed: pump energy delivered in one pump pulse (power_W x duration when given as
-    power); None in cw mode.
+    power), both ends together; None in cw mode.
     ``duration_s``: pulsed: pump pulse length (square pulse), for the storage efficiency; None in cw.
     ``power_W``: the continuous pump power (cw mode, or a continuous pump in pulsed mode); else None.
     ``absorption_per_m``: pump absorption coefficient (end pumping); None: from the material.
     ``back_reflectance``: end pumping, fraction of the transmitted pump sent back for a second pass.
+    ``direction``: end pumping, where the pump enters: "forward" (z = 0), "backward" (z = L) or "both"
+    (half of ``energy_J``/``power_W`` at each face).
     ``absorbed_fraction``: side pumping, fraction of the delivered pump absorbed in the medium.
     ``transfer_efficiency``: delivery/coupling efficiency from the pump source into the medium.
     ``quantum_efficiency``: upper-state ions created per absorbed pump photon.
@@ -55,6 +57,7 @@ class Pump:
     order: float = 8.0
     absorption_per_m: float | None = None
     back_reflectance: float = 0.0
+    direction: str = "forward"
     absorbed_fraction: float = 1.0
     transfer_efficiency: float = 1.0
     quantum_efficiency: float = 1.0

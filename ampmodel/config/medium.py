@@ -267,20 +267,27 @@ def _pump(p: Problems, table: dict, path: str, material: Material | None,
         p.add(join_path(path.rsplit(".", 1)[0], "doping_per_m3"),
               f"missing: a pumped quasi-three-level medium needs its ion density and material "
               f"'{material.name}' gives none; give doping_per_m3 in the medium or the material")
+    direction = v.get("direction", "forward")
+    if direction == "both" and v.get("back_reflectance", 0.0) > 0.0:
+        p.add(join_path(path, "back_reflectance"), 'a pump entering at both ends has no back reflector: '
+                                                   'remove back_reflectance (or give direction = "forward")',
+              v["back_reflectance"])
     if len(p) > before or material is None:
         return None
+    ends = 2.0 if direction == "both" else 1.0          # energy_J and power_W are given per pumped end
     if mode == "cw" or continuous:
-        duration_s, energy_J, power_W = None, None, v["power_W"]
+        duration_s, energy_J, power_W = None, None, ends * v["power_W"]
     else:
         duration_s = to_si("duration_us", v["duration_us"])
-        energy_J, power_W = (v["energy_J"] if "energy_J" in v else v["power_W"] * duration_s), None
+        energy_J, power_W = ends * (v["energy_J"] if "energy_J" in v else v["power_W"] * duration_s), None
     return Pump(
         geometry=geometry, energy_J=energy_J, duration_s=duration_s,
         wavelength_m=to_si("wavelength_nm", wavelength_nm), profile=v["profile"],
         diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else None,
         order=v["order"],
         absorption_per_m=to_si("absorption_per_cm", v["absorption_per_cm"]) if "absorption_per_cm" in v else None,
-        back_reflectance=v.get("back_reflectance", 0.0), absorbed_fraction=v.get("absorbed_fraction", 1.0),
+        back_reflectance=v.get("back_reflectance", 0.0), direction=direction,
+        absorbed_fraction=v.get("absorbed_fraction", 1.0),
         transfer_efficiency=v["transfer_efficiency"], quantum_efficiency=v["quantum_efficiency"],
         power_W=power_W, continuous=continuous or mode == "cw")
 

@@ -74,6 +74,7 @@ MEDIUM: dict[str, Key] = {
 
 GEOMETRIES = ("end", "side")
 PUMP_PROFILES = ("flat", "gaussian", "supergaussian", "parabolic")
+DIRECTIONS = ("forward", "backward", "both")
 PUMP: dict[str, Key] = {
     "geometry": choice("pump geometry", GEOMETRIES, required=True),
     "energy_J": quantity("pump energy in one pump pulse", gt=0, le=1e7),
@@ -86,11 +87,13 @@ PUMP: dict[str, Key] = {
     "order": number("supergaussian order", ge=2, le=1000, default=8.0),
     "absorption_per_cm": quantity("pump absorption coefficient", gt=0, le=1e4),
     "back_reflectance": number("end pumping: fraction of the transmitted pump sent back", ge=0, le=1),
+    "direction": choice("end pumping: where the pump enters: z = 0 (forward), z = L (backward) or both ends "
+                        "(energy_J or power_W at each)", DIRECTIONS, default="forward"),
     "absorbed_fraction": number("side pumping: fraction of the pump absorbed", gt=0, le=1),
     "transfer_efficiency": number("pump delivery efficiency", gt=0, le=1, default=1.0),
     "quantum_efficiency": number("upper-state ions per absorbed pump photon", gt=0, le=1, default=1.0),
 }
-END_ONLY = ("back_reflectance", "absorption_per_cm")
+END_ONLY = ("back_reflectance", "absorption_per_cm", "direction")
 SIDE_ONLY = ("absorbed_fraction",)
 
 MATERIAL_TABLE: dict[str, Key] = {
@@ -265,7 +268,6 @@ FIBRE_MEDIUM: dict[str, Key] = {
     "rings": integer("rings the doped core is cut into (1: the overlap model)", 1, 500, default=1),
     "pump": Key("table", "the fibre's pump: wavelength_nm, power_W, direction, cladding"),
 }
-DIRECTIONS = ("forward", "backward", "both")
 FIBRE_PUMP: dict[str, Key] = {
     "wavelength_nm": quantity("pump wavelength", ge=150.0, le=20000.0),
     "power_W": quantity("pump power launched at each pumped end", gt=0, le=1e5, required=True),

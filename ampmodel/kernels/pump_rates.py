@@ -13,7 +13,8 @@ state taken as undepleted) and nothing limits N2.
 
 The pump crosses each slice as exp(−α·dz) with α of that slice, and the voxel sees the exact mean of
 the exponential over the slice (the absorbed photons are α·mean·dz, so photons are conserved slice by
-slice); a back reflector at z = L sends a fraction R of what reaches it back through the slices. For
+slice); a back reflector at the far face sends a fraction R of what reaches it back through the
+slices, and a pump from both ends enters at z = 0 and at z = L, the two crossing each other. For
 a frozen flux the voxel's equation is linear and solved exactly, N2(t) = A/B + (N2(0) − A/B)·e^(−B·t);
 over a pump interval the flux is re-evaluated at the middle of each time step (explicit midpoint:
 second order in the step), the steps short against the fastest voxel's 1/B. The steady state under a
@@ -67,23 +68,29 @@ def slice_mean(y: np.ndarray) -> np.ndarray:
     return out
 
 
-def march(alpha_per_m: np.ndarray, flux_in: np.ndarray, dz_m: float,
-          back_reflectance: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def march(alpha_per_m: np.ndarray, flux_in: np.ndarray, dz_m: float, back_reflectance: float = 0.0,
+          direction: str = "forward") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """An end pump through columns whose slices absorb ``alpha_per_m``.
 
     Parameters
     ----------
     alpha_per_m : (Nz, C) absorption coefficient of each voxel at the pump (1/m; < 0 where it amplifies)
-    flux_in : (C,) photon flux entering at z = 0 (any unit of flux: the outputs follow it)
+    flux_in : (C,) photon flux entering at each pumped face (any unit of flux: the outputs follow it)
     dz_m : slice length (m)
-    back_reflectance : fraction of the flux reaching z = L sent back through the slices
+    back_reflectance : fraction of the flux reaching the far face sent back through the slices
+        (one pumped face only)
+    direction : "forward" (the pump enters at z = 0), "backward" (at z = L) or "both" (``flux_in``
+        at each face, the two counter-propagating)
 
     Returns
     -------
-    mean_flux : (Nz, C) mean flux in each voxel, both passes summed
+    mean_flux : (Nz, C) mean flux in each voxel, all passes summed
     absorbed : (Nz, C) flux absorbed in each voxel per unit column area (flux·dz·α·mean)
-    transmitted : (C,) flux leaving the column (through z = L, and back through z = 0)
+    transmitted : (C,) flux leaving the column through its faces
     """
+    if direction == "backward":
+        mean, absorbed, transmitted = march(alpha_per_m[::-1], flux_in, dz_m, back_reflectance)
+        return mean[::-1], absorbed[::-1], transmitted
     nz = alpha_per_m.shape[0]
     mean = np.empty_like(alpha_per_m)
     absorbed = np.empty_like(alpha_per_m)
@@ -95,9 +102,11 @@ def march(alpha_per_m: np.ndarray, flux_in: np.ndarray, dz_m: float,
         absorbed[k] = flux - out
         flux = out
     transmitted = flux
-    if back_reflectance > 0.0:
+    if back_reflectance > 0.0 or direction == "both":
         transmitted = (1.0 - back_reflectance) * flux
         flux = flux * back_reflectance
+        if direction == "both":
+            flux = flux + np.asarray(flux_in, dtype=float)      # the second pump enters at z = L
         for k in range(nz - 1, -1, -1):
             y = -alpha_per_m[k] * dz_m
             mean[k] += flux * slice_mean(y)
@@ -149,23 +158,25 @@ def steps_for(duration_s: float, peak_flux: float, create_b_m2: float, bleach_m2
 
 def pump_interval(n2: np.ndarray, flux_in: np.ndarray, dz_m: float, duration_s: float, alpha0_per_m: float,
                   bleach_m2: float, create_b_m2: float, quantum_efficiency: float, lifetime_s: float,
-                  back_reflectance: float = 0.0, side: bool = False, steps: int | None = None) -> PumpedColumns:
+                  back_reflectance: float = 0.0, side: bool = False, steps: int | None = None,
+                  direction: str = "forward") -> PumpedColumns:
     """Columns pumped for ``duration_s`` (a pump pulse, or a pump window between pulses of a train).
 
     Parameters
     ----------
     n2 : (Nz, C) upper-state density at the start (1/m³); not changed
-    flux_in : (C,) end pumping: the photon flux entering at z = 0 (photons/(m²·s)); side pumping: the
-        flux every voxel of the column sees (uniform along z, no propagation)
+    flux_in : (C,) end pumping: the photon flux entering at each pumped face (photons/(m²·s)); side
+        pumping: the flux every voxel of the column sees (uniform along z, no propagation)
     dz_m : slice length (m)
     duration_s : the interval (s)
     alpha0_per_m : α0 = σa,p·Nt, the unbleached pump absorption (1/m)
     bleach_m2 : σa,p + σe,p (0: no bleaching); create_b_m2 : η·σa,p + σe,p (0 likewise)
     quantum_efficiency : η, upper-state ions per absorbed pump photon
     lifetime_s : τ
-    back_reflectance : end pumping: the fraction of the pump sent back from z = L
+    back_reflectance : end pumping: the fraction of the pump sent back from the far face
     side : side pumping (``flux_in`` is the flux in every voxel)
     steps : time steps (None: :func:`steps_for`)
+    direction : end pumping: where the pump enters (:func:`march`)
 
     Returns
     -------
@@ -190,7 +201,7 @@ def pump_interval(n2: np.ndarray, flux_in: np.ndarray, dz_m: float, duration_s: 
             mean = np.broadcast_to(flux_in, density.shape)
             taken = alpha * mean * dz_m
             return mean, taken, np.zeros(flux_in.shape)
-        return march(alpha, flux_in, dz_m, back_reflectance)
+        return march(alpha, flux_in, dz_m, back_reflectance, direction)
 
     for _ in range(steps):
         if steps > 1:
@@ -209,7 +220,7 @@ def pump_interval(n2: np.ndarray, flux_in: np.ndarray, dz_m: float, duration_s: 
 def steady_columns(flux_in: np.ndarray, dz_m: float, nz: int, alpha0_per_m: float, bleach_m2: float,
                    create_b_m2: float, quantum_efficiency: float, lifetime_s: float, back_reflectance: float = 0.0,
                    side: bool = False, tolerance: float = 1e-12, max_iterations: int = 500,
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+                   direction: str = "forward") -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
     """The steady state under a continuous pump: N2 = A/B in every voxel with the flux its own
     populations let through, by fixed-point iteration (damped when it does not contract).
 
@@ -227,7 +238,7 @@ def steady_columns(flux_in: np.ndarray, dz_m: float, nz: int, alpha0_per_m: floa
             mean = np.broadcast_to(flux_in, n2.shape)
             absorbed = alpha * mean * dz_m
         else:
-            mean, absorbed, _ = march(alpha, flux_in, dz_m, back_reflectance)
+            mean, absorbed, _ = march(alpha, flux_in, dz_m, back_reflectance, direction)
         target = create_a * mean / (create_b_m2 * mean + 1.0 / lifetime_s)
         change = float(np.max(np.abs(target - n2))) / scale if n2.size else 0.0
         if change > previous:

@@ -2,9 +2,10 @@
 bleaching (``kernels/pump_rates.py``): a pump pulse, a continuous pump's steady state, or the pump
 windows of a pulse train. The same pump model serves the pulsed, train and cw paths.
 
-End pumping: the pump enters at z = 0 with its transverse profile (what falls outside the clear
-aperture is lost) and crosses the slices, absorbed by α = σa,p·N1 − σe,p·N2 of each voxel, with an
-optional second pass back from a reflector at z = L. Side pumping: the small-signal absorbed rate
+End pumping: the pump enters at z = 0 (``direction = "forward"``), at z = L ("backward") or half at
+each face ("both") with its transverse profile (what falls outside the clear aperture is lost) and
+crosses the slices, absorbed by α = σa,p·N1 − σe,p·N2 of each voxel, with an optional second pass
+back from a reflector at the far face (one pumped face only). Side pumping: the small-signal absorbed rate
 (the delivered pump times ``absorbed_fraction``) is spread over the clear aperture with the transverse
 profile, uniform along z, and each voxel sees the photon flux that gives that rate unbleached;
 bleaching then lowers what it absorbs.
@@ -73,16 +74,22 @@ class PumpModel:
     photon_energy_J: float
     power_W: float
     delivered_W: float
+    direction: str = "forward"
 
     @property
     def side(self) -> bool:
         return self.geometry == "side"
 
+    @property
+    def ends(self) -> int:
+        """Pumped faces: 2 for a pump entering at both ends (``flux_in`` at each), else 1."""
+        return 2 if self.direction == "both" and not self.side else 1
+
     def missed_W(self, pixel_area_m2: float) -> float:
         """End pumping: the delivered power that falls outside the clear aperture (0 for side pumps)."""
         if self.side:
             return 0.0
-        return self.delivered_W - float(self.flux_in.sum()) * pixel_area_m2 * self.photon_energy_J
+        return self.delivered_W - self.ends * float(self.flux_in.sum()) * pixel_area_m2 * self.photon_energy_J
 
 
 def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarray) -> PumpModel:
@@ -109,7 +116,8 @@ def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarra
         bleach, create_b = sap + sep, eta * sap + sep
     if pump.geometry == "end":
         areal = profile / (profile.sum() * pixel_area)                     # 1/m², whole profile
-        flux = np.where(mask, areal, 0.0) * (delivered / hnu)
+        ends = 2 if pump.direction == "both" else 1
+        flux = np.where(mask, areal, 0.0) * (delivered / ends / hnu)       # entering at each pumped face
     else:
         inside = np.where(mask, profile, 0.0)
         total = inside.sum() * pixel_area
@@ -120,7 +128,7 @@ def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarra
     return PumpModel(geometry=pump.geometry, flux_in=flux, alpha0_per_m=alpha0 if alpha0 is not None else 1.0,
                      bleach_m2=bleach, create_b_m2=create_b, quantum_efficiency=eta,
                      back_reflectance=pump.back_reflectance, photon_energy_J=hnu, power_W=power,
-                     delivered_W=delivered)
+                     delivered_W=delivered, direction=pump.direction)
 
 
 @dataclass
@@ -151,7 +159,7 @@ def sweep(pump: PumpModel, n2_per_m3: np.ndarray, mask: np.ndarray, dz_m: float,
         left = pump.delivered_W - absorbed.sum() * pixel_area_m2 * pump.photon_energy_J
         return PumpField(mean, absorbed, float(left))
     cols = alpha.reshape(nz, -1)
-    mean, absorbed, out = pr.march(cols, pump.flux_in.ravel(), dz_m, pump.back_reflectance)
+    mean, absorbed, out = pr.march(cols, pump.flux_in.ravel(), dz_m, pump.back_reflectance, pump.direction)
     transmitted = float(out.sum()) * pixel_area_m2 * pump.photon_energy_J + pump.missed_W(pixel_area_m2)
     return PumpField(mean.reshape(alpha.shape), absorbed.reshape(alpha.shape), transmitted)
 
@@ -189,7 +197,7 @@ def pump_pulse(medium: Medium, model: PumpModel, mask: np.ndarray, pixel_area_m2
     distinct, which = _columns(model, mask)
     out = pr.pump_interval(np.zeros((nz, distinct.size)), distinct, dz, pump.duration_s, model.alpha0_per_m,
                            model.bleach_m2, model.create_b_m2, model.quantum_efficiency, mat.upper_lifetime_s,
-                           model.back_reflectance, side=model.side)
+                           model.back_reflectance, side=model.side, direction=model.direction)
     n2 = np.zeros((nz,) + mask.shape)
     n2[:, mask] = out.n2[:, which]
     hnu = model.photon_energy_J
@@ -210,7 +218,8 @@ def pump_steady(medium: Medium, model: PumpModel, mask: np.ndarray, pixel_area_m
     distinct, which = _columns(model, mask)
     n2c, _, absorbed_c, _ = pr.steady_columns(distinct, dz, nz, model.alpha0_per_m, model.bleach_m2,
                                               model.create_b_m2, model.quantum_efficiency, mat.upper_lifetime_s,
-                                              model.back_reflectance, side=model.side)
+                                              model.back_reflectance, side=model.side,
+                                              direction=model.direction)
     n2 = np.zeros((nz,) + mask.shape)
     n2[:, mask] = n2c[:, which]
     absorbed = float(absorbed_c[:, which].sum()) * pixel_area_m2 * model.photon_energy_J

@@ -90,7 +90,7 @@ class MediumClock:
             p = self.pump
             out = pr.pump_interval(n2, p.flux_in[self.mask], self.slice_length_m, duration_s, p.alpha0_per_m,
                                    p.bleach_m2, p.create_b_m2, p.quantum_efficiency, self.lifetime_s,
-                                   p.back_reflectance, side=p.side)
+                                   p.back_reflectance, side=p.side, direction=p.direction)
             return out.n2, float(out.created.sum()), float(out.decayed.sum())
         end, pumped, decayed = relax_inversion(n2, 0.0, self.lifetime_s, duration_s)
         return end, float(np.sum(pumped)), float(np.sum(decayed))
@@ -156,7 +156,8 @@ def unseeded_n2(c: MediumClock, period_s: float) -> np.ndarray:
     nz, n = c.rate_per_m3_s.shape
     if c.continuous:
         n2, _, _, _ = pr.steady_columns(p.flux_in[c.mask], c.slice_length_m, nz, p.alpha0_per_m, p.bleach_m2,
-                                        p.create_b_m2, p.quantum_efficiency, tau, p.back_reflectance, side=p.side)
+                                        p.create_b_m2, p.quantum_efficiency, tau, p.back_reflectance, side=p.side,
+                                        direction=p.direction)
         return n2
     # the estimate without bleaching: N = R·tau·(1 − exp(−tp/tau))/(1 − exp(−T/tau))
     guess = c.rate_per_m3_s * tau * (-math.expm1(-c.pump_duration_s / tau)) / (-math.expm1(-period_s / tau))

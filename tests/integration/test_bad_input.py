@@ -31,6 +31,9 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_transmission.toml": (["step[1].transmission = 1.2: out of range: must be a number > 0 and <= 1"], 1),
     "bad_missing_seed.toml": (["seed: missing section [seed]"], 1),
     "bad_missing_energy.toml": (["seed.energy_J: missing"], 1),
+    "bad_pump_direction.toml": (["medium[0] (rod).pump.back_reflectance = 0.9: a pump entering at both ends has "
+                                 "no back reflector",
+                                 'medium[1] (slab).pump.direction = "backward": applies to end pumping only'], 2),
     "bad_gain_beyond_doping.toml": (["medium[0] (rod).small_signal_gain = 1e+20: more than the doping can give",
                                      "exp(σe·Nt·L) = 6.041e+16",
                                      "medium[1] (slab).stored_energy_J = 100.0: more than the doping can store",

@@ -202,3 +202,65 @@ def test_a_pump_beyond_any_representable_gain_is_refused_not_infinite():
     seed = Seed(wavelength_m=1064e-9, energy_J=1e-6, duration_s=1e-9, profile="gaussian", diameter_m=2e-3)
     with pytest.raises(ConfigError, match=r"medium rod: the pump raises the single-pass small-signal gain to exp\("):
         simulate(make_config(medium, seed, [pass_step(0)], points=16, width_m=4e-3, time_slices=4))
+
+
+def mol_both_ends(flux0: np.ndarray, length_m: float, duration_s: float, cells: int = 480) -> np.ndarray:
+    """N2 (cells, C) under a pump of ``flux0`` entering at each face, by the method of lines (the module
+    docstring): the forward and the backward pump each attenuated by ∫α dz from its own face."""
+    z = (np.arange(cells) + 0.5) * length_m / cells
+    half = 0.5 * length_m / cells
+    c = flux0.size
+
+    def rhs(_, y):
+        n2 = y.reshape(cells, c)
+        alpha = SAP * (NT - n2) - SEP * n2
+        depth = cumulative_trapezoid(alpha, z, axis=0, initial=0.0) + alpha[0] * half
+        back = cumulative_trapezoid(alpha[::-1], z, axis=0, initial=0.0)[::-1] + alpha[-1] * half
+        flux = flux0 * (np.exp(-depth) + np.exp(-back))
+        return ((SAP * (NT - n2) - SEP * n2) * flux - n2 / TAU).ravel()
+
+    sol = solve_ivp(rhs, (0.0, duration_s), np.zeros(cells * c), method="RK45", rtol=1e-9, atol=1e12)
+    return sol.y[:, -1].reshape(cells, c)
+
+
+def test_a_pump_from_both_ends_matches_the_method_of_lines():
+    """Two counter-propagating pumps, each bleaching the medium for the other: the kernel's slices
+    against the fine reference; a pump from z = L alone is the forward pump mirrored."""
+    flux0 = np.array([1e8, 2.5e7]) / photon_energy(940e-9)
+    length, tp, nz = 6e-3, 1e-3, 24
+    ref = mol_both_ends(flux0, length, tp)
+    out = pr.pump_interval(np.zeros((nz, 2)), flux0, length / nz, tp, SAP * NT, SAP + SEP, SAP + SEP, 1.0, TAU,
+                           direction="both")
+    error = float(np.max(np.abs(out.n2 - slice_means(ref, nz)))) / float(ref.max())
+    assert error < 1e-4, error
+    np.testing.assert_allclose(out.n2, out.n2[::-1], rtol=1e-12)           # symmetric, as the pumps are
+    assert float(ref.max()) > 0.2 * NT
+    # photons: absorbed plus transmitted is what entered at the two faces
+    np.testing.assert_allclose(out.absorbed + out.transmitted, 2 * flux0 * tp, rtol=1e-12)
+    forward = pr.pump_interval(np.zeros((nz, 2)), flux0, length / nz, tp, SAP * NT, SAP + SEP, SAP + SEP, 1.0, TAU,
+                               back_reflectance=0.5)
+    backward = pr.pump_interval(np.zeros((nz, 2)), flux0, length / nz, tp, SAP * NT, SAP + SEP, SAP + SEP, 1.0, TAU,
+                                back_reflectance=0.5, direction="backward")
+    np.testing.assert_allclose(backward.n2, forward.n2[::-1], rtol=1e-12)
+
+
+def test_a_rod_pumped_from_both_ends_through_a_whole_run():
+    """Runs with direction = "both", "forward" and "backward": the summary's pump energy is both ends'
+    (the description holds the total), photons balance, the map of a pump from both ends is symmetric
+    along z, and a pump from z = L builds the forward pump's map mirrored."""
+    common = dict(geometry="end", wavelength_m=940e-9, profile="flat", diameter_m=3e-3, duration_s=1e-3,
+                  absorption_per_m=SAP * NT)
+    seed = Seed(wavelength_m=1030e-9, energy_J=1e-6, duration_s=1e-9, profile="gaussian", diameter_m=2e-3)
+    runs = {}
+    for direction in ("both", "forward", "backward"):
+        medium = yb_medium(Pump(energy_J=1.2, direction=direction, **common))
+        runs[direction] = simulate(make_config(medium, seed, [pass_step(0)], points=16, width_m=6e-3, time_slices=4))
+    both = runs["both"].summary["media"][0]
+    assert both["pump_energy_J"] == pytest.approx(1.2)
+    assert abs(both["pump_photon_balance_error"]) < 1e-9
+    assert both["absorbed_pump_energy_J"] + both["transmitted_pump_energy_J"] == pytest.approx(1.2, rel=1e-9)
+    maps = {k: r.media["rod"].gain_initial_per_m for k, r in runs.items()}
+    np.testing.assert_allclose(maps["both"], maps["both"][::-1], rtol=1e-10, atol=1e-12 * np.abs(maps["both"]).max())
+    np.testing.assert_allclose(maps["backward"], maps["forward"][::-1], rtol=1e-10,
+                               atol=1e-12 * np.abs(maps["forward"]).max())
+    assert not np.allclose(maps["forward"], maps["forward"][::-1], rtol=1e-2)   # the one-end map is not
