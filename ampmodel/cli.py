@@ -158,21 +158,34 @@ def cmd_rerun(args) -> int:
 
 
 def cmd_check(args) -> int:
+    """Check a config; print "valid" and what the media give only once the gain maps could be built
+    (a pump that would raise the gain past what can be represented is bad input, not valid)."""
     from ampmodel.config.checks import ConfigError
-    from ampmodel.kernels import beam_shapes
     from ampmodel.media import gain_maps
     from ampmodel.simulation import check_memory
     config = _load(args.config, args.overrides)
     need = check_memory(config)
-    x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
+    try:
+        lines = _check_lines(config)
+    except gain_maps.GainMapError as exc:
+        raise ConfigError([f"{config.source}: {exc}"]) from None
     nm, ns = len(config.media), len(config.steps)
     print(f"{args.config}: valid ({nm} medi{'um' if nm == 1 else 'a'}, {ns} step{'' if ns == 1 else 's'}, mode {config.mode}, "
           f"about {quantity_text(need, 'B')} of arrays)")
+    for line in lines:
+        print(line)
+    return EXIT_OK
+
+
+def _check_lines(config) -> list[str]:
+    """What `check` says of each medium: its small-signal gain (and stored energy or absorbed pump)."""
+    from ampmodel.kernels import beam_shapes
+    from ampmodel.media import gain_maps
     if any(m.kind == "fibre" for m in config.media):
         from ampmodel.fibre.run import describe_fibres
-        for line in describe_fibres(config):
-            print(line)
-        return EXIT_OK
+        return list(describe_fibres(config))
+    x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
+    lines = []
     if config.mode == "cw":
         from ampmodel.cw.medium import build_medium
         for m in config.media:
@@ -183,18 +196,16 @@ def cmd_check(args) -> int:
             if st.pump_field is not None:
                 absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
                 line += f", absorbed pump {quantity_text(absorbed, 'W')} of {quantity_text(st.pump.power_W, 'W')} (no signal)"
-            print(line)
-        return EXIT_OK
+            lines.append(line)
+        return lines
     for m in config.media:
-        try:
-            gm = gain_maps.gain_map(m, x, x)
-        except gain_maps.GainMapError as exc:
-            raise ConfigError([f"{config.source}: {exc}"]) from None
+        gm = gain_maps.gain_map(m, x, x)
         stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
                                          gm.slice_length_m * (x[1] - x[0]) ** 2)
-        print(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-              f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy {quantity_text(stored, 'J')}")
-    return EXIT_OK
+        lines.append(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
+                     f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy "
+                     f"{quantity_text(stored, 'J')}")
+    return lines
 
 
 def cmd_media(args) -> int:

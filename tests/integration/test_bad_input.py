@@ -266,6 +266,22 @@ def test_command_line_rejects_a_bad_set_path(tmp_path):
     assert not out.exists()
 
 
+def test_a_gain_beyond_any_number_is_found_by_check_before_it_says_valid(tmp_path, monkeypatch, capsys):
+    """Every key valid, but the pump would raise ln G0 past 700: `check` builds the gain maps before it
+    says "valid", so it and `run` exit 2 with the medium named, print no "valid" and write nothing."""
+    from ampmodel.cli import main
+    path = DATA / "unrepresentable_gain.toml"
+    monkeypatch.chdir(tmp_path)
+    for args in (["check", str(path)], ["run", str(path), "--out", str(tmp_path / "out")]):
+        code = main(args)
+        captured = capsys.readouterr()
+        assert code == 2, captured
+        assert "valid" not in captured.out
+        assert "medium rod: the pump raises the single-pass small-signal gain to exp(" in captured.err
+        assert "Traceback" not in captured.err
+    assert list(tmp_path.iterdir()) == []
+
+
 def test_good_minimal_passes_the_check(tmp_path):
     proc = run_cli("check", str(DATA / "good_minimal.toml"), cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
