@@ -138,8 +138,8 @@ def _fibre_warnings(config: Config, stage: FibreStage, fig: StageFigures, warnin
         pth = raman_threshold_W(effective_area(model.mode_radius_m), mat.raman_gain_m_W, fig.effective_length_m)
         if peak > pth:
             warnings.append(f"medium {model.name}: peak power {peak:.3g} W above the stimulated-Raman threshold "
-                            f"{pth:.3g} W (16·A_eff/(g_R·L_eff), L_eff = {fig.effective_length_m:.3g} m, R. G. Smith "
-                            f"1972): power would move to the Stokes wavelength")
+                            f"{pth:.3g} W (16·A_eff/(g_R·L_eff), L_eff = {fig.effective_length_m:.3g} m; the README's "
+                            f"fibre section gives the source): power would move to the Stokes wavelength")
 
 
 def _stored_J(model: F.FibreModel, n2: np.ndarray) -> float:

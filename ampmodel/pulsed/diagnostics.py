@@ -291,7 +291,7 @@ def _self_focusing_warnings(config: Config, outcomes: list[StepOutcome]) -> list
         warnings.append(
             f"medium {name}: peak power up to {oc.peak_power_W:.3g} W in {step_label(config.steps, index)}, "
             f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
-            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W, Marburger 1975, from memory — verify){collapse}; "
+            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W; the README's diffraction section gives the source){collapse}; "
             + ("the field path includes the Kerr phase" if config.grid.diffraction else
                "set grid.diffraction = true to include the Kerr phase in the beam"))
     return warnings
