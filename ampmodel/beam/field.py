@@ -32,6 +32,7 @@ import scipy.fft
 from ampmodel.beam import chunks
 from ampmodel.kernels import diffraction as kd
 from ampmodel.kernels import field_step as fs
+from ampmodel.kernels.pulse_shape import slice_factors
 
 # Energy fraction of the angular spectrum ignored when sizing the sub-steps of a propagation.
 ANGULAR_TAIL = 1e-6
@@ -61,7 +62,12 @@ class FieldBeam:
     kx: np.ndarray | None = None
     ky: np.ndarray | None = None
     fft_count: int = 0                        # 2-D transforms of one time slice each, for the benchmark
+    peak_factor: np.ndarray | None = None     # (Nt,) peak over mean power inside each time slice (BeamState)
     _transfer: dict = dataclass_field(default_factory=dict)
+
+    def peak_factors(self) -> np.ndarray:
+        """(Nt,) the factor from a time slice's mean to its peak (ones where the beam has none)."""
+        return slice_factors(self.peak_factor, self.field.shape[0])
 
     def __post_init__(self):
         if self.edge is None:

@@ -24,7 +24,7 @@ def _simple(beam: FieldBeam, change: Callable[[StepOutcome], str]) -> StepOutcom
     absorbing edge)."""
     fluence = fluence_of(beam.field)
     e_in = float(fluence.sum() * beam.pixel_area_m2)
-    peak_f, peak_i = fluence_peaks(fluence, beam.dt_s)
+    peak_f, peak_i = fluence_peaks(fluence, beam.dt_s, beam.peak_factor)
     outcome = StepOutcome(e_in, e_in, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
     lost_to = change(outcome)
     outcome.energy_out_J = beam.energy_J()

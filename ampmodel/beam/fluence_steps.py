@@ -8,7 +8,7 @@ from typing import Callable
 
 import numpy as np
 
-from ampmodel.beam.state import BeamState, StepOutcome, fluence_peaks, peaks
+from ampmodel.beam.state import BeamState, StepOutcome, peaks
 from ampmodel.description import Step
 from ampmodel.kernels import beam_shapes
 from ampmodel.kernels import diffraction as kd
@@ -62,7 +62,7 @@ def fluence_aperture(beam: BeamState, step: Step) -> StepOutcome:
     if step.order is None:
         return apply_aperture(beam, step)
     e_in = beam.energy_J()
-    peak_f, peak_i = fluence_peaks(beam.fluence, beam.dt_s)
+    peak_f, peak_i = peaks(beam)
     beam.fluence *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order) ** 2
     e_out = beam.energy_J()
     return StepOutcome(e_in, e_out, clipped_J=e_in - e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
@@ -73,7 +73,7 @@ def fluence_relay(beam: BeamState, step: Step) -> StepOutcome:
     (geometrical imaging; linear interpolation keeps it non-negative), energy conserved as in
     ``field_steps.field_relay``."""
     e_in = beam.energy_J()
-    peak_f, peak_i = fluence_peaks(beam.fluence, beam.dt_s)
+    peak_f, peak_i = peaks(beam)
     m = step.magnification
     if m == 1.0:
         beam.fluence = beam.fluence[:, ::-1, ::-1].copy()

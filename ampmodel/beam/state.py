@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ampmodel.kernels.beam_figures import aperture_figures, d4sigma
+from ampmodel.kernels.pulse_shape import slice_factors, true_peak
 
 
 @dataclass
@@ -21,6 +22,8 @@ class BeamState:
 
     fluence : (Nt, Ny, Nx) J/m² per time slice
     b_integral : (Nt, Ny, Nx) accumulated B-integral (rad) per pixel and time slice
+    peak_factor : (Nt,) the largest power inside each time slice over its mean
+        (kernels/beam_shapes.slice_peak_factors); None: 1 (a beam without a pulse shape, cw)
     """
 
     fluence: np.ndarray
@@ -29,6 +32,11 @@ class BeamState:
     y_m: np.ndarray
     dt_s: float
     wavelength_m: float
+    peak_factor: np.ndarray | None = None
+
+    def peak_factors(self) -> np.ndarray:
+        """(Nt,) the factor from a time slice's mean to its peak (ones where the beam has none)."""
+        return slice_factors(self.peak_factor, self.fluence.shape[0])
 
     @property
     def pixel_area_m2(self) -> float:
@@ -85,7 +93,8 @@ class StepOutcome:
     pinhole_transmission : spatial filter: the fraction of the energy through the pinhole
     warnings : the step's own warnings (an undersampled lens phase, a pinhole wider than the grid)
     beam : the beam figures after the step; peak_power_W : the largest power (W) entering or
-        leaving it (both set by the pulsed layout loop)
+        leaving it, at the pulse's true peak; duration_s : the FWHM of the pulse leaving it (s) (these
+        three set by the pulsed layout loop)
     repeat : a repeat step's round trips
     """
 
@@ -103,16 +112,19 @@ class StepOutcome:
     warnings: list[str] = field(default_factory=list)
     beam: BeamFigures | None = None
     peak_power_W: float | None = None
+    duration_s: float | None = None
     repeat: RepeatOutcome | None = None
 
 
-def fluence_peaks(fluence: np.ndarray, dt_s: float) -> tuple[float, float]:
-    """Largest fluence (J/m², summed over the time slices) and intensity (W/m²) of a (Nt, Ny, Nx) beam."""
+def fluence_peaks(fluence: np.ndarray, dt_s: float, factor: np.ndarray | None = None) -> tuple[float, float]:
+    """Largest fluence (J/m², summed over the time slices) and intensity (W/m², at the pulse's true peak
+    inside each slice: ``factor``, see :func:`true_peak`) of a (Nt, Ny, Nx) beam."""
     if fluence.size == 0:
         return 0.0, 0.0
-    return float(fluence.sum(axis=0).max()), float(fluence.max() / dt_s)
+    per_slice = fluence.reshape(fluence.shape[0], -1).max(axis=1)
+    return float(fluence.sum(axis=0).max()), true_peak(per_slice, factor) / dt_s
 
 
-def peaks(beam: BeamState) -> tuple[float, float]:
-    """Largest fluence (J/m²) and intensity (W/m²) of the beam as it is now."""
-    return fluence_peaks(beam.fluence, beam.dt_s)
+def peaks(beam) -> tuple[float, float]:
+    """Largest fluence (J/m²) and true peak intensity (W/m²) of the beam as it is now."""
+    return fluence_peaks(beam.fluence, beam.dt_s, beam.peak_factor)

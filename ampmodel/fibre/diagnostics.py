@@ -33,8 +33,10 @@ from ampmodel.diagnostics import J_CM2, W_CM2, scaled_damage_fluence
 from ampmodel.fibre import model as F
 from ampmodel.fibre import steady_state
 from ampmodel.fibre.pulsed import PulseTrainSolution
+from ampmodel.kernels import beam_shapes, pulse_shape
 from ampmodel.kernels.diffraction import critical_power_W
 from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
+from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.safety import SAFETY_NOTE
 
 
@@ -82,8 +84,16 @@ class StageFigures:
     output: dict[str, float] | None = None
 
 
-def stage_figures(stage: FibreStage, cw: bool) -> StageFigures:
-    """The figures of one fibre stage (both modes), SI."""
+def _peak_factor(config: Config) -> np.ndarray | None:
+    """The pulse's true peak over each time slice's mean (kernels/beam_shapes.slice_peak_factors)."""
+    if config.mode == "cw" or config.seed.duration_s is None:
+        return None
+    return beam_shapes.slice_peak_factors(config.seed.shape, config.grid.time_slices)
+
+
+def stage_figures(stage: FibreStage, cw: bool, factor: np.ndarray | None = None) -> StageFigures:
+    """The figures of one fibre stage (both modes), SI; pulsed peaks at the pulse's true peak inside
+    each time slice (``factor``)."""
     model = stage.model
     s = model.signal
     z = np.linspace(0.0, model.length_m, model.slices + 1)
@@ -99,7 +109,7 @@ def stage_figures(stage: FibreStage, cw: bool) -> StageFigures:
         profile = train.pulse.energy_z_J
         values = dict(signal_out=float(train.pulse.energy_out_J.sum()) * (train.repetition_rate_Hz or 1.0),
                       ase_forward_W=train.between.ase_forward_W, ase_backward_W=train.between.ase_backward_W,
-                      peak_power_W=float((train.pulse.energy_out_J / train.dt_s).max()),
+                      peak_power_W=true_peak(train.pulse.energy_out_J / train.dt_s, factor),
                       gain_free_dB=model.signal_gain_dB(train.n2_before))
     length = _integral(profile, z) / profile[-1] if profile[-1] > 0 else model.length_m
     return StageFigures(effective_length_m=length, peak_axis_per_m2=2.0 / w2, **values)
@@ -188,21 +198,9 @@ def _medium_entry(config: Config, stage: FibreStage, fig: StageFigures, cw: bool
                       "extracted_energy_J": train.pulse.extracted_J,
                       "pump_power_out_W": train.between.pump_out_W,
                       "absorbed_pump_power_W": train.between.pump_absorbed_W,
-                      "b_integral_rad": float(train.pulse.b_integral_rad.max()),
+                      "b_integral_rad": true_peak(train.pulse.b_integral_rad, _peak_factor(config)),
                       "periods": train.periods, "period_residual": train.residual})
     return entry
-
-
-def _fwhm_s(power: np.ndarray, dt: float) -> float:
-    """Full width at half maximum of a sampled pulse (linear interpolation between slices)."""
-    if power.size < 3 or power.max() <= 0:
-        return power.size * dt
-    half = 0.5 * power.max()
-    above = np.flatnonzero(power >= half)
-    i, j = above[0], above[-1]
-    left = i - (power[i] - half) / (power[i] - power[i - 1]) if i > 0 else 0.0
-    right = j + (power[j] - half) / (power[j] - power[j + 1]) if j < power.size - 1 else power.size - 1.0
-    return float((right - left) * dt)
 
 
 @dataclass
@@ -230,13 +228,14 @@ def summarise_fibre(config: Config, stages: list[FibreStage], x_m: np.ndarray) -
     # on-axis peak per unit power or energy, 2/(πw²), of the mode the beam is in (before a fibre: the first's)
     walk = _Walk(value=float(seed.power_W) if cw else float(seed.energy_J),
                  axis=2.0 / (math.pi * fibres[0].model.mode_radius_m ** 2),
-                 peak_in=0.0 if cw else float(np.max(stages[0].input)) / fibres[0].train.dt_s)
+                 peak_in=0.0 if cw else true_peak(np.asarray(stages[0].input), _peak_factor(config))
+                 / fibres[0].train.dt_s)
     figures = []
     for st in stages:
         if st.model is None:
             steps.append(_loss_entry(config, st.step, walk, cw, warnings))
             continue
-        fig = stage_figures(st, cw)
+        fig = stage_figures(st, cw, _peak_factor(config))
         figures.append(fig)
         media.append(_medium_entry(config, st, fig, cw))
         _fibre_warnings(config, st, fig, warnings)
@@ -315,7 +314,7 @@ def _pulsed_fibre_entry(config: Config, st: FibreStage, fig: StageFigures, walk:
     """A pulsed fibre's step entry (energy in and out, gain, peaks, B-integral, loss) and its warnings."""
     model, train, value = st.model, st.train, walk.value
     out = float(train.pulse.energy_out_J.sum())
-    b = float(train.pulse.b_integral_rad.max())
+    b = true_peak(train.pulse.b_integral_rad, _peak_factor(config))
     peak_f = float(np.max(train.pulse.energy_z_J)) * fig.peak_axis_per_m2
     walk.peak_fluence = max(walk.peak_fluence, peak_f)
     walk.lost += train.pulse.loss_J
@@ -360,7 +359,8 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
     last = fibres[-1].train
     out_power = last.pulse.energy_out_J / last.dt_s * math.prod(
         st.step.transmission for st in stages[stages.index(fibres[-1]) + 1:])
-    b_total = float(np.max(sum(st.train.pulse.b_integral_rad for st in fibres)))
+    duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s))
+    b_total = true_peak(sum(st.train.pulse.b_integral_rad for st in fibres), _peak_factor(config))
     if b_total > limits.b_integral_total_rad:
         warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "
                         f"rad in total (common practice)")
@@ -376,8 +376,8 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
         "pulse_duration_ns": seed.duration_s * 1e9, "time_slice_ns": last.dt_s * 1e9,
         "repetition_rate_Hz": rate,
         "input_power_W": e_in * rate if rate else None, "output_power_W": value * rate if rate else None,
-        "output_peak_power_W": float(out_power.max()),
-        "output_pulse_duration_ns": _fwhm_s(out_power, last.dt_s) * 1e9}
+        "output_peak_power_W": true_peak(out_power, _peak_factor(config)),
+        "output_pulse_duration_ns": duration * 1e9, "output_duration_ns": duration * 1e9}
 
 
 def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float, warnings: list[str]) -> None:

@@ -76,14 +76,14 @@ class ChunkSums(NamedTuple):
 
     energy_in, energy_out : Σ|E|² entering and leaving the step
     gained : fluence the gain added (negative where it absorbed); passive : removed by passive loss
-    peak_slice_fluence : the largest fluence of one time slice leaving the step (J/m²)
+    peak_slice_fluence : (rows,) the largest fluence of each time slice of the chunk leaving the step (J/m²)
     """
 
     energy_in: float
     energy_out: float
     gained: float
     passive: float
-    peak_slice_fluence: float
+    peak_slice_fluence: np.ndarray
 
 
 def fluence_into(e: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
@@ -211,7 +211,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         f *= k.edge2
     row = f.sum(axis=0, out=work.plane)                    # Σ_t |E|² per pixel
     energy_in = float(row.sum())
-    f_max = float(f.max()) if f.size else 0.0
+    f_row = f.max(axis=1) if f.size else np.zeros(rows)     # the largest fluence of each time slice
+    f_max = float(f_row.max()) if f_row.size else 0.0
     gained = passive = 0.0
     n_in = inside.size
     amp = None                                              # the amplitude factor, where not 1
@@ -225,7 +226,7 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         psi = (loss2 - 1.0) / math.log(loss2) if lossy else 1.0     # (r − 1)/ln r at r = loss²
         phase = np.multiply(f, b_coef * psi, out=work.phase[:rows])   # outside: the loss alone
     largest = f_max * psi if kerr else 0.0                  # bounds the phase, over b_coef
-    peak = f_max * loss2
+    peak = f_row * loss2
     if n_in:
         if work.selected_of is not inside:                  # a boolean mask of the (rows, P) block: a
             work.selected[...] = False                      # scatter into it costs less than row by row
@@ -266,7 +267,8 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
         out_sum = xo.sum(axis=0, out=work.one)
         if not (linear or lossy):                           # the log-domain kernel
             gained = (float(out_sum.sum()) - float(x.sum())) * fsat
-        x_high = float(xo.max())
+        x_row = xo.max(axis=1)
+        x_high = float(x_row.max())
         r = work.r[:rows]                                   # J_out/J_in (0 where nothing entered)
         if lowest > 0.0:
             np.divide(xo, x, out=r)
@@ -294,10 +296,11 @@ def gain_kerr_chunk(e: np.ndarray, ln_gain: np.ndarray, k: SliceConstants, work:
             row *= loss2
         out_sum *= fsat
         row[inside] = out_sum
-        peak_in = x_high * fsat
-        if peak > peak_in:                                  # the largest may be outside the aperture
-            peak = float(np.take(f, k.outside, axis=1, mode="clip").max()) * loss2 if k.outside.size else 0.0
-        peak = max(peak, peak_in)
+        peak_in = x_row * fsat
+        if np.any(peak > peak_in):                          # the largest may be outside the aperture
+            peak = (np.take(f, k.outside, axis=1, mode="clip").max(axis=1) * loss2 if k.outside.size
+                    else np.zeros(rows))
+        peak = np.maximum(peak, peak_in)
     else:
         if lossy:
             passive = energy_in * (1.0 - loss2)

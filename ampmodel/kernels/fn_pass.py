@@ -56,14 +56,15 @@ class BlockOutcome(NamedTuple):
 
     peak_plane_fluence : largest total fluence (Σ over time slices) at any plane between gain slices,
         after the entrance (the caller has the entrance)
-    peak_slice_fluence : largest fluence of one time slice at any such plane
+    peak_slice_fluence : (Nt,) the largest fluence of each time slice at any such plane (its peak over the
+        block's pixels); the caller turns it into the true peak with the pulse's shape inside the slice
     passive_loss : fluence removed by passive loss, summed over the block's pixels and time slices
     gained : fluence the gain slices added (negative where they absorbed), summed likewise: the sum of
         every update's J_out − J_in, precise relative to the beam's fluence
     """
 
     peak_plane_fluence: float
-    peak_slice_fluence: float
+    peak_slice_fluence: np.ndarray
     passive_loss: float
     gained: float
 
@@ -192,6 +193,7 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
     total_in = float(x.sum())
     plane = None if monotone else np.zeros((nz, c))      # Σ_t x after each gain slice (peak per plane)
     slice_max = None if monotone else np.zeros(c)
+    slice_peak = np.zeros(nt)                            # the largest fluence of each time slice
     passive = np.zeros(c) if lossy else None
     gained = np.zeros(c) if lossy else None
     gain = np.exp(ln_gain) if linear else None           # G of each slice; ln_gain keeps the bookkeeping
@@ -200,6 +202,8 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
     with np.errstate(divide="ignore"):
         for t in range(nt):
             xb[...] = x[t]                               # fluence at the plane before gain slice k
+            if not monotone:
+                slice_max.fill(0.0)
             if linear and not lossy:
                 np.expm1(xb, out=u)
             for k in range(nz):
@@ -231,15 +235,17 @@ def amplify_block(x: np.ndarray, ln_gain: np.ndarray, half_loss: float = 1.0, b_
                     np.maximum(slice_max, xo, out=slice_max)
                 xb, xo = xo, xb
             x[t] = xb
+            if not monotone and c:
+                slice_peak[t] = slice_max.max()
             if tick is not None:
                 tick(1.0 / nt)
     loss = float(passive.sum()) * (1.0 - half_loss) if lossy else 0.0
     if c == 0:
-        return BlockOutcome(0.0, 0.0, loss, 0.0)
+        return BlockOutcome(0.0, slice_peak, loss, 0.0)
     if monotone:
-        peak_plane, peak_slice = float(x.sum(axis=0).max()), float(x.max())
+        peak_plane, peak_slice = float(x.sum(axis=0).max()), x.max(axis=1)
     else:
-        peak_plane, peak_slice = float(plane.max()), float(slice_max.max())
+        peak_plane, peak_slice = float(plane.max()), slice_peak
     # without loss the beam's gain is its own change (the per-update sum telescopes)
     added = float(gained.sum()) if lossy else float(x.sum()) - total_in
     return BlockOutcome(peak_plane, peak_slice, loss, added)
@@ -265,7 +271,7 @@ def amplify_block_composite(x: np.ndarray, ln_gain: np.ndarray,
     """
     nt, c = x.shape
     if c == 0:
-        return BlockOutcome(0.0, 0.0, 0.0, 0.0)
+        return BlockOutcome(0.0, np.zeros(nt), 0.0, 0.0)
     total = x.sum(axis=0)
     total_in = float(total.sum())
     ln_total = ln_gain.sum(axis=0)
@@ -279,4 +285,4 @@ def amplify_block_composite(x: np.ndarray, ln_gain: np.ndarray,
         peak_plane = max(peak_plane, float(total.max()))
     if tick is not None:
         tick(1.0 / (nt + 1))
-    return BlockOutcome(peak_plane, float(x.max()), 0.0, float(x.sum() - total_in))
+    return BlockOutcome(peak_plane, x.max(axis=1), 0.0, float(x.sum() - total_in))

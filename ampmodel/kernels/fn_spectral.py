@@ -117,6 +117,7 @@ def _pass(x: np.ndarray, ln_gain: np.ndarray, ratio: np.ndarray, scale: np.ndarr
     lossy = half_loss != 1.0
     plane = np.zeros((nz, c))
     slice_max = np.zeros(c)
+    slice_peak = np.zeros(nt)                                # the largest fluence of each time slice
     passive = gained = 0.0
     total_in = float(x.sum())
     xb, xh, xo, u, v, g, w1, w2, bt = (np.empty(c) for _ in range(9))
@@ -127,6 +128,7 @@ def _pass(x: np.ndarray, ln_gain: np.ndarray, ratio: np.ndarray, scale: np.ndarr
             r = float(ratio[t]) if seen else 1.0             # a slice the ions do not see: units of Fsat0
             inv_r, off = 1.0 / r, float(offset[t])
             np.multiply(x[t], r, out=xb)                     # units of Fsat_t
+            slice_max.fill(0.0)
             if b_sum is not None:
                 bt[...] = 0.0
             if linear and seen and not lossy:
@@ -171,8 +173,10 @@ def _pass(x: np.ndarray, ln_gain: np.ndarray, ratio: np.ndarray, scale: np.ndarr
             if b_sum is not None:
                 bt *= inv_r
                 b_sum[t] += bt
+            if c:
+                slice_peak[t] = slice_max.max()
     if c == 0:
-        return BlockOutcome(0.0, 0.0, passive, 0.0)
+        return BlockOutcome(0.0, slice_peak, passive, 0.0)
     if not lossy:
         gained = float(x.sum()) - total_in                  # the per-update sum telescopes
-    return BlockOutcome(float(plane.max()), float(slice_max.max()), passive, gained)
+    return BlockOutcome(float(plane.max()), slice_peak, passive, gained)

@@ -23,6 +23,7 @@ from ampmodel.diagnostics import (
     transverse_gain_warnings,
 )
 from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
+from ampmodel.kernels.pulse_shape import true_peak_map
 from ampmodel.media import gain_maps
 from ampmodel.output.result import MediumRecord
 from ampmodel.safety import SAFETY_NOTE
@@ -50,6 +51,8 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
         entry.update(oc.beam.as_dict())
     if oc.peak_power_W is not None:
         entry["peak_power_W"] = oc.peak_power_W
+    if oc.duration_s is not None:
+        entry["output_duration_ns"] = oc.duration_s * 1e9
     if step.kind == "pass":
         entry["reverse"] = step.reverse
     if step.kind == "repeat":
@@ -131,7 +134,7 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     media_summary, stored_before, stored_after = _media_entries(config, media, maps, pixel_area, warnings)
     steps, lost, peak_fluence, peak_intensity = _step_entries(config, outcomes, float(seed_map.max()), warnings)
     warnings.extend(_self_focusing_warnings(config, outcomes))
-    b_total = float(beam.b_integral.max()) if beam.b_integral.size else 0.0
+    b_total = float(true_peak_map(beam.b_integral, beam.peak_factor).max()) if beam.b_integral.size else 0.0
     if b_total > limits.b_integral_total_rad:
         warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
                         f"in total (common practice)")

@@ -11,6 +11,7 @@ from ampmodel.beam import field as field_path
 from ampmodel.beam.field import FieldBeam
 from ampmodel.beam.state import StepOutcome
 from ampmodel.kernels import field_step as fs
+from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.pulsed.passes import MediumState
 
 
@@ -55,32 +56,35 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     e_in, clipped, peak_f, peak_i, slice_energy = _clip_entering(beam, medium.mask, rows, starts)
     n_sub = field_path.substeps(beam, medium.slice_length_m, index,
                                 field_path.spectral_reach(beam, energies=slice_energy))
-    sums, plane, final, b_step = _through_the_slices(beam, medium, index, reverse, n_sub, rows, starts, tick)
+    sums, plane, final, b_step, peak_slice = _through_the_slices(beam, medium, index, reverse, n_sub, rows,
+                                                                 starts, tick)
+    np.maximum(peak_slice, peak_i, out=peak_slice)            # entering
     nz = medium.ln_gain.shape[0]
     edge_lost = gained = passive = 0.0
     for c, t0 in enumerate(starts):                         # in order: the same sums whatever the threads
         energy = float(slice_energy[t0:t0 + rows].sum())
         for j in range(nz):
-            s_in, s_out, s_gained, s_passive, s_peak = sums[c, j]
+            s_in, s_out, s_gained, s_passive = sums[c, j]
             edge_lost += energy - s_in
             energy = s_out
             gained += s_gained
             passive += s_passive
-            peak_i = max(peak_i, s_peak)
         edge_lost += energy - final[c]
     if nz:
         peak_f = max(peak_f, float(plane.max()) if plane.size else 0.0)
+    factor = beam.peak_factors()
     return StepOutcome(e_in * area, float(final.sum()) * area, clipped_J=clipped * area,
                        passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i / beam.dt_s, b_integral_step_rad=float(b_step.max()),
-                       edge_absorbed_J=edge_lost * area, substeps=n_sub)
+                       peak_intensity_W_m2=true_peak(peak_slice, factor) / beam.dt_s,
+                       b_integral_step_rad=true_peak(b_step, factor), edge_absorbed_J=edge_lost * area,
+                       substeps=n_sub)
 
 
 def _clip_entering(beam: FieldBeam, mask: np.ndarray, rows: int, starts: list[int],
-                   ) -> tuple[float, float, float, float, np.ndarray]:
+                   ) -> tuple[float, float, float, np.ndarray, np.ndarray]:
     """The beam entering a medium, chunk by chunk: its energy, the part outside the clear aperture
-    ``mask`` (Ny, Nx) (removed from the field), the peak fluence and the peak |E|² of a time slice
-    (each per pixel area, J/m²), and each time slice's energy after the clipping, (Nt,)."""
+    ``mask`` (Ny, Nx) (removed from the field), the peak fluence and the peak |E|² of each time slice
+    ((Nt,); each per pixel area, J/m²), and each time slice's energy after the clipping, (Nt,)."""
     nt = beam.field.shape[0]
     pixels = beam.field.shape[1] * beam.field.shape[2]
     field = beam.field.reshape(nt, pixels)
@@ -89,12 +93,13 @@ def _clip_entering(beam: FieldBeam, mask: np.ndarray, rows: int, starts: list[in
     entry = np.zeros(pixels)                                 # Σ_t |E|² per pixel
     slice_energy = np.empty(nt)
     f_work, scratch = np.empty((rows, pixels)), np.empty((rows, 2 * pixels))
-    peak_i = 0.0
+    peak_i = np.zeros(nt)
     for t0 in starts:
         e = field[t0:t0 + rows]
         f = fs.fluence_into(e, f_work[:len(e)], scratch[:len(e)])
         entry += f.sum(axis=0)
-        peak_i = max(peak_i, float(f.max()) if f.size else 0.0)
+        if f.size:
+            peak_i[t0:t0 + len(e)] = f.max(axis=1)
         if outside.size:
             np.copyto(e, 0.0, where=~flat_mask)
             np.copyto(f, 0.0, where=~flat_mask)
@@ -108,9 +113,10 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
     """Every chunk of time slices through every z-slice, in threads as a wavefront: diffraction steps
     (``n_sub`` sub-steps each) and the gain and Kerr steps in time order.
 
-    Returns (sums, plane, final, b_step): the ChunkSums of each chunk and z-slice (chunks, Nz, 5), the
-    fluence leaving each gain step summed over time (Nz, pixels), Σ|E|² of each chunk at the exit and
-    the largest B-integral increment of each chunk."""
+    Returns (sums, plane, final, b_step, peak_slice): the energy sums of each chunk and z-slice (chunks,
+    Nz, 4: ChunkSums without its peaks), the fluence leaving each gain step summed over time (Nz, pixels),
+    Σ|E|² of each chunk at the exit, the largest B-integral increment of each time slice (Nt,) and the
+    largest fluence of each time slice leaving any gain step (Nt,)."""
     nt = beam.field.shape[0]
     pixels = beam.field.shape[1] * beam.field.shape[2]
     dz = medium.slice_length_m
@@ -125,9 +131,10 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
                                    float(np.exp(-0.5 * medium.loss_per_m * dz)), b_coef, beam.edge)
     works = [fs.ChunkWork(rows, pixels, constants.inside.size) for _ in range(min(threads, len(starts)))]
     plane = np.zeros((nz, pixels))                           # Σ_t of the fluence leaving each gain step
-    sums = np.zeros((len(starts), nz, 5))                    # ChunkSums of each chunk and z-slice
+    sums = np.zeros((len(starts), nz, 4))                    # ChunkSums of each chunk and z-slice
     final = np.zeros(len(starts))                            # Σ|E|² of each chunk at the exit
-    b_step = np.zeros(len(starts))
+    b_step = np.zeros(nt)                                    # per time slice (chunks write their own rows)
+    peak_slice = np.zeros(nt)
     b_all = beam.b_integral.reshape(nt, pixels)
     sp = medium.spectral
     spectral = None if sp is None else (sp.ratio, sp.scale, sp.offset_per_m * dz, -sp.absorption_per_m * dz)
@@ -142,8 +149,10 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
         inc = work.b_increment[:len(e)] if kerr else None
         if s % 2:
             rows_spectral = None if spectral is None else tuple(a[t0:t0 + len(e)] for a in spectral)
-            sums[c, j] = fs.gain_kerr_chunk(e.reshape(len(e), pixels), gain_rows[order[j]], constants, work,
-                                            plane[j], inc, rows_spectral)
+            out = fs.gain_kerr_chunk(e.reshape(len(e), pixels), gain_rows[order[j]], constants, work,
+                                     plane[j], inc, rows_spectral)
+            sums[c, j] = out[:4]
+            np.maximum(peak_slice[t0:t0 + len(e)], out.peak_slice_fluence, out=peak_slice[t0:t0 + len(e)])
             return
         if s == 0 and kerr:
             inc[...] = 0.0
@@ -155,7 +164,7 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
         final[c] = float(f.sum())
         if kerr:
             b_all[t0:t0 + len(e)] += inc
-            b_step[c] = float(inc.max()) if inc.size else 0.0
+            b_step[t0:t0 + len(e)] = inc.max(axis=1) if inc.size else 0.0
 
     done = [0]
 
@@ -168,4 +177,4 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
     chunks.run_chunks(len(starts), 2 * nz + 1, stage, threads, ordered=lambda s: s % 2 == 1,
                       after_stage=progress if tick is not None else None)
     beam.fft_count += 2 * nt * n_sub * (nz + 1)
-    return sums, plane, final, b_step
+    return sums, plane, final, b_step, peak_slice

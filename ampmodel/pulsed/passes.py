@@ -10,6 +10,7 @@ import numpy as np
 
 from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.kernels import fn_pass, fn_spectral
+from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.media.ions import SliceCrossSections
 
 
@@ -91,11 +92,13 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
     active = np.flatnonzero(total > 0.0)
     del total
 
-    peak_i = passive = b_step = gained = e_out = 0.0
+    factor = beam.peak_factors()                                # true peak over mean, per time slice
+    peak_slice = np.zeros(nt)                                  # the largest fluence of each time slice
+    passive = b_step = gained = e_out = 0.0
     blocks = -(-len(active) // block_pixels(nt, nz))             # equal blocks, none larger than that
     for idx in (np.array_split(active, blocks) if blocks else []):
         x = np.take(fluence, idx, axis=1)                       # (Nt, C), C-contiguous rows
-        peak_i = max(peak_i, float(x.max()) / beam.dt_s)       # entering
+        np.maximum(peak_slice, x.max(axis=1), out=peak_slice)   # entering
         x /= fsat
         ln_gain = np.take(ln_gain_all, idx, axis=1)
         order = ln_gain[::-1] if reverse else ln_gain
@@ -108,13 +111,14 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
         _scatter(ln_gain_all, idx, ln_gain)
         if b_sum is not None:
             b_sum *= b_coef * fsat
-            b_step = max(b_step, float(b_sum.max()))
+            b_step = max(b_step, true_peak(b_sum.max(axis=1), factor))
             b_sum += np.take(b_all, idx, axis=1)
             _scatter(b_all, idx, b_sum)
         peak_f = max(peak_f, oc.peak_plane_fluence * fsat)
-        peak_i = max(peak_i, oc.peak_slice_fluence * fsat / beam.dt_s)
+        np.maximum(peak_slice, oc.peak_slice_fluence * fsat, out=peak_slice)
         passive += oc.passive_loss * fsat
         gained += oc.gained * fsat
+    peak_i = true_peak(peak_slice, factor) / beam.dt_s           # at the pulse's true peak in each slice
     return StepOutcome(e_in, e_out * area, clipped_J=clipped, passive_loss_J=passive * area,
                        extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
                        b_integral_step_rad=b_step)

@@ -21,6 +21,7 @@ import numpy as np
 
 from ampmodel.beam.state import RepeatOutcome, StepOutcome
 from ampmodel.description import Config, Step
+from ampmodel.kernels.pulse_shape import true_peak_map
 from ampmodel.output.result import StepRecord
 from ampmodel.pulsed.clocks import Timeline
 from ampmodel.pulsed.passes import MediumState
@@ -140,7 +141,7 @@ def step_record(step: Step, beam, outcome: StepOutcome, fluence_map: np.ndarray,
     fluence_map : (Ny, Nx) fluence after the step (J/m²); power : (Nt,) power of each time slice (W)
     """
     record = StepRecord(index=step.index, kind=step.kind, medium=step.medium, fluence_J_m2=fluence_map,
-                        power_W=power, b_integral_rad=beam.b_integral.max(axis=0))
+                        power_W=power, b_integral_rad=true_peak_map(beam.b_integral, beam.peak_factor))
     if step.kind == "repeat":
         energies = np.asarray(outcome.repeat.round_trip_energies_J, dtype=float)
         times = outcome.repeat.round_trip_s * np.arange(1, energies.size + 1)

@@ -13,7 +13,8 @@ from ampmodel.beam.fluence_steps import FLUENCE_STEP_ACTIONS
 from ampmodel.beam.state import BeamFigures, BeamState, StepOutcome
 from ampmodel.config.checks import ConfigError
 from ampmodel.description import Config, Step, step_label
-from ampmodel.kernels import beam_shapes
+from ampmodel.kernels import beam_shapes, pulse_shape
+from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.media import gain_maps
 from ampmodel.media.gain_maps import GainMap
 from ampmodel.media.ions import SliceCrossSections, slice_cross_sections
@@ -34,7 +35,8 @@ class PulsedLayout:
     share of the seed's energy in each and their width; seed_map : (Ny, Nx) the seed's fluence (J/m²);
     seed_field : the seed's field at the start plane (field path, or a seed with a waist) or None;
     seed_power_W : (Nt,) the seed's power; apertures : step index -> the clear aperture its beam
-    figures are taken over; wavelengths_m : (Nt,) the wavelength of each time slice.
+    figures are taken over; wavelengths_m : (Nt,) the wavelength of each time slice; peak_factor :
+    (Nt,) the largest power inside each time slice over its mean (the seed's shape; the true peaks).
     """
 
     config: Config
@@ -50,6 +52,7 @@ class PulsedLayout:
     timeline: Timeline
     apertures: dict[int, np.ndarray]
     wavelengths_m: np.ndarray
+    peak_factor: np.ndarray
 
     @classmethod
     def build(cls, config: Config) -> PulsedLayout:
@@ -75,7 +78,8 @@ class PulsedLayout:
         area = float((x[1] - x[0]) ** 2)
         seed_power = weights * seed_map.sum() * area / dt
         return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
-                   Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states), wavelengths)
+                   Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states), wavelengths,
+                   beam_shapes.slice_peak_factors(seed.shape, grid.time_slices))
 
     @property
     def pixel_area_m2(self) -> float:
@@ -85,11 +89,13 @@ class PulsedLayout:
         """A fresh seed pulse on the grid (a field beam with diffraction)."""
         grid, seed = self.config.grid, self.config.seed
         if grid.diffraction:
-            return field_path.start_beam(self.seed_field, self.weights, self.x_m, self.x_m, self.dt_s,
+            beam = field_path.start_beam(self.seed_field, self.weights, self.x_m, self.x_m, self.dt_s,
                                          seed.wavelength_m, grid.width_m, grid.fft_workers)
+            beam.peak_factor = self.peak_factor
+            return beam
         fluence = self.weights[:, None, None] * self.seed_map[None, :, :]
         return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=self.x_m, y_m=self.x_m,
-                         dt_s=self.dt_s, wavelength_m=seed.wavelength_m)
+                         dt_s=self.dt_s, wavelength_m=seed.wavelength_m, peak_factor=self.peak_factor)
 
     def act(self, step: Step, beam, tick) -> StepOutcome:
         """One step that is not a repeat, on the field path or the fluence path."""
@@ -109,20 +115,22 @@ class PulsedLayout:
         outcomes: list[StepOutcome] = []
         records: list[StepRecord] = []
         checks = [("the seed", grid_checks.check_grid(beam))] if diffraction and record else []
-        power_before = float(self.seed_power_W.max()) if self.seed_power_W.size else 0.0
+        power_before = true_peak(self.seed_power_W, self.peak_factor)
         for step in config.steps:
             outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick)
             if record:
                 fluence = beam.fluence
                 fluence_map = fluence.sum(axis=0)
                 power = fluence.sum(axis=(1, 2)) * self.pixel_area_m2 / self.dt_s
-                power_after = float(power.max()) if power.size else 0.0
+                power_after = true_peak(power, self.peak_factor)
                 if diffraction:
                     checks.append((step_label(config.steps, step.index),
                                    grid_checks.check_grid(beam, fluence=fluence)))
                 outcome.beam = BeamFigures.of(fluence_map, self.x_m, self.x_m, self.apertures[step.index],
                                               self.pixel_area_m2)
                 outcome.peak_power_W = max(power_before, power_after)
+                outcome.duration_s = pulse_shape.fwhm_s(*pulse_shape.resampled(power, config.seed.shape,
+                                                                               config.seed.duration_s))
                 power_before = power_after
                 records.append(repeats.step_record(step, beam, outcome, fluence_map, power))
             outcomes.append(outcome)
@@ -201,6 +209,10 @@ def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[s
     seed_beam = BeamFigures.of(run.seed_map, run.x_m, run.x_m, seed_aperture, run.pixel_area_m2)
     summary = diagnostics.summarise(config, beam, run.seed_map, outcomes, media, run.maps,
                                     seed_beam=seed_beam.as_dict(), extra_warnings=grid_warnings)
+    power = beam.fluence.sum(axis=(1, 2)) * run.pixel_area_m2 / run.dt_s      # (Nt,) W, the output
+    t_fine, p_fine = pulse_shape.resampled(power, config.seed.shape, config.seed.duration_s)
+    summary["output_duration_ns"] = pulse_shape.fwhm_s(t_fine, p_fine) * 1e9
+    summary["output_peak_power_W"] = true_peak(power, run.peak_factor)
     summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else run.timeline.elapsed_s) * 1e9
     if train is not None:
         summary["average_power_W"] = train.summary["average_power_W"]

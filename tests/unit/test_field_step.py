@@ -107,7 +107,8 @@ def test_gain_kerr_chunk_matches_the_plain_step(scale, g, half_loss, b_coef, wit
     assert sum(s.gained for s in sums) == pytest.approx(gained, rel=tol, abs=tol * e_in)
     assert sum(s.passive for s in sums) == pytest.approx(passive, rel=tol, abs=tol * e_in)
     out = np.abs(ref_e) ** 2
-    assert max(s.peak_slice_fluence for s in sums) == pytest.approx(out.max(), rel=tol)
+    # the largest fluence of each time slice leaving the step
+    np.testing.assert_allclose(np.concatenate([s.peak_slice_fluence for s in sums]), out.max(axis=1), rtol=tol)
     assert np.max(np.abs(plane - out.sum(axis=0))) < tol * out.sum(axis=0).max()
 
 

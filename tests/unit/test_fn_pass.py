@@ -33,7 +33,8 @@ def plain_pass(x, ln_gain, half_loss=1.0, with_b=False):
     nz = ln_gain.shape[0]
     b_sum = np.zeros_like(x)
     plane = np.zeros((nz, c))
-    peak_slice, passive, gained = 0.0, 0.0, 0.0
+    peak_slice = np.zeros(nt)                         # the largest fluence of each time slice
+    passive, gained = 0.0, 0.0
     for t in range(nt):
         xb = x[t].copy()
         for k in range(nz):
@@ -54,7 +55,7 @@ def plain_pass(x, ln_gain, half_loss=1.0, with_b=False):
                 lm[xb == 0.0] = 0.0
                 b_sum[t] += lm
             plane[k] += xout
-            peak_slice = max(peak_slice, float(xout.max()))
+            peak_slice[t] = max(peak_slice[t], float(xout.max()))
             xb = xout
         x[t] = xb
     return x, ln_gain, b_sum, float(plane.max()), peak_slice, passive, gained
@@ -115,7 +116,7 @@ def test_amplify_block_equals_plain_loop(half_loss, with_b, linear, absorbing, d
         assert rel(b_sum, ref[2]) < TOL
         assert np.all(b_sum[lit] > 0.0) and np.all(b_sum[~lit] == 0.0)
     assert oc.peak_plane_fluence == pytest.approx(ref[3], rel=TOL)
-    assert oc.peak_slice_fluence == pytest.approx(ref[4], rel=TOL)
+    np.testing.assert_allclose(oc.peak_slice_fluence, ref[4], rtol=TOL)
     assert oc.passive_loss == pytest.approx(ref[5], rel=TOL, abs=0.0)
     assert oc.gained == pytest.approx(ref[6], rel=TOL)
     assert (half_loss == 1.0) == (oc.passive_loss == 0.0)
@@ -133,7 +134,7 @@ def test_composite_equals_plain_loop_and_per_slice_depletion():
     assert rel(x, ref[0]) < TOL
     assert np.max(np.abs(ln_gain - ref[1])) < TOL
     assert oc.peak_plane_fluence == pytest.approx(ref[3], rel=TOL)
-    assert oc.peak_slice_fluence == pytest.approx(ref[4], rel=TOL)
+    np.testing.assert_allclose(oc.peak_slice_fluence, ref[4], rtol=TOL)
     assert oc.gained == pytest.approx(ref[6], rel=TOL)
     # the depletion is resolved slice by slice (it differs along z), not spread evenly
     depletion = block(nt=16, nz=9)[1] - ln_gain
