@@ -111,7 +111,7 @@ class PulsedLayout:
         checks = [("the seed", grid_checks.check_grid(beam))] if diffraction and record else []
         power_before = float(self.seed_power_W.max()) if self.seed_power_W.size else 0.0
         for step in config.steps:
-            outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick)
+            outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick, config.limits)
             if record:
                 fluence = beam.fluence
                 fluence_map = fluence.sum(axis=0)
