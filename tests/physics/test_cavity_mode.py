@@ -221,3 +221,14 @@ def test_a_flat_beam_in_a_uniform_gain_keeps_its_size_and_no_warning():
     np.testing.assert_allclose(d4, d4[0, 0], rtol=1e-12)
     assert result.summary["steps"][0]["energy_out_J"] > 20 * SEED_J
     assert not _no_mode_warnings(result)
+
+
+@pytest.mark.parametrize("mode_mm, words", [(0.5, "only 2.0 pixels across the cavity mode"),
+                                            (5.0, "the cavity mode (mode_diameter_mm = 5) reaches the edge of the "
+                                                  "6 mm window")])
+def test_a_mode_the_grid_cannot_hold_well_is_warned_of(mode_mm, words):
+    steps = cavity({"count": 1})
+    steps[0]["mode_diameter_mm"] = mode_mm
+    result = simulate(load_config(config(steps)))
+    assert [w for w in result.summary["warnings"] if words in w]
+    assert abs(result.summary["energy_balance_error"]) < 1e-13
