@@ -159,7 +159,8 @@ class Step:
     kinds: "pass" (medium, reverse), "loss" (transmission), "aperture" (shape, diameter_m, and
     order for a soft edge), "space" (length_m), "lens" (focal_m), "filter" (focal_m,
     pinhole_diameter_m), "relay" (magnification), "repeat" (steps, count or until = "peak" with
-    max_count, round_trip_s). Optics may carry a damage fluence for the warning.
+    max_count, round_trip_s, and on the fluence path mode_diameter_m, the cavity's TEM00 mode the
+    beam is re-formed on after each round trip). Optics may carry a damage fluence for the warning.
 
     ``delay_s`` is the time the step takes before the next step begins (the media are pumped and
     decay meanwhile); a step inside a repeat has ``parent`` set to the repeat's index and ``index``
@@ -188,6 +189,7 @@ class Step:
     until: str | None = None          # ... or "peak": stop after the round trip of largest energy
     max_count: int = 1000             # repeat with until: safety limit on the round trips
     round_trip_s: float | None = None  # repeat: time of one round trip (None: the sum of the delays)
+    mode_diameter_m: float | None = None  # repeat: the cavity's TEM00 mode, 1/e² diameter (None: no mode)
     parent: int | None = None         # index of the enclosing repeat
 
     @property
@@ -248,6 +250,7 @@ class Limits:
     sampling_limit_fraction: float = 1e-3 # diffraction: energy fraction near the grid's sampling limit
     ase_fraction: float = 0.1             # fibres: ASE leaving a fibre, as a fraction of its signal output
     gain_without_ase_dB: float = 30.0     # fibres with ase = false: small-signal gain above which ASE matters
+    cavity_beam_change_fraction: float = 0.05  # repeat without a cavity mode: D4σ change over the round trips
 
 
 @dataclass(frozen=True)

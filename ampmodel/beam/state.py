@@ -74,14 +74,16 @@ class BeamFigures:
 class RepeatOutcome:
     """A repeat's round trips: the energy after each round trip run (the discarded one of
     ``until = "peak"`` included, J), the round trips kept (the dump after the last of them), the
-    round-trip time (s), whether the energy fell before ``max_count`` (until = "peak"), and the
-    outcome of each inner step in the dump round trip."""
+    round-trip time (s), whether the energy fell before ``max_count`` (until = "peak"), the
+    outcome of each inner step in the dump round trip, and the beam's figures after each round trip
+    run (``pulsed.cavity_mode.RoundTripBeam``: D4σ, peak fluence, energy)."""
 
     round_trip_energies_J: list[float]
     dump_round_trip: int
     round_trip_s: float
     peak_found: bool
     inner: list[StepOutcome]
+    round_trip_beams: list = field(default_factory=list)
 
 
 @dataclass

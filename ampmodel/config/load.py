@@ -184,6 +184,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
             if item.get("kind") in S.FIELD_ONLY_KINDS:
                 p.add(f"{path}.kind", f"a '{item['kind']}' step acts on the optical field: set "
                                       "grid.diffraction = true (or remove the step)", item["kind"])
+    if grid is not None and steps is not None:
+        config_timing.cavity_modes(p, raw, grid)
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     config_timing.check(p, raw, media, seed, tuple(steps))

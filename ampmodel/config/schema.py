@@ -199,6 +199,8 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
         "until": choice("stop rule: 'peak' dumps after the round trip of largest energy", UNTIL_RULES),
         "max_count": integer("safety limit on the round trips with until = 'peak'", 1, 1_000_000),
         "round_trip_ns": quantity("time of one round trip", gt=0, le=1e9),
+        "mode_diameter_mm": quantity("the cavity's TEM00 mode, 1/e^2 intensity diameter: the beam is re-formed on "
+                                     "it after each round trip (without diffraction)", gt=0, le=1e4),
     },
 }
 
@@ -214,6 +216,8 @@ _LIMIT_MEANINGS = {
     "sampling_limit_fraction": "warn when this energy fraction nears the grid's sampling limit",
     "ase_fraction": "fibres: warn when the ASE leaving a fibre exceeds this fraction of its signal",
     "gain_without_ase_dB": "fibres with ase = false: warn above this small-signal gain (dB)",
+    "cavity_beam_change_fraction": "repeats without a cavity mode: warn when the beam's D4σ in a round trip "
+                                   "kept differs from that after the first by more than this fraction",
 }
 LIMITS: dict[str, Key] = {
     f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)

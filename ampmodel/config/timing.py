@@ -9,7 +9,7 @@ from typing import Any, Callable
 
 from ampmodel.config import schema as S
 from ampmodel.config.checks import Problems, given_keys, join_path, type_name
-from ampmodel.description import Medium, Seed, Step, longest_layout_time_s, passed_media
+from ampmodel.description import Grid, Medium, Seed, Step, longest_layout_time_s, passed_media
 from ampmodel.units import to_si
 
 RATE_KEYS = ("repetition_rate_Hz", "repetition_rate_kHz")
@@ -75,6 +75,25 @@ def check(p: Problems, raw: dict, media: list[Medium], seed: Seed, steps: tuple[
                                   f"max_count, or the pump's duration_us)", raw["seed"][rate_key])
 
 
+def cavity_modes(p: Problems, raw: dict, grid: Grid) -> None:
+    """A repeat's ``mode_diameter_mm`` against the grid: the fluence path only (the field path forms
+    its own mode from the cavity's lenses), and a mode that fits the window."""
+    items = raw.get("step") if isinstance(raw.get("step"), list) else []
+    for i, item in enumerate(items):
+        if not (isinstance(item, dict) and item.get("kind") == "repeat" and "mode_diameter_mm" in item):
+            continue
+        name = item.get("name") if isinstance(item.get("name"), str) else ""
+        key = join_path(f"step[{i}] ({name})" if name else f"step[{i}]", "mode_diameter_mm")
+        value = item["mode_diameter_mm"]
+        if grid.diffraction:
+            p.add(key, "applies without diffraction only: with grid.diffraction = true the field path forms the "
+                       "cavity's own mode from its lenses (lens steps standing for the curved mirrors) round trip "
+                       "after round trip; remove mode_diameter_mm, or set grid.diffraction = false", value)
+        elif isinstance(value, (int, float)) and to_si("mode_diameter_mm", value) > grid.width_m:
+            p.add(key, f"the cavity mode is wider than the grid's window ({grid.width_m * 1e3:g} mm): the window "
+                       "would cut it; widen grid.width_mm, or check the mode's diameter (1/e^2, in mm)", value)
+
+
 def _duration(seconds: float) -> str:
     """A time in the unit that suits it: "12.5 ns", "250 us", "1 ms"."""
     for scale, unit in ((1e-3, "ms"), (1e-6, "us"), (1e-9, "ns")):
@@ -99,6 +118,8 @@ def repeat(p: Problems, i: int, item: dict, v: dict, path: str, names: list[str]
     fields["count"] = v.get("count")
     fields["until"] = v.get("until")
     fields["max_count"] = v.get("max_count", S.MAX_COUNT_DEFAULT)
+    if "mode_diameter_mm" in v:
+        fields["mode_diameter_m"] = to_si("mode_diameter_mm", v["mode_diameter_mm"])
     items = item.get("steps")
     spath = join_path(path, "steps")
     inner: list[Step | None] = []

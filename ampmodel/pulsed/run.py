@@ -117,7 +117,7 @@ class PulsedLayout:
         checks = [("the seed", grid_checks.check_grid(beam))] if diffraction and record else []
         power_before = true_peak(self.seed_power_W, self.peak_factor)
         for step in config.steps:
-            outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick)
+            outcome = repeats.run_step(step, beam, self.states, self.timeline, self.act, tick, config.limits)
             if record:
                 fluence = beam.fluence
                 fluence_map = fluence.sum(axis=0)

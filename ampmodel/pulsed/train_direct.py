@@ -29,6 +29,8 @@ def direct_not_applicable(config: Config, clocks: dict[str, MediumClock]) -> str
                 f"where along the medium the gain is")
     if any(s.kind == "repeat" and s.until is not None for s in config.steps):
         return 'a repeat stops at the peak: the dump round trip couples the pixels'
+    if any(s.kind == "repeat" and s.mode_diameter_m is not None for s in config.steps):
+        return "a repeat re-forms the cavity mode each round trip (mode_diameter_mm): the mode couples the pixels"
     seed, mat = config.seed, medium.material
     if seed.bandwidth_m or abs(seed.wavelength_m - mat.wavelength_m) > 1e-9 * mat.wavelength_m:
         return "the seed's time slices meet the medium away from its wavelength (their own cross-sections)"

@@ -126,6 +126,15 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_repeat_until.toml": (['step[0].until = "peek"', "did you mean 'peak'?"], 1),
     "bad_round_trip_short.toml": (["step[0].round_trip_ns = 5.0: shorter than the time the steps inside take "
                                    "(10.0069 ns"], 1),
+    "bad_mode_diameter_with_diffraction.toml": (["step[0] (cavity).mode_diameter_mm = 2.0: applies without "
+                                                 "diffraction only", "forms the cavity's own mode from its lenses",
+                                                 "remove mode_diameter_mm, or set grid.diffraction = false"], 1),
+    "bad_mode_diameter_negative.toml": (["step[0] (cavity).mode_diameter_mm = -2.0: out of range: must be a number "
+                                         "> 0 and <= 10000", "a plausible range"], 1),
+    "bad_mode_diameter_huge.toml": (["step[0] (cavity).mode_diameter_mm = 20000.0: out of range: must be a number "
+                                     "> 0 and <= 10000", "a slip of unit"], 1),
+    "bad_mode_diameter_wider_than_window.toml": (["step[0] (cavity).mode_diameter_mm = 12.0: the cavity mode is "
+                                                  "wider than the grid's window (8 mm)", "widen grid.width_mm"], 1),
     "bad_continuous_pump_duration.toml": (["medium[0] (rod).pump.duration_us = 250.0: a continuous pump has no "
                                            "pulse length", "remove duration_us"], 1),
     "bad_train_no_pump.toml": (["medium[0] (rod): a pulse train (seed.repetition_rate_Hz) needs a pump",

@@ -43,6 +43,11 @@ def test_regenerative_amplifier_example(tmp_path):
         ds = f["steps/000/round_trip_energy"]
         assert ds.attrs["units"] == "J" and list(ds[()]) == pytest.approx(energies, rel=1e-15)
         assert f["steps/000/round_trip_end_time"].attrs["units"] == "s"
+        d4 = f["steps/000/round_trip_d4sigma"]                      # the cavity's mode, every round trip
+        assert d4.attrs["units"] == "m" and d4.shape == (len(energies), 2)
+        assert d4[()] == pytest.approx(1.4e-3, rel=1e-6)
+    assert repeat["d4sigma_x_mm"] == pytest.approx(1.4, rel=1e-6)
+    assert not any("no cavity mode" in w for w in summary["warnings"])
     assert (out / "plots" / "round_trips.png").stat().st_size > 10_000
     assert f"{dump} round trips" in proc.stdout and "build-up time" in proc.stdout
 
