@@ -251,6 +251,10 @@ class Limits:
     ase_fraction: float = 0.1             # fibres: ASE leaving a fibre, as a fraction of its signal output
     gain_without_ase_dB: float = 30.0     # fibres with ase = false: small-signal gain above which ASE matters
     cavity_beam_change_fraction: float = 0.05  # repeat without a cavity mode: D4σ change over the round trips
+    # self-focusing is a warning when Marburger's collapse distance is below this many times the path
+    # through the medium above the critical power (an estimate), else a note
+    self_focusing_length_factor: float = 2.0
+    mute: tuple[str, ...] = ()            # notice codes (ampmodel.notices.CODES) left out of warnings and notes
 
 
 @dataclass(frozen=True)

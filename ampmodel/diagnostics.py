@@ -10,6 +10,8 @@ import math
 
 import numpy as np
 
+from ampmodel.notices import warning
+
 J_CM2 = 1e-4   # J/m² -> J/cm²
 W_CM2 = 1e-4   # W/m² -> W/cm²
 
@@ -27,9 +29,9 @@ def transverse_gain_warnings(name: str, gain_per_m: np.ndarray, diameter_m: floa
     risk of parasitic oscillation across the rod; common practice)."""
     g_peak = float(np.max(gain_per_m)) if np.size(gain_per_m) else 0.0
     if g_peak * diameter_m > limits.transverse_gain_length:
-        return [f"medium {name}: transverse gain-length product g0·D = {g_peak * diameter_m:.2g} "
-                f"above {limits.transverse_gain_length:g} (common practice): risk of parasitic "
-                f"oscillation; consider edge cladding or a lower gain"]
+        return [warning("parasitic-gain", f"medium {name}: transverse gain-length product g0·D = "
+                        f"{g_peak * diameter_m:.2g} above {limits.transverse_gain_length:g} (common practice): risk "
+                        f"of parasitic oscillation; consider edge cladding or a lower gain")]
     return []
 
 
@@ -39,12 +41,13 @@ def seed_grid_warnings(diameter_m: float, dx_m: float, seed_map: np.ndarray, wid
     warnings = []
     pixels = diameter_m / dx_m
     if pixels < limits.pixels_across_beam:
-        warnings.append(f"grid: only {pixels:.1f} pixels across the seed diameter (fewer than "
-                        f"{limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm")
+        warnings.append(warning("grid-coarse", f"grid: only {pixels:.1f} pixels across the seed diameter (fewer "
+                                f"than {limits.pixels_across_beam:g}); raise grid.points or narrow grid.width_mm"))
     edge = max(seed_map[0, :].max(), seed_map[-1, :].max(), seed_map[:, 0].max(), seed_map[:, -1].max())
     if edge > 1e-3 * seed_map.max():
-        warnings.append(f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm window "
-                        f"({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen grid.width_mm")
+        warnings.append(warning("grid-coarse", f"grid: the seed reaches the edge of the {width_m * 1e3:g} mm "
+                                f"window ({edge / seed_map.max():.1e} of its peak there) and is cut by it; widen "
+                                f"grid.width_mm"))
     return warnings
 
 

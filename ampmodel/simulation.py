@@ -6,6 +6,7 @@ is refused before anything is allocated.
 """
 from __future__ import annotations
 
+from ampmodel import notices
 from ampmodel.config.checks import ConfigError
 from ampmodel.cw import run as cw_run
 from ampmodel.description import Config
@@ -71,7 +72,10 @@ def simulate(config: Config, progress: bool | None = False) -> Result:
     """
     check_memory(config)
     if _is_fibre(config):
-        return fibre_run.simulate_fibre(config, progress)
-    if config.mode == "cw":
-        return cw_run.simulate_cw(config, progress)
-    return pulsed_run.simulate_pulsed(config, progress)
+        result = fibre_run.simulate_fibre(config, progress)
+    elif config.mode == "cw":
+        result = cw_run.simulate_cw(config, progress)
+    else:
+        result = pulsed_run.simulate_pulsed(config, progress)
+    result.summary = notices.settle(result.summary, config.limits.mute)
+    return result

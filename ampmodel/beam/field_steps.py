@@ -16,18 +16,26 @@ from ampmodel.beam.state import StepOutcome, fluence_peaks
 from ampmodel.description import Step
 from ampmodel.kernels import beam_shapes
 from ampmodel.kernels import diffraction as kd
+from ampmodel.notices import warning
 
 
 def _simple(beam: FieldBeam, change: Callable[[StepOutcome], str]) -> StepOutcome:
     """Run ``change`` on the field; it may fill in the outcome's other fields and returns where the
     energy difference went: "passive" (a loss), "clipped" (an aperture) or "edge" (the window's
-    absorbing edge)."""
+    absorbing edge). The outcome has the peak fluence entering (``peak_fluence_in_J_m2``) and after the
+    step (``peak_fluence_J_m2``), and the larger peak intensity of the two."""
     fluence = fluence_of(beam.field)
     e_in = float(fluence.sum() * beam.pixel_area_m2)
     peak_f, peak_i = fluence_peaks(fluence, beam.dt_s, beam.peak_factor)
-    outcome = StepOutcome(e_in, e_in, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
+    del fluence
+    outcome = StepOutcome(e_in, e_in, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
+                          peak_fluence_in_J_m2=peak_f)
     lost_to = change(outcome)
-    outcome.energy_out_J = beam.energy_J()
+    after = fluence_of(beam.field)                     # the peaks leaving the step (a focus, a relay)
+    outcome.energy_out_J = float(after.sum() * beam.pixel_area_m2)
+    outcome.peak_fluence_J_m2, peak_out = fluence_peaks(after, beam.dt_s, beam.peak_factor)
+    outcome.peak_intensity_W_m2 = max(peak_i, peak_out)
+    del after
     lost = e_in - outcome.energy_out_J
     if lost_to == "clipped":
         outcome.clipped_J = lost
@@ -88,9 +96,9 @@ def field_lens(beam: FieldBeam, step: Step) -> StepOutcome:
         limit = kd.CLEAR_FRACTION * math.pi / dx
         if local > limit:
             points = fast_even_points(math.ceil(beam.width_m * local / (kd.CLEAR_FRACTION * math.pi)))
-            outcome.warnings = [f"the lens phase is undersampled at the beam's edge (r = {r * 1e3:.3g} mm): its "
+            outcome.warnings = [warning("lens-sampling", f"the lens phase is undersampled at the beam's edge (r = {r * 1e3:.3g} mm): its "
                                 f"local spatial frequency is {local / limit:.2g} times 80 % of the grid's "
-                                f"sampling limit; grid.points = {points} (at this width) would resolve it"]
+                                f"sampling limit; grid.points = {points} (at this width) would resolve it")]
         return "passive"
     return _simple(beam, change)
 
@@ -107,9 +115,9 @@ def field_filter(beam: FieldBeam, step: Step) -> StepOutcome:
         dx = float(beam.x_m[1] - beam.x_m[0])
         focal_half_width = beam.wavelength_m * step.focal_m / (2.0 * dx)   # the grid's reach in the focal plane
         if radius >= focal_half_width:
-            outcome.warnings = [f"the pinhole (radius {radius * 1e6:.3g} µm) is wider than the focal plane the grid "
+            outcome.warnings = [warning("pinhole", f"the pinhole (radius {radius * 1e6:.3g} µm) is wider than the focal plane the grid "
                                 f"reaches (half-width λf/(2dx) = {focal_half_width * 1e6:.3g} µm): it removes "
-                                "nothing on this grid; raise grid.points or narrow the pinhole"]
+                                "nothing on this grid; raise grid.points or narrow the pinhole")]
         return "clipped"
     return _simple(beam, change)
 

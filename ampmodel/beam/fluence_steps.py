@@ -32,28 +32,23 @@ def _clip(beam: BeamState, mask: np.ndarray) -> float:
 def apply_loss(beam: BeamState, step: Step) -> StepOutcome:
     """A lumped loss: every pixel and time slice multiplied by the transmission."""
     e_in = beam.energy_J()
-    peak_f, peak_i = peaks(beam)
     beam.fluence *= step.transmission
     e_out = beam.energy_J()
-    return StepOutcome(e_in, e_out, passive_loss_J=e_in - e_out, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i)
+    return StepOutcome(e_in, e_out, passive_loss_J=e_in - e_out)
 
 
 def apply_aperture(beam: BeamState, step: Step) -> StepOutcome:
     """A hard-edged centred aperture (round or square): the beam outside it is removed."""
     e_in = beam.energy_J()
-    peak_f, peak_i = peaks(beam)
     mask = beam_shapes.aperture_mask(beam.x_m, beam.y_m, step.shape, step.diameter_m)
     clipped = _clip(beam, mask)
-    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped, peak_fluence_J_m2=peak_f,
-                       peak_intensity_W_m2=peak_i)
+    return StepOutcome(e_in, beam.energy_J(), clipped_J=clipped)
 
 
 def apply_unchanged(beam: BeamState, step: Step) -> StepOutcome:
     """Free space and thin lenses: without diffraction the fluence map is unchanged."""
     e = beam.energy_J()
-    peak_f, peak_i = peaks(beam)
-    return StepOutcome(e, e, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
+    return StepOutcome(e, e)
 
 
 def fluence_aperture(beam: BeamState, step: Step) -> StepOutcome:
@@ -62,10 +57,9 @@ def fluence_aperture(beam: BeamState, step: Step) -> StepOutcome:
     if step.order is None:
         return apply_aperture(beam, step)
     e_in = beam.energy_J()
-    peak_f, peak_i = peaks(beam)
     beam.fluence *= kd.aperture_amplitude(beam.x_m, beam.y_m, step.shape, step.diameter_m, step.order) ** 2
     e_out = beam.energy_J()
-    return StepOutcome(e_in, e_out, clipped_J=e_in - e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
+    return StepOutcome(e_in, e_out, clipped_J=e_in - e_out)
 
 
 def fluence_relay(beam: BeamState, step: Step) -> StepOutcome:
@@ -73,7 +67,6 @@ def fluence_relay(beam: BeamState, step: Step) -> StepOutcome:
     (geometrical imaging; linear interpolation keeps it non-negative), energy conserved as in
     ``field_steps.field_relay``."""
     e_in = beam.energy_J()
-    peak_f, peak_i = peaks(beam)
     m = step.magnification
     if m == 1.0:
         beam.fluence = beam.fluence[:, ::-1, ::-1].copy()
@@ -92,15 +85,30 @@ def fluence_relay(beam: BeamState, step: Step) -> StepOutcome:
         beam.fluence = image * scale[:, None, None]
         beam.b_integral = kd.image_scaled(beam.b_integral, beam.x_m, m, order=1)
     e_out = beam.energy_J()
-    return StepOutcome(e_in, e_out, clipped_J=e_in - e_out, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i)
+    return StepOutcome(e_in, e_out, clipped_J=e_in - e_out)
+
+
+def with_peaks(action: Callable[[BeamState, Step], StepOutcome]) -> Callable[[BeamState, Step], StepOutcome]:
+    """``action`` with the peaks of the beam reaching the step and leaving it in its outcome: the peak
+    fluence entering (``peak_fluence_in_J_m2``), the peak fluence after it (``peak_fluence_J_m2``: a relay
+    or an aperture changes it) and the larger peak intensity of the two, at the pulse's true peak."""
+    def run(beam: BeamState, step: Step) -> StepOutcome:
+        f_in, i_in = peaks(beam)
+        outcome = action(beam, step)
+        f_out, i_out = peaks(beam)
+        outcome.peak_fluence_in_J_m2 = f_in
+        outcome.peak_fluence_J_m2 = f_out
+        outcome.peak_intensity_W_m2 = max(i_in, i_out)
+        return outcome
+    run.__name__ = action.__name__
+    run.__doc__ = action.__doc__
+    return run
 
 
 # Step kinds other than "pass" (which needs the media) and the function that applies each to a
 # fluence beam (the pulsed fluence path, and the cw intensity map as a one-slice beam of 1 s).
 FLUENCE_STEP_ACTIONS: dict[str, Callable[[BeamState, Step], StepOutcome]] = {
-    "loss": apply_loss,
-    "aperture": fluence_aperture,
-    "space": apply_unchanged,
-    "lens": apply_unchanged,
-    "relay": fluence_relay,
+    kind: with_peaks(action) for kind, action in (
+        ("loss", apply_loss), ("aperture", fluence_aperture), ("space", apply_unchanged),
+        ("lens", apply_unchanged), ("relay", fluence_relay))
 }

@@ -13,6 +13,7 @@ import scipy
 from ampmodel.beam.field import FieldBeam, fluence_of, tail_reach
 from ampmodel.description import Limits
 from ampmodel.kernels import diffraction as kd
+from ampmodel.notices import warning
 
 
 def fast_even_points(n: int) -> int:
@@ -93,16 +94,16 @@ def grid_warnings(checks: list[tuple[str, GridCheck]], limits: Limits, width_m: 
         need_w = max(x[1].width_needed_m for x in checks)
         need_p = max(x[1].points_for_width for x in checks)
         bound = "at least " if any(x[1].saturated_width for x in checks) else ""
-        out.append(f"grid: the beam reaches the absorbing edge of the {width_m * 1e3:g} mm window ({c.edge_fraction:.1e} "
+        out.append(warning("window-edge", f"grid: the beam reaches the absorbing edge of the {width_m * 1e3:g} mm window ({c.edge_fraction:.1e} "
                    f"of its energy beyond the clear central {100 * kd.CLEAR_FRACTION:g} % after {label}); "
                    f"{bound}grid.width_mm = {need_w * 1e3:.3g} with grid.points = {need_p} (the same pixel size) "
-                   "would hold it")
+                   "would hold it"))
     worst = max(checks, key=lambda c: c[1].spectrum_fraction, default=None)
     if worst is not None and worst[1].spectrum_fraction > limits.sampling_limit_fraction:
         label, c = worst
         need_p = max(x[1].points_for_spectrum for x in checks)
-        out.append(f"grid: the beam's angular spectrum reaches the sampling limit of {points} points over "
+        out.append(warning("grid-sampling", f"grid: the beam's angular spectrum reaches the sampling limit of {points} points over "
                    f"{width_m * 1e3:g} mm ({c.spectrum_fraction:.1e} of its energy beyond 80 % of it after {label}); "
                    f"{'at least ' if any(x[1].saturated_spectrum for x in checks) else ''}grid.points = {need_p} at "
-                   f"grid.width_mm = {width_m * 1e3:g} would resolve it")
+                   f"grid.width_mm = {width_m * 1e3:g} would resolve it"))
     return out

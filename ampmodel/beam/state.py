@@ -105,8 +105,9 @@ class StepOutcome:
     clipped_J: float = 0.0
     passive_loss_J: float = 0.0
     extracted_J: float = 0.0          # energy the gain gave the beam (negative where it absorbed)
-    peak_fluence_J_m2: float = 0.0
-    peak_intensity_W_m2: float = 0.0
+    peak_fluence_J_m2: float = 0.0    # after the step (a pass: the largest in the medium or leaving it)
+    peak_intensity_W_m2: float = 0.0  # the largest entering, inside or leaving, at the pulse's true peak
+    peak_fluence_in_J_m2: float = 0.0  # the beam reaching the step (its first surface)
     b_integral_step_rad: float = 0.0
     edge_absorbed_J: float = 0.0
     substeps: int | None = None

@@ -137,6 +137,8 @@ def expected(key: Key) -> str:
         return f"an array of {count} {rule(key)}".strip()
     if key.kind == "bounds":
         return "an array of two numbers [lower, upper] with lower < upper"
+    if key.kind == "strs":
+        return "an array of strings, each one of " + ", ".join(f"'{c}'" for c in key.choices)
     return key.kind
 
 
@@ -243,6 +245,13 @@ def _type_problem(value: Any, key: Key, want: str) -> str | None:
     elif kind == "ref":
         if isinstance(value, bool) or not isinstance(value, (str, int)):
             return f"must be {want}, not {type_name(value)}"
+    elif kind == "strs":
+        if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+            return f"must be an array of strings, not {type_name(value)}"
+        for v in value:
+            if key.choices and v not in key.choices:
+                return f"'{v}' is not one of the codes{did_you_mean(v, key.choices)}; the codes: " + \
+                    ", ".join(key.choices)
     return None
 
 

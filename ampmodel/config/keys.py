@@ -20,8 +20,8 @@ class Key:
     kind : str
         "float" (ints accepted), "int", "bool", "str", "table", "tables" (array of tables),
         "material" (a built-in name or a table), "ref" (a medium name or index), "floats" (an array
-        of numbers, each within the bounds; ``size`` entries when given) or "bounds" (an array of two
-        numbers, lower < upper).
+        of numbers, each within the bounds; ``size`` entries when given), "bounds" (an array of two
+        numbers, lower < upper) or "strs" (an array of strings, each one of ``choices``).
     meaning : str
         What the key means, in a few words (used in the problem messages).
     required : bool

@@ -161,7 +161,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         config_fibre.check_layout(p, raw, media, steps, seed, mode)
     if only_fibres:
         grid = config_fibre.grid(p, raw, media, seed)
-    limits = Limits(**check_table(p, raw["limits"], "limits", S.LIMITS)) \
+    limits = _limits(check_table(p, raw["limits"], "limits", S.LIMITS)) \
         if isinstance(raw.get("limits"), dict) else Limits()
     train = Train(**check_table(p, raw["train"], "train", S.TRAIN)) \
         if isinstance(raw.get("train"), dict) else Train()
@@ -262,3 +262,8 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
 # --- steps ------------------------------------------------------------------------------------
 
 
+def _limits(values: dict) -> Limits:
+    """The [limits] table as Limits (the muted codes as a tuple)."""
+    values = dict(values)
+    values["mute"] = tuple(values.get("mute") or ())
+    return Limits(**values)

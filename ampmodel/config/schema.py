@@ -16,6 +16,7 @@ from ampmodel.config.checks import PathError, Problems, did_you_mean, join_path,
 from ampmodel.config.keys import Key, choice, flag, integer, number, quantity, text
 from ampmodel.description import Limits, Solver
 from ampmodel.materials.material import BROADENINGS, MATERIAL_KEYS
+from ampmodel.notices import CODES as NOTICE_CODES
 
 # ----------------------------------------------------------------------------------------------
 # The tables
@@ -184,7 +185,7 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
         **_DAMAGE,
     },
     "space": {"length_mm": quantity("free-space length", ge=0, le=1e7, required=True)},
-    "lens": {"focal_mm": quantity("focal length", nonzero=True, ge=-1e8, le=1e8, required=True)},
+    "lens": {"focal_mm": quantity("focal length", nonzero=True, ge=-1e8, le=1e8, required=True), **_DAMAGE},
     "filter": {
         "focal_mm": quantity("focal length of the filter's two lenses", gt=0, le=1e5, required=True),
         "pinhole_diameter_mm": quantity("pinhole diameter in the focal plane", gt=0, le=1e3, required=True),
@@ -192,6 +193,7 @@ STEP_KINDS: dict[str, dict[str, Key]] = {
     },
     "relay": {
         "magnification": number("image magnification of the 4f relay", ge=0.01, le=100, default=1.0),
+        **_DAMAGE,
     },
     "repeat": {
         "steps": Key("tables", "the steps of one round trip", required=True),
@@ -218,11 +220,15 @@ _LIMIT_MEANINGS = {
     "gain_without_ase_dB": "fibres with ase = false: warn above this small-signal gain (dB)",
     "cavity_beam_change_fraction": "repeats without a cavity mode: warn when the beam's D4σ in a round trip "
                                    "kept differs from that after the first by more than this fraction",
+    "self_focusing_length_factor": "self-focusing is a warning when the collapse distance is below this many "
+                                   "times the path through the medium, else a note",
 }
 LIMITS: dict[str, Key] = {
     f.name: number(_LIMIT_MEANINGS.get(f.name, f.name.replace("_", " ")), gt=0, default=f.default)
-    for f in dataclasses.fields(Limits)
+    for f in dataclasses.fields(Limits) if f.name != "mute"
 }
+LIMITS["mute"] = Key("strs", "notice codes to leave out of the warnings and notes", choices=tuple(NOTICE_CODES),
+                     default=[])
 
 _SOLVER_DEFAULTS = Solver()
 SOLVER: dict[str, Key] = {

@@ -17,6 +17,7 @@ from ampmodel.cw.steady_state import Sweep
 from ampmodel.description import Config, step_label
 from ampmodel.diagnostics import W_CM2, seed_grid_warnings, transverse_gain_warnings
 from ampmodel.media import gain_maps
+from ampmodel.notices import warning
 from ampmodel.output.result import MediumRecord
 from ampmodel.safety import SAFETY_NOTE
 
@@ -154,8 +155,8 @@ def _step_entries(config: Config, sweep: Sweep, peak: float,
         steps.append(entry)
         label = step_label(config.steps, step.index)
         if oc.power_in_W > 0 and oc.clipped_W > limits.clipped_fraction * oc.power_in_W:
-            warnings.append(f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} % of the power "
-                            f"(more than {100 * limits.clipped_fraction:g} %)")
+            warnings.append(warning("clipping", f"{label}: the aperture clips {100 * oc.clipped_W / oc.power_in_W:.1f} "
+                                    f"% of the power (more than {100 * limits.clipped_fraction:g} %)"))
         damage, what = None, ""
         if step.kind == "pass":
             mat = config.medium(step.medium).material
@@ -163,8 +164,8 @@ def _step_entries(config: Config, sweep: Sweep, peak: float,
         elif step.damage_intensity_W_m2:
             damage, what = step.damage_intensity_W_m2, "this optic"
         if damage and oc.peak_intensity_W_m2 > limits.damage_fraction * damage:
-            warnings.append(f"{label}: peak intensity {oc.peak_intensity_W_m2 * W_CM2:.3g} W/cm² is above "
-                            f"{100 * limits.damage_fraction:g} % of the cw damage intensity of {what} "
-                            f"({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are estimates: "
-                            f"verify with your optics' data")
+            warnings.append(warning("damage-intensity", f"{label}: peak intensity {oc.peak_intensity_W_m2 * W_CM2:.3g} "
+                                    f"W/cm² is above {100 * limits.damage_fraction:g} % of the cw damage intensity of "
+                                    f"{what} ({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are "
+                                    f"estimates: verify with your optics' data"))
     return steps, lost, peak

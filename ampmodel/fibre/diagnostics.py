@@ -37,6 +37,7 @@ from ampmodel.kernels import beam_shapes, pulse_shape
 from ampmodel.kernels.diffraction import critical_power_W
 from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
 from ampmodel.kernels.pulse_shape import true_peak
+from ampmodel.notices import warning
 from ampmodel.safety import SAFETY_NOTE
 
 
@@ -121,35 +122,35 @@ def _fibre_warnings(config: Config, stage: FibreStage, fig: StageFigures, warnin
     medium = config.medium(model.name)
     v = model.v_number
     if v is not None and v > SINGLE_MODE_CUTOFF_V:
-        warnings.append(f"medium {model.name}: V = {v:.2f} at the signal: the core guides more than the fundamental "
+        warnings.append(warning("fibre-modes", f"medium {model.name}: V = {v:.2f} at the signal: the core guides more than the fundamental "
                         f"mode; the model assumes the signal in the fundamental mode alone (a Gaussian of "
-                        f"Marcuse's width, fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g})")
+                        f"Marcuse's width, fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g})"))
     elif v is not None and v < MARCUSE_VALID_V[0]:
-        warnings.append(f"medium {model.name}: V = {v:.2f} at the signal: weakly guided; Marcuse's mode-field "
-                        f"formula is fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g}")
+        warnings.append(warning("fibre-modes", f"medium {model.name}: V = {v:.2f} at the signal: weakly guided; Marcuse's mode-field "
+                        f"formula is fitted for V from {MARCUSE_VALID_V[0]:g} to {MARCUSE_VALID_V[1]:g}"))
     if not medium.fibre.ase and fig.gain_free_dB > config.limits.gain_without_ase_dB:
-        warnings.append(f"medium {model.name}: ase = false, and the small-signal gain before the signal is "
+        warnings.append(warning("ase", f"medium {model.name}: ase = false, and the small-signal gain before the signal is "
                         f"{fig.gain_free_dB:.1f} dB (above {config.limits.gain_without_ase_dB:g} dB, common "
-                        f"practice): ASE would take much of the pump; set ase = true")
+                        f"practice): ASE would take much of the pump; set ase = true"))
     ase = fig.ase_forward_W + fig.ase_backward_W
     comparable = config.mode == "cw" or config.seed.repetition_rate_Hz is not None   # mean powers on both sides
     if comparable and ase > config.limits.ase_fraction * max(fig.signal_out, 1e-300):
-        warnings.append(f"medium {model.name}: ASE leaving the fibre ({ase:.3g} W, both ends) is "
+        warnings.append(warning("ase", f"medium {model.name}: ASE leaving the fibre ({ase:.3g} W, both ends) is "
                         f"{100 * ase / max(fig.signal_out, 1e-300):.0f} % of the signal's output (above "
-                        f"{100 * config.limits.ase_fraction:g} %)")
+                        f"{100 * config.limits.ase_fraction:g} %)"))
     mat = medium.material
     peak = fig.peak_power_W
     if mat.n2_m2_W > 0:
         pcr = critical_power_W(model.wavelength_m[model.signal], mat.refractive_index, mat.n2_m2_W)
         if peak > pcr:
-            warnings.append(f"medium {model.name}: peak power {peak:.3g} W above the self-focusing critical power "
-                            f"{pcr:.3g} W (Marburger): the fibre's core would collapse the beam")
+            warnings.append(warning("self-focusing", f"medium {model.name}: peak power {peak:.3g} W above the self-focusing critical power "
+                            f"{pcr:.3g} W (Marburger): the fibre's core would collapse the beam"))
     if mat.raman_gain_m_W:
         pth = raman_threshold_W(effective_area(model.mode_radius_m), mat.raman_gain_m_W, fig.effective_length_m)
         if peak > pth:
-            warnings.append(f"medium {model.name}: peak power {peak:.3g} W above the stimulated-Raman threshold "
+            warnings.append(warning("raman", f"medium {model.name}: peak power {peak:.3g} W above the stimulated-Raman threshold "
                             f"{pth:.3g} W (16·A_eff/(g_R·L_eff), L_eff = {fig.effective_length_m:.3g} m; the README's "
-                            f"fibre section gives the source): power would move to the Stokes wavelength")
+                            f"fibre section gives the source): power would move to the Stokes wavelength"))
 
 
 def _stored_J(model: F.FibreModel, n2: np.ndarray) -> float:
@@ -298,10 +299,10 @@ def _cw_fibre_entry(config: Config, st: FibreStage, fig: StageFigures, walk: _Wa
     limits = config.limits
     peak_i = fig.peak_power_W * fig.peak_axis_per_m2
     if damage and peak_i > limits.damage_fraction * damage:
-        warnings.append(f"{step_label(config.steps, st.step.index)}: peak intensity on the fibre's axis "
+        warnings.append(warning("damage-intensity", f"{step_label(config.steps, st.step.index)}: peak intensity on the fibre's axis "
                         f"{peak_i * W_CM2:.3g} W/cm² is above {100 * limits.damage_fraction:g} % of the cw "
                         f"damage intensity of {config.medium(model.name).material.name} "
-                        f"({damage * W_CM2:.3g} W/cm², common practice)")
+                        f"({damage * W_CM2:.3g} W/cm², common practice)"))
     entry = {"index": st.step.index, "kind": "pass", "medium": model.name, "power_in_W": walk.value,
              "power_out_W": out["signal_out_W"], "gain": out["gain"], "gain_dB": out["gain_dB"],
              "peak_intensity_W_cm2": peak_i * W_CM2, "b_integral_rad": b, "passive_loss_W": passive}
@@ -362,8 +363,8 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
     duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s))
     b_total = true_peak(sum(st.train.pulse.b_integral_rad for st in fibres), _peak_factor(config))
     if b_total > limits.b_integral_total_rad:
-        warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "
-                        f"rad in total (common practice)")
+        warnings.append(warning("b-integral-total", f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "
+                        f"rad in total (common practice)"))
     stored = sum(m["stored_energy_J"] for m in media)
     return {
         "input_energy_J": e_in, "output_energy_J": value, "gain": value / e_in,
@@ -387,18 +388,18 @@ def _optic_damage(config: Config, step, axis_value: float, axis_peak_W_m2: float
     if config.mode == "cw":
         damage = step.damage_intensity_W_m2
         if damage and axis_value > limits.damage_fraction * damage:
-            warnings.append(f"{step_label(config.steps, step.index)}: peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
+            warnings.append(warning("damage-intensity", f"{step_label(config.steps, step.index)}: peak intensity {axis_value * W_CM2:.3g} W/cm² is above "
                             f"{100 * limits.damage_fraction:g} % of the cw damage intensity of this optic "
-                            f"({damage * W_CM2:.3g} W/cm², common practice)")
+                            f"({damage * W_CM2:.3g} W/cm², common practice)"))
         return
     if step.damage_fluence_J_m2:
         scaled = scaled_damage_fluence(step.damage_fluence_J_m2, step.damage_pulse_s, config.seed.duration_s,
                                        limits.damage_scaling_exponent)
         if axis_value > limits.damage_fraction * scaled:
-            warnings.append(f"{step_label(config.steps, step.index)}: peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
+            warnings.append(warning("damage-fluence", f"{step_label(config.steps, step.index)}: peak fluence {axis_value * J_CM2:.3g} J/cm² on the axis "
                             f"is above {100 * limits.damage_fraction:g} % of the damage fluence of this optic "
                             f"(estimated {scaled * J_CM2:.3g} J/cm² at {config.seed.duration_s * 1e9:g} ns, "
-                            f"common practice)")
+                            f"common practice)"))
 
 
 def _pulse_warnings(config: Config, step, model: F.FibreModel, peak_fluence_J_m2: float, b_rad: float,
@@ -409,11 +410,11 @@ def _pulse_warnings(config: Config, step, model: F.FibreModel, peak_fluence_J_m2
         scaled = scaled_damage_fluence(mat.damage_fluence_J_m2, mat.damage_pulse_s, seed.duration_s,
                                        limits.damage_scaling_exponent)
         if peak_fluence_J_m2 > limits.damage_fraction * scaled:
-            warnings.append(f"{step_label(config.steps, step.index)}: peak fluence on the fibre's axis "
+            warnings.append(warning("damage-fluence", f"{step_label(config.steps, step.index)}: peak fluence on the fibre's axis "
                             f"{peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above {100 * limits.damage_fraction:g} % of "
                             f"the damage fluence of {mat.name} (estimated {scaled * J_CM2:.3g} J/cm² at "
-                            f"{seed.duration_s * 1e9:g} ns, common practice); the output facet is most at risk")
+                            f"{seed.duration_s * 1e9:g} ns, common practice); the output facet is most at risk"))
     if b_rad > limits.b_integral_step_rad:
-        warnings.append(f"{step_label(config.steps, step.index)}: B-integral {b_rad:.2f} rad, above "
+        warnings.append(warning("b-integral-step", f"{step_label(config.steps, step.index)}: B-integral {b_rad:.2f} rad, above "
                         f"{limits.b_integral_step_rad:g} rad (common practice): self-phase modulation broadens the "
-                        f"spectrum; a larger mode area or a longer (stretched) pulse lowers it")
+                        f"spectrum; a larger mode area or a longer (stretched) pulse lowers it"))

@@ -99,12 +99,13 @@ def table_lines(summary: dict) -> list[str]:
         return cw_table_lines(summary)
     out: list[str] = []
     out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {'energy in':>11} {'energy out':>11} {'gain':>8} "
-               f"{'peak J/cm²':>10} {'B rad':>6}")
+               f"{'peak J/cm²':>10} {'B rad':>6} {'damage':>6}")
     for s in summary["steps"]:
         kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        margin = s.get("damage_margin")
         out.append(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {quantity_text(s['energy_in_J'], 'J'):>11} "
                    f"{quantity_text(s['energy_out_J'], 'J'):>11} {s['gain']:>8.4g} {s['peak_fluence_J_cm2']:>10.3g} "
-                   f"{s['b_integral_rad']:>6.2f}")
+                   f"{s['b_integral_rad']:>6.2f} {'-' if margin is None else f'{margin:.2f}':>6}")
     out.append(f"input {quantity_text(summary['input_energy_J'], 'J')} -> output {quantity_text(summary['output_energy_J'], 'J')} "
                f"(gain {summary['gain']:.4g}); stored {quantity_text(summary['stored_energy_J'], 'J')} -> "
                f"{quantity_text(summary['stored_energy_final_J'], 'J')}, extraction {100 * summary['extraction_efficiency']:.1f} %")
@@ -131,6 +132,31 @@ def table_lines(summary: dict) -> list[str]:
     out.append(f"peak fluence {summary['peak_fluence_J_cm2']:.3g} J/cm², peak intensity "
                f"{summary['peak_intensity_W_cm2']:.3g} W/cm², B-integral {summary['b_integral_rad']:.3f} rad, "
                f"energy balance error {summary['energy_balance_error']:.1e}")
+    if summary.get("output_duration_ns") is not None:
+        out.append(f"output pulse: FWHM {summary['output_duration_ns']:.4g} ns, peak power "
+                   f"{quantity_text(summary['output_peak_power_W'], 'W')}")
+    out.append(damage_line(summary))
+    return out
+
+
+def damage_line(summary: dict) -> str:
+    """The worst damage margin (peak fluence over the scaled damage fluence) and where, and the
+    B-integral against its budget."""
+    worst = summary.get("worst_damage_margin")
+    line = ("damage margin: no damage fluence known for the surfaces the beam meets" if worst is None else
+            f"damage margin: worst {worst:.2g} of the damage fluence, at {summary['worst_damage_step']}")
+    if summary.get("b_integral_margin") is not None:
+        line += f"; B-integral {summary['b_integral_margin']:.2g} of its budget"
+    return line + " (the step table's damage column: each step's)"
+
+
+def notes_lines(summary: dict) -> list[str]:
+    """The run's warnings, then its notes, one line each."""
+    out: list[str] = []
+    for key in ("warnings", "notes"):
+        if summary.get(key):
+            out.append(f"{key}:")
+            out += [f"  - {text}" for text in summary[key]]
     return out
 
 
@@ -141,9 +167,6 @@ def run_report_lines(s: dict) -> list[str]:
         out += fibre_lines(s)
     else:
         out += media_lines(s) + table_lines(s)
-    if s["warnings"]:
-        out.append("warnings:")
-        for w in s["warnings"]:
-            out.append(f"  - {w}")
+    out += notes_lines(s)
     out.append(SAFETY_NOTE)
     return out

@@ -43,6 +43,7 @@ import numpy as np
 from ampmodel.description import Limits
 from ampmodel.kernels import beam_shapes
 from ampmodel.kernels.beam_figures import d4sigma
+from ampmodel.notices import warning
 
 
 def mode_shape(x_m: np.ndarray, y_m: np.ndarray, diameter_m: float) -> np.ndarray:
@@ -70,14 +71,14 @@ def mode_grid_warnings(shape: np.ndarray, diameter_m: float, dx_m: float, width_
     warnings = []
     pixels = diameter_m / dx_m
     if pixels < limits.pixels_across_beam:
-        warnings.append(f"only {pixels:.1f} pixels across the cavity mode (mode_diameter_mm = "
-                        f"{diameter_m * 1e3:g}; fewer than {limits.pixels_across_beam:g}); raise grid.points or "
-                        f"narrow grid.width_mm")
+        warnings.append(warning("cavity-mode", f"only {pixels:.1f} pixels across the cavity mode (mode_diameter_mm "
+                                f"= {diameter_m * 1e3:g}; fewer than {limits.pixels_across_beam:g}); raise "
+                                f"grid.points or narrow grid.width_mm"))
     edge = max(shape[0, :].max(), shape[-1, :].max(), shape[:, 0].max(), shape[:, -1].max())
     if edge > 1e-3 * shape.max():
-        warnings.append(f"the cavity mode (mode_diameter_mm = {diameter_m * 1e3:g}) reaches the edge of the "
-                        f"{width_m * 1e3:g} mm window ({edge / shape.max():.1e} of its peak there) and is cut by "
-                        f"it; widen grid.width_mm")
+        warnings.append(warning("cavity-mode", f"the cavity mode (mode_diameter_mm = {diameter_m * 1e3:g}) "
+                                f"reaches the edge of the {width_m * 1e3:g} mm window ({edge / shape.max():.1e} of "
+                                f"its peak there) and is cut by it; widen grid.width_mm"))
     return warnings
 
 
@@ -126,18 +127,16 @@ def no_mode_warning(figures: list[RoundTripBeam], dump: int, limits: Limits) -> 
     worst = max(range(len(kept)), key=lambda k: abs(changes[k]))
     if abs(changes[worst]) <= limits.cavity_beam_change_fraction or not last.energy_J > 0.0:
         return None
-    through = (f", through {kept[worst].d4sigma_m * 1e3:.3g} mm after round trip {worst + 1}"
+    through = (f", through {kept[worst].d4sigma_m * 1e3:.3g} mm (round trip {worst + 1})"
                if 0 < worst < len(kept) - 1 else "")
     peak_growth = last.peak_fluence_J_m2 / first.peak_fluence_J_m2
     relative = peak_growth / (last.energy_J / first.energy_J)
-    return (f"no cavity mode: without grid.diffraction each pixel is amplified on its own, round trip after round "
-            f"trip, and the beam's D4σ diameter goes from {first.d4sigma_m * 1e3:.3g} mm after round trip 1 to "
-            f"{last.d4sigma_m * 1e3:.3g} mm after round trip {dump} (the dump){through}: a change of up to "
-            f"{100 * changes[worst]:+.0f} % (limits.cavity_beam_change_fraction = "
-            f"{limits.cavity_beam_change_fraction:g}); the peak fluence grows {peak_growth:.3g} times over them, "
-            f"{relative:.2f} times as much as the energy, so the peak fluence, the extraction and the B-integral "
-            f"follow the gain's profile, not the cavity's; give the repeat mode_diameter_mm (the cavity's TEM00 "
-            f"mode), or set grid.diffraction = true with the cavity's lenses in the round trip")
+    return warning("cavity-mode", (
+        f"no cavity mode: the beam's D4σ goes from {first.d4sigma_m * 1e3:.3g} mm (round trip 1) to "
+        f"{last.d4sigma_m * 1e3:.3g} mm (round trip {dump}, the dump){through}, up to {100 * changes[worst]:+.0f} %, "
+        f"and its peak fluence grows {peak_growth:.3g}×, {relative:.2f}× as much as its energy: the figures follow "
+        f"the gain's profile, not the cavity's; give the repeat mode_diameter_mm, or set grid.diffraction = true "
+        f"with the cavity's lenses"))
 
 
 def fluence_map(beam) -> np.ndarray:

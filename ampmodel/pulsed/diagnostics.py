@@ -25,6 +25,7 @@ from ampmodel.diagnostics import (
 from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
 from ampmodel.kernels.pulse_shape import true_peak_map
 from ampmodel.media import gain_maps
+from ampmodel.notices import Notice, note, warning
 from ampmodel.output.result import MediumRecord
 from ampmodel.safety import SAFETY_NOTE
 
@@ -41,10 +42,15 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
              "energy_in_J": oc.energy_in_J, "energy_out_J": oc.energy_out_J,
              "gain": oc.energy_out_J / oc.energy_in_J if oc.energy_in_J > 0 else 0.0,
              "peak_fluence_J_cm2": oc.peak_fluence_J_m2 * J_CM2,
+             "peak_fluence_in_J_cm2": oc.peak_fluence_in_J_m2 * J_CM2,
              "peak_intensity_W_cm2": oc.peak_intensity_W_m2 * W_CM2,
              "b_integral_rad": oc.b_integral_step_rad,
+             "b_integral_margin": oc.b_integral_step_rad / config.limits.b_integral_step_rad,
              "clipped_energy_J": oc.clipped_J, "passive_loss_J": oc.passive_loss_J,
              "extracted_energy_J": oc.extracted_J, "delay_ns": step.delay_s * 1e9}
+    check = damage_check(config, step, oc)
+    entry["damage_fluence_J_cm2"] = check["scaled"] * J_CM2 if check else None
+    entry["damage_margin"] = check["margin"] if check else None
     if config.grid.diffraction:
         entry["edge_absorbed_energy_J"] = oc.edge_absorbed_J
     if oc.beam is not None:
@@ -79,40 +85,69 @@ def _step_entry(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any]:
     return entry
 
 
-def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> list[str]:
-    """Clipping, window-edge, B-integral and damage warnings of one step (a repeat's own steps are
-    checked one by one, not the repeat as a whole)."""
-    limits = config.limits
-    pulse_s = config.seed.duration_s
-    warnings = [f"{label}: {text}" for text in oc.warnings]
-    edge_lost = oc.edge_absorbed_J
-    if step.kind != "repeat" and oc.energy_in_J > 0:
-        if oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
-            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
-            warnings.append(f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the energy "
-                            f"(more than {100 * limits.clipped_fraction:g} %)")
-        if edge_lost > limits.clipped_fraction * oc.energy_in_J:
-            warnings.append(f"{label}: the absorbing window edge takes {100 * edge_lost / oc.energy_in_J:.1f} % of "
-                            f"the energy (more than {100 * limits.clipped_fraction:g} %); widen grid.width_mm")
-    if step.kind != "repeat" and oc.b_integral_step_rad > limits.b_integral_step_rad:
-        warnings.append(f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this step, above "
-                        f"{limits.b_integral_step_rad:g} rad (common practice): self-focusing and "
-                        f"beam break-up risk")
+def damage_check(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any] | None:
+    """A step's surfaces against their damage fluence: a pass's medium faces and bulk (the material's
+    damage fluence), an optic with its own damage fluence (loss, aperture, filter, lens, relay); None
+    for a step without damage data. The fluence checked is the largest the step's surfaces meet: the
+    beam reaching the step, inside a medium and leaving it. The damage fluence is scaled to the pulse
+    length by (τ/τ_ref)^exponent (common practice). ``damage_margin`` = fluence / scaled damage fluence
+    (1: at the estimated damage fluence)."""
     damage, quoted, what = None, None, ""
     if step.kind == "pass":
         mat = config.medium(step.medium).material
         damage, quoted, what = mat.damage_fluence_J_m2, mat.damage_pulse_s, mat.name
-    elif step.damage_fluence_J_m2:
+    elif step.kind != "repeat" and step.damage_fluence_J_m2:
         damage, quoted, what = step.damage_fluence_J_m2, step.damage_pulse_s, "this optic"
-    if damage:
-        scaled = scaled_damage_fluence(damage, quoted, pulse_s, limits.damage_scaling_exponent)
-        if oc.peak_fluence_J_m2 > limits.damage_fraction * scaled:
-            quoted_txt = f" quoted at {quoted * 1e9:g} ns" if quoted else ""
-            warnings.append(
-                f"{label}: peak fluence {oc.peak_fluence_J_m2 * J_CM2:.3g} J/cm² is above "
-                f"{100 * limits.damage_fraction:g} % of the damage fluence of {what} "
-                f"({damage * J_CM2:g} J/cm²{quoted_txt}, estimated {scaled * J_CM2:.3g} J/cm² at "
-                f"{pulse_s * 1e9:g} ns); damage thresholds are estimates: verify with your optics' data")
+    if not damage:
+        return None
+    pulse_s = oc.duration_s or config.seed.duration_s     # the pulse the step gives (FWHM)
+    scaled = scaled_damage_fluence(damage, quoted, pulse_s, config.limits.damage_scaling_exponent)
+    fluence = max(oc.peak_fluence_J_m2, oc.peak_fluence_in_J_m2)
+    return {"fluence": fluence, "damage": damage, "quoted": quoted, "scaled": scaled, "what": what,
+            "pulse": pulse_s, "margin": fluence / scaled}
+
+
+def worst_damage(config: Config, steps: list[dict[str, Any]]) -> dict[str, Any]:
+    """``worst_damage_margin`` (the largest ``damage_margin`` of any step, a repeat's inner steps
+    included; None where no surface has a damage fluence) and ``worst_damage_step`` (its label)."""
+    worst, where = None, None
+    for entry in steps:
+        inner = [(entry, None)] + [(e, entry["index"]) for e in entry.get("steps", [])]
+        for e, outer in inner:
+            margin = e.get("damage_margin")
+            if margin is not None and (worst is None or margin > worst):
+                index = (outer, e["index"]) if outer is not None else (e["index"],)
+                worst, where = margin, step_label(config.steps, *index)
+    return {"worst_damage_margin": worst, "worst_damage_step": where}
+
+
+def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> list[str]:
+    """Clipping, window-edge, B-integral and damage warnings of one step (a repeat's own steps are
+    checked one by one, not the repeat as a whole)."""
+    limits = config.limits
+    warnings = [n.prefixed(label) if isinstance(n, Notice) else f"{label}: {n}" for n in oc.warnings]
+    edge_lost = oc.edge_absorbed_J
+    if step.kind != "repeat" and oc.energy_in_J > 0:
+        if oc.clipped_J > limits.clipped_fraction * oc.energy_in_J:
+            what = _CLIP_WORDS.get(step.kind, "the aperture clips")
+            warnings.append(warning("clipping", f"{label}: {what} {100 * oc.clipped_J / oc.energy_in_J:.1f} % of the "
+                                    f"energy (more than {100 * limits.clipped_fraction:g} %)"))
+        if edge_lost > limits.clipped_fraction * oc.energy_in_J:
+            warnings.append(warning("window-edge", f"{label}: the absorbing window edge takes "
+                                    f"{100 * edge_lost / oc.energy_in_J:.1f} % of the energy (more than "
+                                    f"{100 * limits.clipped_fraction:g} %); widen grid.width_mm"))
+    if step.kind != "repeat" and oc.b_integral_step_rad > limits.b_integral_step_rad:
+        warnings.append(warning("b-integral-step", f"{label}: B-integral {oc.b_integral_step_rad:.2f} rad in this "
+                                f"step, above {limits.b_integral_step_rad:g} rad (common practice): self-focusing "
+                                f"and beam break-up risk"))
+    check = damage_check(config, step, oc)
+    if check is not None and check["margin"] > limits.damage_fraction:
+        quoted_txt = f" quoted at {check['quoted'] * 1e9:g} ns" if check["quoted"] else ""
+        warnings.append(warning("damage-fluence", (
+            f"{label}: peak fluence {check['fluence'] * J_CM2:.3g} J/cm² is {100 * check['margin']:.0f} % of the "
+            f"damage fluence of {check['what']} ({check['damage'] * J_CM2:g} J/cm²{quoted_txt}, estimated "
+            f"{check['scaled'] * J_CM2:.3g} J/cm² at {check['pulse'] * 1e9:.3g} ns), above "
+            f"{100 * limits.damage_fraction:g} %; damage thresholds are estimates: verify with your optics' data")))
     return warnings
 
 
@@ -136,14 +171,15 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     warnings.extend(_self_focusing_warnings(config, outcomes))
     b_total = float(true_peak_map(beam.b_integral, beam.peak_factor).max()) if beam.b_integral.size else 0.0
     if b_total > limits.b_integral_total_rad:
-        warnings.append(f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} rad "
-                        f"in total (common practice)")
+        warnings.append(warning("b-integral-total", f"layout: accumulated B-integral {b_total:.2f} rad, above "
+                                f"{limits.b_integral_total_rad:g} rad in total (common practice)"))
     dx = float(beam.x_m[1] - beam.x_m[0])
     warnings.extend(seed_grid_warnings(seed.diameter_m, dx, seed_map, config.grid.width_m, limits))
     warnings.extend(extra_warnings or ())
     if seed.shape != "flat" and config.grid.time_slices < 16:
-        warnings.append(f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} pulse shape "
-                        f"coarsely; 16 or more are advised for the output pulse shape")
+        warnings.append(note("time-slices", f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} "
+                             f"pulse's reshaping by saturation coarsely; 16 or more are advised for the output "
+                             f"pulse shape"))
 
     # The balance uses the energy each pass took from its gain, summed from the beam (exact FN
     # bookkeeping, precise relative to the beam energy); the media's gain-map differences give the
@@ -164,6 +200,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
         "peak_fluence_J_cm2": peak_fluence * J_CM2,
         "peak_intensity_W_cm2": peak_intensity * W_CM2,
         "b_integral_rad": b_total,
+        "b_integral_margin": b_total / limits.b_integral_total_rad,
+        **worst_damage(config, steps),
         "energy_balance_error": balance,
         "pulse_duration_ns": seed.duration_s * 1e9,
         "time_slice_ns": beam.dt_s * 1e9,
@@ -242,7 +280,7 @@ def _step_entries(config: Config, outcomes: list[StepOutcome], peak_fluence: flo
     steps = []
     lost = peak_intensity = 0.0        # every step records the peaks of the beam entering it
     for step, oc in zip(config.steps, outcomes, strict=True):
-        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2)
+        peak_fluence = max(peak_fluence, oc.peak_fluence_J_m2, oc.peak_fluence_in_J_m2)
         peak_intensity = max(peak_intensity, oc.peak_intensity_W_m2)
         lost += oc.clipped_J + oc.passive_loss_J + oc.edge_absorbed_J
         steps.append(_step_entry(config, step, oc))
@@ -252,49 +290,64 @@ def _step_entries(config: Config, outcomes: list[StepOutcome], peak_fluence: flo
             for inner, ioc in zip(step.steps, oc.repeat.inner, strict=True):
                 warnings.extend(_step_warnings(config, inner, ioc, step_label(config.steps, step.index, inner.index)))
             if step.until is not None and not oc.repeat.peak_found and oc.energy_out_J > 0:
-                warnings.append(f"{label}: the energy still rose after max_count = {step.max_count} round "
-                                f"trips; the pulse was dumped after the last; raise max_count or check the "
-                                f"cavity's gain and loss")
+                warnings.append(warning("repeat", f"{label}: the energy still rose after max_count = "
+                                        f"{step.max_count} round trips; the pulse was dumped after the last; raise "
+                                        f"max_count or check the cavity's gain and loss"))
     return steps, lost, peak_fluence, peak_intensity
 
 
 def _self_focusing_warnings(config: Config, outcomes: list[StepOutcome]) -> list[str]:
-    """Per medium with n2, a warning when the peak power passing it exceeds the critical power for
-    self-focusing: the worst step, how many passes are above it, and Marburger's collapse distance."""
-    worst_of: dict[str, tuple] = {}   # medium -> (largest P/P_cr, its step, outcome, passes above)
+    """Per medium with n2 whose peak power exceeds the critical power for self-focusing, one line: a
+    warning when Marburger's collapse distance for a smooth beam of its size is within
+    ``limits.self_focusing_length_factor`` times the path through the medium above the critical power
+    (every pass and round trip above it), else a note (collapse far off: the small-scale self-focusing
+    of ripples is what the B-integral measures)."""
+    worst_of: dict[str, list] = {}   # medium -> [largest P/P_cr, its step, outcome, path above it (m)]
     for step, oc in zip(config.steps, outcomes, strict=True):
         if oc.peak_power_W is None:
             continue
-        # the media a step passes: a pass's own, a repeat's (at the repeat's peak power, after the dump)
-        passed = [step.medium] if step.kind == "pass" else \
-            list(dict.fromkeys(s.medium for s in step.steps if s.kind == "pass"))
-        for name in passed:
-            mat = config.medium(name).material
-            if mat.n2_m2_W > 0:
-                ratio = oc.peak_power_W / critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
-                worst = worst_of.get(name)
-                if ratio > 1.0 and (worst is None or ratio > worst[0]):
-                    worst_of[name] = (ratio, step.index, oc, (worst[3] if worst else 0) + 1)
-                elif ratio > 1.0:
-                    worst_of[name] = worst[:3] + (worst[3] + 1,)
-    warnings = []
-    for name, (ratio, index, oc, count) in worst_of.items():
-        mat = config.medium(name).material
-        p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
-        radius = 0.25e-3 * (oc.beam.d4sigma_x_mm + oc.beam.d4sigma_y_mm) if oc.beam is not None else 0.0
-        z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio)
-        length = config.medium(name).length_m
-        collapse = (f"; for a smooth beam of this size Marburger's collapse distance is about {z_sf:.3g} m, against "
-                    f"the {length * 1e3:g} mm medium (an estimate)"
-                    if np.isfinite(z_sf) and radius > 0 else "")
-        if collapse and z_sf > 10.0 * length:
-            collapse += (": whole-beam collapse is far off, and the small-scale self-focusing of beam ripples "
-                         "is what the B-integral measures")
-        passes = f" ({count} passes above it)" if count > 1 else ""
-        warnings.append(
-            f"medium {name}: peak power up to {oc.peak_power_W:.3g} W in {step_label(config.steps, index)}, "
-            f"{ratio:.2g} times the critical power for self-focusing in {mat.name}{passes} (P_cr = "
-            f"3.77·λ²/(8π·n0·n2) = {p_cr:.3g} W; the README's diffraction section gives the source){collapse}; "
-            + ("the field path includes the Kerr phase" if config.grid.diffraction else
-               "set grid.diffraction = true to include the Kerr phase in the beam"))
-    return warnings
+        for name, count in _passes(step, oc).items():
+            medium = config.medium(name)
+            mat = medium.material
+            if mat.n2_m2_W <= 0:
+                continue
+            ratio = oc.peak_power_W / critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+            if ratio <= 1.0:
+                continue
+            worst = worst_of.setdefault(name, [0.0, step.index, oc, 0.0])
+            worst[3] += count * medium.length_m
+            if ratio > worst[0]:
+                worst[:3] = [ratio, step.index, oc]
+    return [_self_focusing_line(config, name, *worst) for name, worst in worst_of.items()]
+
+
+def _passes(step: Step, oc: StepOutcome) -> dict[str, int]:
+    """The media a step passes and how often: a pass's own once; a repeat's, every round trip kept."""
+    if step.kind == "pass":
+        return {step.medium: 1}
+    trips = oc.repeat.dump_round_trip if oc.repeat is not None else 1
+    out: dict[str, int] = {}
+    for inner in step.steps:
+        if inner.kind == "pass":
+            out[inner.medium] = out.get(inner.medium, 0) + trips
+    return out
+
+
+def _self_focusing_line(config: Config, name: str, ratio: float, index: int, oc: StepOutcome, path: float) -> Notice:
+    """The one line of :func:`_self_focusing_warnings` for a medium."""
+    mat = config.medium(name).material
+    p_cr = critical_power_W(mat.wavelength_m, mat.refractive_index, mat.n2_m2_W)
+    radius = 0.25e-3 * (oc.beam.d4sigma_x_mm + oc.beam.d4sigma_y_mm) if oc.beam is not None else 0.0
+    z_sf = self_focusing_length_m(mat.wavelength_m, mat.refractive_index, radius, ratio) if radius > 0 else np.inf
+    head = (f"medium {name}: peak power {oc.peak_power_W:.3g} W in {step_label(config.steps, index)} is "
+            f"{ratio:.2g} × the critical power for self-focusing ({p_cr:.3g} W)")
+    factor = config.limits.self_focusing_length_factor
+    if np.isfinite(z_sf) and z_sf < factor * path:
+        return warning("self-focusing", (
+            f"{head}; Marburger's collapse distance, about {z_sf:.3g} m, is within {factor:g} × the "
+            f"{path:.3g} m of medium travelled above it: the beam may collapse; " +
+            ("the field path includes the Kerr phase" if config.grid.diffraction else
+             "set grid.diffraction = true to model the Kerr phase")))
+    far = f"collapse distance about {z_sf:.3g} m" if np.isfinite(z_sf) else "no collapse distance"
+    return note("self-focusing", f"{head}; {far} against {path:.3g} m of medium travelled above it: the B-integral "
+                                 f"measures the small-scale self-focusing")

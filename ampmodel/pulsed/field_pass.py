@@ -54,6 +54,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     rows = fs.chunk_rows(nt, beam.field.shape[1] * beam.field.shape[2])
     starts = list(range(0, nt, rows))
     e_in, clipped, peak_f, peak_i, slice_energy = _clip_entering(beam, medium.mask, rows, starts)
+    peak_in = peak_f
     n_sub = field_path.substeps(beam, medium.slice_length_m, index,
                                 field_path.spectral_reach(beam, energies=slice_energy))
     sums, plane, final, b_step, peak_slice = _through_the_slices(beam, medium, index, reverse, n_sub, rows,
@@ -77,7 +78,7 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
                        passive_loss_J=passive * area, extracted_J=gained * area, peak_fluence_J_m2=peak_f,
                        peak_intensity_W_m2=true_peak(peak_slice, factor) / beam.dt_s,
                        b_integral_step_rad=true_peak(b_step, factor), edge_absorbed_J=edge_lost * area,
-                       substeps=n_sub)
+                       substeps=n_sub, peak_fluence_in_J_m2=peak_in)
 
 
 def _clip_entering(beam: FieldBeam, mask: np.ndarray, rows: int, starts: list[int],

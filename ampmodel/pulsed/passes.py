@@ -89,6 +89,7 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
             row[outside] = 0.0
         total[outside] = 0.0
     peak_f = float(total.max()) if total.size else 0.0
+    peak_in = peak_f                                           # at the entrance face, after the clipping
     active = np.flatnonzero(total > 0.0)
     del total
 
@@ -121,7 +122,7 @@ def pass_medium(beam: BeamState, medium: MediumState, reverse: bool = False,
     peak_i = true_peak(peak_slice, factor) / beam.dt_s           # at the pulse's true peak in each slice
     return StepOutcome(e_in, e_out * area, clipped_J=clipped, passive_loss_J=passive * area,
                        extracted_J=gained * area, peak_fluence_J_m2=peak_f, peak_intensity_W_m2=peak_i,
-                       b_integral_step_rad=b_step)
+                       b_integral_step_rad=b_step, peak_fluence_in_J_m2=peak_in)
 
 
 def _amplify(x: np.ndarray, order: np.ndarray, spectral: SliceCrossSections | None, half_loss: float,

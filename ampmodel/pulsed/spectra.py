@@ -16,6 +16,7 @@ from ampmodel.diagnostics import (
     transform_limit_bandwidth_m,
     transform_limit_duration_s,
 )
+from ampmodel.notices import warning
 from ampmodel.output.result import StepRecord
 from ampmodel.pulsed.passes import MediumState
 
@@ -68,8 +69,8 @@ def _outside_warnings(config: Config, summary: dict[str, Any], wavelengths_m: np
         share = float(seed_power_W[st.spectral.outside].sum()) / total
         if share > OUTSIDE_WARNING:
             spectrum = config.medium(name).material.spectrum
-            summary["warnings"].append(
+            summary["warnings"].append(warning("spectrum-table",
                 f"medium {name}: {100 * share:.1f} % of the seed's energy lies at wavelengths outside the "
                 f"cross-section table of {config.medium(name).material.name} ({spectrum.range_nm}), where "
                 f"it is neither amplified nor absorbed; the seed spans {wavelengths_m.min() * 1e9:.4g} to "
-                f"{wavelengths_m.max() * 1e9:.4g} nm")
+                f"{wavelengths_m.max() * 1e9:.4g} nm"))

@@ -60,6 +60,8 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_m_squared.toml": (["seed.m_squared = 0.5: out of range: must be a number from 1 to 50"], 1),
     "bad_aperture_order.toml": (["step[1].order = 1.0: out of range: must be a number from 2 to 1000",
                                  "soft edge"], 1),
+    "bad_limits_mute.toml": (['limits.mute = ["time-slices", "self-focussing"]: \'self-focussing\' is not one of the codes',
+                              "did you mean 'self-focusing'?"], 1),
     "bad_relay_magnification.toml": (["step[1].magnification = 0.0: out of range: must be a number from 0.01"], 1),
     "bad_filter_pinhole.toml": (["step[1].pinhole_diameter_mm: missing: pinhole diameter"], 1),
     "bad_fft_workers.toml": (["grid.fft_workers = 0: out of range: must be an integer non-zero from -1"], 1),

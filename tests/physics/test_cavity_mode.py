@@ -202,11 +202,11 @@ def test_a_gaussian_beam_without_a_mode_narrows_and_the_run_says_so():
     assert len(warnings) == 1 and "\n" not in warnings[0]
     text = warnings[0]
     assert text.startswith("step 0 (repeat): no cavity mode")
-    assert (f"from {d4[0]:.3g} mm after round trip 1 to {d4[-1]:.3g} mm after round trip {dump} (the dump), "
-            f"through {d4[narrowest]:.3g} mm after round trip {narrowest + 1}") in text
+    assert (f"from {d4[0]:.3g} mm (round trip 1) to {d4[-1]:.3g} mm (round trip {dump}, the dump), "
+            f"through {d4[narrowest]:.3g} mm (round trip {narrowest + 1})") in text
     assert f"{100 * (d4[narrowest] / d4[0] - 1):+.0f} %" in text
     peaks = result.steps[0].datasets["round_trip_peak_fluence"][0]
-    assert f"the peak fluence grows {peaks[dump - 1] / peaks[0]:.3g} times" in text
+    assert f"its peak fluence grows {peaks[dump - 1] / peaks[0]:.3g}×" in text
     assert "mode_diameter_mm" in text and "grid.diffraction = true" in text
     # the threshold is the [limits] table's
     raw = gaussian_pumped({"until": "peak", "max_count": 60}, limits={"cavity_beam_change_fraction": 0.9})

@@ -196,7 +196,7 @@ def test_self_focusing_warning_against_the_critical_power():
     config = make_config(medium, seed, [pass_step(0)], points=32, width_m=16e-3, time_slices=8)
     summary = simulate(config).summary
     p_cr = 3.77 * 1064e-9 ** 2 / (8 * math.pi * 1.82 * 5e-19)
-    text = " ".join(summary["warnings"])
+    text = " ".join(summary["warnings"] + summary["notes"])
     assert "critical power for self-focusing" in text and f"{p_cr:.3g} W" in text
     assert summary["media"][0]["critical_power_W"] == pytest.approx(p_cr, rel=1e-12)
 

@@ -30,7 +30,8 @@ import pytest
 PACKAGE = Path(__file__).resolve().parents[2] / "ampmodel"
 
 LAYERS = {
-    "base": ("ampmodel._version", "ampmodel.units", "ampmodel.progress", "ampmodel.safety", "ampmodel.kernels"),
+    "base": ("ampmodel._version", "ampmodel.units", "ampmodel.progress", "ampmodel.safety", "ampmodel.notices",
+             "ampmodel.kernels"),
     "data": ("ampmodel.materials", "ampmodel.description"),
     "input": ("ampmodel.config",),
     "files": ("ampmodel.output", "ampmodel.plots"),
