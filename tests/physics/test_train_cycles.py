@@ -56,10 +56,12 @@ def cavity(count: int) -> list:
         {"kind": "loss", "transmission": T_OUT}]
 
 
-def run(case: str, max_pulses: int = 200):
+def run(case: str, max_pulses: int = 200, output_damage_J_cm2: float | None = None):
     tau, power, count, rate = CASES[case]
     raw = flat_config(cavity(count), tau_s=tau, gain=side_pump(power), seed_J=SEED_J, rate_Hz=rate,
                       train={"tolerance": TOLERANCE, "max_pulses": max_pulses})
+    if output_damage_J_cm2 is not None:           # the output coupler's damage fluence, quoted at the seed's 1 ns
+        raw["step"][-1].update(damage_fluence_J_cm2=output_damage_J_cm2, damage_pulse_ns=1.0)
     return simulate(load_config(raw))
 
 
@@ -211,6 +213,19 @@ def test_the_largest_pulse_is_the_one_described(two):
     assert list(two.train["cycle_pulse_energy"][0]) == train["cycle_pulse_energies_J"]
     cycle_warnings = [w for w in s["warnings"] if w.startswith("train:")]
     assert len(cycle_warnings) == 1 and "cycle of 2" in cycle_warnings[0] and "unstable" in cycle_warnings[0]
+
+
+def test_damage_is_checked_on_the_largest_pulse(two):
+    # a damage level that the largest pulse of the cycle passes and the unstable single-pulse steady
+    # state would not: the run warns (a flat beam: the peak fluence is proportional to the energy)
+    s = two.summary
+    largest = s["steps"][-1]["peak_fluence_J_cm2"]
+    single = largest * s["train"]["fixed_point_pulse_energy_J"] / s["train"]["pulse_energy_J"]
+    fraction = two.config.limits.damage_fraction
+    damage = (largest + single) / 2 / fraction
+    assert not any("damage fluence" in w for w in s["warnings"])
+    warned = run("two", max_pulses=34, output_damage_J_cm2=damage).summary["warnings"]
+    assert any("damage fluence" in w for w in warned), warned
 
 
 def test_pulses_to_the_cycle_against_the_brute_force_train(two):
