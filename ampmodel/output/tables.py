@@ -116,15 +116,7 @@ def table_lines(summary: dict) -> list[str]:
                        f"dumped {rule}; build-up time {s['build_up_time_ns']:.4g} ns")
     train = summary.get("train")
     if train:
-        n = train["pulses_to_steady_state"]
-        if n is None:
-            settle = "the pulses do not settle to it (see the warnings)"
-        else:
-            est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
-            settle = f"within {train['tolerance']:g} after {n} pulse{'s' if n != 1 else ''}{est}"
-        out.append(f"pulse train at {quantity_text(train['repetition_rate_Hz'], 'Hz')}: steady state {quantity_text(train['pulse_energy_J'], 'J')} "
-                   f"per pulse, {quantity_text(train['average_power_W'], 'W')} average; stored before each pulse "
-                   f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
+        out.append(train_line(train))
     if "output_transform_limit_ps" in summary:
         out.append(f"spectrum: centre {summary['output_centre_nm']:.5g} nm, FWHM {summary['output_bandwidth_nm']:.4g} nm; "
                    f"it supports pulses down to {summary['output_transform_limit_ps'] * 1e3:.4g} fs (transform "
@@ -158,6 +150,28 @@ def notes_lines(summary: dict) -> list[str]:
             out.append(f"{key}:")
             out += [f"  - {text}" for text in summary[key]]
     return out
+
+
+def train_line(train: dict) -> str:
+    """The line of a pulse train: its steady pulse, or the cycle of pulses it settles to, and the pulses
+    the train from its start takes to reach it."""
+    n = train["pulses_to_steady_state"]
+    if n is None:
+        settle = "the pulses do not settle to it (see the warnings)"
+    else:
+        est = " (estimated)" if train["pulses_to_steady_state_estimated"] else ""
+        settle = f"within {train['tolerance']:g} after {n} pulse{'s' if n != 1 else ''}{est}"
+    rate = quantity_text(train['repetition_rate_Hz'], 'Hz')
+    average = quantity_text(train['average_power_W'], 'W')
+    cycle = train.get("cycle_pulse_energies_J") or []
+    if len(cycle) > 1:
+        energies = ", ".join(quantity_text(e, "J") for e in cycle)
+        return (f"pulse train at {rate}: cycle of {len(cycle)} pulses: {energies}, average {average}; stored "
+                f"before the largest pulse {quantity_text(train['stored_energy_before_pulse_J'], 'J')} (the "
+                f"pulse the table describes); {settle}")
+    return (f"pulse train at {rate}: steady state {quantity_text(train['pulse_energy_J'], 'J')} per pulse, "
+            f"{average} average; stored before each pulse "
+            f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
 
 
 def run_report_lines(s: dict) -> list[str]:

@@ -93,7 +93,8 @@ def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
 
 def plot_train(result: Result, path: Path) -> Path:
     """A pulse train from its start: the energy of each pulse and the stored energy before it, with
-    the periodic steady state as dashed lines.
+    the periodic steady state as dashed lines: one pulse, or each pulse of the cycle the train settles
+    to (then the unstable single-pulse steady state dotted).
 
     Parameters
     ----------
@@ -108,33 +109,36 @@ def plot_train(result: Result, path: Path) -> Path:
     energies = np.asarray(train.get("pulse_energies_J", []), dtype=float)
     stored = np.asarray(train.get("stored_energy_before_each_pulse_J", []), dtype=float)
     k = np.arange(1, energies.size + 1)
-    steady_e = float(train.get("pulse_energy_J", np.nan))
-    steady_s = float(train.get("stored_energy_before_pulse_J", np.nan))
+    cycle = [float(e) for e in train.get("cycle_pulse_energies_J") or []]
+    steady_e = cycle or [float(train.get("pulse_energy_J", np.nan))]
+    steady_s = [float(e) for e in train.get("cycle_stored_energy_before_pulse_J") or []] \
+        or [float(train.get("stored_energy_before_pulse_J", np.nan))]
     fig = new_figure(8.0, 7.0)
     ax_e, ax_s = fig.subplots(2, 1, sharex=True)
-    ef, eu = unit_prefix(max(finite_max(energies), steady_e if np.isfinite(steady_e) else 0.0), ENERGY_UNITS)
+    ef, eu = unit_prefix(max(finite_max(energies), finite_max(np.asarray(steady_e))), ENERGY_UNITS)
     kw = dict(marker="o", markersize=4) if k.size <= 60 else {}
     ax_e.plot(k, energies / ef, color=OUTPUT_COLOUR, label="output pulse energy", **kw)
-    ax_e.axhline(steady_e / ef, color="0.3", linestyle="--", linewidth=1.0,
-                 label=f"steady state {steady_e / ef:.4g} {eu}, {train.get('average_power_W', 0):.3g} W average")
-    ax_e.set_ylabel(f"pulse energy ({eu})")
-    settled = train.get("pulses_to_steady_state")
-    est = " (estimated)" if train.get("pulses_to_steady_state_estimated") else ""
-    cycle = train.get("cycle_pulse_energies_J") or []
-    if settled is not None:
-        where = (f"within {train.get('tolerance', 0):g} of the steady state after {settled} "
-                 f"pulse{'s' if settled != 1 else ''}{est}")
-    elif cycle:
-        where = f"not settling: a cycle of {len(cycle)} pulses (the steady state is unstable)"
+    average = f"{train.get('average_power_W', 0):.3g} W average"
+    if len(cycle) > 1:
+        _cycle_lines(ax_e, steady_e, ef, eu, f"cycle of {len(cycle)} pulses ({average}):")
+        single = train.get("fixed_point_pulse_energy_J")
+        if single is not None:
+            ax_e.axhline(single / ef, color="0.6", linestyle=":", linewidth=1.0,
+                         label=f"single-pulse steady state {single / ef:.4g} {eu} (unstable)")
     else:
-        where = "not settled to the steady state"
-    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {where}")
+        ax_e.axhline(steady_e[0] / ef, color="0.3", linestyle="--", linewidth=1.0,
+                     label=f"steady state {steady_e[0] / ef:.4g} {eu}, {average}")
+    ax_e.set_ylabel(f"pulse energy ({eu})")
+    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {_settling_text(train)}")
     ax_e.grid(True, alpha=0.3)
     ax_e.legend(loc="best", fontsize="small")
-    sf, su = unit_prefix(max(finite_max(stored), steady_s if np.isfinite(steady_s) else 0.0), ENERGY_UNITS)
+    sf, su = unit_prefix(max(finite_max(stored), finite_max(np.asarray(steady_s))), ENERGY_UNITS)
     ax_s.plot(k, stored / sf, color=SEED_COLOUR, label="stored energy before the pulse", **kw)
-    ax_s.axhline(steady_s / sf, color="0.3", linestyle="--", linewidth=1.0,
-                 label=f"steady state {steady_s / sf:.4g} {su}")
+    if len(cycle) > 1:
+        _cycle_lines(ax_s, steady_s, sf, su, "before each pulse of the cycle:")
+    else:
+        ax_s.axhline(steady_s[0] / sf, color="0.3", linestyle="--", linewidth=1.0,
+                     label=f"steady state {steady_s[0] / sf:.4g} {su}")
     ax_s.set_ylabel(f"stored energy ({su})")
     ax_s.set_xlabel("pulse number from the start of the train")
     ax_s.set_title("Extractable stored energy before each pulse (pumped without a seed before pulse 1)")
@@ -146,5 +150,28 @@ def plot_train(result: Result, path: Path) -> Path:
     ax_s.xaxis.set_major_locator(MaxNLocator(integer=True))
     if k.size:
         ax_s.set_xlim(0.5, k.size + 0.5)
-    fig.suptitle("Pulse train from its start to the periodic steady state" + title_suffix(result))
+    goal = f"a cycle of {len(cycle)} pulses" if len(cycle) > 1 else "the periodic steady state"
+    fig.suptitle(f"Pulse train from its start to {goal}" + title_suffix(result))
     return save_png(fig, path)
+
+
+def _cycle_lines(ax, values: list[float], factor: float, unit: str, label: str) -> None:
+    """One dashed line per pulse of a cycle (in the order they occur, the largest first), labelled once."""
+    text = ", ".join(f"{v / factor:.4g}" for v in values)
+    for i, v in enumerate(values):
+        ax.axhline(v / factor, color="0.3", linestyle="--", linewidth=1.0,
+                   label=f"{label} {text} {unit}" if i == 0 else None)
+
+
+def _settling_text(train: dict) -> str:
+    """How the train from its start reaches its steady state or cycle (for the title)."""
+    settled = train.get("pulses_to_steady_state")
+    est = " (estimated)" if train.get("pulses_to_steady_state_estimated") else ""
+    plural = "s" if settled != 1 else ""
+    if int(train.get("cycle_length", 1)) > 1:
+        if settled is None:
+            return f"a cycle of {train['cycle_length']} pulses, not approached steadily"
+        return f"within {train.get('tolerance', 0):g} of a cycle of {train['cycle_length']} pulses after {settled} pulse{plural}{est}"
+    if settled is not None:
+        return f"within {train.get('tolerance', 0):g} of the steady state after {settled} pulse{plural}{est}"
+    return "not settled to the steady state"

@@ -182,8 +182,8 @@ def _medium_state(medium, gm: GainMap, spectral: SliceCrossSections | None) -> M
 
 def _media_records(run: PulsedLayout, initial_ln_gain: dict[str, np.ndarray] | None, pumped: dict[str, float],
                    decayed: dict[str, float]) -> dict[str, MediumRecord]:
-    """Each medium's gain before the first and after the last pass (a train: before the steady-state
-    pulse), with its pumped and decayed energy over the layout."""
+    """Each medium's gain before the first and after the last pass (a train: before and after the
+    steady-state pulse, of a cycle its largest), with its pumped and decayed energy over the layout."""
     out = {}
     for m in run.config.media:
         s = run.states[m.name]

@@ -27,12 +27,18 @@ pulse (no seed: the steady state of the pump alone), until the output energy is 
 pulse and the stored energy before each. When ``train.max_pulses`` pulses do not reach it, the number
 is estimated from the contraction per pulse of the last ones, and a warning says so.
 
-Energy balance over a steady period (at the signal photon energy): pumped = decayed + extracted by
-the beam + change of the upper-state energy (zero at the fixed point, to the tolerance).
+When the steady state is unstable the train from its start settles instead to a cycle of k pulses
+(period doubling): the periodic orbit, the fixed point of Phi^k, is then found and reported
+(``train_cycles.py``): the average power of the cycle, and its largest pulse as the pulse the summary
+describes (steps, records, damage, gain maps), so that the optics are checked on the pulse that
+stresses them most.
+
+Energy balance over a steady period, or over the whole cycle (at the signal photon energy): pumped =
+decayed + extracted by the beam + change of the upper-state energy (zero at the fixed point or over
+the cycle, to the tolerance).
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -42,7 +48,9 @@ from ampmodel.beam.state import BeamState, StepOutcome
 from ampmodel.description import Config, passed_media
 from ampmodel.kernels.fixed_point import anderson
 from ampmodel.media import gain_maps
+from ampmodel.notices import warning
 from ampmodel.output.result import StepRecord
+from ampmodel.pulsed import train_cycles
 from ampmodel.pulsed.clocks import MediumClock, Timeline, unseeded_n2
 from ampmodel.pulsed.passes import MediumState
 from ampmodel.pulsed.train_direct import direct_columns, direct_not_applicable
@@ -55,9 +63,9 @@ STAGNATION_PULSES = 40
 
 @dataclass
 class TrainRun:
-    """The steady-state pulse of a train and what the train did.
+    """The steady-state pulse of a train (of a cycle: its largest pulse) and what the train did.
 
-    ln_gain_before, ln_gain_after : per medium, ln G maps before the steady pulse and after its layout
+    ln_gain_before : per medium, the ln G map before that pulse
     pumped_J, decayed_J : per medium, pump and decay during the steady pulse's layout (J)
     summary : the ``train`` entry of summary.json; datasets : name -> (array, units) for result.h5
     checks : the grid checks of the steady pulse (field path)
@@ -158,12 +166,30 @@ class _Pulses:
             self.progress()
         return self.state.get(), beam, outcomes, records, after, layout, checks
 
+    def period(self, u: np.ndarray) -> train_cycles.PeriodFigures:
+        """One pulse and its recovery from the state ``u``, with the energies of the period."""
+        clocks = self.timeline.clocks
+        self.state.set(u)
+        stored = _stored_J(self.states, clocks)
+        u_next, beam, outcomes, *_ = self(u)
+        return train_cycles.PeriodFigures(
+            u_next=u_next, energy_J=beam.energy_J(), stored_before_J=stored,
+            upper_before_J=_upper_state_J(self.state, clocks, u), upper_after_J=_upper_state_J(self.state, clocks, u_next),
+            pumped_J=sum(c.pumped_J for c in clocks.values()), decayed_J=sum(c.decayed_J for c in clocks.values()),
+            extracted_J=sum(o.extracted_J for o in outcomes))
+
+
+def _upper_state_J(state: _State, clocks: dict[str, MediumClock], u: np.ndarray) -> float:
+    """The energy of the upper state of all media in the state ``u`` (J, at the signal photon energy)."""
+    n2 = state.split(u)
+    return sum(float(np.sum(n2[n])) * c.photon_energy_J * c.voxel_volume_m3 for n, c in clocks.items())
+
 
 def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Callable,
               states: dict[str, MediumState], timeline: Timeline, seed_fluence: np.ndarray,
               progress: Callable[[], None] | None = None) -> TrainRun:
-    """Find the periodic steady state of a pulse train, run the train from its start, and return the
-    steady pulse (see the module docstring).
+    """Find the periodic steady state of a pulse train (one pulse, or a cycle of pulses), run the train
+    from its start, and return the pulse the summary describes (see the module docstring).
 
     ``new_beam()`` gives a fresh seed pulse; ``run_layout(beam, record=...)`` runs the layout on it
     and returns (outcomes, records, grid checks), as ``pulsed.run`` does for a single pulse.
@@ -192,52 +218,81 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     u_star, evaluations, residual = anderson(lambda u: pulse(u)[0], start, fp_tolerance, MAX_FIXED_POINT_PULSES, upper,
                                              depth=ANDERSON_DEPTH, stagnation=STAGNATION_PULSES)
     if residual > fp_tolerance:
-        warnings.append(f"train: the periodic steady state was not reached to {fp_tolerance:.0e} in "
+        warnings.append(warning("train", f"train: the periodic steady state was not reached to {fp_tolerance:.0e} in "
                         f"{evaluations} pulse evaluations (residual {residual:.1e}); the figures are those of "
-                        f"the last estimate")
+                        f"the last estimate"))
 
     # 2. the steady pulse, recorded
     steady = _steady_pulse(pulse, u_star, seed_fluence)
 
     # 3. the train from its start: pulse after pulse until the output is within the tolerance
-    e_out = steady.pulse_energy_J
-    energies, stored, settled = _from_the_start(pulse, u0, e_out, tolerance, config.train.max_pulses)
-    settled, estimated, cycle = _settling(energies, e_out, tolerance, settled, rate_Hz, warnings)
-    for n, s in states.items():              # the pulse() calls above changed the media: restore
-        np.copyto(s.ln_gain, steady.after[n])
+    e_star = steady.pulse_energy_J
+    energies, stored, settled, u_last = _from_the_start(pulse, u0, e_star, tolerance, config.train.max_pulses)
 
-    summary = {
+    # 4. a train that does not settle but repeats every k pulses: the periodic orbit, its largest pulse recorded
+    orbit = _orbit(pulse, energies, settled, e_star, u_last, tolerance, fp_tolerance, upper, warnings)
+    if orbit is None:
+        settled, estimated = train_cycles.settling(energies, e_star, tolerance, settled, rate_Hz, warnings)
+        cycle, recorded = _single_cycle(steady), steady
+    else:
+        recorded = _steady_pulse(pulse, orbit.states[0], seed_fluence)
+        settled, estimated = train_cycles.cycle_settling(energies, orbit, tolerance)
+        warnings.append(train_cycles.cycle_warning(orbit, settled, estimated, rate_Hz, tolerance, e_star))
+        cycle = orbit
+    for n, s in states.items():              # the pulse() calls above changed the media: restore
+        np.copyto(s.ln_gain, recorded.after[n])
+
+    summary = _summary(config, recorded, cycle, orbit, energies, stored, settled, estimated, reason,
+                       direct_energy, e_star, evaluations, residual)
+    datasets = {"pulse_energy": (np.asarray(energies), "J"),
+                "stored_energy_before_pulse": (np.asarray(stored), "J")}
+    if orbit is not None:
+        datasets["cycle_pulse_energy"] = (np.asarray(orbit.energies_J), "J")
+    layout = recorded.layout
+    return TrainRun(beam=recorded.beam, outcomes=recorded.outcomes, records=recorded.records,
+                    ln_gain_before=recorded.before, pumped_J={n: v[0] for n, v in layout.items()},
+                    decayed_J={n: v[1] for n, v in layout.items()}, summary=summary, warnings=warnings,
+                    datasets=datasets, checks=recorded.checks)
+
+
+def _summary(config: Config, recorded: _SteadyPulse, cycle: train_cycles.Orbit, orbit: train_cycles.Orbit | None,
+             energies: list[float], stored: list[float], settled: int | None, estimated: bool, reason: str | None,
+             direct_energy: float | None, e_star: float, evaluations: int, residual: float) -> dict:
+    """The ``train`` entry of summary.json: the cycle's figures (one pulse: ``cycle`` of length 1, ``orbit``
+    None), the recorded pulse (the largest of the cycle), the train from its start and the solvers'."""
+    rate_Hz = config.seed.repetition_rate_Hz
+    k = cycle.length
+    return {
         "repetition_rate_Hz": rate_Hz,
-        "period_s": period,
-        "pulse_energy_J": e_out,
-        "average_power_W": e_out * rate_Hz,
-        "input_average_power_W": steady.input_energy_J * rate_Hz,
-        "stored_energy_before_pulse_J": steady.stored_before_J,
+        "period_s": 1.0 / rate_Hz,
+        "pulse_energy_J": recorded.pulse_energy_J,
+        "pulse_energy_mean_J": sum(cycle.energies_J) / k,
+        "average_power_W": sum(cycle.energies_J) / k * rate_Hz,
+        "input_average_power_W": recorded.input_energy_J * rate_Hz,
+        "stored_energy_before_pulse_J": recorded.stored_before_J,
+        "cycle_length": cycle.length,
+        "cycle_pulse_energies_J": cycle.energies_J if orbit is not None else [],
+        "cycle_stored_energy_before_pulse_J": cycle.stored_before_J if orbit is not None else [],
         "pulses_to_steady_state": settled,
         "pulses_to_steady_state_estimated": estimated,
-        "cycle_pulse_energies_J": cycle,
-        "tolerance": tolerance,
+        "tolerance": config.train.tolerance,
         "pulse_energies_J": energies,
         "stored_energy_before_each_pulse_J": stored,
         "method": ("direct per-pixel solution, then accelerated iteration" if reason is None
                    else "accelerated iteration"),
         "direct_solution": "applied" if reason is None else f"not applicable: {reason}",
         "direct_pulse_energy_J": direct_energy,
+        "fixed_point_pulse_energy_J": e_star,
         "fixed_point_pulse_evaluations": evaluations,
         "fixed_point_residual": residual,
-        "pump_stored_power_W": steady.pumped_J * rate_Hz,
-        "decay_power_W": steady.decayed_J * rate_Hz,
-        "extracted_power_W": float(steady.extracted_J * rate_Hz),
-        "energy_balance_error": float(steady.balance),
-        "layout_time_s": steady.layout_time_s,
+        "cycle_fixed_point_evaluations": orbit.evaluations if orbit is not None else None,
+        "cycle_fixed_point_residual": orbit.residual if orbit is not None else None,
+        "pump_stored_power_W": cycle.pumped_J / k * rate_Hz,
+        "decay_power_W": cycle.decayed_J / k * rate_Hz,
+        "extracted_power_W": float(cycle.extracted_J / k * rate_Hz),
+        "energy_balance_error": float(cycle.balance),
+        "layout_time_s": recorded.layout_time_s,
     }
-    datasets = {"pulse_energy": (np.asarray(energies), "J"),
-                "stored_energy_before_pulse": (np.asarray(stored), "J")}
-    layout = steady.layout
-    return TrainRun(beam=steady.beam, outcomes=steady.outcomes, records=steady.records,
-                    ln_gain_before=steady.before, pumped_J={n: v[0] for n, v in layout.items()},
-                    decayed_J={n: v[1] for n, v in layout.items()}, summary=summary, warnings=warnings,
-                    datasets=datasets, checks=steady.checks)
 
 
 def _fixed_point_start(config: Config, clocks: dict[str, MediumClock], state: _State,
@@ -268,7 +323,7 @@ class _SteadyPulse:
     """The steady pulse, recorded: its beam, outcomes, records and grid checks; the gain maps (ln G)
     before and after its layout; each medium's (pumped, decayed) energy over the layout (J); the
     energies in and out (J), the stored energy before it (J), the energy pumped, decayed and extracted
-    over the period (J), the train's energy balance per period and the layout's time (s)."""
+    over the period (J), the change of the upper-state energy over it (J) and the layout's time (s)."""
 
     beam: BeamState
     outcomes: list
@@ -283,7 +338,7 @@ class _SteadyPulse:
     pumped_J: float
     decayed_J: float
     extracted_J: float
-    balance: float
+    change_J: float
     layout_time_s: float
 
 
@@ -301,21 +356,20 @@ def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) 
     n2_next, n2_star = state.split(u_next), state.split(u_star)
     change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
                  for n, c in clocks.items())
-    balance = (pumped - decayed - extracted - change) / pumped if pumped > 0 else 0.0
     layout_time_s = pulse.timeline.elapsed_s
     state.set(u_star)                        # leave the media as before the steady pulse ...
     for n, s in states.items():              # ... and then as after its layout (the "final" gain)
         np.copyto(s.ln_gain, after[n])
     return _SteadyPulse(beam, outcomes, records, checks, before, after, layout, beam.energy_J(),
                         float(seed_fluence.sum() * beam.pixel_area_m2), stored_before, pumped, decayed,
-                        extracted, balance, layout_time_s)
+                        extracted, change, layout_time_s)
 
 
 def _from_the_start(pulse: _Pulses, u0: np.ndarray, e_out: float, tolerance: float,
-                    max_pulses: int) -> tuple[list[float], list[float], int | None]:
+                    max_pulses: int) -> tuple[list[float], list[float], int | None, np.ndarray]:
     """The train from its start, pulse after pulse until the output is within ``tolerance`` of the
-    steady ``e_out`` (J): each pulse's energy, the stored energy before each, and the pulse that
-    settled (None: not within ``max_pulses``)."""
+    steady ``e_out`` (J): each pulse's energy, the stored energy before each, the pulse that settled
+    (None: not within ``max_pulses``) and the state before the next pulse."""
     energies, stored = [], []
     u = u0
     for k in range(1, max_pulses + 1):
@@ -324,60 +378,35 @@ def _from_the_start(pulse: _Pulses, u0: np.ndarray, e_out: float, tolerance: flo
         u, b, *_ = pulse(u)
         energies.append(b.energy_J())
         if abs(energies[-1] - e_out) <= tolerance * e_out:
-            return energies, stored, k
-    return energies, stored, None
+            return energies, stored, k, u
+    return energies, stored, None, u
 
 
-def _settling(energies: list[float], e_out: float, tolerance: float, settled: int | None, rate_Hz: float,
-              warnings: list[str]) -> tuple[int | None, bool, list[float]]:
-    """(pulses to the steady state, whether estimated, the repeating cycle of energies) of a train that
-    settled at pulse ``settled`` or, if None, the estimate or the cycle, with a warning for each case."""
-    if settled is not None:
-        return settled, False, []
-    settled = _estimate_settling(energies, e_out, tolerance)
-    cycle = _cycle(energies, tolerance)
-    if settled is not None:
-        warnings.append(f"train: the output is not within {tolerance:g} of the steady state after "
-                        f"{len(energies)} pulses (train.max_pulses); about {settled} pulses are needed, "
-                        f"estimated from the contraction per pulse")
-        return settled, True, cycle
-    if cycle:
-        warnings.append(f"train: the pulses do not settle to one repeating pulse: after {len(energies)} pulses "
-                        f"they repeat every {len(cycle)} pulses ({', '.join(f'{e:.4g}' for e in cycle)} J); "
-                        f"the single-pulse steady state reported is unstable or absent (a pulse-to-pulse "
-                        f"bifurcation), and the "
-                        f"average power of the cycle is {sum(cycle) / len(cycle) * rate_Hz:.4g} W")
-    else:
-        warnings.append(f"train: the pulses do not settle within {len(energies)} pulses (train.max_pulses) "
-                        f"and do not approach the steady state steadily (the last ones spread over "
-                        f"{min(energies[-10:]):.4g} to {max(energies[-10:]):.4g} J): the steady state "
-                        f"reported may be unstable; raise train.max_pulses to see more of the train")
-    return None, False, cycle
-
-
-def _estimate_settling(energies: list[float], steady: float, tolerance: float) -> int | None:
-    """Pulses until |E_k − E*| <= tolerance·E*, extrapolated from the geometric decay of the last
-    pulses' distance to the steady state; None when they do not approach it steadily."""
-    d = np.abs(np.asarray(energies[-10:], dtype=float) - steady)
-    if d.size < 4 or np.any(d <= 0.0):
+def _orbit(pulse: _Pulses, energies: list[float], settled: int | None, e_star: float, u_last: np.ndarray,
+           tolerance: float, fp_tolerance: float, upper: np.ndarray | None,
+           warnings: list[str]) -> train_cycles.Orbit | None:
+    """The periodic orbit of a train from its start that did not settle, does not approach the steady
+    state steadily and repeats every k pulses (``train_cycles.py``); None for any other train, or when
+    the orbit found is the single-pulse steady state after all. Warns when the orbit is not reached to
+    ``fp_tolerance``."""
+    if settled is not None or train_cycles.estimate_settling(energies, e_star, tolerance) is not None:
         return None
-    k = np.arange(d.size)
-    slope, _ = np.polyfit(k, np.log(d), 1)
-    upper = np.maximum.accumulate(d[::-1])[::-1]          # each pulse's largest later distance
-    if slope >= 0.0 or d[-1] > 0.5 * d[0] or np.any(upper[1:] > 1.5 * d[:-1]):
+    k = len(train_cycles.repeating_cycle(energies, tolerance))
+    if k == 0:
         return None
-    return len(energies) + max(1, math.ceil(math.log(tolerance * steady / d[-1]) / slope))
+    orbit = train_cycles.find_orbit(lambda u: pulse(u)[0], pulse.period, u_last, len(energies) + 1, k, tolerance,
+                                    fp_tolerance, upper, ANDERSON_DEPTH, MAX_FIXED_POINT_PULSES, STAGNATION_PULSES)
+    if orbit.length == 1:
+        return None
+    if orbit.residual > fp_tolerance:
+        warnings.append(warning("train", f"train: the cycle of {orbit.length} pulses was not reached to {fp_tolerance:.0e} in "
+                        f"{orbit.evaluations} evaluations of {k} pulses (residual {orbit.residual:.1e}); the "
+                        f"figures are those of the last estimate"))
+    return orbit
 
 
-def _cycle(energies: list[float], tolerance: float, longest: int = 8) -> list[float]:
-    """The last ``k`` pulse energies when the train repeats every k pulses (2 <= k <= ``longest``)
-    over the last 3k pulses, to 10 times the tolerance; [] when it does not."""
-    for k in range(2, longest + 1):
-        if len(energies) < 3 * k:
-            break
-        tail = np.asarray(energies[-3 * k:], dtype=float)
-        scale = float(np.abs(tail).max())
-        if np.all(np.abs(tail[k:] - tail[:-k]) <= 10 * tolerance * scale) \
-                and np.ptp(tail[-k:]) > 10 * tolerance * scale:
-            return [float(e) for e in tail[-k:]]
-    return []
+def _single_cycle(steady: _SteadyPulse) -> train_cycles.Orbit:
+    """The steady pulse as a cycle of one pulse (its figures over one period)."""
+    return train_cycles.Orbit(states=[], energies_J=[steady.pulse_energy_J], stored_before_J=[steady.stored_before_J],
+                              pumped_J=steady.pumped_J, decayed_J=steady.decayed_J, extracted_J=steady.extracted_J,
+                              change_J=steady.change_J, start_pulse=1, evaluations=0, residual=0.0, observed=1)

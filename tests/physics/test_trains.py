@@ -208,16 +208,3 @@ def test_a_multipass_cell_in_a_train_direct_and_iterated_agree():
     assert auto["layout_time_s"] == pytest.approx(12e-9, rel=1e-12)
     assert results["auto"]["steps"][0]["round_trip_count"] == 3
 
-
-def test_settling_estimate_and_cycle_detection():
-    from ampmodel.pulsed.trains import _cycle, _estimate_settling
-    steady = 1.0
-    decaying = [steady + 0.1 * 0.5 ** k * (-1) ** k for k in range(12)]
-    # |E_k − E*| = 0.1·0.5^k: within 1e-6 once 0.5^k <= 1e-5, k >= 17, i.e. pulse 18
-    assert _estimate_settling(decaying, steady, 1e-6) == 18
-    assert _cycle(decaying, 1e-6) == []
-    three = [0.9, 1.1, 1.0] * 10
-    assert _cycle(three, 1e-6) == [0.9, 1.1, 1.0]
-    assert _estimate_settling(three, 1.0, 1e-6) is None
-    two = [1.0 + 0.01 * 0.3 ** k for k in range(5)] + [0.8, 1.2] * 8
-    assert _cycle(two, 1e-6) == [0.8, 1.2]
