@@ -181,7 +181,9 @@ def resolve(summary: Mapping[str, Any], path: str) -> float:
             trail += ["steps", str(value)]
         else:
             media = node.get("media") if isinstance(node, Mapping) else None
-            names = [m.get("name") for m in media or () if isinstance(m, Mapping)]
+            if not isinstance(media, list) or not media:
+                raise FigureError(f"{where} has no media")
+            names = [m.get("name") for m in media if isinstance(m, Mapping)]
             if value not in names:
                 hits = close_matches(value, [n for n in names if isinstance(n, str)])
                 hint = f"; did you mean {quoted_list(hits)}?" if hits else ""
@@ -284,7 +286,7 @@ def check_in_summary(named: Sequence[tuple[str, str]], summary: Mapping[str, Any
         raise ConfigError(problems)
 
 
-def first_check(named: Sequence[tuple[str, str]], source: str) -> Callable[[Mapping[str, Any], str], None]:
+def figure_check(named: Sequence[tuple[str, str]], source: str) -> Callable[[Mapping[str, Any], str], None]:
     """The check a sweep or a tolerance run makes on its first summary (``run_points(first_check=...)``):
     every named (label, figure path) must be a figure of it."""
     def check(summary: Mapping[str, Any], what: str) -> None:

@@ -152,35 +152,43 @@ def first_point(check: Callable[[Mapping[str, Any], str], None], kind: str, base
                 progress: bool) -> tuple[PointTask, PointOutcome] | None:
     """Check the figures the table names on one summary before the folder is touched (ConfigError).
 
-    A point already done in the folder serves; else point 0 runs here and its outcome is returned, to
-    be kept (:func:`keep_first`). A point 0 that fails is kept as failed, and the check left out."""
+    The first point already done in the folder serves. When there is none, or its summary lacks a
+    figure and points are left to compute (a point file of an earlier version, whose summary had
+    fewer figures), the first point still to do runs here and its outcome is returned, to be kept
+    (:func:`keep_first`). A point that fails there is kept as failed, and the check left out."""
     label = "sample" if kind == "spread" else "point"
-    found = store.first_done_summary(out, values, hash_)
-    if found is not None:
-        check(found[1], f"{label} {store.point_name(found[0])}")
-        return None
+    done = store.done_summaries(out, values, hash_)
+    if done:
+        first = min(done)
+        try:
+            check(done[first], f"{label} {store.point_name(first)}")
+            return None
+        except ConfigError:
+            if len(done) == len(values):
+                raise
+    index = next(i for i in range(len(values)) if i not in done)
     if progress:
-        print(f"{kind}: {label} {store.point_name(0)} first, to check the figures the table names",
+        print(f"{kind}: {label} {store.point_name(index)} first, to check the figures the table names",
               file=sys.stderr, flush=True)
-    task = point_tasks(kind, base, raws, texts, values, [0], out, hash_, "dask")[0]
+    task = point_tasks(kind, base, raws, texts, values, [index], out, hash_, "dask")[0]
     outcome = run_point(task, write=False)
     if outcome.error is None:
-        check(outcome.summary, f"{label} {store.point_name(0)} ({describe(values[0])})")
+        check(outcome.summary, f"{label} {store.point_name(index)} ({describe(values[index])})")
     return task, outcome
 
 
 def keep_first(early: tuple[PointTask, PointOutcome] | None, todo: list[int], summaries: list, failed: dict,
                seconds: dict) -> list[int]:
-    """Point 0 as :func:`first_point` ran it, when it is still to do: its file written from its result
-    (or its failure recorded). Returns the points still to compute."""
-    if early is None or 0 not in todo:
+    """The point :func:`first_point` ran, when it is still to do: its file written from its result (or
+    its failure recorded). Returns the points still to compute."""
+    if early is None or early[0].index not in todo:
         return list(todo)
     task, outcome = early
-    seconds[0] = outcome.seconds
+    seconds[task.index] = outcome.seconds
     if outcome.error is not None:
-        failed[0] = outcome.error
+        failed[task.index] = outcome.error
     else:
         write_point(task, outcome.result)
         outcome.result = None
-        summaries[0] = outcome.summary
-    return [i for i in todo if i != 0]
+        summaries[task.index] = outcome.summary
+    return [i for i in todo if i != task.index]

@@ -58,8 +58,8 @@ from ampmodel.output.atomic import target, write_json
 from ampmodel.studies.figures import (
     Limit,
     check_before_run,
+    figure_check,
     figure_keys,
-    first_check,
     flatten,
     parse_limit,
     with_figures,
@@ -248,5 +248,5 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
     run_points("spread", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                progress=progress, timeout_s=timeout_s, table_stem="samples",
                table_attrs={"random_seed": seed, "samples": samples}, manifest_table=table, finish=finish,
-               derived=("spread.json", "spread.csv"), first_check=first_check(named, base.source) if named else None)
+               derived=("spread.json", "spread.csv"), first_check=figure_check(named, base.source) if named else None)
     return box["result"]

@@ -281,14 +281,15 @@ def found_points(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> 
     return summaries, todo
 
 
-def first_done_summary(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> tuple[int, dict] | None:
-    """The first point done in the folder for these values (index, summary), read only; None: none."""
+def done_summaries(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> dict[int, dict]:
+    """The summaries of the points done in the folder for these values, by index; read only."""
+    done = {}
     for i, v in enumerate(values):
         path = point_path(out, i)
         found = read_point(path) if path.exists() else None
         if point_matches(found, hash_, v):
-            return i, found["summary"]
-    return None
+            done[i] = found["summary"]
+    return done
 
 
 def collect_late_points(out: Path, todo: Sequence[int], values: Sequence[Mapping[str, Any]], hash_: str,

@@ -29,7 +29,7 @@ from ampmodel.description import Config
 from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
 from ampmodel.studies import store as store
 from ampmodel.studies.backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks
-from ampmodel.studies.figures import check_before_run, first_check, with_figures
+from ampmodel.studies.figures import check_before_run, figure_check, with_figures
 from ampmodel.studies.points import (
     PointOutcome,
     PointTask,
@@ -169,7 +169,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     finish : called with the result while the folder is still locked (plots, statistics)
     derived : further files made from the table (removed at the start with the table, written by ``finish``)
     first_check : checks the figures a table names on a first summary before the folder is touched
-        (ConfigError); ``points.first_point`` says which summary
+        (ConfigError); ``points.first_point`` says which summary (a point it runs is not run again)
 
     Raises
     ------
@@ -198,7 +198,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
         failed: dict[int, str] = {}
         seconds: dict[int, float] = {}
         tasks = point_tasks(kind, base, raws, texts, values, keep_first(early, todo, summaries, failed, seconds),
-                            out, hash_, backend)                # keep_first: point 0 if the check ran it
+                            out, hash_, backend)                # keep_first: the point the check ran
         used = 0
         attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
                  "paths": json.dumps(paths), **(table_attrs or {})}
@@ -407,7 +407,7 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
     return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                       progress=progress, timeout_s=timeout_s, table_stem="sweep",
                       table_attrs={"combine": combine}, manifest_table=table, finish=finish,
-                      first_check=first_check(named, base.source) if named else None)
+                      first_check=figure_check(named, base.source) if named else None)
 
 
 # ----------------------------------------------------------------------------------------------
