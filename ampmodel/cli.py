@@ -47,7 +47,7 @@ def _parser() -> argparse.ArgumentParser:
     b.add_argument("--quiet", action="store_true", help="no progress bar")
     for name, what in (("sweep", "the sweep in the config's [sweep] table: in parallel, resumable"),
                        ("spread", "a tolerance run: the samples of the config's [spread] table, with "
-                                  "percentiles and histograms")):
+                                  "percentiles, histograms, the yield against limits and the sensitivity")):
         w = sub.add_parser(name, help=what)
         w.add_argument("config", help=f"the run config (TOML) with a [{name}] table")
         w.add_argument("--out", metavar="DIR", help=f"output folder (default runs/<config stem>-{name}); "
@@ -64,6 +64,10 @@ def _parser() -> argparse.ArgumentParser:
         w.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
                        help="change one value of the config first, like `run --set`")
         w.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+        if name == "spread":
+            w.add_argument("--limit", metavar="FIGURE<=VALUE", action="append", default=[], dest="limits",
+                           help="a bound on a figure whose yield the run reports, e.g. b_integral_rad<=3 or "
+                                "steps.0.peak_fluence_J_cm2<=5 (also >=); repeatable; added to [spread] limits")
         w.add_argument("--quiet", action="store_true", help="no progress bar" +
                        (" and no table of the points" if name == "sweep" else ""))
     e = sub.add_parser("rerun", help="repeat a run from its result file and say whether the figures match")
@@ -76,24 +80,33 @@ def _parser() -> argparse.ArgumentParser:
                    help="use today's material files instead of the material data stored with the run")
     e.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     e.add_argument("--quiet", action="store_true", help="no progress bar")
+    _size_parser(sub)
+    return p
+
+
+def _size_parser(sub) -> None:
+    """The options of ``size``."""
     z = sub.add_parser("size", help="find the value of one parameter that reaches a target figure, under limits")
     z.add_argument("config", help="the run config (TOML)")
     z.add_argument("--target", metavar="FIGURE=VALUE", required=True,
-                   help="a scalar of summary.json and the value to reach, e.g. output_energy_J=1.0")
+                   help="a figure of summary.json by its path and the value to reach, e.g. output_energy_J=1.0 "
+                        "or steps.2.energy_out_J=0.5")
     z.add_argument("--vary", metavar="PATH", required=True,
                    help="the value path to vary, e.g. medium.rod.small_signal_gain")
     z.add_argument("--within", metavar="LOW,HIGH", required=True, help="the range to search, e.g. 2,50")
     z.add_argument("--limit", metavar="FIGURE<=VALUE", action="append", default=[], dest="limits",
-                   help="a bound that must hold at the answer, e.g. peak_fluence_J_cm2<=5 or b_integral_rad<=3 "
-                        "(also >=); repeatable")
+                   help="a bound on a figure that must hold at the answer, e.g. peak_fluence_J_cm2<=5, "
+                        "steps.0.peak_fluence_J_cm2<=3 or b_integral_rad<=3 (also >=); repeatable")
     z.add_argument("--xtol", metavar="X", type=float,
-                   help="absolute tolerance on the value (default 1e-12 x the larger bound; relative 1e-10)")
+                   help="absolute tolerance on the value, > 0 (default 1e-12 x the larger bound)")
+    z.add_argument("--rtol", metavar="X", type=float, default=None,
+                   help="relative tolerance on the value (default 1e-10; at least 4 x machine epsilon); the "
+                        "answer is within xtol + rtol x |value| of the crossing")
     z.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
                    help="change one value of the config first, like `run --set`")
     z.add_argument("--out", metavar="DIR", help="also write size.json and the run at the answer (result.h5, "
                                                 "summary.json, plots/) into DIR")
     z.add_argument("--quiet", action="store_true", help="do not list the runs of the search")
-    return p
 
 
 def _bad_input(problems: list[str]) -> int:
@@ -256,9 +269,10 @@ def _options(args, command: str) -> tuple[str, int | None]:
 def _many_points(args, command: str, runner, printer) -> int:
     """`sweep` and `spread`: the same options, run in parallel, then the report."""
     backend, jobs = _options(args, command)
+    extra = {"limits": args.limits} if command == "spread" else {}
     result = runner(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
                     overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
-                    timeout_s=args.timeout)
+                    timeout_s=args.timeout, **extra)
     return printer(result, quiet=args.quiet)
 
 
@@ -279,16 +293,15 @@ def cmd_size(args) -> int:
 
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.report import print_sizing
-    from ampmodel.studies.sizing import parse_limit, parse_target, parse_within, size_to_target
-    target = parse_target(args.target)
-    within = parse_within(args.within)
-    limits = [parse_limit(text) for text in args.limits]
+    from ampmodel.studies.sizing import RTOL, plan_sizing, run_sizing
+    # every option checked before anything is made: all bad ones at once
+    plan = plan_sizing(args.config, args.target, args.vary, args.within, args.limits, overrides=args.overrides,
+                       xtol=args.xtol, rtol=RTOL if args.rtol is None else args.rtol)
     report = None if args.quiet else print
     base = Path(args.out) if args.out else None
-    # the output folder first: an unwritable place is reported before the search
+    # the output folder next: an unwritable place is reported before the search
     with (partial_folder(base) if base is not None else nullcontext(None)) as tmp:
-        result = size_to_target(args.config, target, args.vary, within, limits, overrides=args.overrides,
-                                xtol=args.xtol, report=report, keep_result=bool(args.out))
+        result = run_sizing(plan, report=report, keep_result=bool(args.out))
         code = print_sizing(result)
         if tmp is not None:
             from ampmodel.output.atomic import write_json

@@ -242,12 +242,18 @@ SOLVER: dict[str, Key] = {
 
 COMBINES = ("grid", "zip")
 SWEEP_COMBINE = choice("how the swept lists combine", COMBINES, default="grid")
+# Keys of [sweep] that are not value paths: how the lists combine, and summary figures to plot
+# besides the top-level ones (figure paths, config/sweep.py checks their form).
+SWEEP_OWN = ("combine", "figures")
 
 # [spread]: its own keys, and one table per value path giving that value's distribution.
 SPREAD: dict[str, Key] = {
     "samples": integer("number of random samples", 1, 100000, required=True),
     "random_seed": Key("int", "seed of the random-number generator", ge=0, default=0),
 }
+# [spread] arrays of texts: summary figures to plot and rank (figures), bounds on figures whose
+# yield the run reports (limits, as `size --limit`).
+SPREAD_LISTS = ("figures", "limits")
 DISTRIBUTIONS: dict[str, Key] = {
     "normal": number("relative standard deviation of a normal distribution around the config's value",
                      gt=0, le=0.5),

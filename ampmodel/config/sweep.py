@@ -5,9 +5,17 @@ each path must resolve to a key of the config's schema (``schema.leaf_schema``),
 values given for it are checked against that key's type and range, so that a sweep or a tolerance
 run cannot start with a value a single run would refuse. Problems go to a :class:`Problems` like
 every other check of ``load.py``, which calls :func:`check_sweep` and :func:`check_spread`.
+
+Both tables may also name figures of summary.json (``figures = ["steps.3.peak_fluence_J_cm2"]``) and
+[spread] bounds on figures (``limits = ["b_integral_rad<=3"]``). Their form is checked here, when the
+config loads (:func:`figure_parts`, :func:`split_limit`: the grammar of a figure path, which
+``ampmodel.studies.figures`` resolves against a summary); whether the figure exists is known only
+after a run.
 """
 from __future__ import annotations
 
+import math
+import re
 from typing import Any, Callable
 
 from ampmodel.config import schema as S
@@ -25,6 +33,93 @@ from ampmodel.config.checks import (
     quoted_list,
 )
 from ampmodel.config.schema import item_names, leaf_schema, walk
+
+# ----------------------------------------------------------------------------------------------
+# Figure paths and limits: their form
+# ----------------------------------------------------------------------------------------------
+
+_KEY = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+_LIMIT = re.compile(r"^\s*([^<>=]+?)\s*(<=|>=|<|>)\s*(\S+)\s*$")
+FIGURE_EXAMPLE = "output_energy_J, steps.3.peak_fluence_J_cm2, media.rod.stored_energy_J or train.average_power_W"
+
+
+def figure_parts(text: Any) -> list[tuple[str, Any]]:
+    """The parts of a figure path: ("key", name), ("step", index) or ("medium", name), in order.
+
+    A figure path is a dotted path to a number in summary.json: a top-level key (``gain``), a key of
+    a nested object (``train.average_power_W``), a step's key by the step's index in the summary's
+    ``steps`` list (``steps.3.peak_fluence_J_cm2``; a repeat's inner steps ``steps.0.steps.2.gain``)
+    or a medium's key by its name (``media.rod.stored_energy_J``; the name may hold dots).
+
+    Raises
+    ------
+    ValueError : the text is not of that form (the message says what is wrong).
+    """
+    if not isinstance(text, str) or not text.strip():
+        raise ValueError(f"expected a figure path such as {FIGURE_EXAMPLE}")
+    if text != text.strip():
+        raise ValueError("a figure path holds no spaces at its ends")
+    segs = text.split(".")
+    parts: list[tuple[str, Any]] = []
+    i = 0
+    while i < len(segs):
+        seg = segs[i]
+        if seg == "steps":
+            if i + 1 >= len(segs) or not segs[i + 1].isdigit():
+                raise ValueError("steps must be followed by a step index and a key, e.g. steps.0.gain")
+            parts.append(("step", int(segs[i + 1])))
+            i += 2
+        elif seg == "media":
+            if len(segs) - i < 3 or not ".".join(segs[i + 1:-1]):
+                raise ValueError("media must be followed by a medium's name and a key, e.g. media.rod.stored_energy_J")
+            parts.append(("medium", ".".join(segs[i + 1:-1])))
+            i = len(segs) - 1
+        elif _KEY.fullmatch(seg):
+            parts.append(("key", seg))
+            i += 1
+        else:
+            raise ValueError(f"{seg!r} is not a key name (letters, digits and _; steps by index: steps.0.gain)")
+    if parts[-1][0] != "key":
+        raise ValueError("a figure path ends with a key, e.g. steps.0.gain")
+    return parts
+
+
+def split_limit(text: Any) -> tuple[str, str, float]:
+    """``"steps.3.peak_fluence_J_cm2<=5"`` -> (path, "<=", 5.0); ``<`` and ``>`` read as ``<=`` and ``>=``.
+
+    Raises
+    ------
+    ValueError : not FIGURE<=VALUE or FIGURE>=VALUE with a figure path and a finite number.
+    """
+    m = _LIMIT.match(text) if isinstance(text, str) else None
+    if not m:
+        raise ValueError("expected FIGURE<=VALUE or FIGURE>=VALUE, e.g. peak_fluence_J_cm2<=5")
+    figure_parts(m.group(1))
+    try:
+        value = float(m.group(3))
+    except ValueError:
+        raise ValueError(f"{m.group(3)!r} is not a number") from None
+    if not math.isfinite(value):
+        raise ValueError(f"the bound must be a finite number, not {m.group(3)}")
+    return m.group(1), {"<": "<=", ">": ">="}.get(m.group(2), m.group(2)), value
+
+
+def check_figure_list(p: Problems, table: dict, name: str, key: str) -> None:
+    """``[name].key``: an array of figure paths (``figures``) or of limits (``limits``), each of good form."""
+    if key not in table:
+        return
+    path = join_path(name, key)
+    items = table[key]
+    example = '["steps.0.peak_fluence_J_cm2"]' if key == "figures" else '["b_integral_rad<=3"]'
+    if not isinstance(items, list) or not all(isinstance(v, str) for v in items):
+        p.add(path, f"must be an array of texts, e.g. {key} = {example}", items)
+        return
+    for j, text in enumerate(items):
+        try:
+            split_limit(text) if key == "limits" else figure_parts(text)
+        except ValueError as exc:
+            p.add(f"{path}[{j}]", str(exc), text)
+
 
 
 def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
@@ -60,8 +155,9 @@ def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], 
         combine, message = check_value(sweep["combine"], S.SWEEP_COMBINE)
         if message:
             p.add("sweep.combine", message, sweep["combine"])
+    check_figure_list(p, sweep, "sweep", "figures")
     for key, values in sweep.items():
-        if key == "combine":
+        if key in S.SWEEP_OWN:
             continue
         path = join_path("sweep", key)
         found = _value_key(p, raw, "sweep", key, values, "sweep")
@@ -82,7 +178,7 @@ def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], 
                     and not (isinstance(value, int) and 0 <= value < len(raw["medium"])):
                 p.add(f"{path}[{j}]", "no such medium; media: "
                                       f"{', '.join(item_names(raw['medium'], 'medium'))}", value)
-    if not lengths and not any(k != "combine" for k in sweep):
+    if not lengths and not any(k not in S.SWEEP_OWN for k in sweep):
         p.add("sweep", 'empty: give at least one path with its values, e.g. "seed.energy_J" = [0.001, 0.01]')
     if combine == "zip" and len(set(lengths.values())) > 1:
         listing = ", ".join(f"{k}: {n}" for k, n in lengths.items())
@@ -98,13 +194,15 @@ def check_spread(p: Problems, raw: dict) -> None:
     spread = raw["spread"]
     own = {k: v for k, v in spread.items() if k in S.SPREAD}
     check_table(p, own, "spread", S.SPREAD)
+    for key in S.SPREAD_LISTS:
+        check_figure_list(p, spread, "spread", key)
     entries = 0
     for key, entry in spread.items():
-        if key in S.SPREAD:
+        if key in S.SPREAD or key in S.SPREAD_LISTS:
             continue
         path = join_path("spread", key)
         if not isinstance(entry, dict):
-            hint = did_you_mean(key, S.SPREAD)
+            hint = did_you_mean(key, (*S.SPREAD, *S.SPREAD_LISTS))
             p.add(path, f"must be a table giving the distribution, e.g. {S.SPREAD_HINT}" + hint, entry)
             continue
         entries += 1

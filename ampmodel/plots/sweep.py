@@ -9,6 +9,10 @@ run gave warnings (damage fluence, B-integral, clipping, ...) are ringed.
 Tolerance run: one histogram per summary scalar that varies (``plots/hist_<key>.png``) with its 5,
 50 and 95 % percentiles marked.
 
+A figure named by its path in a [sweep] or [spread] table's ``figures`` (``steps.3.peak_fluence_J_cm2``)
+comes as a top-level entry of the summaries under that path, and is plotted like the others, its
+label saying where it is ("step 3: peak fluence").
+
 Axes carry units from the key suffixes (``_J``, ``_J_cm2``, ``_mm``, ...); energies, powers and
 intensities are shown with the SI prefix that suits their size (mJ, MW/cm², ...), an axis spanning
 more than a factor of 20 (swept values) or 100 (results) of positive values is logarithmic.
@@ -59,12 +63,28 @@ _PREFIXED = ("J", "W", "W/cm^2")
 # ----------------------------------------------------------------------------------------------
 
 def _human(key: str) -> str:
-    """"small_signal_gain" -> "small-signal gain G0"; a key's words without its unit suffix."""
+    """"small_signal_gain" -> "small-signal gain G0"; a key's words without its unit suffix; a figure
+    path says where: "steps.3.peak_fluence_J_cm2" -> "step 3: peak fluence"."""
     if key in LABELS:
         return LABELS[key]
+    if "." in key:
+        return figure_label(key)
     from ampmodel.units import split_unit
     stem = split_unit(key)[0]
     return LABELS.get(stem, stem.replace("_", " "))
+
+
+def figure_label(path: str) -> str:
+    """Words for a figure path of summary.json: "steps.0.steps.2.gain" -> "step 0.2: gain (output /
+    input)", "media.rod.stored_energy_J" -> "rod: stored energy before the pulse", "train.average_power_W"
+    -> "train: average power"."""
+    parts = path.split(".")
+    leaf = _human(parts[-1])
+    if parts[0] == "steps":
+        return f"step {'.'.join(p for p in parts[1:-1] if p.isdigit())}: {leaf}"
+    if parts[0] == "media":
+        return f"{'.'.join(parts[1:-1])}: {leaf}"
+    return f"{' '.join(parts[:-1]).replace('_', ' ')}: {leaf}"
 
 
 def path_label(path: str) -> str:
@@ -173,7 +193,7 @@ def _scalar_view(key: str, data: Sequence[float]) -> tuple[np.ndarray, str, floa
     and the unit shown ("1" or "" for a plain number)."""
     unit = unit_of(key)
     y = np.asarray(data, dtype=float)
-    if key in ("extraction_efficiency", "optical_efficiency"):
+    if key.rsplit(".", 1)[-1] in ("extraction_efficiency", "optical_efficiency"):
         return 100 * y, f"{_human(key)} (%)", 100.0, "%"
     factor, shown = scale_for(unit, y.tolist())
     return y / factor, axis_label(_human(key), shown), 1.0 / factor, shown

@@ -8,6 +8,7 @@ from typing import Any, Sequence
 from ampmodel.config.checks import show
 from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.safety import SAFETY_NOTE
+from ampmodel.studies.figures import with_figures
 
 EXIT_OK, EXIT_FAILED_POINTS, EXIT_NO_SOLUTION = 0, 1, 3
 TABLE_KEYS = ("output_energy_J", "output_power_W", "gain", "extraction_efficiency", "optical_efficiency",
@@ -87,13 +88,15 @@ def print_sweep(result, quiet: bool = False) -> int:
     print(f"ampmodel sweep: {result.title}")
     _head(result, "point")
     if not quiet and len(result.values) <= MAX_ROWS:
-        present = set(scalar_keys(result.summaries))
+        summaries = with_figures(result.summaries, result.figures)     # the figures named in [sweep] too
+        present = set(scalar_keys(summaries))
         keys = [k for k in TABLE_KEYS if k in present]
         if "peak_fluence_J_cm2" in keys:        # pulsed: the fluence is the figure to watch
             keys.remove("peak_intensity_W_cm2")
+        keys += [k for k in result.figures if k in present and k not in keys]
         rows = [[f"{i:04d}"] + [_num(v[p]) for p in result.paths] +
                 [_num(s.get(k)) if s else "FAILED" for k in keys] + [str(len(s["warnings"])) if s else "-"]
-                for i, (v, s) in enumerate(zip(result.values, result.summaries, strict=True))]
+                for i, (v, s) in enumerate(zip(result.values, summaries, strict=True))]
         _table(["point"] + result.paths + keys + ["warnings"], rows)
     elif not quiet:
         print(f"(the table of {len(result.values)} points is in {result.table_csv})")
@@ -114,23 +117,61 @@ def _files(result, extra: Sequence[str] = ()) -> None:
 
 
 def print_spread(result, quiet: bool = False) -> int:
-    """Print a tolerance run's outcome: counts, the percentile table, warnings, files."""
+    """Print a tolerance run's outcome: counts, the percentile table of the top-level figures and those
+    named in figures and limits, the yield, the sensitivity ranking, warnings, files."""
     print(f"ampmodel spread: {result.title}")
     _head(result, "sample")
     print(f"distributions (random_seed {result.random_seed}): " +
           "; ".join(f"{p}: {_dist(d)}" for p, d in result.distributions.items()))
+    shown = [k for k in _shown(result.percentiles, result.figures) if k not in QUIET_FIGURES]
     rows = [[k, p["unit"], _num(p["p5"]), _num(p["p50"]), _num(p["p95"]), _num(p["mean"]), _num(p["std"])]
-            for k, p in result.percentiles.items() if p["max"] > p["min"] and k not in QUIET_FIGURES]
-    print("the figures that vary (spread.csv and spread.json hold every figure):")
+            for k in shown if (p := result.percentiles[k])["max"] > p["min"]]
+    print("the figures that vary (spread.csv and spread.json hold every figure, steps and media too):")
     _table(["figure", "unit", "5 %", "50 %", "95 %", "mean", "std"], rows)
+    if result.yields:
+        _print_yield(result.yields)
+    _print_sensitivity(result.sensitivity, shown)
     _warnings_and_failures(result, "sample")
     _safety()
     _files(result, ["spread.json", "spread.csv"])
     if result.failed:
-        print(f"{len(result.failed)} samples failed (the percentiles leave them out); start the same command "
-              f"again to retry only them.")
+        print(f"{len(result.failed)} samples failed (the percentiles, the yield and the sensitivity leave them "
+              f"out); start the same command again to retry only them.")
         return EXIT_FAILED_POINTS
     return EXIT_OK
+
+
+def _shown(percentiles: dict, named: Sequence[str]) -> list[str]:
+    """The top-level figures, then the named ones (each once, those the run has)."""
+    return list(dict.fromkeys([k for k in percentiles if "." not in k] + [k for k in named if k in percentiles]))
+
+
+def _pct(x: float | None) -> str:
+    return "-" if x is None else f"{100 * x:.1f} %"
+
+
+def _print_yield(yields: dict) -> None:
+    """The yield table: per limit and for all together, with the 95 % Wilson score interval."""
+    print("yield: the samples that meet each limit (95 % interval: Wilson score):")
+    rows = [[y["limit"], str(y["ran"]), str(y["met"]), _pct(y["share"]),
+             f"{_pct(y['ci95'][0])} to {_pct(y['ci95'][1])}" if y["ci95"] else "-"]
+            for y in [*yields["limits"], yields["all"]]]
+    _table(["limit", "ran", "met", "share", "95 % interval"], rows)
+
+
+def _print_sensitivity(sensitivity: dict, shown: Sequence[str], paths_shown: int = 3) -> None:
+    """For each figure shown that varies: the spread values that move it most, by Spearman's rho."""
+    lines = []
+    for k in shown:
+        ranked = [r for r in sensitivity.get(k, ()) if r["rho"] is not None]
+        if ranked:
+            more = f", ... ({len(ranked) - paths_shown} more)" if len(ranked) > paths_shown else ""
+            lines.append(f"  {k}: " + ", ".join(f"{r['path']} {r['rho']:+.2f}" for r in ranked[:paths_shown])
+                         + more)
+    if lines:
+        print("sensitivity: Spearman's rank correlation of each figure with each spread value, strongest first "
+              "(monotone association; spread.json has every figure):")
+        print("\n".join(lines))
 
 
 def _dist(d: dict) -> str:

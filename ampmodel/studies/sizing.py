@@ -1,19 +1,32 @@
 """Sizing to a target: the value of one parameter at which a summary figure reaches a target, under limits.
 
 ``ampmodel size CONFIG --target output_energy_J=1.0 --vary medium.rod.small_signal_gain --within 2,50
---limit peak_fluence_J_cm2<=5 --limit b_integral_rad<=3``
+--limit steps.0.peak_fluence_J_cm2<=5 --limit b_integral_rad<=3``
+
+The target and the limits name figures of summary.json by their paths (``figures.py``: top-level keys,
+``steps.N.KEY``, ``media.NAME.KEY``, ``train.KEY``, ...).
+
+Input: every option is checked before any run (:func:`plan_sizing`), and every bad one reported at
+once, one line each: the config and its ``--set`` values, the target, the varied path and its range,
+each limit, ``xtol`` and ``rtol``; a figure path for its form, its last key against the names a
+summary holds, a step index and a medium's name against the config. The figures themselves are
+looked up in the summary of the first run (at the low end of the range): one that is not there is
+bad input, reported before any further run.
 
 Method: the figure minus the target is evaluated at both ends of the range; when the signs differ,
 scipy.optimize.brentq (Brent's bracketing method: bisection, secant and inverse quadratic steps) finds
-the crossing. Each evaluation is a full run. Tolerance: brentq stops when the bracket is below
-``xtol + rtol·|x|``; the defaults, ``xtol`` = 1e-12 x max(|low|, |high|) and ``rtol`` = 1e-10, fix
+the crossing. Each evaluation is a full run. Tolerance: brentq stops when the bracket around the
+crossing is below ``xtol + rtol·|x|``, so the answer is within that distance of the crossing of the
+computed figure. The defaults, ``xtol`` = 1e-12 x max(|low|, |high|) and ``rtol`` = 1e-10 (RTOL), fix
 the value to about 1e-10 relative, far below the model's own accuracy (the test suite checks a 1e-6
-relative agreement with the analytic inverse of Frantz–Nodvik).
+relative agreement with the analytic inverse of Frantz–Nodvik). A larger ``rtol`` (``--rtol``) stops
+the search sooner, with fewer runs, on a wider bracket; it must be at least 4·eps (about 8.9e-16),
+the least brentq accepts, and below 1; ``xtol`` must be > 0.
 
 Limits are checked at the answer. When one is crossed there, it is crossed before the target is
 reached: the value where the limit is met exactly is found by brentq too (between the end of the
-range where the limit holds and the answer), and reported with the figures there. When several limits
-are crossed, the one met first on the way from that end is reported.
+range where the limit holds and the answer, with the same tolerances), and reported with the figures
+there. When several limits are crossed, the one met first on the way from that end is reported.
 
 Outcomes (``SizingResult.status``): "ok"; "unreachable" (the figure does not cross the target
 within the range: it stays above or below it at both ends); "limited" (a limit is crossed first).
@@ -34,31 +47,17 @@ from typing import Any, Callable, Mapping, Sequence
 from ampmodel.config.checks import ConfigError, PathError, check_value, close_matches, quoted_list
 from ampmodel.config.load import load_config
 from ampmodel.config.schema import leaf_schema, walk
+from ampmodel.config.sweep import figure_parts
 from ampmodel.description import Config
-from ampmodel.output.summary import is_number
+from ampmodel.studies.figures import FigureError, Limit, check_before_run, check_in_summary, parse_limit, resolve
+
+__all__ = ["size_to_target", "plan_sizing", "run_sizing", "SizingPlan", "SizingResult", "Limit", "parse_limit",
+           "parse_target", "parse_within", "RTOL", "RTOL_MIN"]
 
 RTOL = 1e-10
+RTOL_MIN = 4 * sys.float_info.epsilon      # scipy.optimize.brentq refuses a smaller rtol
 XTOL_RELATIVE = 1e-12
 STATUSES = ("ok", "unreachable", "limited")
-
-
-@dataclass(frozen=True)
-class Limit:
-    """A bound on a summary figure: ``figure op value`` with op "<=" or ">="."""
-
-    figure: str
-    op: str
-    value: float
-
-    def margin(self, x: float) -> float:
-        """How far ``x`` is inside the bound (negative: crossed), in the figure's unit."""
-        return self.value - x if self.op == "<=" else x - self.value
-
-    def __str__(self) -> str:
-        return f"{self.figure}{self.op}{self.value:g}"
-
-
-_LIMIT = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(<=|>=|<|>)\s*(\S+)\s*$")
 
 
 def _number(text: str, what: str) -> float:
@@ -71,22 +70,17 @@ def _number(text: str, what: str) -> float:
     return value
 
 
-def parse_limit(text: str) -> Limit:
-    """``"peak_fluence_J_cm2<=5"`` -> Limit; ``<`` and ``>`` read as ``<=`` and ``>=``."""
-    m = _LIMIT.match(text)
-    if not m:
-        raise ConfigError([f"--limit {text}: expected FIGURE<=VALUE or FIGURE>=VALUE, e.g. --limit "
-                           "peak_fluence_J_cm2<=5"])
-    op = {"<": "<=", ">": ">="}.get(m.group(2), m.group(2))
-    return Limit(m.group(1), op, _number(m.group(3), f"--limit {text}"))
-
-
 def parse_target(text: str) -> tuple[str, float]:
-    """``"output_energy_J=1.0"`` -> ("output_energy_J", 1.0)."""
+    """``"output_energy_J=1.0"`` -> ("output_energy_J", 1.0); the figure is a figure path."""
     figure, sep, value = text.partition("=")
-    if not sep or not figure.strip() or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", figure.strip()):
+    figure = figure.strip()
+    if not sep or not figure or re.search(r"[<>]", figure):
         raise ConfigError([f"--target {text}: expected FIGURE=VALUE, e.g. --target output_energy_J=1.0"])
-    return figure.strip(), _number(value.strip(), f"--target {text}")
+    try:
+        figure_parts(figure)
+    except ValueError as exc:
+        raise ConfigError([f"--target {text}: {exc}"]) from None
+    return figure, _number(value.strip(), f"--target {text}")
 
 
 def parse_within(text: str) -> tuple[float, float]:
@@ -127,40 +121,144 @@ class SizingResult:
     rtol: float
     limiting: Limit | None = None
     result: Any = field(default=None, repr=False)
+    limits: list[Limit] = field(default_factory=list)
+
+    def figures(self) -> dict[str, float]:
+        """The target's and the limits' figures at ``value`` (empty without an answer)."""
+        if self.summary is None:
+            return {}
+        names = [self.target[0]] + [lim.figure for lim in self.limits]
+        return {name: resolve(self.summary, name) for name in dict.fromkeys(names)}
 
     def as_dict(self) -> dict[str, Any]:
         """The result as plain data (size.json)."""
         return {"status": self.status, "vary": self.vary, "target_figure": self.target[0],
                 "target": self.target[1], "within": list(self.within), "value": self.value,
-                "message": self.message, "margins": self.margins,
+                "message": self.message, "limits": [str(lim) for lim in self.limits],
+                "figures": self.figures(), "margins": self.margins,
                 "limiting": str(self.limiting) if self.limiting else None,
                 "xtol": self.xtol, "rtol": self.rtol, "runs": len(self.evaluations),
                 "evaluations": [list(e) for e in self.evaluations], "summary": self.summary}
 
 
-def _check_vary(config: Config, vary: str, within: tuple[float, float]) -> None:
+def _check_vary(config: Config, vary: str, within: tuple[float, float] | None) -> list[str]:
     """The varied path must name a number of this config; both ends must be allowed values."""
     src = config.source
     try:
         _, leaf, trail = walk(dict(config.raw), vary)
     except PathError as exc:
-        raise ConfigError([f"{src}: --vary {vary}: the path does not resolve: {exc}"]) from None
+        return [f"{src}: --vary {vary}: the path does not resolve: {exc}"]
     schema = leaf_schema(dict(config.raw), trail)
     if schema is None or leaf not in schema:
         hits = close_matches(leaf, schema) if schema else []
         prefix = vary.rsplit(".", 1)[0] + "." if "." in vary else ""
         hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
-        raise ConfigError([f"{src}: --vary {vary}: not a value of this config{hint}"])
+        return [f"{src}: --vary {vary}: not a value of this config{hint}"]
     spec = schema[leaf]
     if spec.kind != "float":
-        raise ConfigError([f"{src}: --vary {vary}: sizing varies a continuous number; {leaf} is not one"])
+        return [f"{src}: --vary {vary}: sizing varies a continuous number; {leaf} is not one"]
     problems = []
-    for end, value in zip(("low", "high"), within, strict=True):
+    for end, value in zip(("low", "high") if within else (), within or (), strict=True):
         _, message = check_value(value, spec)
         if message:
             problems.append(f"{src}: --within: the {end} end {value:g} is not an allowed value of {leaf}: {message}")
-    if problems:
-        raise ConfigError(problems)
+    return problems
+
+
+@dataclass
+class SizingPlan:
+    """A sizing search whose every option was checked (:func:`plan_sizing`); run it with :func:`run_sizing`."""
+
+    base: Config
+    target: tuple[str, float]
+    vary: str
+    within: tuple[float, float]
+    limits: list[Limit]
+    xtol: float
+    rtol: float
+
+
+class _Collect:
+    """Problems of several options, gathered so that all are reported at once."""
+
+    def __init__(self, source: str):
+        self.source, self.problems = source, []
+
+    def add(self, line: str) -> None:
+        self.problems.append(line if line.startswith(f"{self.source}: ") else f"{self.source}: {line}")
+
+    def call(self, fn: Callable, *args: Any) -> Any:
+        try:
+            return fn(*args)
+        except ConfigError as err:
+            for line in err.problems:
+                self.add(line)
+            return None
+
+
+def _source(config: Any) -> str:
+    if isinstance(config, Config):
+        return config.source
+    return str(config) if isinstance(config, (str, os.PathLike)) else "<dict>"
+
+
+def _quiet_load(load: Callable, config: Any) -> Config | None:
+    """The config without its --set values (None when it has problems of its own)."""
+    try:
+        return load(config)
+    except ConfigError:
+        return None
+
+
+def _tolerances(p: _Collect, xtol: Any, rtol: Any) -> None:
+    if xtol is not None and not (isinstance(xtol, (int, float)) and math.isfinite(xtol) and xtol > 0):
+        p.add(f"--xtol {xtol}: must be a finite number > 0 (the absolute tolerance on the varied value), "
+              "e.g. --xtol 1e-9")
+    if not (isinstance(rtol, (int, float)) and math.isfinite(rtol) and RTOL_MIN <= rtol < 1):
+        p.add(f"--rtol {rtol}: must be at least 4 x machine epsilon ({RTOL_MIN:.3g}, the least "
+              f"scipy.optimize.brentq accepts) and below 1, e.g. --rtol {RTOL:g}")
+
+
+def _within(within: Any) -> tuple[float, float]:
+    low, high = (float(v) for v in within)
+    if not (math.isfinite(low) and math.isfinite(high) and low < high):
+        raise ConfigError([f"--within {low:g},{high:g}: the low end must come first and be below the high end"])
+    return low, high
+
+
+def plan_sizing(config: str | os.PathLike | Mapping | Config, target: str | tuple[str, float], vary: str,
+                within: str | tuple[float, float], limits: Sequence[Limit | str] = (), *,
+                overrides: Sequence[str] = (), xtol: float | None = None, rtol: float = RTOL) -> SizingPlan:
+    """Check every option of a sizing search before any run; all problems at once (ConfigError).
+
+    ``target`` and ``within`` as the command line gives them ("output_energy_J=1", "2,50") or as a
+    (figure, value) and (low, high) pair; ``limits`` as Limit objects or "FIGURE<=VALUE" texts.
+    """
+    from ampmodel.studies.sweeps import load
+    p = _Collect(_source(config))
+    base = p.call(load, config, overrides)
+    if base is not None:
+        p.source = base.source
+    checked = base if base is not None or not overrides else _quiet_load(load, config)
+    goal = p.call(parse_target, target) if isinstance(target, str) else (str(target[0]), float(target[1]))
+    span = p.call(parse_within if isinstance(within, str) else _within, within)
+    parsed = [p.call(parse_limit, lim) if isinstance(lim, str) else lim for lim in limits]
+    _tolerances(p, xtol, rtol)
+    named = ([(f"--target {target if isinstance(target, str) else goal[0]}", goal[0])] if goal else []) + \
+        [(f"--limit {lim}", lim.figure) for lim in parsed if lim]
+    for label, figure in named:                 # form, key names, steps and media of the config
+        problem = check_before_run(figure, checked)
+        if problem:
+            p.add(f"{label}: {problem}")
+    if checked is not None:                     # the config without its bad --set values, when they are bad
+        for line in _check_vary(checked, vary, span):
+            p.add(line)
+    if p.problems:
+        raise ConfigError(p.problems)
+    assert base is not None and goal is not None and span is not None
+    low, high = span
+    return SizingPlan(base, goal, vary, span, [lim for lim in parsed if lim is not None],
+                      XTOL_RELATIVE * max(abs(low), abs(high)) if xtol is None else float(xtol), float(rtol))
 
 
 class _Runs:
@@ -193,21 +291,20 @@ class _Runs:
         s = result.summary
         self.cache[x] = s
         self.last = (x, result) if self.keep_result else None
-        value = self.figure_of(s, self.figure)
+        try:
+            value = resolve(s, self.figure)
+        except FigureError:           # reported by the check after the first run
+            return s
         self.evaluations.append((x, value))
         if self.report:
             self.report(f"  {self.vary} = {x:<14.10g} -> {self.figure} = {value:.10g}")
         return s
 
     def figure_of(self, s: Mapping[str, Any], figure: str, option: str = "--target") -> float:
-        value = s.get(figure)
-        if not is_number(value):
-            figures = [k for k, v in s.items() if is_number(v)]
-            hits = close_matches(figure, figures)
-            hint = f"; did you mean {quoted_list(hits)}?" if hits else ""
-            raise ConfigError([f"{self.config.source}: {option} {figure}: not a figure of summary.json{hint} (figures: "
-                               f"{', '.join(figures)})"])
-        return float(value)
+        try:
+            return resolve(s, figure)
+        except FigureError as exc:
+            raise ConfigError([f"{self.config.source}: {option} {figure}: not a figure of this run: {exc}"]) from None
 
     def result_at(self, x: float):
         if self.last is not None and self.last[0] == x:
@@ -219,15 +316,15 @@ class _Runs:
 def _margins(runs: _Runs, s: Mapping[str, Any], limits: Sequence[Limit]) -> list[dict]:
     out = []
     for lim in limits:
-        v = runs.figure_of(s, lim.figure)
+        v = runs.figure_of(s, lim.figure, "--limit")
         m = lim.margin(v)
         out.append({"figure": lim.figure, "op": lim.op, "limit": lim.value, "value": v, "margin": m,
                     "relative_margin": m / abs(lim.value) if lim.value else float("inf") if m > 0 else 0.0})
     return out
 
 
-def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[str, float], vary: str,
-                   within: tuple[float, float], limits: Sequence[Limit | str] = (), *,
+def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[str, float] | str, vary: str,
+                   within: tuple[float, float] | str, limits: Sequence[Limit | str] = (), *,
                    overrides: Sequence[str] = (), xtol: float | None = None, rtol: float = RTOL,
                    report: Callable[[str], None] | None = None, keep_result: bool = False) -> SizingResult:
     """Find the value of ``vary`` in ``within`` at which the summary figure ``target[0]`` equals ``target[1]``.
@@ -235,13 +332,14 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
     Parameters
     ----------
     config : a TOML path, a config dict or a Config
-    target : (figure, value): a scalar of summary.json in the unit its name carries, e.g.
-        ("output_energy_J", 1.0)
+    target : (figure, value): a figure path of summary.json (``output_energy_J``,
+        ``steps.2.energy_out_J``, ...) and its value in the unit its name carries; or "FIGURE=VALUE"
     vary : value path of a number, e.g. "medium.rod.small_signal_gain" (config units)
-    within : (low, high) range searched, config units of ``vary``
-    limits : Limit objects or strings like "peak_fluence_J_cm2<=5"; must hold at the answer
+    within : (low, high) range searched, config units of ``vary``; or "LOW,HIGH"
+    limits : Limit objects or strings like "steps.0.peak_fluence_J_cm2<=5"; must hold at the answer
     overrides : "PATH=VALUE" strings applied first (like --set)
-    xtol, rtol : brentq tolerances (default xtol = 1e-12·max(|low|, |high|), rtol = 1e-10)
+    xtol, rtol : brentq tolerances (default xtol = 1e-12·max(|low|, |high|), rtol = RTOL = 1e-10): the
+        answer is within xtol + rtol·|answer| of the crossing
     report : called with one line per run (e.g. ``print``); None: quiet
     keep_result : keep the Result of the run at the answer in ``SizingResult.result``
 
@@ -253,24 +351,31 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
     Raises
     ------
     ConfigError
-        Bad input: the config, the path, the range, a figure that summary.json does not have.
+        Bad input, every problem at once: the config, the path, the range, the tolerances, a figure
+        path of bad form or one that the first run's summary does not have.
 
     References
     ----------
     R. P. Brent, Algorithms for Minimization without Derivatives (1973); scipy.optimize.brentq.
     """
-    from ampmodel.studies.sweeps import load
-    base = load(config, overrides)
-    figure, goal = target
-    (low, high), limits, xtol = _checked_search(base, vary, within, limits, xtol, rtol)
+    plan = plan_sizing(config, target, vary, within, limits, overrides=overrides, xtol=xtol, rtol=rtol)
+    return run_sizing(plan, report=report, keep_result=keep_result)
+
+
+def run_sizing(plan: SizingPlan, *, report: Callable[[str], None] | None = None,
+               keep_result: bool = False) -> SizingResult:
+    """The search of a checked plan (see :func:`size_to_target`)."""
+    base, (figure, goal), vary, limits = plan.base, plan.target, plan.vary, plan.limits
+    (low, high), xtol, rtol = plan.within, plan.xtol, plan.rtol
     runs = _Runs(base, vary, figure, report, keep_result)
     if report:
         report(f"sizing {base.source}: {figure} = {goal:g} by {vary} within [{low:g}, {high:g}]")
-    for lim in limits:                       # a misspelt figure fails now, before the search
-        runs.figure_of(runs.summary(low), lim.figure, f"--limit {lim}:")
+    # a figure the summary does not have fails now, after one run
+    check_in_summary([(f"--target {figure}={goal:g}", figure)] + [(f"--limit {lim}", lim.figure) for lim in limits],
+                     runs.summary(low), base.source, f"the run at {vary} = {low:g}")
     x, f_low, f_high = _crossing(runs, goal, low, high, xtol, rtol)
     common = dict(vary=vary, target=(figure, goal), within=(low, high), evaluations=runs.evaluations,
-                  xtol=xtol, rtol=rtol)
+                  xtol=xtol, rtol=rtol, limits=list(limits))
     if x is None:
         msg = _unreachable_message(figure, goal, vary, (low, high), f_low, f_high)
         return SizingResult(status="unreachable", value=None, summary=None, margins=[], message=msg, **common)
@@ -294,24 +399,10 @@ def size_to_target(config: str | os.PathLike | Mapping | Config, target: tuple[s
     s_lim = runs.summary(x_lim)
     msg = (f"no solution in range: a limit is crossed first. {lim.figure} reaches {lim.value:g} at {vary} = "
            f"{x_lim:.10g}, where {figure} = {runs.figure_of(s_lim, figure):.6g} (target {goal:g}, reached at "
-           f"{vary} = {x:.6g} with {lim.figure} = {runs.figure_of(s, lim.figure):.6g})")
+           f"{vary} = {x:.6g} with {lim.figure} = {runs.figure_of(s, lim.figure, '--limit'):.6g})")
     return SizingResult(status="limited", value=x_lim, summary=s_lim, margins=_margins(runs, s_lim, limits),
                         message=msg, limiting=lim, result=runs.result_at(x_lim) if keep_result else None,
                         **common)
-
-
-def _checked_search(base: Config, vary: str, within: tuple[float, float], limits: Sequence[Limit | str],
-                    xtol: float | None, rtol: float) -> tuple[tuple[float, float], list[Limit], float]:
-    """The range, the limits and ``xtol`` of a search, checked (ConfigError, ValueError for ``rtol``)."""
-    low, high = float(within[0]), float(within[1])
-    if not low < high:
-        raise ConfigError([f"{base.source}: --within {low:g},{high:g}: the low end must be below the high end"])
-    limits = [parse_limit(lim) if isinstance(lim, str) else lim for lim in limits]
-    _check_vary(base, vary, (low, high))
-    if not rtol >= 4 * sys.float_info.epsilon:
-        raise ValueError("rtol must be at least 4 x machine epsilon (scipy.optimize.brentq)")
-    xtol = XTOL_RELATIVE * max(abs(low), abs(high)) if xtol is None else float(xtol)
-    return (low, high), limits, xtol
 
 
 def _crossing(runs: _Runs, goal: float, low: float, high: float, xtol: float,
@@ -349,7 +440,7 @@ def _first_limit(runs: _Runs, crossed: Sequence[Limit], x: float, within: tuple[
     reasons = []
     for lim in crossed:
         def g(x: float, lim: Limit = lim) -> float:
-            return lim.margin(runs.figure_of(runs.summary(x), lim.figure))
+            return lim.margin(runs.figure_of(runs.summary(x), lim.figure, "--limit"))
         holds = [end for end in (low, high) if g(end) >= 0]
         if not holds:
             reasons.append(f"{lim} is crossed over the whole range")

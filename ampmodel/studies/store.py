@@ -34,6 +34,7 @@ import numpy as np
 from ampmodel._version import __version__
 from ampmodel.output import atomic
 from ampmodel.output.summary import is_number, scalar_keys
+from ampmodel.studies.figures import figure_keys, flatten
 from ampmodel.units import unit_of
 
 MANIFEST = "manifest.json"
@@ -280,6 +281,17 @@ def found_points(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> 
     return summaries, todo
 
 
+def done_summaries(out: Path, values: Sequence[Mapping[str, Any]], hash_: str) -> dict[int, dict]:
+    """The summaries of the points done in the folder for these values, by index; read only."""
+    done = {}
+    for i, v in enumerate(values):
+        path = point_path(out, i)
+        found = read_point(path) if path.exists() else None
+        if point_matches(found, hash_, v):
+            done[i] = found["summary"]
+    return done
+
+
 def collect_late_points(out: Path, todo: Sequence[int], values: Sequence[Mapping[str, Any]], hash_: str,
                         summaries: list, failed: Mapping[int, str]) -> None:
     """Add to ``summaries`` the points of ``todo`` whose files are done but were neither reported nor failed."""
@@ -306,13 +318,20 @@ class Column:
 
 def table_columns(paths: Sequence[str], values: Sequence[Mapping[str, Any]],
                   summaries: Sequence[Mapping[str, Any] | None]) -> list[Column]:
-    """The columns of the table: each path, each summary scalar (NaN where a point has none) and
-    ``warning_count``, one row per point."""
+    """The columns of the table, one row per point: each path; each top-level summary scalar (NaN
+    where a point has none); ``warning_count``; then every other number of the summaries by its figure
+    path (``steps.N.KEY``, ``media.NAME.KEY``, ``train.KEY``, ...; ``figures.flatten``), read from the
+    summaries themselves, so a table of older point files has a column only where their summaries do."""
     cols = [Column(p, [v[p] for v in values], unit_of(p.rsplit(".", 1)[-1]), "swept") for p in paths]
     for key in scalar_keys(summaries):
         cols.append(Column(key, [float(s[key]) if s and is_number(s.get(key)) else float("nan")
                                  for s in summaries], unit_of(key), "summary"))
     cols.append(Column("warning_count", [len(s["warnings"]) if s else -1 for s in summaries], "1", "summary"))
+    flat = [flatten(s) if s else None for s in summaries]
+    for key in figure_keys(flat):
+        if "." in key:
+            cols.append(Column(key, [f.get(key, float("nan")) if f else float("nan") for f in flat], unit_of(key),
+                               "summary"))
     return cols
 
 
@@ -332,7 +351,7 @@ def write_table(out: Path, stem: str, kind: str, columns: Sequence[Column], done
                 attrs: Mapping[str, Any]) -> tuple[Path, Path]:
     """Write ``<stem>.h5`` and ``<stem>.csv`` atomically (the parent process only).
 
-    ``<stem>.h5``: ``/index``; ``/swept/<path>`` and ``/summary/<key>``, one row per point, in the
+    ``<stem>.h5``: ``/index``; ``/swept/<path>`` and ``/summary/<figure path>``, one row per point, in the
     unit their name carries (as in the config and summary.json), stated by a ``units`` attribute;
     ``/points/NNNN``: external links to the point files (relative, so the folder may move).
     """

@@ -9,6 +9,7 @@ partial or made for other values; a folder of another config is refused (``store
 """
 from __future__ import annotations
 
+import dataclasses
 import json
 import os
 import re
@@ -28,7 +29,18 @@ from ampmodel.description import Config
 from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
 from ampmodel.studies import store as store
 from ampmodel.studies.backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks
-from ampmodel.studies.points import PointOutcome, PointTask, describe, point_raw, run_point, sweep_points
+from ampmodel.studies.figures import check_before_run, figure_check, with_figures
+from ampmodel.studies.points import (
+    PointOutcome,
+    PointTask,
+    describe,
+    first_point,
+    keep_first,
+    point_raw,
+    point_tasks,
+    run_point,
+    sweep_points,
+)
 
 __all__ = ["run_sweep", "SweepResult", "sweep_points", "run_points", "time_sweep", "BackendError",
            "FolderError"]
@@ -70,12 +82,15 @@ class SweepResult:
     point_seconds: dict[int, float] = field(default_factory=dict)
     plots: list[Path] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    figures: list[str] = field(default_factory=list)     # figure paths named in the table (plotted, printed)
 
     def column(self, key: str) -> list:
-        """The values of a swept path or a summary scalar, one per point (NaN for a failed point)."""
+        """The values of a swept path or a summary figure (a figure path: ``output_energy_J``,
+        ``steps.0.peak_fluence_J_cm2``, ...), one per point (NaN for a failed point or one without it)."""
+        from ampmodel.studies.figures import flatten
         if key in self.paths:
             return [v[key] for v in self.values]
-        return [s.get(key, float("nan")) if s else float("nan") for s in self.summaries]
+        return [flatten(s).get(key, float("nan")) if s else float("nan") for s in self.summaries]
 
 
 def _prefix_problems(problems: list[str], source: str, label: str) -> list[str]:
@@ -136,7 +151,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
                progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
                table_stem: str = "sweep", table_attrs: Mapping[str, Any] | None = None,
                manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None,
-               derived: Sequence[str] = ()) -> SweepResult:
+               derived: Sequence[str] = (), first_check: Callable[[Mapping[str, Any], str], None] | None = None
+               ) -> SweepResult:
     """Run the points of a sweep or a tolerance run into ``out``; compute only those it lacks.
 
     Parameters
@@ -151,8 +167,9 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
     manifest_table : the [sweep] or [spread] table, recorded in the manifest
     finish : called with the result while the folder is still locked (plots, statistics)
-    derived : further files made from the table (removed at the start with the table, written by
-        ``finish``)
+    derived : further files made from the table (removed at the start with the table, written by ``finish``)
+    first_check : checks the figures a table names on a first summary before the folder is touched
+        (ConfigError); ``points.first_point`` says which summary (a point it runs is not run again)
 
     Raises
     ------
@@ -170,17 +187,18 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     previous = store.check_folder(out, kind, hashed, base.source)
     hash_ = store.config_hash(hashed)
     notes: list[str] = []
+    early = first_point(first_check, kind, base, raws, texts, values, out, hash_, progress) if first_check else None
     created = not out.exists()
     store.make_points_folder(out)
     with _folder_errors(out, kind, len(values), previous, created), store.folder_lock(out):
         store.reset_folder(out, table_stem, derived)
         store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
         summaries, todo = store.found_points(out, values, hash_)
-        pending = set(todo)
-        reused = [i for i in range(len(values)) if i not in pending]
-        tasks = _point_tasks(kind, base, raws, texts, values, todo, out, hash_, backend)
+        reused = [i for i in range(len(values)) if i not in set(todo)]
         failed: dict[int, str] = {}
         seconds: dict[int, float] = {}
+        tasks = point_tasks(kind, base, raws, texts, values, keep_first(early, todo, summaries, failed, seconds),
+                            out, hash_, backend)                # keep_first: the point the check ran
         used = 0
         attrs = {"config": base.text, "config_hash": hash_, "source": base.source,
                  "paths": json.dumps(paths), **(table_attrs or {})}
@@ -193,7 +211,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
         if tasks:
             try:
                 used = _run(tasks, summaries, failed, seconds, backend, jobs, scheduler, per_point, out,
-                            progress, timeout_s, len(values), len(reused), kind, notes)
+                            progress, timeout_s, len(values), len(values) - len(tasks), kind, notes)
             except (KeyboardInterrupt, OutputError, WorkerLost) as exc:
                 # points a worker finished while the news was on its way: in the folder, so in the table
                 store.collect_late_points(out, todo, values, hash_, summaries, failed)
@@ -218,15 +236,6 @@ def _check_options(backend: str, jobs: int | None, scheduler: str | None) -> Non
         raise ValueError("a scheduler address needs the dask backend")
     if jobs is not None and jobs < 1:
         raise ValueError(f"jobs must be 1 or more, not {jobs}")
-
-
-def _point_tasks(kind: str, base: Config, raws: list[dict], texts: list[str], values: Sequence[Mapping[str, Any]],
-                 todo: list[int], out: Path, hash_: str, backend: str) -> list[PointTask]:
-    """What the workers get for the points ``todo``: each point's config and the file to write."""
-    # absolute paths: workers on other machines have working directories of their own
-    return [PointTask(i, raws[i], texts[i], base.source, str(store.point_path(out.absolute(), i)),
-                      store.point_attrs(kind, i, values[i], hash_),
-                      parent_pid=os.getpid() if backend == "loky" else 0) for i in todo]
 
 
 @contextmanager
@@ -381,15 +390,24 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
     paths, values = sweep_points(table)
     out = Path(out) if out is not None else default_folder(base, "sweep")
     combine = table.get("combine", "grid")
+    figures = list(table.get("figures", []))
+    named = [(f"sweep.figures[{j}] = {path}", path) for j, path in enumerate(figures)]
+    problems = [f"{base.source}: {label}: {problem}" for label, path in named
+                if (problem := check_before_run(path, base))]
+    if problems:
+        raise ConfigError(problems)
 
     def finish(result: SweepResult) -> None:
+        result.figures = figures
         if plots:
             from ampmodel.plots.sweep import plot_sweep
-            result.plots = plot_sweep(result, combine, out / "plots")
+            shown = dataclasses.replace(result, summaries=with_figures(result.summaries, figures))
+            result.plots = plot_sweep(shown, combine, out / "plots")
 
     return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                       progress=progress, timeout_s=timeout_s, table_stem="sweep",
-                      table_attrs={"combine": combine}, manifest_table=table, finish=finish)
+                      table_attrs={"combine": combine}, manifest_table=table, finish=finish,
+                      first_check=figure_check(named, base.source) if named else None)
 
 
 # ----------------------------------------------------------------------------------------------

@@ -1,4 +1,6 @@
-"""Sizing to a target: against the analytic inverse of Frantz–Nodvik, out of reach, limits crossed first.
+"""Sizing to a target: against the analytic inverse of Frantz–Nodvik, out of reach, limits crossed first;
+figure paths (a per-step limit that binds, checked against scipy.optimize.brentq on the model run
+directly), the tolerances, and bad input reported at once.
 
 Reference: L. M. Frantz and J. S. Nodvik, J. Appl. Phys. 34, 2346 (1963). For a flat beam (every
 lit pixel carries the same fluence) through a uniform gain without loss, each pixel's output fluence
@@ -20,7 +22,8 @@ import numpy as np
 import pytest
 from scipy.constants import c as LIGHT_SPEED
 from scipy.constants import h as PLANCK
-from sweep_helpers import ampmodel
+from scipy.optimize import brentq
+from sweep_helpers import ampmodel, write_config
 
 import ampmodel as api
 
@@ -171,3 +174,116 @@ def test_bad_sizing_input_is_exit_2(flat, tmp_path, args, text):
     proc = ampmodel("size", str(flat), *extra, "--quiet", cwd=tmp_path)
     assert proc.returncode == 2, (proc.stdout, proc.stderr)
     assert text in proc.stderr and "Traceback" not in proc.stderr
+
+
+# --- figure paths, a per-step limit, rtol ---------------------------------------------------------------
+
+GAIN = "medium.rod.small_signal_gain"
+
+
+def _run_at(config, g: float) -> dict:
+    """The summary of the two-pass layout at small-signal gain ``g`` (a run of its own, not through size)."""
+    return api.simulate(api.load_config(config, [f"{GAIN}={g!r}"]), progress=False).summary
+
+
+@pytest.fixture
+def two_pass(tmp_path):
+    """sweep_helpers' rod: a pass, a 90 % loss, the pass back (steps 0, 1, 2)."""
+    return write_config(tmp_path, "")
+
+
+def test_a_per_step_limit_binds_before_the_output_reaches_the_target(two_pass, tmp_path):
+    """The first pass's fluence (steps.0) reaches its limit before the output reaches the target: the
+    answer is where that step's fluence meets the limit, checked against brentq on a function that
+    runs the model and reads the step's fluence itself."""
+    target = ("output_energy_J", 0.12)
+    free = api.size_to_target(two_pass, target, GAIN, (2, 30))
+    assert free.status == "ok", free.message
+    limit = 0.8 * free.summary["steps"][0]["peak_fluence_J_cm2"]
+    last_pass = free.summary["steps"][2]["peak_fluence_J_cm2"]
+    r = api.size_to_target(two_pass, target, GAIN, (2, 30),
+                           [f"steps.0.peak_fluence_J_cm2<={limit!r}", f"peak_fluence_J_cm2<={2 * last_pass!r}"])
+    assert r.status == "limited" and r.limiting.figure == "steps.0.peak_fluence_J_cm2", r.message
+    ref = brentq(lambda g: _run_at(two_pass, g)["steps"][0]["peak_fluence_J_cm2"] - limit, 2, free.value,
+                 xtol=1e-14, rtol=1e-14)
+    assert abs(r.value - ref) <= r.xtol + r.rtol * abs(r.value) + 1e-14 + 1e-14 * abs(ref)
+    assert r.summary["steps"][0]["peak_fluence_J_cm2"] == pytest.approx(limit, rel=1e-6)
+    assert r.summary["output_energy_J"] < target[1]
+    margins = {m["figure"]: m for m in r.margins}
+    assert margins["peak_fluence_J_cm2"]["margin"] > 0                      # the top-level limit holds there
+    out = tmp_path / "answer"
+    proc = ampmodel("size", str(two_pass), "--target", "output_energy_J=0.12", "--vary", GAIN, "--within", "2,30",
+                    "--limit", f"steps.0.peak_fluence_J_cm2<={limit!r}", "--quiet", "--out", str(out), cwd=tmp_path)
+    assert proc.returncode == 3, proc.stderr
+    assert "steps.0.peak_fluence_J_cm2 reaches" in proc.stdout and "met (binding)" in proc.stdout
+    saved = json.loads((out / "size.json").read_text())
+    assert saved["limits"] == [f"steps.0.peak_fluence_J_cm2<={limit:g}"]
+    assert saved["figures"]["steps.0.peak_fluence_J_cm2"] == pytest.approx(limit, rel=1e-6)
+    assert saved["figures"]["output_energy_J"] == saved["summary"]["output_energy_J"]
+
+
+def test_rtol_sets_the_bracket_of_the_answer(two_pass, tmp_path):
+    """brentq stops when the bracket is below xtol + rtol·|x|: the answer is that close to the crossing
+    (brentq on the test's own function gives the crossing); a larger rtol takes fewer runs."""
+    target = 0.12
+    ref = brentq(lambda g: _run_at(two_pass, g)["output_energy_J"] - target, 2, 30, xtol=1e-14, rtol=1e-14)
+    fine = api.size_to_target(two_pass, ("output_energy_J", target), GAIN, (2, 30))
+    coarse = api.size_to_target(two_pass, ("output_energy_J", target), GAIN, (2, 30), xtol=1e-12, rtol=1e-3)
+    slack = 1e-14 + 1e-14 * abs(ref)
+    assert fine.rtol == 1e-10 and abs(fine.value - ref) <= fine.xtol + 1e-10 * abs(fine.value) + slack
+    assert coarse.rtol == 1e-3 and abs(coarse.value - ref) <= 1e-12 + 1e-3 * abs(coarse.value) + slack
+    assert len(coarse.evaluations) < len(fine.evaluations)
+    out = tmp_path / "coarse"
+    proc = ampmodel("size", str(two_pass), "--target", f"output_energy_J={target}", "--vary", GAIN,
+                    "--within", "2,30", "--rtol", "1e-3", "--xtol", "1e-12", "--quiet", "--out", str(out),
+                    cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    saved = json.loads((out / "size.json").read_text())
+    assert saved["rtol"] == 1e-3 and saved["xtol"] == 1e-12 and saved["value"] == coarse.value
+    assert "rtol 0.001" in proc.stdout
+
+
+def test_every_bad_option_is_reported_at_once_and_nothing_is_written(two_pass, tmp_path):
+    out = tmp_path / "never"
+    proc = ampmodel("size", str(two_pass), "--target", "steps.7.peak_fluence_J_cm2=1", "--vary",
+                    "medium.rod.small_signal_gian", "--within", "50,2", "--limit", "media.rdo.stored_energy_J<=3",
+                    "--limit", "gain=>3", "--xtol", "-1", "--rtol", "1e-20", "--set", "seed.energy_J=-1",
+                    "--out", str(out), cwd=tmp_path)
+    assert proc.returncode == 2, proc.stdout
+    lines = proc.stderr.strip().splitlines()
+    assert lines[-1] == "8 problems in the input; nothing was run or written."
+    expected = ["seed.energy_J = -1: out of range",
+                "--target steps.7.peak_fluence_J_cm2=1: the config has steps 0 to 2, not step 7",
+                "--vary medium.rod.small_signal_gian: not a value of this config; did you mean "
+                "'medium.rod.small_signal_gain'?",
+                "--within 50,2: the low end must come first",
+                "--limit media.rdo.stored_energy_J<=3: no medium 'rdo' in the config; did you mean 'rod'?",
+                "--limit gain=>3: expected FIGURE<=VALUE",
+                "--xtol -1.0: must be a finite number > 0",
+                "--rtol 1e-20: must be at least 4 x machine epsilon"]
+    for text in expected:                                 # each on its own line, naming the config
+        assert sum(text in line and line.startswith(f"{two_pass}: ") for line in lines[:-1]) == 1, text
+    assert proc.stdout == "" and not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["rod.toml"]
+
+
+def test_a_figure_the_first_run_lacks_is_bad_input_after_one_run(two_pass, tmp_path):
+    """steps.0.round_trip_count passes the checks made before a run (a repeat step has it) but a pass
+    step has no such figure: the first run's summary says so, before the search spends more runs."""
+    out = tmp_path / "never"
+    proc = ampmodel("size", str(two_pass), "--target", "steps.2.energy_out_J=0.1", "--vary", GAIN,
+                    "--within", "2,30", "--limit", "steps.0.round_trip_count<=3", "--limit", "b_integral_rad<=1",
+                    "--out", str(out), cwd=tmp_path)
+    assert proc.returncode == 2, proc.stderr
+    assert proc.stdout.count(f"  {GAIN} = ") == 1                         # one run, at the low end
+    assert (f"{two_pass}: --limit steps.0.round_trip_count<=3: steps.0.round_trip_count is not a figure of the run "
+            f"at {GAIN} = 2: steps.0 has no figure 'round_trip_count'") in proc.stderr
+    assert "1 problem in the input" in proc.stderr and not out.exists()
+
+
+def test_a_step_figure_as_the_target(two_pass):
+    """The target may be any figure: the energy after the loss step (steps.1.energy_out_J)."""
+    r = api.size_to_target(two_pass, "steps.1.energy_out_J=0.03", GAIN, "2,30")
+    assert r.status == "ok", r.message
+    assert r.summary["steps"][1]["energy_out_J"] == pytest.approx(0.03, rel=1e-9)
+    assert r.figures() == {"steps.1.energy_out_J": r.summary["steps"][1]["energy_out_J"]}

@@ -367,3 +367,96 @@ def test_a_failed_point_is_listed_kept_out_of_the_table_and_retried(tmp_path):
         assert sorted(f["points"]) == ["0001"]
     again = api.run_sweep(config, out, jobs=1, plots=False, overrides=sets[1::2])
     assert again.computed == [] and sorted(again.failed) == [0] and again.reused == [1]
+
+
+# --- every figure in the table, named figures ---------------------------------------------------------
+
+SMALL_GRID = """
+[sweep]
+"seed.energy_J" = [0.002, 0.005]
+"medium.rod.small_signal_gain" = [4.0, 8.0]
+"""
+
+
+def test_the_table_holds_every_figure_by_its_path_and_named_ones_are_plotted(tmp_path):
+    config = write_config(tmp_path, SMALL_GRID + 'figures = ["steps.2.peak_fluence_J_cm2"]\n')
+    out = tmp_path / "out"
+    proc = ampmodel("sweep", str(config), "--out", str(out), "--jobs", "1", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    header = proc.stdout.splitlines()[2]
+    assert header.split()[-2:] == ["steps.2.peak_fluence_J_cm2", "warnings"]        # in the printed table
+    with h5py.File(out / "sweep.h5", "r") as f:
+        names = set(f["summary"])
+        fluence = f["summary/steps.2.peak_fluence_J_cm2"]
+        assert fluence.attrs["units"] == "J/cm^2"
+        fluence = fluence[()]
+        stored = f["summary/media.rod.stored_energy_J"][()]
+        assert f["summary/output_energy_J"].attrs["units"] == "J"                     # top level as before
+    assert {"steps.0.energy_out_J", "steps.1.passive_loss_J", "seed_beam.fill_factor"} <= names
+    assert not any(n.endswith(".index") for n in names)
+    for i in range(4):
+        summary = json.loads(read_hdf5(out / "points" / f"{i:04d}.h5")["attrs"]["summary"])
+        assert fluence[i] == summary["steps"][2]["peak_fluence_J_cm2"]
+        assert stored[i] == summary["media"][0]["stored_energy_J"]
+    rows = read_csv(out / "sweep.csv")
+    columns = list(rows[0])
+    # the top-level columns keep their place; the figures by path come after warning_count
+    assert columns.index("warning_count") < columns.index("steps.0.energy_out_J")
+    assert columns.index("output_energy_J") < columns.index("warning_count")
+    assert (out / "plots" / "steps.2.peak_fluence_J_cm2.png").is_file()
+    assert not (out / "plots" / "steps.0.energy_out_J.png").exists()                  # not named
+    result = api.run_sweep(config, out, plots=False)
+    assert result.column("steps.2.peak_fluence_J_cm2") == list(fluence)
+
+
+def test_a_resumed_sweep_reads_older_point_files_for_their_own_figures(tmp_path):
+    """Point files of an earlier version, whose summaries lack the steps and media: the table has
+    their figures where their summaries have them (NaN elsewhere); a named figure their summaries lack
+    is checked on a point still to compute, run first."""
+    config = write_config(tmp_path, SMALL_GRID)
+    out = tmp_path / "out"
+    api.run_sweep(config, out, jobs=1, plots=False)
+    with h5py.File(out / "points" / "0000.h5", "a") as f:
+        older = json.loads(f.attrs["summary"])
+        for key in ("steps", "media", "seed_beam"):
+            del older[key]
+        f.attrs["summary"] = json.dumps(older)
+    (out / "points" / "0003.h5").unlink()
+    config.write_text(config.read_text() + 'figures = ["steps.2.peak_fluence_J_cm2"]\n')
+    result = api.run_sweep(config, out, jobs=1, plots=False)
+    assert result.computed == [3] and result.reused == [0, 1, 2]
+    with h5py.File(out / "sweep.h5", "r") as f:
+        fluence = f["summary/steps.2.peak_fluence_J_cm2"][()]
+        energy = f["summary/output_energy_J"][()]
+    assert np.isnan(fluence[0]) and np.all(np.isfinite(fluence[1:]))
+    assert energy[0] == older["output_energy_J"]
+    point = json.loads(read_hdf5(out / "points" / "0003.h5")["attrs"]["summary"])
+    assert fluence[3] == point["steps"][2]["peak_fluence_J_cm2"]
+    # a named figure the oldest point lacks, points left to compute: the first of them runs first
+    config.write_text(config.read_text().replace("steps.2.peak_fluence_J_cm2", "steps.2.b_integral_rad"))
+    for name in ("0001.h5", "0002.h5", "0003.h5"):
+        (out / "points" / name).unlink()
+    proc = ampmodel("sweep", str(config), "--out", str(out), "--jobs", "1", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert "computed 3, found 1 already done" in proc.stdout
+    assert "point 0001 first, to check the figures the table names" in proc.stderr
+    # every point done and the first lacks a named figure: bad input, the table left as it was
+    config.write_text(config.read_text().replace("steps.2.b_integral_rad", "media.rod.stored_energy_J"))
+    before = (out / "sweep.csv").read_bytes()
+    proc = ampmodel("sweep", str(config), "--out", str(out), "--jobs", "1", cwd=tmp_path)
+    assert proc.returncode == 2
+    assert ("sweep.figures[0] = media.rod.stored_energy_J: media.rod.stored_energy_J is not a figure of point "
+            "0000: summary.json has no media") in proc.stderr
+    assert (out / "sweep.csv").read_bytes() == before                         # nothing lost
+
+
+def test_an_unknown_figure_in_the_sweep_table_is_bad_input(tmp_path):
+    config = write_config(tmp_path, SMALL_GRID + 'figures = ["steps.2.peak_fluence_J_cm", "media.rdo.gain_dB"]\n')
+    proc = ampmodel("sweep", str(config), "--out", str(tmp_path / "o"), cwd=tmp_path)
+    assert proc.returncode == 2
+    lines = proc.stderr.splitlines()
+    assert lines[-1] == "2 problems in the input; nothing was run or written."
+    assert "sweep.figures[0] = steps.2.peak_fluence_J_cm: a step has no figure 'peak_fluence_J_cm'; did you mean " \
+           "'peak_fluence_J_cm2'?" in lines[0]
+    assert "sweep.figures[1] = media.rdo.gain_dB: no medium 'rdo' in the config; did you mean 'rod'?" in lines[1]
+    assert not (tmp_path / "o").exists()
