@@ -43,6 +43,7 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
     "top": _names("""
         absorbed_pump_power_W ase_backward_W ase_forward_W average_power_W b_integral_rad cw_damping_final
         cw_iterations cw_residual energy_balance_error extracted_energy_J extracted_power_W extraction_efficiency
+        b_integral_margin output_duration_ns
         gain gain_dB input_energy_J input_power_W layout_time_ns lost_energy_J lost_power_W noise_figure_dB
         optical_efficiency output_bandwidth_nm output_centre_nm output_energy_J output_peak_power_W
         output_power_W output_pulse_duration_ns output_transform_limit_ps peak_fluence_J_cm2
@@ -54,7 +55,8 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
         d4sigma_x_mm d4sigma_y_mm damage_margin delay_ns edge_absorbed_energy_J energy_in_J energy_out_J
         extracted_energy_J extracted_power_W fill_factor gain gain_dB max_count modulation_peak_to_mean
         passive_loss_J passive_loss_W peak_fluence_J_cm2 peak_intensity_W_cm2 peak_power_W power_in_W
-        power_out_W round_trip_count round_trip_ns"""),
+        power_out_W round_trip_count round_trip_ns peak_fluence_in_J_cm2 damage_fluence_J_cm2 b_integral_margin
+        output_duration_ns"""),
     "medium": _names("""
         absorbed_pump_energy_J absorbed_pump_fraction absorbed_pump_photons_per_s absorbed_pump_power_W
         ase_backward_W ase_forward_W b_integral_rad critical_power_W decayed_energy_J effective_length_m
@@ -71,7 +73,8 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
         average_power_W decay_power_W direct_pulse_energy_J energy_balance_error extracted_power_W
         fixed_point_pulse_evaluations fixed_point_residual input_average_power_W layout_time_s period_s
         pulse_energy_J pulses_to_steady_state pump_stored_power_W repetition_rate_Hz
-        stored_energy_before_pulse_J tolerance"""),
+        stored_energy_before_pulse_J tolerance fixed_point_pulse_energy_J cycle_length pulse_energy_mean_J
+        cycle_fixed_point_evaluations cycle_fixed_point_residual"""),
     "seed_beam": _names("d4sigma_x_mm d4sigma_y_mm fill_factor modulation_peak_to_mean"),
 }
 

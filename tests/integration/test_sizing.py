@@ -287,3 +287,80 @@ def test_a_step_figure_as_the_target(two_pass):
     assert r.status == "ok", r.message
     assert r.summary["steps"][1]["energy_out_J"] == pytest.approx(0.03, rel=1e-9)
     assert r.figures() == {"steps.1.energy_out_J": r.summary["steps"][1]["energy_out_J"]}
+
+
+CHAIN = """\
+title = "two-stage Nd:YAG chain, relayed"
+
+[grid]
+points = 48
+width_mm = 12.0
+time_slices = 8
+
+[[medium]]
+name = "rod1"
+material = "Nd:YAG"             # damage fluence 10 J/cm² quoted at 10 ns (built-in, an estimate)
+length_mm = 80.0
+diameter_mm = 9.0
+slices = 4
+small_signal_gain = 4.0
+
+[[medium]]
+name = "rod2"
+material = "Nd:YAG"
+length_mm = 80.0
+diameter_mm = 9.0
+slices = 4
+small_signal_gain = 2.0
+
+[seed]
+energy_J = 0.01
+duration_ns = 10.0
+shape = "gaussian"
+profile = "gaussian"
+diameter_mm = 6.0
+
+[[step]]
+kind = "pass"
+medium = "rod1"
+
+[[step]]
+kind = "relay"                  # demagnifies onto rod2; its coating is the weakest surface
+magnification = 0.7
+damage_fluence_J_cm2 = 6.0
+damage_pulse_ns = 10.0
+
+[[step]]
+kind = "pass"
+medium = "rod2"
+"""
+
+
+def test_sizing_stops_where_the_first_optic_reaches_half_its_damage_fluence(tmp_path):
+    """``--limit worst_damage_margin<=0.5`` on a relayed two-stage chain: the relay's coating (6 J/cm²)
+    reaches half its damage fluence before rod2 (10 J/cm²), though rod2 carries the larger fluence.
+    The answer is where the relay's margin is 0.5, checked against brentq on the model run directly;
+    every surface is below half its damage fluence just before it."""
+    path = tmp_path / "chain.toml"
+    path.write_text(CHAIN)
+    vary = "seed.energy_J"
+
+    def run(e: float) -> dict:
+        return api.simulate(api.load_config(path, [f"{vary}={e!r}"]), progress=False).summary
+
+    r = api.size_to_target(path, ("output_energy_J", 1.2), vary, (0.01, 1.0), ["worst_damage_margin<=0.5"])
+    assert r.status == "limited" and r.limiting.figure == "worst_damage_margin", r.message
+    s = r.summary
+    assert s["worst_damage_margin"] == pytest.approx(0.5, rel=1e-6)
+    assert s["worst_damage_step"] == "step 1 (relay)"
+    relay, rod2 = s["steps"][1], s["steps"][2]
+    assert relay["peak_fluence_J_cm2"] == pytest.approx(0.5 * relay["damage_fluence_J_cm2"], rel=1e-6)
+    assert rod2["peak_fluence_J_cm2"] > relay["peak_fluence_J_cm2"] and rod2["damage_margin"] < 0.5
+    ref = brentq(lambda e: run(e)["steps"][1]["damage_margin"] - 0.5, 0.01, 1.0, xtol=1e-14, rtol=1e-14)
+    assert abs(r.value - ref) <= r.xtol + r.rtol * abs(r.value) + 1e-14 + 1e-14 * abs(ref)
+    below = run(r.value * (1 - 1e-3))
+    assert all(e["damage_margin"] is None or e["damage_margin"] < 0.5 for e in below["steps"])
+    proc = ampmodel("size", str(path), "--target", "output_energy_J=1.2", "--vary", vary, "--within", "0.01,1",
+                    "--limit", "worst_damage_margin<=0.5", "--quiet", cwd=tmp_path)
+    assert proc.returncode == 3, proc.stderr
+    assert "worst_damage_margin reaches 0.5" in proc.stdout and "met (binding)" in proc.stdout

@@ -48,6 +48,19 @@ def test_sweep_reports_and_writes_the_folder(swept):
     assert not list(out.rglob("*.part"))
 
 
+def test_notes_are_not_counted_as_warnings(swept):
+    """Every point gives notes (self-focusing far off, few time slices) and no warning: the table's
+    warning_count is 0 everywhere and the report names no point "with warnings"."""
+    _, out, proc = swept
+    rows = read_csv(out / "sweep.csv")
+    assert [r["warning_count"] for r in rows] == ["0"] * 8
+    for i in range(8):
+        summary = json.loads(read_hdf5(out / "points" / f"{i:04d}.h5")["attrs"]["summary"])
+        assert summary["warnings"] == [] and {n["code"] for n in summary["notices"]} == {"self-focusing", "time-slices"}
+        assert all(n["severity"] == "note" for n in summary["notices"])
+    assert "warnings at" not in proc.stdout
+
+
 def test_every_point_equals_the_single_run_with_set(swept, tmp_path):
     config, out, _ = swept
     for i, (energy, gain) in enumerate(EXPECTED_4x2):
