@@ -7,9 +7,11 @@ Warning thresholds are common practice; each can be changed in the config's [lim
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
+from ampmodel.description import step_label
 from ampmodel.notices import warning
 
 J_CM2 = 1e-4   # J/m² -> J/cm²
@@ -95,3 +97,17 @@ def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray)
     left = wl[i] - (e[i] - half) / (e[i] - e[i - 1]) * step if i > 0 else wl[0]
     right = wl[j] + (e[j] - half) / (e[j] - e[j + 1]) * step if j < e.size - 1 else wl[-1]
     return centre, float(right - left)
+
+
+def worst_damage(config: Any, steps: list[dict[str, Any]]) -> dict[str, Any]:
+    """``worst_damage_margin`` (the largest ``damage_margin`` of any step, a repeat's inner steps
+    included; None where no surface has damage data; ``config`` a Config) and ``worst_damage_step`` (its label)."""
+    worst, where = None, None
+    for entry in steps:
+        inner = [(entry, None)] + [(e, entry["index"]) for e in entry.get("steps", [])]
+        for e, outer in inner:
+            margin = e.get("damage_margin")
+            if margin is not None and (worst is None or margin > worst):
+                index = (outer, e["index"]) if outer is not None else (e["index"],)
+                worst, where = margin, step_label(config.steps, *index)
+    return {"worst_damage_margin": worst, "worst_damage_step": where}

@@ -15,7 +15,7 @@ import numpy as np
 from ampmodel.cw.medium import CwMedium
 from ampmodel.cw.steady_state import Sweep
 from ampmodel.description import Config, step_label
-from ampmodel.diagnostics import W_CM2, seed_grid_warnings, transverse_gain_warnings
+from ampmodel.diagnostics import W_CM2, seed_grid_warnings, transverse_gain_warnings, worst_damage
 from ampmodel.media import gain_maps
 from ampmodel.notices import warning
 from ampmodel.output.result import MediumRecord
@@ -86,6 +86,7 @@ def summarise(config: Config, seed: np.ndarray, sweep: Sweep, states: dict[str, 
     summary.update({
         "peak_intensity_W_cm2": peak * W_CM2,
         "b_integral_rad": 0.0,
+        **worst_damage(config, steps),
         "power_balance_error": balance,
         "energy_balance_error": balance,
         "cw_iterations": sweep.iterations,
@@ -163,6 +164,8 @@ def _step_entries(config: Config, sweep: Sweep, peak: float,
             damage, what = mat.damage_intensity_W_m2, mat.name
         elif step.damage_intensity_W_m2:
             damage, what = step.damage_intensity_W_m2, "this optic"
+        entry["damage_intensity_W_cm2"] = damage * W_CM2 if damage else None
+        entry["damage_margin"] = oc.peak_intensity_W_m2 / damage if damage else None
         if damage and oc.peak_intensity_W_m2 > limits.damage_fraction * damage:
             warnings.append(warning("damage-intensity", f"{label}: peak intensity {oc.peak_intensity_W_m2 * W_CM2:.3g} "
                                     f"W/cm² is above {100 * limits.damage_fraction:g} % of the cw damage intensity of "

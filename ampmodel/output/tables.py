@@ -37,11 +37,14 @@ def media_lines(summary: dict) -> list[str]:
 def cw_table_lines(summary: dict) -> list[str]:
     """The steps of a cw run in power, and its totals."""
     out: list[str] = []
-    out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {'power in':>11} {'power out':>11} {'gain':>8} {'peak W/cm²':>10}")
+    out.append(f"{'step':>4}  {'kind':<8} {'medium':<10} {'power in':>11} {'power out':>11} {'gain':>8} {'peak W/cm²':>10} "
+               f"{'damage':>6}")
     for s in summary["steps"]:
         kind = s["kind"] + (" rev" if s.get("reverse") else "")
+        margin = s.get("damage_margin")
         out.append(f"{s['index']:>4}  {kind:<8} {(s['medium'] or ''):<10} {quantity_text(s['power_in_W'], 'W'):>11} "
-                   f"{quantity_text(s['power_out_W'], 'W'):>11} {s['gain']:>8.4g} {s['peak_intensity_W_cm2']:>10.3g}")
+                   f"{quantity_text(s['power_out_W'], 'W'):>11} {s['gain']:>8.4g} {s['peak_intensity_W_cm2']:>10.3g} "
+                   f"{'-' if margin is None else f'{margin:.2f}':>6}")
     line = (f"input {quantity_text(summary['input_power_W'], 'W')} -> output {quantity_text(summary['output_power_W'], 'W')} "
             f"(gain {summary['gain']:.4g})")
     if "optical_efficiency" in summary:
@@ -50,6 +53,7 @@ def cw_table_lines(summary: dict) -> list[str]:
     out.append(line)
     out.append(f"peak intensity {summary['peak_intensity_W_cm2']:.3g} W/cm², steady state after {summary['cw_iterations']} "
                f"sweeps (residual {summary['cw_residual']:.1e}), power balance error {summary['power_balance_error']:.1e}")
+    out.append(damage_line(summary))
     return out
 
 
@@ -135,11 +139,13 @@ def damage_line(summary: dict) -> str:
     """The worst damage margin (peak fluence over the scaled damage fluence) and where, and the
     B-integral against its budget."""
     worst = summary.get("worst_damage_margin")
-    line = ("damage margin: no damage fluence known for the surfaces the beam meets" if worst is None else
-            f"damage margin: worst {worst:.2g} of the damage fluence, at {summary['worst_damage_step']}")
+    what = "damage intensity" if summary["mode"] == "cw" else "damage fluence"
+    line = (f"damage margin: no surface the beam meets has a {what}" if worst is None else
+            f"damage margin (peak {'intensity over the damage intensity' if summary['mode'] == 'cw' else 'fluence over the scaled damage fluence'}; each step's in the table): worst "
+            f"{worst:.2g}, at {summary['worst_damage_step']}")
     if summary.get("b_integral_margin") is not None:
-        line += f"; B-integral {summary['b_integral_margin']:.2g} of its budget"
-    return line + " (the step table's damage column: each step's)"
+        line += f"; B-integral at {summary['b_integral_margin']:.2g} of its budget"
+    return line
 
 
 def notes_lines(summary: dict) -> list[str]:

@@ -141,10 +141,15 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
     out_e = after[-1] if after.size else seed_e
     out_name = f"output after step {result.steps[-1].index}" if result.steps else "output"
     ax.plot(t / tf, seed / pf, color=SEED_COLOUR, label=f"seed, {seed_e / eu[0]:.3g} {eu[1]}", **kw)
+    figures = ""
+    if result.summary.get("output_duration_ns") is not None and result.summary.get("output_peak_power_W"):
+        peak = result.summary["output_peak_power_W"]
+        figures = (f"; FWHM {result.summary['output_duration_ns'] * 1e-9 / tf:.3g} {tu}, true peak "
+                   f"{peak / unit_prefix(peak, POWER_UNITS)[0]:.3g} {unit_prefix(peak, POWER_UNITS)[1]}")
     ax.plot(t / tf, out / pf, color=OUTPUT_COLOUR, linestyle="--",
-            label=f"{out_name}, {out_e / eu[0]:.3g} {eu[1]}", **kw)
+            label=f"{out_name}, {out_e / eu[0]:.3g} {eu[1]}{figures}", **kw)
     ax.set_ylabel(f"power ({pu})")
-    ax.set_ylim(bottom=0, top=max(ps, po) / pf * 1.1 if max(ps, po) > 0 else 1.0)
+    ax.set_ylim(bottom=0, top=max(ps, po) / pf * 1.3 if max(ps, po) > 0 else 1.0)   # room for the legend
     ax.set_title("Pulse power of the whole beam (mean over each time slice)")
     ax.grid(True, alpha=0.3)
     ax.legend(loc="upper right", fontsize="small")

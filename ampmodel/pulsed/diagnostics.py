@@ -21,6 +21,7 @@ from ampmodel.diagnostics import (
     scaled_damage_fluence,
     seed_grid_warnings,
     transverse_gain_warnings,
+    worst_damage,
 )
 from ampmodel.kernels.diffraction import critical_power_W, self_focusing_length_m
 from ampmodel.kernels.pulse_shape import true_peak_map
@@ -105,20 +106,6 @@ def damage_check(config: Config, step: Step, oc: StepOutcome) -> dict[str, Any] 
     fluence = max(oc.peak_fluence_J_m2, oc.peak_fluence_in_J_m2)
     return {"fluence": fluence, "damage": damage, "quoted": quoted, "scaled": scaled, "what": what,
             "pulse": pulse_s, "margin": fluence / scaled}
-
-
-def worst_damage(config: Config, steps: list[dict[str, Any]]) -> dict[str, Any]:
-    """``worst_damage_margin`` (the largest ``damage_margin`` of any step, a repeat's inner steps
-    included; None where no surface has a damage fluence) and ``worst_damage_step`` (its label)."""
-    worst, where = None, None
-    for entry in steps:
-        inner = [(entry, None)] + [(e, entry["index"]) for e in entry.get("steps", [])]
-        for e, outer in inner:
-            margin = e.get("damage_margin")
-            if margin is not None and (worst is None or margin > worst):
-                index = (outer, e["index"]) if outer is not None else (e["index"],)
-                worst, where = margin, step_label(config.steps, *index)
-    return {"worst_damage_margin": worst, "worst_damage_step": where}
 
 
 def _step_warnings(config: Config, step: Step, oc: StepOutcome, label: str) -> list[str]:

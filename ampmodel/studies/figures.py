@@ -55,7 +55,8 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
         d4sigma_x_mm d4sigma_y_mm damage_margin delay_ns edge_absorbed_energy_J energy_in_J energy_out_J
         extracted_energy_J extracted_power_W fill_factor gain gain_dB max_count modulation_peak_to_mean
         passive_loss_J passive_loss_W peak_fluence_J_cm2 peak_intensity_W_cm2 peak_power_W power_in_W
-        power_out_W round_trip_count round_trip_ns peak_fluence_in_J_cm2 damage_fluence_J_cm2 b_integral_margin
+        power_out_W round_trip_count round_trip_ns peak_fluence_in_J_cm2 damage_fluence_J_cm2 damage_intensity_W_cm2
+        b_integral_margin
         output_duration_ns"""),
     "medium": _names("""
         absorbed_pump_energy_J absorbed_pump_fraction absorbed_pump_photons_per_s absorbed_pump_power_W

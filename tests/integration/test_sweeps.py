@@ -470,6 +470,6 @@ def test_an_unknown_figure_in_the_sweep_table_is_bad_input(tmp_path):
     lines = proc.stderr.splitlines()
     assert lines[-1] == "2 problems in the input; nothing was run or written."
     assert "sweep.figures[0] = steps.2.peak_fluence_J_cm: a step has no figure 'peak_fluence_J_cm'; did you mean " \
-           "'peak_fluence_J_cm2'?" in lines[0]
+           "'peak_fluence_J_cm2'" in lines[0]
     assert "sweep.figures[1] = media.rdo.gain_dB: no medium 'rdo' in the config; did you mean 'rod'?" in lines[1]
     assert not (tmp_path / "o").exists()

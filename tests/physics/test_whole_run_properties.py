@@ -113,4 +113,7 @@ def test_absorbers_down_to_1e_minus_30(log_ratio, ln_loss):
     final = result.media["m"].gain_final_per_m
     initial = result.media["m"].gain_initial_per_m
     assert np.all(final >= initial - 1e-12 * np.abs(initial))
-    assert np.all(final <= 1e-12 * np.abs(initial).max())
+    # transparency to round-off: near it the kernel carries G = exp(ln G) close to 1, whose resolution
+    # is a few machine epsilons of ln G per slice (slice length 0.05 m / 3)
+    resolution = 8 * np.finfo(float).eps / (0.05 / 3)
+    assert np.all(final <= 1e-12 * np.abs(initial).max() + resolution)
