@@ -120,9 +120,3 @@ def settle(summary: dict[str, Any], mute: Iterable[str] = ()) -> dict[str, Any]:
     if "warnings" not in summary:
         out.update(sorted_out)
     return out
-
-
-def restore(summary: dict[str, Any]) -> list[Notice]:
-    """The notices of a summary that :func:`sort_out` wrote, as Notice objects again (a train or a
-    study that merges summaries keeps their codes)."""
-    return [Notice(n["code"], n["text"], n["severity"]) for n in summary.get("notices", [])]
