@@ -4,7 +4,8 @@ Public API: :func:`load_config` (a TOML file, or a dict, to a validated Config),
 (a Config to a Result; nothing written), :class:`Result` (``Result.summary``, ``Result.save``),
 :class:`ConfigError`; :func:`run_sweep` (the [sweep] table, in parallel, resumable),
 :func:`size_to_target` (the value of one parameter that reaches a target figure, under limits) and
-:func:`run_spread` (a tolerance run of the [spread] table, with percentiles).
+:func:`run_spread` (a tolerance run of the [spread] table, with percentiles) and :func:`fit_to_data`
+(config values fitted to measurements by least squares).
 
 The names are loaded on first use, so that ``ampmodel --help`` starts fast.
 """
@@ -13,7 +14,7 @@ from __future__ import annotations
 from ampmodel._version import __version__
 
 __all__ = ["__version__", "load_config", "simulate", "Result", "ConfigError", "run_sweep", "size_to_target",
-           "run_spread"]
+           "run_spread", "fit_to_data"]
 
 
 def __getattr__(name: str):
@@ -38,6 +39,9 @@ def __getattr__(name: str):
     if name == "run_spread":
         from ampmodel.studies.spread import run_spread
         return run_spread
+    if name == "fit_to_data":
+        from ampmodel.studies.fitting import fit_to_data
+        return fit_to_data
     raise AttributeError(f"module 'ampmodel' has no attribute {name!r}")
 
 

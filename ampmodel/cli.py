@@ -14,7 +14,8 @@ from ampmodel._version import __version__
 from ampmodel.output.tables import quantity_text, run_report_lines
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
-EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first
+EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first; fit: no
+                         # convergence, a value at an end of its range, or not determined by the data
 EXIT_BACKEND = 4         # sweep, spread: the dask cluster cannot be used (unreachable, no ampmodel there)
 EXIT_MISMATCH = 5        # rerun: the figures of the new run differ from the stored ones
 EXIT_CANNOT_WRITE = 6    # an output cannot be written: no permission, a full disk, a read-only file system
@@ -81,7 +82,31 @@ def _parser() -> argparse.ArgumentParser:
     e.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     e.add_argument("--quiet", action="store_true", help="no progress bar")
     _size_parser(sub)
+    _fit_parser(sub)
     return p
+
+
+def _fit_parser(sub) -> None:
+    """The options of ``fit``."""
+    f = sub.add_parser("fit", help="fit config values to measured data by least squares")
+    f.add_argument("config", help="the run config (TOML)")
+    f.add_argument("--data", metavar="DATA.csv", required=True,
+                   help="the measurements: columns of conditions (value paths), measured figures (figure paths) "
+                        "and optional sigma_<figure>")
+    f.add_argument("--vary", metavar="PATH=LOW,HIGH", action="append", default=[],
+                   help="a value to fit and its range, e.g. medium.rod.small_signal_gain=2,50; repeatable")
+    f.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
+                   help="change one value of the config first, like `run --set`")
+    f.add_argument("--out", metavar="DIR", help="output folder (default runs/<config stem>-fit; never "
+                                                "overwritten: -2, -3, ... is appended)")
+    f.add_argument("--jobs", metavar="N", type=int, help="worker processes for the rows (default: every core)")
+    f.add_argument("--backend", choices=("loky", "dask"), help="loky: processes on this machine (default); "
+                                                                "dask: a dask.distributed cluster")
+    f.add_argument("--scheduler", metavar="ADDRESS", help="a running dask scheduler, tcp://host:port")
+    f.add_argument("--max-evaluations", metavar="N", type=int, dest="max_evaluations",
+                   help="the most residual evaluations (default 100 x the number of --vary)")
+    f.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+    f.add_argument("--quiet", action="store_true", help="do not list the evaluations")
 
 
 def _size_parser(sub) -> None:
@@ -313,8 +338,28 @@ def cmd_size(args) -> int:
     return code
 
 
+def cmd_fit(args) -> int:
+    from ampmodel.output.run_folder import claim, partial_folder
+    from ampmodel.studies.fitting import plan_fit, run_fit
+    from ampmodel.studies.report import print_fit
+    from ampmodel.studies.sweeps import default_folder
+    # every option checked before anything is made or run: all bad ones at once
+    plan = plan_fit(args.config, args.data, args.vary, overrides=args.overrides,
+                    backend="dask" if args.scheduler else args.backend or "loky", jobs=args.jobs,
+                    scheduler=args.scheduler, max_evaluations=args.max_evaluations)
+    base = Path(args.out) if args.out else default_folder(plan.base, "fit")
+    with partial_folder(base) as tmp:          # an unwritable place is reported before the fit
+        result = run_fit(plan, report=None if args.quiet else print, curve=not args.no_plots, folder=tmp)
+        code = print_fit(result)
+        result.save(tmp, plots=not args.no_plots)
+        out = claim(tmp, base)
+    print(f"wrote {out}/ (fit.json" + (", plots/)" if not args.no_plots else ")"))
+    return code
+
+
 COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench,
-            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size, "rerun": cmd_rerun}
+            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size, "rerun": cmd_rerun,
+            "fit": cmd_fit}
 
 
 _MAIN_PID = os.getpid()

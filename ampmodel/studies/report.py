@@ -205,3 +205,28 @@ def print_sizing(result) -> int:
                 print(f"  - {w}")
         _safety()
     return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION
+
+
+def print_fit(result) -> int:
+    """Print a fit: the fitted values with their standard errors, the residuals per row, the outcome;
+    return 0, or 3 when the fit did not converge, ends at a bound or leaves a value undetermined."""
+    for note in result.notes:
+        print(f"note: {note}")
+    print(result.message)
+    rows = [[v.path, f"{result.values[v.path]:.8g}",
+             "-" if result.standard_errors.get(v.path) is None else f"{result.standard_errors[v.path]:.3g}",
+             f"[{v.low:g}, {v.high:g}]", f"{s:.6g}"] for v, s in zip(result.vary, result.start, strict=True)]
+    _table(("value path", "fitted", "std error", "range", "start"), rows)
+    weighting = {"sigma": "(model - measured)/sigma", "relative": "(model - measured)/|measured|",
+                 "mixed": "(model - measured)/sigma, or /|measured| without a sigma"}[result.weighting]
+    print(f"residuals {weighting}; rms {result.residual_rms:.4g} ({result.evaluations} evaluations, "
+          f"{result.runs} runs):")
+    table = []
+    for p in result.points[:MAX_ROWS]:
+        cond = ", ".join(f"{k} = {_num(v)}" for k, v in p["conditions"].items()) or "-"
+        for f, m in p["measured"].items():
+            table.append([str(p["line"]), cond, f, _num(m), _num(p["modelled"].get(f)), f"{p['residual'][f]:+.3g}"])
+    _table(("line", "conditions", "figure", "measured", "modelled", "residual"), table)
+    if len(result.points) > MAX_ROWS:
+        print(f"... {len(result.points) - MAX_ROWS} more rows (fit.json lists them all)")
+    return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION
