@@ -103,29 +103,37 @@ def _figure_names() -> list[str]:
     return sorted(set().union(*SUMMARY_KEYS.values()))
 
 
+def _config_table(config: Config, name: str) -> bool:
+    """``name`` starts with a table of the config (not one that summary.json has too, like ``train``)."""
+    first = name.split(".")[0]
+    return "." in name and first in config.raw and isinstance(config.raw[first], (dict, list)) and \
+        first != "train"
+
+
+def is_figure(config: Config, name: str) -> bool:
+    """``name`` is a figure path (of good form, a known key) that is not in a table of the config."""
+    return not _config_table(config, name) and check_before_run(name, config) is None
+
+
 def _unknown_column(config: Config, name: str) -> str:
     """Why a column is neither a condition nor a figure, with a did-you-mean."""
-    if "." in name and check_before_run(name) is None:       # a figure path of good form: config says why not
-        why = check_before_run(name, config)
-        if why:
-            return f"column {name!r}: {why}"
-    try:
-        _, leaf, trail = walk(dict(config.raw), name)
-        schema = leaf_schema(dict(config.raw), trail)
-        if schema is not None and len(trail) > 1:
-            prefix = name.rsplit(".", 1)[0] + "."
-            hits = [prefix + h for h in close_matches(leaf, schema)]
-            if hits:
-                return f"column {name!r}: not a value of this config; did you mean {quoted_list(hits)}?"
-    except PathError as exc:
-        if name.split(".")[0] in config.raw:
+    if _config_table(config, name):
+        try:
+            _, leaf, trail = walk(dict(config.raw), name)
+        except PathError as exc:
             return f"column {name!r}: not a value path of this config: {exc}"
-    problem = check_before_run(name)
-    hits = close_matches(name.rsplit(".", 1)[-1], _figure_names()) if problem else []
-    hint = f"; did you mean {quoted_list(hits)}?" if hits else ""
+        schema = leaf_schema(dict(config.raw), trail)
+        hits = close_matches(leaf, schema) if schema else []
+        prefix = name.rsplit(".", 1)[0] + "."
+        hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
+        return f"column {name!r}: not a value of this config{hint}"
+    problem = check_before_run(name, config)
+    if "." not in name:
+        hits = close_matches(name, _figure_names())
+        problem = f"did you mean {quoted_list(hits)}?" if hits else "no such figure"
     return (f"column {name!r}: neither a value path of the config (the condition of a measurement, e.g. "
             f"seed.energy_J) nor a figure of summary.json (what was measured, e.g. output_energy_J), nor "
-            f"sigma_<figure>{hint}")
+            f"sigma_<figure>: {problem}")
 
 
 def name_columns(header: Sequence[str], config: Config) -> tuple[list[str], list[str], list[str], list[str]]:
@@ -142,7 +150,7 @@ def name_columns(header: Sequence[str], config: Config) -> tuple[list[str], list
             sigmas.append(name)
         elif is_condition(config, name):
             conditions.append(name)
-        elif check_before_run(name, config) is None:
+        elif is_figure(config, name):
             figures.append(name)
         else:
             problems.append(_unknown_column(config, name))
@@ -196,6 +204,7 @@ def parse_table(text: str, config: Config, source: str = "<table>") -> tuple[Fit
             value = _cell(cell)
             if isinstance(value, str):
                 problems.append(f"line {number}: {name} = {value}")
+                value = None                  # reported; the other checks go on without it
             cells.append(value)
         rows.append(cells)
         lines.append(number)
@@ -209,11 +218,11 @@ def parse_table(text: str, config: Config, source: str = "<table>") -> tuple[Fit
     problems = named + problems
     if not rows:
         problems.append("no data rows after the header: give one line per measurement")
-    if problems:
+    if named or not rows:
         return None, problems
     data = _columns(header, rows, lines, conditions, figures, sigmas, problems)
     data.source, data.text = source, text
-    return (data if not problems else None), problems
+    return data, problems
 
 
 def _columns(header: Sequence[str], rows: list[list[Any]], lines: list[int], conditions: list[str],
@@ -235,6 +244,10 @@ def _columns(header: Sequence[str], rows: list[list[Any]], lines: list[int], con
                 problems.append(f"line {number}: {s} = {value:g} is given but {figure} is not measured there")
             else:
                 sigma[figure] = value
+        for f in figures:
+            if row[f] == 0 and f not in sigma and row.get(SIGMA_PREFIX + f) is None:
+                problems.append(f"line {number}: {f} = 0 has no {SIGMA_PREFIX}{f}: a value without a sigma is "
+                                f"compared relatively, which needs a value other than 0; give {SIGMA_PREFIX}{f}")
         data.sigma.append(sigma)
     if data.count() == 0:
         problems.append("no measured value: every figure cell is empty")

@@ -130,7 +130,7 @@ def _load_data(p: _Collect, data: Any, checked: Config | None) -> FitData | None
 
 
 def _check_rows(p: _Collect, base: Config, data: FitData, vary: Sequence[Vary], start: Sequence[float]) -> None:
-    """Every row's config at the start must be valid; a measured 0 needs a sigma."""
+    """Every row's config at the start must be valid."""
     raw = base.raw
     for i, row in enumerate(data.rows):
         values = {path: as_config_value(raw, path, v) for path, v in row.items()}
@@ -140,10 +140,6 @@ def _check_rows(p: _Collect, base: Config, data: FitData, vary: Sequence[Vary], 
         except ConfigError as err:
             for line in err.problems[:5]:
                 p.add(f"--data {data.source}: line {data.lines[i]}: " + line.replace("<dict>: ", "", 1))
-        for f, value in data.measured[i].items():
-            if value == 0 and f not in data.sigma[i]:
-                p.add(f"--data {data.source}: line {data.lines[i]}: {f} = 0 has no sigma_{f}: a value without a "
-                      f"sigma is compared relatively, which needs a value other than 0; give sigma_{f}")
 
 
 def _start(base: Config, v: Vary, notes: list[str]) -> float:
@@ -210,14 +206,14 @@ def plan_fit(config: str | os.PathLike | Mapping | Config, data: Any, vary: Sequ
         if len(paths) > table.count():
             p.add(f"--data {table.source}: {table.count()} measured value{'s' if table.count() != 1 else ''} "
                   f"cannot fix {len(paths)} varied values; measure more, or vary fewer")
+    notes: list[str] = []
+    if base is not None and table is not None and all(v is not None for v in varied) and \
+            not any(" --vary " in line for line in p.problems):
+        start = [_start(base, v, notes) for v in varied]
+        _check_rows(p, base, table, varied, start)
     if p.problems:
         raise ConfigError(p.problems)
     assert base is not None and table is not None
-    notes: list[str] = []
-    start = [_start(base, v, notes) for v in varied]
-    _check_rows(p, base, table, varied, start)
-    if p.problems:
-        raise ConfigError(p.problems)
     return FitPlan(base, table, list(varied), start, backend, jobs, scheduler, timeout_s, max_evaluations, notes)
 
 
