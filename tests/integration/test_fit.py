@@ -306,3 +306,31 @@ def test_a_value_the_data_do_not_fix_is_undetermined(flat):
     assert r.status == "undetermined", r.message
     assert "do not fix every varied value" in r.message
     assert r.standard_errors["medium.rod.small_signal_gain"] is None
+
+
+def test_an_empty_condition_takes_the_configs_value_and_an_empty_figure_is_not_measured(flat):
+    e_in = np.array(SEEDS_J)
+    out = fn_output_J(e_in, G0_TRUE, 0.9)
+    data = {"seed.energy_J": [None, *SEEDS_J[1:]],            # the config's seed energy is 0.01 J
+            "output_energy_J": [float(fn_output_J(0.01, G0_TRUE, 0.9)), *out[1:-1], None],
+            "steps.0.energy_out_J": [None, None, None, None, float(out[-1] / 0.9)]}
+    r = api.fit_to_data(flat, data, [VARY[0]], jobs=1)
+    assert r.status == "ok", r.message
+    assert r.values["medium.rod.small_signal_gain"] == pytest.approx(G0_TRUE, rel=1e-6)
+    assert r.points[0]["conditions"]["seed.energy_J"] == 0.01
+    assert list(r.points[-1]["residual"]) == ["steps.0.energy_out_J"]
+    assert r.points[-1]["modelled"]["steps.0.energy_out_J"] == pytest.approx(out[-1] / 0.9, rel=1e-6)
+
+
+@pytest.mark.slow
+def test_the_bench_example_recovers_the_values_its_data_were_made_with():
+    """configs/bench_rod_measurements.csv was made from configs/single_pass_rod.toml at G0 = 5.2 and a
+    transmission of 0.93 with 1.5 % noise (as the file says): the fit lands within two standard errors."""
+    from sweep_helpers import ROOT
+    r = api.fit_to_data(ROOT / "configs" / "single_pass_rod.toml", ROOT / "configs" / "bench_rod_measurements.csv",
+                        ["medium.rod.small_signal_gain=2,20", "step.1.transmission=0.5,1"], jobs=2)
+    assert r.status == "ok", r.message
+    se = r.standard_errors
+    assert abs(r.values["medium.rod.small_signal_gain"] - 5.2) < 2 * se["medium.rod.small_signal_gain"]
+    assert abs(r.values["step.1.transmission"] - 0.93) < 2 * se["step.1.transmission"]
+    assert 0.3 < r.residual_rms < 3
