@@ -338,6 +338,10 @@ def cmd_size(args) -> int:
     return code
 
 
+def _flushed(line: str) -> None:
+    print(line, flush=True)
+
+
 def cmd_fit(args) -> int:
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.fitting import plan_fit, run_fit
@@ -349,7 +353,8 @@ def cmd_fit(args) -> int:
                     scheduler=args.scheduler, max_evaluations=args.max_evaluations)
     base = Path(args.out) if args.out else default_folder(plan.base, "fit")
     with partial_folder(base) as tmp:          # an unwritable place is reported before the fit
-        result = run_fit(plan, report=None if args.quiet else print, curve=not args.no_plots, folder=tmp)
+        result = run_fit(plan, report=None if args.quiet else _flushed, curve=not args.no_plots, folder=tmp,
+                         progress=not args.quiet)
         code = print_fit(result)
         result.save(tmp, plots=not args.no_plots)
         out = claim(tmp, base)

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 import os
+import sys
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, Callable, Iterator, Mapping, Sequence
@@ -27,7 +28,7 @@ import numpy as np
 from ampmodel.config.checks import ConfigError
 from ampmodel.config.files import inline_files
 from ampmodel.config.schema import leaf_schema, walk
-from ampmodel.studies.backends import Cluster, preflight, run_tasks
+from ampmodel.studies.backends import Cluster, cores, preflight, run_tasks
 from ampmodel.studies.figures import FigureError, resolve
 from ampmodel.studies.points import PointOutcome, PointTask, describe, point_raw, run_point
 
@@ -73,10 +74,12 @@ class RowRuns:
     """Runs of the data rows at values of the varied paths, cached by those values.
 
     ``plan``: a checked FitPlan (``fitting.plan_fit``); ``client``: the dask client (dask backend);
-    ``report``: called with a line per evaluation (None: quiet)."""
+    ``report``: called with a line per evaluation (None: quiet); ``progress``: a bar of the runs of each
+    batch on stderr."""
 
-    def __init__(self, plan: Any, client: Any = None, report: Callable[[str], None] | None = None):
-        self.plan, self.client, self.report = plan, client, report
+    def __init__(self, plan: Any, client: Any = None, report: Callable[[str], None] | None = None,
+                 progress: bool = False):
+        self.plan, self.client, self.report, self.progress = plan, client, report, progress
         base = plan.base
         self.raw = inline_files(base.raw, base.folder or None)
         self.paths = [v.path for v in plan.vary]
@@ -101,13 +104,17 @@ class RowRuns:
     def run(self, value_sets: Sequence[Mapping[str, Any]], what: Callable[[int], str]) -> list[dict | None]:
         """Run one config per value set (in parallel); their summaries. A run that fails stops the fit
         (ConfigError naming ``what(index)``, or RuntimeError for an internal failure)."""
+        from tqdm import tqdm
         tasks = [self._task(k, v) for k, v in enumerate(value_sets)]
         out: list[dict | None] = [None] * len(tasks)
         errors: dict[int, str] = {}
-        for outcome in run_tasks(fit_point, tasks, self.plan.backend, self.plan.jobs, client=self.client):
-            if outcome.error is not None:
-                errors[outcome.index] = outcome.error
-            out[outcome.index] = outcome.summary
+        with tqdm(total=len(tasks), unit="run", desc="fit", disable=not self.progress, file=sys.stderr,
+                  leave=False, dynamic_ncols=True) as bar:
+            for outcome in run_tasks(fit_point, tasks, self.plan.backend, self.plan.jobs, client=self.client):
+                if outcome.error is not None:
+                    errors[outcome.index] = outcome.error
+                out[outcome.index] = outcome.summary
+                bar.update(1)
         self.runs += len(tasks)
         if errors:
             k = min(errors)
@@ -217,7 +224,7 @@ def compute(plan: Any, folder: Path | None) -> Iterator[Any]:
         yield None
         return
     import tempfile
-    workers = plan.jobs or 2
+    workers = plan.jobs or cores()
     with Cluster(plan.scheduler, workers, plan.timeout_s) as cluster:
         if folder is not None:
             preflight(cluster.client, Path(folder).absolute(), plan.timeout_s)

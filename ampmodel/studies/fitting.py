@@ -321,8 +321,9 @@ def fit_to_data(config: str | os.PathLike | Mapping | Config, data: Any, vary: S
 
 
 def run_fit(plan: FitPlan, *, report: Callable[[str], None] | None = None, curve: bool = False,
-            folder: Path | None = None) -> FitResult:
-    """The fit of a checked plan (see :func:`fit_to_data`); ``folder``: where a dask pre-flight may probe."""
+            folder: Path | None = None, progress: bool = False) -> FitResult:
+    """The fit of a checked plan (see :func:`fit_to_data`); ``folder``: where a dask pre-flight may probe;
+    ``progress``: a bar of each batch of runs on stderr."""
     from scipy.optimize import least_squares
     low, high = plan.bounds()
     if report:
@@ -331,7 +332,7 @@ def run_fit(plan: FitPlan, *, report: Callable[[str], None] | None = None, curve
         for note in plan.notes:
             report(f"note: {note}")
     with compute(plan, folder) as client:
-        runs = RowRuns(plan, client, report)
+        runs = RowRuns(plan, client, report, progress)
         res = least_squares(runs.residuals, np.array(plan.start, float), jac=runs.jacobian, bounds=(low, high),
                             x_scale=high - low, method="trf", max_nfev=plan.max_evaluations)
         r = np.asarray(res.fun, float)          # the weighted residuals at res.x

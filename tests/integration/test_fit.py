@@ -135,6 +135,22 @@ def test_noise_free_data_give_g0_and_transmission_through_the_command_line(flat,
     assert (tmp_path / "fitted-2" / "fit.json").is_file() and not (tmp_path / "fitted-2" / "plots").exists()
 
 
+@pytest.mark.slow
+def test_the_dask_backend_gives_the_same_fit(flat, tmp_path):
+    """The rows on a local dask cluster (two worker processes) give the fit the loky processes give."""
+    pytest.importorskip("distributed")
+    data = tmp_path / "bench.csv"
+    data.write_text(csv_text(SEEDS_J, fn_output_J(np.array(SEEDS_J), G0_TRUE, T_TRUE)))
+    fits = {}
+    for backend in ("loky", "dask"):
+        proc = ampmodel("fit", str(flat), "--data", str(data), "--vary", VARY[0], "--vary", VARY[1], "--backend",
+                        backend, "--jobs", "2", "--out", str(tmp_path / backend), "--quiet", cwd=tmp_path)
+        assert proc.returncode == 0, proc.stderr
+        fits[backend] = json.loads((tmp_path / backend / "fit.json").read_text())
+    assert fits["dask"]["values"] == fits["loky"]["values"]
+    assert fits["dask"]["runs"] == fits["loky"]["runs"]
+
+
 def _noisy(rng, sigma_rel=0.01):
     e_in = np.array(SEEDS_J)
     exact = fn_output_J(e_in, G0_TRUE, T_TRUE)
