@@ -86,6 +86,15 @@ def parse_vary(text: str) -> Vary:
     return Vary(path.strip(), low, high)
 
 
+def _vary_from(item: Any) -> Vary:
+    """A (path, low, high) tuple as a Vary; ConfigError when it is not one."""
+    try:
+        path, low, high = item
+        return parse_vary(f"{path}={float(low)!r},{float(high)!r}")
+    except (TypeError, ValueError):
+        raise ConfigError([f"vary {item!r}: expected (path, low, high) or \"PATH=LOW,HIGH\""]) from None
+
+
 @dataclass
 class FitPlan:
     """A fit whose every option was checked (:func:`plan_fit`); run it with :func:`run_fit`."""
@@ -186,7 +195,7 @@ def plan_fit(config: str | os.PathLike | Mapping | Config, data: Any, vary: Sequ
         p.source = base.source
     checked = base if base is not None or not overrides else _quiet_load(load, config)
     varied = [p.call(parse_vary, v) if isinstance(v, str) else v if isinstance(v, Vary) else
-              p.call(lambda t: Vary(str(t[0]), *sorted((float(t[1]), float(t[2])))), v) for v in vary]
+              p.call(_vary_from, v) for v in vary]
     if not vary:
         p.add("--vary: give at least one value to fit, e.g. --vary medium.rod.small_signal_gain=2,50")
     paths = [v.path for v in varied if v is not None]
