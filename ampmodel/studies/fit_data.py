@@ -99,6 +99,11 @@ def is_condition(config: Config, path: str) -> bool:
     return schema is not None and leaf in schema
 
 
+def _quoted(name: str) -> str:
+    """A column's name for a message: quoted, a long one cut short (the file is not echoed)."""
+    return repr(name) if len(name) <= 60 else show(name, 60)
+
+
 def _figure_names() -> list[str]:
     return sorted(set().union(*SUMMARY_KEYS.values()))
 
@@ -121,17 +126,17 @@ def _unknown_column(config: Config, name: str) -> str:
         try:
             _, leaf, trail = walk(dict(config.raw), name)
         except PathError as exc:
-            return f"column {name!r}: not a value path of this config: {exc}"
+            return f"column {_quoted(name)}: not a value path of this config: {exc}"
         schema = leaf_schema(dict(config.raw), trail)
         hits = close_matches(leaf, schema) if schema else []
         prefix = name.rsplit(".", 1)[0] + "."
         hint = f"; did you mean {quoted_list(prefix + h for h in hits)}?" if hits else ""
-        return f"column {name!r}: not a value of this config{hint}"
+        return f"column {_quoted(name)}: not a value of this config{hint}"
     problem = check_before_run(name, config)
     if "." not in name:
         hits = close_matches(name, _figure_names())
         problem = f"did you mean {quoted_list(hits)}?" if hits else "no such figure"
-    return (f"column {name!r}: neither a value path of the config (the condition of a measurement, e.g. "
+    return (f"column {_quoted(name)}: neither a value path of the config (the condition of a measurement, e.g. "
             f"seed.energy_J) nor a figure of summary.json (what was measured, e.g. output_energy_J), nor "
             f"sigma_<figure>: {problem}")
 
@@ -145,7 +150,7 @@ def name_columns(header: Sequence[str], config: Config) -> tuple[list[str], list
             problems.append("the header has an empty column name")
         elif header.count(name) > 1:
             if not any(name in p for p in problems):
-                problems.append(f"column {name!r} appears {header.count(name)} times; name each column once")
+                problems.append(f"column {_quoted(name)} appears {header.count(name)} times; name each column once")
         elif name.startswith(SIGMA_PREFIX):
             sigmas.append(name)
         elif is_condition(config, name):
@@ -159,7 +164,7 @@ def name_columns(header: Sequence[str], config: Config) -> tuple[list[str], list
         if figure not in figures:
             hint = f"; did you mean {quoted_list(SIGMA_PREFIX + h for h in close_matches(figure, figures))}?" \
                 if close_matches(figure, figures) else ""
-            problems.append(f"column {name!r}: the uncertainty of a figure the table does not measure (there "
+            problems.append(f"column {_quoted(name)}: the uncertainty of a figure the table does not measure (there "
                             f"is no column {figure!r}){hint}")
     if not figures and not problems:
         problems.append("no measured figure: name at least one column by a figure path of summary.json, "

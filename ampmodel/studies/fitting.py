@@ -139,13 +139,14 @@ def _load_data(p: _Collect, data: Any, checked: Config | None) -> FitData | None
 
 
 def _check_rows(p: _Collect, base: Config, data: FitData, vary: Sequence[Vary], start: Sequence[float]) -> None:
-    """Every row's config at the start must be valid."""
+    """Every row's config at the start must be valid, and one run of it must fit in memory."""
+    from ampmodel.simulation import check_memory
     raw = base.raw
     for i, row in enumerate(data.rows):
         values = {path: as_config_value(raw, path, v) for path, v in row.items()}
         values.update({v.path: x for v, x in zip(vary, start, strict=True)})
         try:
-            load_config(point_raw(raw, values, base.title), folder=base.folder or None)
+            check_memory(load_config(point_raw(raw, values, base.title), folder=base.folder or None))
         except ConfigError as err:
             for line in err.problems[:5]:
                 p.add(f"--data {data.source}: line {data.lines[i]}: " + line.replace("<dict>: ", "", 1))
