@@ -299,7 +299,8 @@ def check_seed_spectrum(p: Problems, media: list[Medium], seed: Seed) -> None:
     needs its doping."""
     key = "seed.bandwidth_nm" if seed.bandwidth_m else "seed.wavelength_nm"
     value = seed.bandwidth_m * 1e9 if seed.bandwidth_m else seed.wavelength_m * 1e9
-    low, high = beam_shapes.wavelength_span_m(seed.shape, seed.wavelength_m, seed.bandwidth_m)
+    low, high = beam_shapes.wavelength_span_m(seed.shape, seed.wavelength_m, seed.bandwidth_m, seed.pulse_trace,
+                                              seed.spectrum_trace)
     for m in media:
         if m.kind == "fibre":
             continue

@@ -89,7 +89,7 @@ def _peak_factor(config: Config) -> np.ndarray | None:
     """The pulse's true peak over each time slice's mean (kernels/beam_shapes.slice_peak_factors)."""
     if config.mode == "cw" or config.seed.duration_s is None:
         return None
-    return beam_shapes.slice_peak_factors(config.seed.shape, config.grid.time_slices)
+    return beam_shapes.slice_peak_factors(config.seed.shape, config.grid.time_slices, config.seed.pulse_trace)
 
 
 def stage_figures(stage: FibreStage, cw: bool, factor: np.ndarray | None = None) -> StageFigures:
@@ -360,7 +360,8 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
     last = fibres[-1].train
     out_power = last.pulse.energy_out_J / last.dt_s * math.prod(
         st.step.transmission for st in stages[stages.index(fibres[-1]) + 1:])
-    duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s))
+    duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s,
+                                                                   trace=seed.pulse_trace))
     b_total = true_peak(sum(st.train.pulse.b_integral_rad for st in fibres), _peak_factor(config))
     if b_total > limits.b_integral_total_rad:
         warnings.append(warning("b-integral-total", f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "
