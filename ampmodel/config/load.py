@@ -230,7 +230,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         if "energy_J" not in table:
             p.add("seed.energy_J", f"missing: the pulse energy, {expected(S.SEED['energy_J'])} "
                                    '(required when mode = "pulsed")')
-        measured = config_measured.seed_fields(p, table)       # a measured pulse or spectrum
+        measured = config_measured.seed_fields(p, table, fibre_layout)     # a measured pulse or spectrum
         if table.get("shape") != "file":
             durations = given_keys(p, table, S.DURATION_KEYS,
                                    none=("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or "

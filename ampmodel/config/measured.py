@@ -330,7 +330,7 @@ def inline_stored_files(raw: Mapping[str, Any], stored: Mapping[str, str]) -> di
     return out
 
 
-def seed_fields(p: Problems, table: Mapping[str, Any]) -> dict:
+def seed_fields(p: Problems, table: Mapping[str, Any], fibre_layout: bool = False) -> dict:
     """The Seed fields the measured traces of a pulsed [seed] table set (empty without them); the keys
     they replace are refused: a duration with ``shape = "file"`` (the FWHM is the trace's), and
     ``bandwidth_nm`` or ``wavelength_nm`` with a measured spectrum (its FWHM and centroid)."""
@@ -350,7 +350,10 @@ def seed_fields(p: Problems, table: Mapping[str, Any]) -> dict:
         pulse = measured_pulse(p, table["measured_pulse"])
         if pulse is not None:
             out.update(pulse)
-    if "measured_spectrum" in table:
+    if "measured_spectrum" in table and fibre_layout:
+        p.add("seed.measured_spectrum", "a fibre layout carries a narrowband seed at seed.wavelength_nm: remove "
+                                        "the table")
+    elif "measured_spectrum" in table:
         for key, what in (("bandwidth_nm", "its FWHM"), ("wavelength_nm", "its centroid")):
             if key in table:
                 p.add(join_path("seed", key), f"a measured spectrum sets the seed's {key.split('_')[0]} ({what}): "

@@ -38,6 +38,7 @@ from ampmodel.kernels.diffraction import critical_power_W
 from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
 from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.notices import warning
+from ampmodel.pulsed.measured import trace_warnings
 from ampmodel.safety import SAFETY_NOTE
 
 
@@ -223,7 +224,7 @@ def summarise_fibre(config: Config, stages: list[FibreStage], x_m: np.ndarray) -
     """The summary.json dict of a layout of fibres (cw or pulsed)."""
     cw = config.mode == "cw"
     seed = config.seed
-    warnings: list[str] = []
+    warnings: list[str] = list(trace_warnings(config))     # a measured pulse (none in cw)
     steps, media = [], []
     fibres = [st for st in stages if st.model is not None]
     # on-axis peak per unit power or energy, 2/(πw²), of the mode the beam is in (before a fibre: the first's)

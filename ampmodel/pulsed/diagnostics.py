@@ -166,7 +166,8 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     warnings.extend(extra_warnings or ())
     warnings.extend(trace_warnings(config))
     if seed.shape != "flat" and config.grid.time_slices < 16:
-        warnings.append(note("time-slices", f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} "
+        warnings.append(note("time-slices", f"grid: {config.grid.time_slices} time slices resolve the "
+                             f"{'measured' if seed.shape == 'file' else seed.shape} "
                              f"pulse's reshaping by saturation coarsely; 16 or more are advised for the output "
                              f"pulse shape"))
 

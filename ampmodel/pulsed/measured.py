@@ -76,3 +76,23 @@ def trace_warnings(config: Config) -> list[Notice]:
                            f"the measured pulse's fastest edge ({edge * tau_ns:.3g} ns from 10 to 90 %); give "
                            f"time_slices = {need} or more, or a narrower window_ns"))
     return out
+
+
+def describe(config: Config) -> list[str]:
+    """What `check` says of a measured pulse and spectrum: the FWHM, window and slicing the run takes
+    from them, and the trace's warnings."""
+    seed, n = config.seed, config.grid.time_slices
+    lines: list[str] = []
+    if seed.shape == "file" and seed.pulse_trace is not None:
+        x = np.asarray(seed.pulse_trace[0])
+        tau_ns = seed.duration_s * 1e9
+        lines.append(f"  seed: measured pulse, FWHM {tau_ns:.4g} ns (the duration), window {x[0] * tau_ns:.4g} to "
+                     f"{x[-1] * tau_ns:.4g} ns from its peak ({x.size} points), {n} slices of "
+                     f"{(x[-1] - x[0]) * tau_ns / n:.3g} ns")
+    if seed.spectrum_trace is not None:
+        wl = np.asarray(seed.spectrum_trace[0]) * 1e9
+        lines.append(f"  seed: measured spectrum, centroid {seed.wavelength_m * 1e9:.6g} nm, FWHM "
+                     f"{seed.bandwidth_m * 1e9:.4g} nm, {wl[0]:.6g} to {wl[-1]:.6g} nm ({wl.size} points), "
+                     f"chirp {seed.chirp}")
+    lines.extend(f"  warning: {w}" for w in trace_warnings(config))
+    return lines
