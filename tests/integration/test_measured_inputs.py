@@ -226,3 +226,12 @@ def test_bad_traces_exit_2_with_the_key(case, tmp_path, capsys, monkeypatch):
     for part in expected:
         assert part in err, (part, err)
     assert not (tmp_path / "out").exists()
+
+
+def test_the_spectrum_plot_draws_the_measured_spectrum(tmp_path):
+    from ampmodel.plots.spectra import plot_spectra
+
+    folder = _project(tmp_path, "stretched_measured_spectrum.toml", "stretched_seed_spectrum.csv")
+    config = load_config(folder / "stretched_measured_spectrum.toml", ["grid.points=16", "grid.time_slices=24"])
+    path = plot_spectra(simulate(config), tmp_path / "spectrum.png")
+    assert path.stat().st_size > 10_000 and path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
