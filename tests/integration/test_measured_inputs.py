@@ -235,3 +235,13 @@ def test_the_spectrum_plot_draws_the_measured_spectrum(tmp_path):
     config = load_config(folder / "stretched_measured_spectrum.toml", ["grid.points=16", "grid.time_slices=24"])
     path = plot_spectra(simulate(config), tmp_path / "spectrum.png")
     assert path.stat().st_size > 10_000 and path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_check_reports_the_trace_and_its_warnings(tmp_path, capsys, monkeypatch):
+    folder = _project(tmp_path, "qswitch_measured_pulse.toml", "qswitch_pulse_trace.csv")
+    code, out, err = _cli(["check", folder / "qswitch_measured_pulse.toml", "--set", "grid.time_slices=10"], capsys,
+                          tmp_path, monkeypatch)
+    assert code == 0, err
+    fwhm = trace_fwhm_from_csv(folder / "qswitch_pulse_trace.csv")
+    assert f"seed: measured pulse, FWHM {fwhm:.4g} ns" in out
+    assert "warning: grid: time slices of 5.1 ns are too coarse for the measured pulse's fastest edge" in out
