@@ -236,6 +236,8 @@ def _check_lines(config) -> list[str]:
                 line += f", absorbed pump {quantity_text(absorbed, 'W')} of {quantity_text(st.pump.power_W, 'W')} (no signal)"
             lines.append(line)
         return lines
+    from ampmodel.pulsed.measured import describe
+    lines.extend(describe(config))              # a measured pulse or spectrum
     for m in config.media:
         gm = gain_maps.gain_map(m, x, x)
         stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,

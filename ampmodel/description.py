@@ -136,7 +136,7 @@ class Seed:
     energy_J: float | None = None     # pulsed
     power_W: float | None = None      # cw
     duration_s: float | None = None   # pulsed: FWHM (gaussian, sech2) or full width (flat)
-    shape: str = "gaussian"           # "gaussian" | "flat" | "sech2"
+    shape: str = "gaussian"           # "gaussian" | "flat" | "sech2" | "file" (pulse_trace)
     profile: str = "gaussian"         # "gaussian" | "flat" | "supergaussian"
     order: float = 8.0                # supergaussian order
     diameter_m: float = 1e-3          # 2w (1/e² intensity diameter); flat: hard-edged diameter
@@ -150,6 +150,14 @@ class Seed:
     # λ(t) = λ0 ± bandwidth·t/duration from the pulse centre; "up": longer wavelengths later
     bandwidth_m: float | None = None
     chirp: str = "up"
+    # a measured pulse (shape "file", [seed.measured_pulse]): its trace cut to the time window, times in
+    # units of its FWHM (duration_s) from its peak and power relative to the peak; the fraction of the
+    # trace's energy outside the window (config/measured.py)
+    pulse_trace: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    pulse_trace_outside: float = 0.0
+    # a measured spectrum ([seed.measured_spectrum]): wavelengths (m) and spectral density relative to
+    # its peak; bandwidth_m is then its FWHM and wavelength_m its centroid
+    spectrum_trace: tuple[tuple[float, ...], tuple[float, ...]] | None = None
 
 
 @dataclass(frozen=True)
@@ -254,6 +262,8 @@ class Limits:
     # self-focusing is a warning when Marburger's collapse distance is below this many times the path
     # through the medium above the critical power (an estimate), else a note
     self_focusing_length_factor: float = 2.0
+    pulse_clipped_fraction: float = 0.01  # measured pulse: energy of its trace left outside the time window
+    pulse_end_fraction: float = 0.02      # measured pulse: power at the ends of its trace, over its peak
     mute: tuple[str, ...] = ()            # notice codes (ampmodel.notices.CODES) left out of warnings and notes
 
 

@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from ampmodel.description import step_label
+from ampmodel.kernels import traces
 from ampmodel.notices import warning
 
 J_CM2 = 1e-4   # J/m² -> J/cm²
@@ -60,10 +61,13 @@ TIME_BANDWIDTH = {"gaussian": 2.0 * math.log(2.0) / math.pi, "sech2": 0.315, "fl
 LIGHT_SPEED_M_S = 299_792_458.0
 
 
-def transform_limit_bandwidth_m(shape: str, duration_s: float, wavelength_m: float) -> float:
+def transform_limit_bandwidth_m(shape: str, duration_s: float, wavelength_m: float,
+                                trace: tuple | None = None) -> float:
     """FWHM (m) of the spectrum of a transform-limited pulse of this shape and duration (FWHM; flat:
-    full width): Δλ = λ²·Δν/c with Δν = TIME_BANDWIDTH/duration."""
-    return wavelength_m ** 2 * TIME_BANDWIDTH[shape] / duration_s / LIGHT_SPEED_M_S
+    full width): Δλ = λ²·Δν/c with Δν = TIME_BANDWIDTH/duration; a measured pulse (shape "file")
+    takes the product of its own trace (kernels/traces.time_bandwidth_product)."""
+    product = traces.time_bandwidth_product(*trace) if shape == "file" else TIME_BANDWIDTH[shape]
+    return wavelength_m ** 2 * product / duration_s / LIGHT_SPEED_M_S
 
 
 def transform_limit_duration_s(bandwidth_m: float, wavelength_m: float) -> float:
@@ -78,10 +82,13 @@ def spectrum_J_m(energies_J: np.ndarray, wavelength_step_m: float) -> np.ndarray
     return np.asarray(energies_J, dtype=float) / abs(wavelength_step_m)
 
 
-def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray) -> tuple[float, float]:
+def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray,
+                              widths_m: np.ndarray | None = None) -> tuple[float, float]:
     """The energy-weighted centre wavelength (m) of a pulse's slices and the full width at half
     maximum of its spectrum (m; linear interpolation between the slices, whose wavelengths are evenly
-    spaced). (nan, nan) for a pulse without energy."""
+    spaced). (nan, nan) for a pulse without energy. ``widths_m``: the wavelength interval of each
+    slice when they are not evenly spaced (a measured spectrum): the FWHM is then that of the
+    spectral density, energy over width, interpolated between the slices' wavelengths."""
     e = np.asarray(energies_J, dtype=float)
     wl = np.asarray(wavelengths_m, dtype=float)
     total = float(e.sum())
@@ -90,6 +97,11 @@ def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray)
     order = np.argsort(wl)
     e, wl = e[order], wl[order]
     centre = float((e * wl).sum() / total)
+    if widths_m is not None:
+        w = np.asarray(widths_m, dtype=float)[order]
+        density = np.zeros_like(e)
+        np.divide(e, w, out=density, where=w > 0.0)
+        return centre, _fwhm(wl, density)
     half = 0.5 * float(e.max())
     above = np.flatnonzero(e >= half)
     i, j = above[0], above[-1]
@@ -97,6 +109,17 @@ def spectral_centre_and_width(energies_J: np.ndarray, wavelengths_m: np.ndarray)
     left = wl[i] - (e[i] - half) / (e[i] - e[i - 1]) * step if i > 0 else wl[0]
     right = wl[j] + (e[j] - half) / (e[j] - e[j + 1]) * step if j < e.size - 1 else wl[-1]
     return centre, float(right - left)
+
+
+def _fwhm(x: np.ndarray, y: np.ndarray) -> float:
+    """Full width at half maximum of samples y(x) (x increasing): first to last crossing of half the
+    largest value, each by linear interpolation between the samples either side."""
+    half = 0.5 * float(y.max())
+    above = np.flatnonzero(y >= half)
+    i, j = int(above[0]), int(above[-1])
+    left = x[i] - (y[i] - half) / (y[i] - y[i - 1]) * (x[i] - x[i - 1]) if i > 0 else x[0]
+    right = x[j] + (y[j] - half) / (y[j] - y[j + 1]) * (x[j + 1] - x[j]) if j < y.size - 1 else x[-1]
+    return float(right - left)
 
 
 def worst_damage(config: Any, steps: list[dict[str, Any]]) -> dict[str, Any]:

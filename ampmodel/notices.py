@@ -40,6 +40,11 @@ CODES: dict[str, str] = {
     "fibre-modes": "a fibre's V number: more than one mode guided, or weakly guided",
     "ase": "fibres: amplified spontaneous emission large against the signal, or left out where it matters",
     "raman": "fibres: peak power above the stimulated-Raman threshold",
+    "pulse-clipped": "a measured pulse's trace cut by the time window with more than the set fraction of its "
+                     "energy outside",
+    "pulse-ends": "a measured pulse's trace that does not fall to its background at its ends",
+    "pulse-coarse": "a measured pulse's trace coarser than the time slices, or slices too coarse for its "
+                    "fastest edge",
     "other": "a message without a code of its own",
 }
 

@@ -55,7 +55,7 @@ def reference_arrays(config):
     grid, seed = config.grid, config.seed
     (medium,) = config.media
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
-    _, weights, _ = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
+    _, weights, _ = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices, seed.pulse_trace)
     seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
     gm = gain_maps.gain_map(medium, x, x)
     fluence = weights[:, None, None] * seed_map[None, :, :]

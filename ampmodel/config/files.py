@@ -86,8 +86,9 @@ def parse_spectrum_csv(text: str) -> dict[str, list[float]]:
     return {name: columns[name] for name in COLUMNS}
 
 
-def _read(p: Problems, where: str, name: Any) -> str | None:
-    """The text of the file ``name`` (relative to the config's folder); None with a problem."""
+def read_data_file(p: Problems, where: str, name: Any) -> str | None:
+    """The text of the data file ``name`` (relative to the config's folder): a regular file of at most
+    MAX_BYTES of UTF-8 text; None with a problem on the key ``where``."""
     if not isinstance(name, str) or not name.strip():
         p.add(where, "must be the path of a CSV file (a string), relative to the config file's folder", name)
         return None
@@ -102,7 +103,7 @@ def _read(p: Problems, where: str, name: Any) -> str | None:
         return None
     try:
         if path.stat().st_size > MAX_BYTES:
-            p.add(where, f"the file is larger than {MAX_BYTES // 2**20} MiB; a spectrum table needs far less", name)
+            p.add(where, f"the file is larger than {MAX_BYTES // 2**20} MiB; a data table needs far less", name)
             return None
         data = path.read_bytes()
     except OSError as exc:
@@ -132,7 +133,7 @@ def spectrum_from_file(p: Problems, table: Mapping[str, Any], path: str) -> Spec
         return None
     if unknown:
         return None
-    text = _read(p, where, name)
+    text = read_data_file(p, where, name)
     if text is None:
         return None
     try:

@@ -23,6 +23,7 @@ from typing import Mapping, Sequence
 
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
+from ampmodel.config import measured as config_measured
 from ampmodel.config import schema as S
 from ampmodel.config import timing as config_timing
 from ampmodel.config.checks import (
@@ -220,6 +221,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
     rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
     durations: list[str] = []          # the pulsed seed's duration key, checked below
+    measured: dict = {}                # the Seed fields of its measured traces (config/measured.py)
     if mode == "pulsed":
         for key in S.CW_SEED_KEYS:
             if key in table:
@@ -228,11 +230,13 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         if "energy_J" not in table:
             p.add("seed.energy_J", f"missing: the pulse energy, {expected(S.SEED['energy_J'])} "
                                    '(required when mode = "pulsed")')
-        durations = given_keys(p, table, S.DURATION_KEYS,
-                               none=("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or "
-                                                         "duration_ps, duration_fs, duration_us"),
-                               several=lambda given: ("seed", f"several durations ({', '.join(given)}): give exactly "
-                                                              f"one of {', '.join(S.DURATION_KEYS)}"))
+        measured = config_measured.seed_fields(p, table, fibre_layout)     # a measured pulse or spectrum
+        if table.get("shape") != "file":
+            durations = given_keys(p, table, S.DURATION_KEYS,
+                                   none=("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or "
+                                                             "duration_ps, duration_fs, duration_us"),
+                                   several=lambda given: ("seed", f"several durations ({', '.join(given)}): give "
+                                                                  f"exactly one of {', '.join(S.DURATION_KEYS)}"))
     elif mode == "cw":
         for key in S.PULSED_SEED_KEYS:
             if key in table:
@@ -248,8 +252,8 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         wavelength_nm = media[0].material.wavelength_m / 1e-9
     if len(p) > before or wavelength_nm is None or mode is None:
         return None
-    duration_s = to_si(durations[0], v[durations[0]]) if mode == "pulsed" else None
-    return Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
+    duration_s = to_si(durations[0], v[durations[0]]) if durations else None
+    seed = Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
                 power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
                 order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else 0.0,
                 waist_m=to_si("waist_mm", v["waist_mm"]) if "waist_mm" in v else None,
@@ -257,6 +261,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                 m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz,
                 bandwidth_m=to_si("bandwidth_nm", v["bandwidth_nm"]) if "bandwidth_nm" in v else None,
                 chirp=v["chirp"])
+    return dataclasses.replace(seed, **measured)
 
 
 # --- steps ------------------------------------------------------------------------------------

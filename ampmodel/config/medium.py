@@ -299,7 +299,10 @@ def check_seed_spectrum(p: Problems, media: list[Medium], seed: Seed) -> None:
     needs its doping."""
     key = "seed.bandwidth_nm" if seed.bandwidth_m else "seed.wavelength_nm"
     value = seed.bandwidth_m * 1e9 if seed.bandwidth_m else seed.wavelength_m * 1e9
-    low, high = beam_shapes.wavelength_span_m(seed.shape, seed.wavelength_m, seed.bandwidth_m)
+    if seed.spectrum_trace is not None:           # its centroid and FWHM come from the measured spectrum
+        key = "seed.measured_spectrum"
+    low, high = beam_shapes.wavelength_span_m(seed.shape, seed.wavelength_m, seed.bandwidth_m, seed.pulse_trace,
+                                              seed.spectrum_trace)
     for m in media:
         if m.kind == "fibre":
             continue
@@ -316,8 +319,9 @@ def check_seed_spectrum(p: Problems, media: list[Medium], seed: Seed) -> None:
                        f"without bandwidth_nm", value)
             continue
         if not mat.spectrum.covers(seed.wavelength_m):
-            p.add("seed.wavelength_nm", f"medium {m.name}: outside the cross-section spectrum of {mat.name} "
-                                        f"({mat.spectrum.range_nm}); give a wavelength inside it",
+            p.add("seed.measured_spectrum" if seed.spectrum_trace is not None else "seed.wavelength_nm",
+                  f"medium {m.name}: outside the cross-section spectrum of {mat.name} "
+                  f"({mat.spectrum.range_nm}); give a wavelength inside it",
                   seed.wavelength_m * 1e9)
             continue
         nt = m.doping_per_m3 or mat.doping_per_m3

@@ -108,12 +108,12 @@ MATERIAL_TABLE.update({
     "spectrum": Key("table", "cross-section spectra: wavelength_nm, emission_cm2, absorption_cm2 arrays"),
 })
 
-PULSE_SHAPES = ("gaussian", "flat", "sech2")
+PULSE_SHAPES = ("gaussian", "flat", "sech2", "file")
 BEAM_PROFILES = ("gaussian", "flat", "supergaussian")
 DURATION_KEYS = ("duration_ns", "duration_ps", "duration_fs", "duration_us")
 DURATION_RANGES = {"duration_ns": (1e-6, 1e7), "duration_ps": (1e-3, 1e10), "duration_fs": (1.0, 1e13),
                    "duration_us": (1e-9, 1e4)}        # 1 fs to 10 ms in each unit
-PULSED_SEED_KEYS = ("energy_J", "shape", "bandwidth_nm", "chirp") + DURATION_KEYS
+PULSED_SEED_KEYS = ("energy_J", "shape", "bandwidth_nm", "chirp", "measured_pulse", "measured_spectrum") + DURATION_KEYS
 CHIRPS = ("up", "down")
 CW_SEED_KEYS = ("power_W",)
 SEED: dict[str, Key] = {
@@ -136,6 +136,8 @@ SEED: dict[str, Key] = {
                                     le=1e7),
     "bandwidth_nm": quantity("FWHM of the spectrum of a stretched (linearly chirped) pulse", gt=0, le=2000.0),
     "chirp": choice("direction of the chirp: up, longer wavelengths later; down, shorter", CHIRPS, default="up"),
+    "measured_pulse": Key("table", 'a measured pulse shape (with shape = "file"): file, background, window_ns'),
+    "measured_spectrum": Key("table", "a measured spectrum of a stretched seed: file, background"),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
@@ -220,6 +222,9 @@ _LIMIT_MEANINGS = {
     "gain_without_ase_dB": "fibres with ase = false: warn above this small-signal gain (dB)",
     "cavity_beam_change_fraction": "repeats without a cavity mode: warn when the beam's D4σ in a round trip "
                                    "kept differs from that after the first by more than this fraction",
+    "pulse_clipped_fraction": "measured pulse: warn when the time window leaves out more than this fraction of "
+                              "its trace's energy",
+    "pulse_end_fraction": "measured pulse: warn when its trace ends above this fraction of its peak",
     "self_focusing_length_factor": "self-focusing is a warning when the collapse distance is below this many "
                                    "times the path through the medium, else a note",
 }

@@ -38,6 +38,7 @@ from ampmodel.kernels.diffraction import critical_power_W
 from ampmodel.kernels.fibre_modes import MARCUSE_VALID_V, SINGLE_MODE_CUTOFF_V, effective_area
 from ampmodel.kernels.pulse_shape import true_peak
 from ampmodel.notices import warning
+from ampmodel.pulsed.measured import trace_warnings
 from ampmodel.safety import SAFETY_NOTE
 
 
@@ -89,7 +90,7 @@ def _peak_factor(config: Config) -> np.ndarray | None:
     """The pulse's true peak over each time slice's mean (kernels/beam_shapes.slice_peak_factors)."""
     if config.mode == "cw" or config.seed.duration_s is None:
         return None
-    return beam_shapes.slice_peak_factors(config.seed.shape, config.grid.time_slices)
+    return beam_shapes.slice_peak_factors(config.seed.shape, config.grid.time_slices, config.seed.pulse_trace)
 
 
 def stage_figures(stage: FibreStage, cw: bool, factor: np.ndarray | None = None) -> StageFigures:
@@ -223,7 +224,7 @@ def summarise_fibre(config: Config, stages: list[FibreStage], x_m: np.ndarray) -
     """The summary.json dict of a layout of fibres (cw or pulsed)."""
     cw = config.mode == "cw"
     seed = config.seed
-    warnings: list[str] = []
+    warnings: list[str] = list(trace_warnings(config))     # a measured pulse (none in cw)
     steps, media = [], []
     fibres = [st for st in stages if st.model is not None]
     # on-axis peak per unit power or energy, 2/(πw²), of the mode the beam is in (before a fibre: the first's)
@@ -360,7 +361,8 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
     last = fibres[-1].train
     out_power = last.pulse.energy_out_J / last.dt_s * math.prod(
         st.step.transmission for st in stages[stages.index(fibres[-1]) + 1:])
-    duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s))
+    duration = pulse_shape.fwhm_s(*pulse_shape.resampled(out_power, seed.shape, seed.duration_s,
+                                                                   trace=seed.pulse_trace))
     b_total = true_peak(sum(st.train.pulse.b_integral_rad for st in fibres), _peak_factor(config))
     if b_total > limits.b_integral_total_rad:
         warnings.append(warning("b-integral-total", f"layout: accumulated B-integral {b_total:.2f} rad, above {limits.b_integral_total_rad:g} "

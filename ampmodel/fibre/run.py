@@ -102,7 +102,7 @@ def simulate_fibre(config: Config, progress: bool | None = False) -> Result:
         t, weights, dt = np.zeros(0), np.zeros(0), 0.0
         signal = float(seed.power_W)
     else:
-        t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
+        t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices, seed.pulse_trace)
         signal = weights * seed.energy_J
     records, stages, media, fibres = [], [], {}, {}
     b_total = np.zeros(t.size)

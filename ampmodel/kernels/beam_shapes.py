@@ -5,6 +5,11 @@ Time-window rule (stated in the README): the window holds all but about 1e-7 of 
 1e-7 of the peak), and exactly the pulse for a flat (square) pulse. The window is cut into
 ``time_slices`` equal slices; each slice carries the exact integral of the pulse shape over its
 interval, and the slices are normalised so that their sum is the seed energy.
+
+A measured pulse (shape "file") is a trace ``(x, p)``: times in units of its FWHM from its peak,
+strictly increasing, and its power (any scale), straight between the points (kernels/traces.py). Its
+window is the span of the trace (the config cuts the trace to the window asked for); its integrals
+are exact.
 """
 from __future__ import annotations
 
@@ -14,6 +19,7 @@ import numpy as np
 from scipy.special import erf
 
 from ampmodel.kernels import diffraction as kd
+from ampmodel.kernels import traces
 from ampmodel.kernels.beam_figures import m_squared as measure_m2
 
 # Half-width of the time window in units of the FWHM (see the module docstring).
@@ -64,8 +70,23 @@ def transverse_profile(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_
     raise ValueError(f"unknown transverse profile {profile!r}")
 
 
-def _cumulative(shape: str, t_over_fwhm: np.ndarray) -> np.ndarray:
+Trace = tuple  # (x, p): a measured pulse, times in units of its FWHM from its peak, and its power
+
+
+def window_edges(shape: str, n: int, trace: Trace | None = None) -> np.ndarray:
+    """(n + 1,) the edges of the time slices in units of the FWHM: the window of the module's rule
+    around the peak, or the span of a measured trace (shape "file")."""
+    if shape == "file":
+        x = np.asarray(trace[0], dtype=float)
+        return np.linspace(x[0], x[-1], n + 1)
+    half = HALF_WINDOW_FWHM[shape]
+    return np.linspace(-half, half, n + 1)
+
+
+def _cumulative(shape: str, t_over_fwhm: np.ndarray, trace: Trace | None = None) -> np.ndarray:
     """Fraction of the pulse energy before time t (t in units of the FWHM, pulse centred on 0)."""
+    if shape == "file":
+        return traces.cumulative(trace[0], trace[1], t_over_fwhm)
     if shape == "gaussian":
         # P ~ exp(−4 ln2 t²/τ²): cumulative = (1 + erf(2·sqrt(ln 2)·t/τ))/2
         return 0.5 * (1.0 + erf(2.0 * math.sqrt(math.log(2.0)) * t_over_fwhm))
@@ -77,14 +98,17 @@ def _cumulative(shape: str, t_over_fwhm: np.ndarray) -> np.ndarray:
     raise ValueError(f"unknown temporal shape {shape!r}")
 
 
-def time_slices(shape: str, duration_s: float, n: int) -> tuple[np.ndarray, np.ndarray, float]:
+def time_slices(shape: str, duration_s: float, n: int,
+                trace: Trace | None = None) -> tuple[np.ndarray, np.ndarray, float]:
     """Cut a pulse into ``n`` equal time slices covering the window rule of this module.
 
     Parameters
     ----------
-    shape : "gaussian" | "sech2" (duration = FWHM) | "flat" (duration = full width)
+    shape : "gaussian" | "sech2" (duration = FWHM) | "flat" (duration = full width) | "file" (a
+        measured trace, duration = its FWHM)
     duration_s : pulse duration (s)
     n : number of slices
+    trace : shape "file": the measured trace (see the module docstring)
 
     Returns
     -------
@@ -92,18 +116,19 @@ def time_slices(shape: str, duration_s: float, n: int) -> tuple[np.ndarray, np.n
     weights : (n,) fraction of the energy in each slice, summing to 1
     dt_s : slice width (s)
     """
-    half = HALF_WINDOW_FWHM[shape]
-    edges = np.linspace(-half, half, n + 1)
-    cum = _cumulative(shape, edges)
+    edges = window_edges(shape, n, trace)
+    cum = _cumulative(shape, edges, trace)
     weights = np.diff(cum)
     weights /= weights.sum()
-    dt = 2.0 * half * duration_s / n
+    dt = (edges[-1] - edges[0]) * duration_s / n
     t = 0.5 * (edges[:-1] + edges[1:]) * duration_s
     return t, weights, dt
 
 
-def _density(shape: str, t_over_fwhm: np.ndarray) -> np.ndarray:
+def _density(shape: str, t_over_fwhm: np.ndarray, trace: Trace | None = None) -> np.ndarray:
     """The pulse's power relative to its energy (per unit of t/FWHM): the derivative of :func:`_cumulative`."""
+    if shape == "file":
+        return traces.density(trace[0], trace[1], t_over_fwhm)
     if shape == "gaussian":
         c = 2.0 * math.sqrt(math.log(2.0))
         return c / math.sqrt(math.pi) * np.exp(-(c * t_over_fwhm) ** 2)
@@ -114,7 +139,7 @@ def _density(shape: str, t_over_fwhm: np.ndarray) -> np.ndarray:
     raise ValueError(f"unknown temporal shape {shape!r}")
 
 
-def slice_peak_factors(shape: str, n: int) -> np.ndarray:
+def slice_peak_factors(shape: str, n: int, trace: Trace | None = None) -> np.ndarray:
     """(n,) the largest power inside each time slice of :func:`time_slices` over the slice's mean power.
 
     A time slice carries the mean power of its interval; the pulse's true peak lies inside a slice. With
@@ -122,14 +147,17 @@ def slice_peak_factors(shape: str, n: int) -> np.ndarray:
     scaled), the true peak power, intensity and B-integral of slice t are its mean ones times this
     factor. The shapes rise to their peak at t = 0 and fall after it, so the largest power in a slice
     is at the point of the slice nearest t = 0. At any n the largest of (mean x factor) is the pulse's
-    peak power: 0.9394·E/τ (Gaussian, FWHM τ), 0.8814·E/τ (sech²), E/τ (flat).
+    peak power: 0.9394·E/τ (Gaussian, FWHM τ), 0.8814·E/τ (sech²), E/τ (flat). A measured trace
+    (shape "file") takes the largest value of the trace itself inside each slice (at a point of the
+    trace or at the slice's edge: it is straight between its points).
     """
-    half = HALF_WINDOW_FWHM[shape]
-    edges = np.linspace(-half, half, n + 1)
+    edges = window_edges(shape, n, trace)
     lo, hi = edges[:-1], edges[1:]
-    nearest = np.clip(0.0, lo, hi)
-    mean = np.diff(_cumulative(shape, edges)) / (hi - lo)
-    peak = _density(shape, nearest)
+    mean = np.diff(_cumulative(shape, edges, trace)) / (hi - lo)
+    if shape == "file":
+        peak = traces.interval_maxima(trace[0], trace[1], edges) / traces.node_integrals(*trace)[-1]
+    else:
+        peak = _density(shape, np.clip(0.0, lo, hi))
     out = np.ones(n)
     np.divide(peak, mean, out=out, where=mean > 0.0)
     return np.maximum(out, 1.0)
@@ -148,9 +176,37 @@ def slice_wavelengths(t_s: np.ndarray, duration_s: float, wavelength_m: float, b
     return wavelength_m + sign * bandwidth_m * t / duration_s
 
 
-def wavelength_span_m(shape: str, wavelength_m: float, bandwidth_m: float | None) -> tuple[float, float]:
+def measured_spectrum_wavelengths(shape: str, n: int, spectrum: Trace, chirp: str = "up",
+                                  trace: Trace | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """(centres, widths) (m) of the wavelengths the time slices of :func:`time_slices` carry when a
+    stretched pulse's spectrum is measured: ``spectrum`` is (wavelength (m), spectral density (any
+    scale)), a trace of kernels/traces.py. A linear chirp maps energy in time onto energy in
+    wavelength in order: the point at which a fraction F of the pulse's energy has passed carries the
+    wavelength below which the fraction F of the spectrum's energy lies ("up": longer wavelengths
+    later; "down": the fraction 1 − F). Slice k spans the wavelengths between the images of its edges
+    (``widths``, so that its energy over its width is the spectral density there) and is centred on
+    the image of its middle fraction of the energy."""
+    edges = window_edges(shape, n, trace)
+    cum = _cumulative(shape, edges, trace)
+    cum = (cum - cum[0]) / (cum[-1] - cum[0])
+    middle = 0.5 * (cum[:-1] + cum[1:])
+    if chirp != "up":
+        cum, middle = 1.0 - cum, 1.0 - middle
+    wl_edges = traces.inverse_cumulative(spectrum[0], spectrum[1], cum)
+    centres = traces.inverse_cumulative(spectrum[0], spectrum[1], middle)
+    return centres, np.abs(np.diff(wl_edges))
+
+
+def wavelength_span_m(shape: str, wavelength_m: float, bandwidth_m: float | None, trace: Trace | None = None,
+                      spectrum: Trace | None = None) -> tuple[float, float]:
     """The shortest and longest wavelength a pulse's time slices reach (m): the window of
-    :func:`time_slices` swept by the chirp of :func:`slice_wavelengths`."""
+    :func:`time_slices` swept by the chirp of :func:`slice_wavelengths`; with a measured ``spectrum``
+    the span where it is above zero (:func:`measured_spectrum_wavelengths` maps the pulse onto it)."""
+    if spectrum is not None:
+        return traces.support(spectrum[0], spectrum[1])
+    if shape == "file":
+        x = np.asarray(trace[0], dtype=float) * (bandwidth_m or 0.0)
+        return wavelength_m - max(-x[0], x[-1]), wavelength_m + max(-x[0], x[-1])
     half = HALF_WINDOW_FWHM[shape] * (bandwidth_m or 0.0)
     return wavelength_m - half, wavelength_m + half
 

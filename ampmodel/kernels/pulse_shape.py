@@ -13,26 +13,26 @@ from __future__ import annotations
 
 import numpy as np
 
-from ampmodel.kernels.beam_shapes import HALF_WINDOW_FWHM, _cumulative, _density
+from ampmodel.kernels.beam_shapes import _cumulative, _density, window_edges
 
 SAMPLES_PER_SLICE = 32
 
 
-def resampled(mean_power: np.ndarray, shape: str, duration_s: float,
-              samples: int = SAMPLES_PER_SLICE) -> tuple[np.ndarray, np.ndarray]:
+def resampled(mean_power: np.ndarray, shape: str, duration_s: float, samples: int = SAMPLES_PER_SLICE,
+              trace: tuple | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(t_s, power) of a sliced pulse on a fine grid: ``samples`` points across each of the Nt slices of
     ``mean_power`` (W, the slices of beam_shapes.time_slices for ``shape`` and ``duration_s``), both ends
     included (a slice boundary appears twice, once with each slice's value: the jump between slices is
-    kept), the seed's shape inside each slice scaled to the slice's mean. Times from the seed's peak (s)."""
+    kept), the seed's shape inside each slice scaled to the slice's mean. Times from the seed's peak (s).
+    ``trace``: shape "file", the measured trace (kernels/beam_shapes)."""
     mean_power = np.asarray(mean_power, dtype=float)
     n = mean_power.size
-    half = HALF_WINDOW_FWHM[shape]
-    edges = np.linspace(-half, half, n + 1)
+    edges = window_edges(shape, n, trace)
     width = edges[1] - edges[0]
-    mean_shape = np.diff(_cumulative(shape, edges)) / width            # p̄_t, per unit of t/FWHM
+    mean_shape = np.diff(_cumulative(shape, edges, trace)) / width     # p̄_t, per unit of t/FWHM
     offsets = np.linspace(0.0, width, samples)
     t = (edges[:-1, None] + offsets[None, :])                          # (n, samples), units of the FWHM
-    p = _density(shape, t)
+    p = _density(shape, t, trace)
     scale = np.zeros(n)
     np.divide(mean_power, mean_shape, out=scale, where=mean_shape > 0.0)
     return (t * duration_s).ravel(), (p * scale[:, None]).ravel()

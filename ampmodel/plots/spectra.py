@@ -65,6 +65,10 @@ def plot_spectra(result: Result, path: Path) -> Path:
         peak = finite_max(values)
         if peak > 0:
             ax_n.plot(nm, values / peak, color=colour, label=label)
+    measured = getattr(result.config.seed, "spectrum_trace", None)
+    if measured is not None:         # the measured spectrum the seed was mapped onto, as read
+        ax_n.plot(np.asarray(measured[0]) * 1e9, np.asarray(measured[1]), color="0.3", linestyle="--",
+                  linewidth=0.8, label="measured (file)")
     ax_n.axhline(0.5, color="0.6", linestyle=":", linewidth=0.8)
     ax_n.set_ylim(0.0, 1.05)
     ax_n.set_ylabel("normalised to its peak")

@@ -4,5 +4,6 @@ run.py (simulate_pulsed: gain maps, seed, the steps in order, the Result), passe
 (a pass through a medium on each path), clocks.py and repeats.py (time between steps: pumping and
 decay, round trips), cavity_mode.py (a regenerative cavity's mode on the fluence path), trains.py and
 train_cycles.py (a pulse train's periodic steady state: one pulse or a cycle of pulses), diagnostics.py
-(the summary), memory.py (the arrays a run needs). Imports the beam, media, kernels and description.
+(the summary), spectra.py (a chirped seed's wavelengths and spectra), measured.py (the warnings on a
+measured pulse trace), memory.py (the arrays a run needs). Imports the beam, media, kernels and description.
 """

@@ -28,6 +28,7 @@ from ampmodel.kernels.pulse_shape import true_peak_map
 from ampmodel.media import gain_maps
 from ampmodel.notices import Notice, note, warning
 from ampmodel.output.result import MediumRecord
+from ampmodel.pulsed.measured import trace_warnings
 from ampmodel.safety import SAFETY_NOTE
 
 # What a clipping step does, in the clipping warning.
@@ -163,8 +164,10 @@ def summarise(config: Config, beam: BeamState, seed_map: np.ndarray, outcomes: l
     dx = float(beam.x_m[1] - beam.x_m[0])
     warnings.extend(seed_grid_warnings(seed.diameter_m, dx, seed_map, config.grid.width_m, limits))
     warnings.extend(extra_warnings or ())
+    warnings.extend(trace_warnings(config))
     if seed.shape != "flat" and config.grid.time_slices < 16:
-        warnings.append(note("time-slices", f"grid: {config.grid.time_slices} time slices resolve the {seed.shape} "
+        warnings.append(note("time-slices", f"grid: {config.grid.time_slices} time slices resolve the "
+                             f"{'measured' if seed.shape == 'file' else seed.shape} "
                              f"pulse's reshaping by saturation coarsely; 16 or more are advised for the output "
                              f"pulse shape"))
 

@@ -64,9 +64,8 @@ class PulsedLayout:
             maps = {m.name: gain_maps.gain_map(m, x, x) for m in config.media}
         except gain_maps.GainMapError as exc:
             raise ConfigError([f"{config.source}: {exc}"]) from None
-        t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices)
-        wavelengths = beam_shapes.slice_wavelengths(t, seed.duration_s, seed.wavelength_m, seed.bandwidth_m,
-                                                    seed.chirp)
+        t, weights, dt = beam_shapes.time_slices(seed.shape, seed.duration_s, grid.time_slices, seed.pulse_trace)
+        wavelengths = spectra.slice_wavelengths(config, t)
         states = {m.name: _medium_state(m, maps[m.name], slice_cross_sections(m, wavelengths))
                   for m in config.media}
         seed_field = None
@@ -79,7 +78,7 @@ class PulsedLayout:
         seed_power = weights * seed_map.sum() * area / dt
         return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
                    Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states), wavelengths,
-                   beam_shapes.slice_peak_factors(seed.shape, grid.time_slices))
+                   beam_shapes.slice_peak_factors(seed.shape, grid.time_slices, seed.pulse_trace))
 
     @property
     def pixel_area_m2(self) -> float:
@@ -129,8 +128,8 @@ class PulsedLayout:
                 outcome.beam = BeamFigures.of(fluence_map, self.x_m, self.x_m, self.apertures[step.index],
                                               self.pixel_area_m2)
                 outcome.peak_power_W = max(power_before, power_after)
-                outcome.duration_s = pulse_shape.fwhm_s(*pulse_shape.resampled(power, config.seed.shape,
-                                                                               config.seed.duration_s))
+                outcome.duration_s = pulse_shape.fwhm_s(*pulse_shape.resampled(
+                    power, config.seed.shape, config.seed.duration_s, trace=config.seed.pulse_trace))
                 power_before = power_after
                 records.append(repeats.step_record(step, beam, outcome, fluence_map, power))
             outcomes.append(outcome)
@@ -210,7 +209,8 @@ def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[s
     summary = diagnostics.summarise(config, beam, run.seed_map, outcomes, media, run.maps,
                                     seed_beam=seed_beam.as_dict(), extra_warnings=grid_warnings)
     power = beam.fluence.sum(axis=(1, 2)) * run.pixel_area_m2 / run.dt_s      # (Nt,) W, the output
-    t_fine, p_fine = pulse_shape.resampled(power, config.seed.shape, config.seed.duration_s)
+    t_fine, p_fine = pulse_shape.resampled(power, config.seed.shape, config.seed.duration_s,
+                                           trace=config.seed.pulse_trace)
     summary["output_duration_ns"] = pulse_shape.fwhm_s(t_fine, p_fine) * 1e9
     summary["output_peak_power_W"] = true_peak(power, run.peak_factor)
     summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else run.timeline.elapsed_s) * 1e9

@@ -1,7 +1,9 @@
 """The spectrum of a pulsed run: each time slice carries its wavelength (a stretched, linearly chirped
 seed sweeps λ(t) = λ0 ± bandwidth·t/duration), so the energy of each slice after a step is the
-spectrum there, in steps of Δλ = bandwidth·dt/duration. A narrowband seed's spectrum is not resolved:
-its centre is the seed's wavelength and its width the transform limit of its pulse shape.
+spectrum there, in steps of Δλ = bandwidth·dt/duration. With a measured spectrum the chirp maps the
+pulse's energy onto the spectrum's in order (kernels/beam_shapes.measured_spectrum_wavelengths): each
+slice then has its own wavelength interval. A narrowband seed's spectrum is not resolved: its centre
+is the seed's wavelength and its width the transform limit of its pulse shape.
 """
 from __future__ import annotations
 
@@ -16,6 +18,7 @@ from ampmodel.diagnostics import (
     transform_limit_bandwidth_m,
     transform_limit_duration_s,
 )
+from ampmodel.kernels import beam_shapes
 from ampmodel.notices import warning
 from ampmodel.output.result import StepRecord
 from ampmodel.pulsed.passes import MediumState
@@ -24,10 +27,28 @@ from ampmodel.pulsed.passes import MediumState
 OUTSIDE_WARNING = 0.01
 
 
-def wavelength_step_m(config: Config, dt_s: float) -> float:
-    """Δλ between neighbouring time slices of a chirped seed (m)."""
+def wavelength_step_m(config: Config, dt_s: float) -> float | np.ndarray:
+    """Δλ between neighbouring time slices of a chirped seed (m); with a measured spectrum, (Nt,) the
+    wavelength interval of each slice."""
     seed = config.seed
+    if seed.spectrum_trace is not None:
+        return _measured(config)[1]
     return seed.bandwidth_m * dt_s / seed.duration_s
+
+
+def slice_wavelengths(config: Config, t_s: np.ndarray) -> np.ndarray:
+    """(Nt,) the wavelength of each time slice of the seed (m): a linear sweep across the pulse, the
+    measured spectrum mapped onto it, or the seed's wavelength (narrowband)."""
+    seed = config.seed
+    if seed.spectrum_trace is not None:
+        return _measured(config)[0]
+    return beam_shapes.slice_wavelengths(t_s, seed.duration_s, seed.wavelength_m, seed.bandwidth_m, seed.chirp)
+
+
+def _measured(config: Config) -> tuple[np.ndarray, np.ndarray]:
+    seed = config.seed
+    return beam_shapes.measured_spectrum_wavelengths(seed.shape, config.grid.time_slices, seed.spectrum_trace,
+                                                     seed.chirp, seed.pulse_trace)
 
 
 def add_spectra(config: Config, summary: dict[str, Any], records: list[StepRecord], wavelengths_m: np.ndarray,
@@ -38,16 +59,17 @@ def add_spectra(config: Config, summary: dict[str, Any], records: list[StepRecor
     or None for a narrowband seed."""
     seed = config.seed
     if not seed.bandwidth_m:
-        width = transform_limit_bandwidth_m(seed.shape, seed.duration_s, seed.wavelength_m)
+        width = transform_limit_bandwidth_m(seed.shape, seed.duration_s, seed.wavelength_m, seed.pulse_trace)
         figures = [(seed.wavelength_m, width)] * len(records)
         seed_spectrum = None
     else:
         step = wavelength_step_m(config, dt_s)
+        widths = step if seed.spectrum_trace is not None else None
         figures = []
         for rec in records:
             energies = rec.power_W * dt_s
             rec.datasets["spectrum"] = (spectrum_J_m(energies, step), "J/m")
-            figures.append(spectral_centre_and_width(energies, wavelengths_m))
+            figures.append(spectral_centre_and_width(energies, wavelengths_m, widths))
         seed_spectrum = spectrum_J_m(seed_power_W * dt_s, step)
         _outside_warnings(config, summary, wavelengths_m, seed_power_W, states)
     for entry, (centre, width) in zip(summary["steps"], figures, strict=True):

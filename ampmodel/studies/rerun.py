@@ -29,8 +29,8 @@ except ModuleNotFoundError:  # Python < 3.11
 
 from ampmodel._version import __version__
 from ampmodel.config.checks import ConfigError
-from ampmodel.config.files import inline_stored_files
 from ampmodel.config.load import load_config
+from ampmodel.config.measured import inline_stored_files
 from ampmodel.materials import registry
 from ampmodel.materials.material import material_differences, material_from_dict, material_to_dict
 from ampmodel.output.atomic import write_json

@@ -22,8 +22,8 @@ from pathlib import Path
 from typing import Any, Callable, Iterator, Mapping, Sequence
 
 from ampmodel.config.checks import ConfigError
-from ampmodel.config.files import inline_files
 from ampmodel.config.load import load_config
+from ampmodel.config.measured import inline_files
 from ampmodel.config.text import dump_toml, resolve_path
 from ampmodel.description import Config
 from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
