@@ -23,6 +23,7 @@ from typing import Mapping, Sequence
 
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
+from ampmodel.config import profile as config_profile
 from ampmodel.config import schema as S
 from ampmodel.config import timing as config_timing
 from ampmodel.config.checks import (
@@ -184,6 +185,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
             if item.get("kind") in S.FIELD_ONLY_KINDS:
                 p.add(f"{path}.kind", f"a '{item['kind']}' step acts on the optical field: set "
                                       "grid.diffraction = true (or remove the step)", item["kind"])
+    if grid is not None and seed is not None and seed.measured is not None:
+        config_profile.check_with_grid(p, grid, seed.measured, mode)
     if grid is not None and steps is not None:
         config_timing.cavity_modes(p, raw, grid)
     if len(p) or grid is None or seed is None or media is None or steps is None:
@@ -216,7 +219,8 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     carries the seed (no transverse profile) and pulses may come at a repetition rate."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
-    if not fibre_layout and "diameter_mm" not in table:
+    measured = _measured(p, table, fibre_layout)
+    if not fibre_layout and "diameter_mm" not in table and table.get("profile") != "file":
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
     rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
     durations: list[str] = []          # the pulsed seed's duration key, checked below
@@ -249,6 +253,8 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     if len(p) > before or wavelength_nm is None or mode is None:
         return None
     duration_s = to_si(durations[0], v[durations[0]]) if mode == "pulsed" else None
+    if measured is not None:      # the measured beam's D4σ (mean of x and y) is the seed's diameter
+        v["diameter_mm"] = 0.5 * sum(measured.d4sigma_m()) / 1e-3
     return Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
                 power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
                 order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else 0.0,
@@ -256,7 +262,22 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                 curvature_m=to_si("curvature_mm", v["curvature_mm"]) if "curvature_mm" in v else None,
                 m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz,
                 bandwidth_m=to_si("bandwidth_nm", v["bandwidth_nm"]) if "bandwidth_nm" in v else None,
-                chirp=v["chirp"])
+                chirp=v["chirp"], measured=measured)
+
+
+def _measured(p: Problems, table: dict, fibre_layout: bool):
+    """The measured profile of ``profile = "file"`` (config/profile.py); None otherwise or with problems."""
+    if table.get("profile") != "file":
+        if "measured_profile" in table and not fibre_layout:
+            p.add("seed.measured_profile", 'applies to profile = "file": set seed.profile = "file" or remove it',
+                  table["measured_profile"])
+        return None
+    if fibre_layout:
+        return None
+    if "diameter_mm" in table:
+        p.add("seed.diameter_mm", 'with profile = "file" the measured beam\'s D4σ is its diameter: remove '
+                                  "diameter_mm", table["diameter_mm"])
+    return config_profile.measured_profile(p, table.get("measured_profile"))
 
 
 # --- steps ------------------------------------------------------------------------------------
