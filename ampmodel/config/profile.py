@@ -357,8 +357,12 @@ def describe(config: Any) -> list[str]:
                                                                                   medium.diameter_m), area)
     held = float(shape.sum() * area * mp.cleaned.max() / (mp.cleaned.sum() * mp.pixel_x_m * mp.pixel_y_m))
     pitch = f"{mp.pixel_x_m * 1e6:g}" + (f" x {mp.pixel_y_m * 1e6:g}" if mp.pixel_y_m != mp.pixel_x_m else "")
+    f = mp.cleaned
+    rim = max(f[0].max(), f[-1].max(), f[:, 0].max(), f[:, -1].max()) / f.max()
+    edge = ([f"  seed profile: the beam reaches the frame's edge ({rim:.1e} of its peak there): part of it may "
+             "lie off the camera; raise clip if that is noise"] if rim > 1e-3 else [])
     return [f"  seed profile from {mp.source} ({nx} x {ny} pixels of {pitch} µm): D4σ {dx * 1e3:.4g} x "
             f"{dy * 1e3:.4g} mm (x, y), fill factor {fill_file:.3g} of the clear aperture of medium {medium.name}",
             f"  seed profile on the grid ({config.grid.points} x {config.grid.points} pixels of "
             f"{(x[1] - x[0]) * 1e6:.4g} µm): D4σ {gx * 1e3:.4g} x {gy * 1e3:.4g} mm, fill factor {fill_grid:.3g}; "
-            f"the window holds {100 * held:.4g} % of the frame's energy (the seed energy is put in it)"]
+            f"the window holds {100 * held:.4g} % of the frame's energy (the seed energy is put in it)"] + edge

@@ -255,6 +255,17 @@ def test_the_frames_go_inline_and_give_the_same_seed(tmp_path):
     assert config.raw["seed"]["measured_profile"]["file"] == "beam.h5"        # the original is left alone
 
 
+def test_check_says_when_the_beam_reaches_the_frames_edge(tmp_path):
+    """The dark level left in the frame (clip 0) reaches the frame's edge, and `check` says so; with the
+    background subtracted it does not."""
+    from ampmodel.config.profile import describe
+    name, _ = write_frame(tmp_path, "png16", gaussian_frame())
+    good = describe(load_config(config_dict({"file": name, "background": DARK}), folder=tmp_path))
+    bad = describe(load_config(config_dict({"file": name, "clip": 0.0}), folder=tmp_path))
+    assert len(good) == 2 and not any("frame's edge" in line for line in good)
+    assert any("the beam reaches the frame's edge" in line for line in bad)
+
+
 def test_an_hdf5_frame_needs_its_dataset(tmp_path):
     name, _ = write_frame(tmp_path, "hdf5", gaussian_frame())
     with pytest.raises(ConfigError) as info:
