@@ -267,12 +267,15 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
 
 def _measured(p: Problems, table: dict, fibre_layout: bool):
     """The measured profile of ``profile = "file"`` (config/profile.py); None otherwise or with problems."""
-    if table.get("profile") != "file":
-        if "measured_profile" in table and not fibre_layout:
-            p.add("seed.measured_profile", 'applies to profile = "file": set seed.profile = "file" or remove it',
+    if fibre_layout:
+        if "measured_profile" in table:
+            p.add("seed.measured_profile", "a fibre's mode carries the signal: remove the measured profile",
                   table["measured_profile"])
         return None
-    if fibre_layout:
+    if table.get("profile") != "file":
+        if "measured_profile" in table:
+            p.add("seed.measured_profile", 'applies to profile = "file": set seed.profile = "file" or remove it',
+                  table["measured_profile"])
         return None
     if "diameter_mm" in table:
         p.add("seed.diameter_mm", 'with profile = "file" the measured beam\'s D4σ is its diameter: remove '

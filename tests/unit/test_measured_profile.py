@@ -222,6 +222,23 @@ def test_a_measured_wavefront_is_applied_to_the_start_field(tmp_path):
     assert fluence.sum() * layout.pixel_area_m2 == pytest.approx(config.seed.energy_J, rel=1e-12)
 
 
+def test_the_seed_grid_warnings_see_the_measured_beam(tmp_path):
+    """The seed's diameter is the measured D4σ (2.8 mm): 12 pixels of 0.5 mm across 6 mm is under 8
+    pixels across it, and a 3.6 mm window cuts the beam where it is still 8 % of its peak: both give
+    the grid-coarse warning; a 9 mm window of 64 pixels neither."""
+    from ampmodel.simulation import simulate
+    name, _ = write_frame(tmp_path, "npy", gaussian_frame())
+
+    def grid_warnings(points, width_mm):
+        config = load_config(config_dict({"file": name, "background": DARK}, points=points, width_mm=width_mm),
+                             folder=tmp_path)
+        notices = simulate(config).summary["notices"]
+        return [n["text"] for n in notices if n["code"] == "grid-coarse"]
+    assert grid_warnings(64, 9.0) == []
+    assert any("pixels across the seed diameter" in w for w in grid_warnings(12, 6.0))
+    assert any("the seed reaches the edge of the 3.6 mm window" in w for w in grid_warnings(64, 3.6))
+
+
 def test_a_cw_seed_takes_the_measured_profile(tmp_path):
     """cw mode: the seed intensity map holds the seed power."""
     from ampmodel.simulation import simulate
@@ -291,3 +308,16 @@ def test_unusable_frames_are_bad_input(what, write, message, tmp_path):
         load_config(config_dict({"file": name}), folder=tmp_path)
     assert f'seed.measured_profile.file = "{name}": ' in str(info.value)
     assert message in str(info.value), str(info.value)
+
+
+def test_a_fibre_layout_refuses_a_measured_profile():
+    """A fibre's mode carries the signal: the table is refused, not ignored."""
+    from pathlib import Path
+
+    from ampmodel.config.checks import Problems
+    from ampmodel.config.text import parse_toml
+    raw = parse_toml((Path(__file__).resolve().parents[1] / "data" / "good_fibre.toml").read_text(), Problems("t"))
+    raw["seed"]["measured_profile"] = {"file": "beam.png", "pixel_um": 5.0}
+    with pytest.raises(ConfigError) as info:
+        load_config(raw)
+    assert "seed.measured_profile = {" in str(info.value) and "a fibre's mode carries the signal" in str(info.value)
