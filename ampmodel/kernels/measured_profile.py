@@ -13,12 +13,23 @@ Steps, in this order (README, "A measured seed profile"):
    :func:`ampmodel.kernels.beam_figures.d4sigma`).
 4. Resampling: the image, its centroid put on the grid's centre (x = y = 0), is interpolated linearly
    onto the grid's pixel centres (``scipy.interpolate.RegularGridInterpolator``), zero outside the
-   image. A phase map of the same shape is resampled the same way.
+   image. Where a grid pixel spans several camera pixels, the image is first averaged over a box of
+   about one grid pixel (``scipy.ndimage.uniform_filter`` over the largest odd number n of camera
+   pixels that fits in a grid pixel, odd so that the centroid stays put; zero outside): each grid
+   pixel then takes the mean of the camera pixels it covers rather than a sample of them (no
+   aliasing of pixel-scale noise or fringes). The box adds its own second moment, (n² − 1)/12
+   camera pixels² (less than 1/12 of a grid pixel²), to σ² of the beam, as any binning does: the
+   D4σ on the grid grows by less than 0.67/D² (D the D4σ in grid pixels): 1 % at 8 grid pixels
+   across the beam, 0.26 % at 16, 0.07 % at 32. A phase map of the same shape is resampled the same
+   way.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy.interpolate import RegularGridInterpolator
+from scipy.ndimage import uniform_filter
 
 from ampmodel.kernels.beam_figures import d4sigma
 
@@ -74,13 +85,33 @@ def resample(values: np.ndarray, image: np.ndarray, pixel_x_m: float, pixel_y_m:
     return interp(np.stack((yy.ravel(), xx.ravel()), axis=-1)).reshape(len(y_m), len(x_m))
 
 
+def box_pixels(grid_step_m: float, pixel_m: float) -> int:
+    """The largest odd number of camera pixels that fits in one grid pixel (1 where a grid pixel is
+    smaller than 3 camera pixels)."""
+    ratio = abs(grid_step_m) / pixel_m
+    return max(1, 2 * int(math.floor((ratio - 1.0) / 2.0 + 1e-9)) + 1)
+
+
+def averaged(values: np.ndarray, pixel_x_m: float, pixel_y_m: float, x_m: np.ndarray, y_m: np.ndarray) -> np.ndarray:
+    """``values`` averaged over a box of about one grid pixel (module docstring); unchanged when the
+    camera's pixels are not smaller than half a grid pixel."""
+    nx = box_pixels(x_m[1] - x_m[0], pixel_x_m) if len(x_m) > 1 else 1
+    ny = box_pixels(y_m[1] - y_m[0], pixel_y_m) if len(y_m) > 1 else 1
+    if nx == 1 and ny == 1:
+        return np.asarray(values, dtype=float)
+    return uniform_filter(np.asarray(values, dtype=float), size=(ny, nx), mode="constant", cval=0.0)
+
+
 def on_grid(image: np.ndarray, pixel_x_m: float, pixel_y_m: float, x_m: np.ndarray, y_m: np.ndarray,
             phase_rad: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray | None]:
     """(relative profile, phase or None) of a cleaned image on the grid: the profile is the image
-    resampled (peak 1 on the image's scale: divided by the image's peak), the phase (rad) resampled
-    the same way."""
+    averaged over about a grid pixel and resampled (divided by the image's peak), the phase (rad)
+    averaged and resampled the same way."""
     peak = float(np.max(image))
-    shape = resample(image, image, pixel_x_m, pixel_y_m, x_m, y_m) / (peak if peak > 0.0 else 1.0)
+    smooth = averaged(image, pixel_x_m, pixel_y_m, x_m, y_m)
+    shape = resample(smooth, image, pixel_x_m, pixel_y_m, x_m, y_m) / (peak if peak > 0.0 else 1.0)
     np.clip(shape, 0.0, None, out=shape)
-    phase = None if phase_rad is None else resample(phase_rad, image, pixel_x_m, pixel_y_m, x_m, y_m)
+    phase = None
+    if phase_rad is not None:
+        phase = resample(averaged(phase_rad, pixel_x_m, pixel_y_m, x_m, y_m), image, pixel_x_m, pixel_y_m, x_m, y_m)
     return shape, phase
