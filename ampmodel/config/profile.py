@@ -89,6 +89,8 @@ def _read_image(path: Path) -> np.ndarray:
                 raise FrameProblem(f"{img.size[0]} x {img.size[1]} pixels: more than {MAX_PIXELS} in all; "
                                    "crop or bin the frame")
             return np.asarray(img)
+    except Image.DecompressionBombError:
+        raise FrameProblem(f"declares far more than {MAX_PIXELS} pixels: crop or bin the frame") from None
     except (UnidentifiedImageError, OSError, ValueError) as exc:
         raise FrameProblem(f"cannot be read as an image ({type(exc).__name__}); save it as a greyscale PNG or "
                            "TIFF") from None

@@ -359,3 +359,20 @@ def test_a_fibre_layout_refuses_a_measured_profile():
     with pytest.raises(ConfigError) as info:
         load_config(raw)
     assert "seed.measured_profile = {" in str(info.value) and "a fibre's mode carries the signal" in str(info.value)
+
+
+def test_a_png_that_declares_a_huge_frame_is_refused_before_it_is_decoded(tmp_path):
+    """A few hundred bytes that declare 20000 x 20000 16-bit pixels: refused from the header (no 800 MB
+    array is made)."""
+    import struct
+    import zlib
+
+    def chunk(kind: bytes, data: bytes) -> bytes:
+        return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+    header = struct.pack(">IIBBBBB", 20000, 20000, 16, 0, 0, 0, 0)
+    png = b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", header) + chunk(b"IDAT", zlib.compress(b"")) + chunk(b"IEND", b"")
+    (tmp_path / "huge.png").write_bytes(png)
+    with pytest.raises(ConfigError) as info:
+        load_config(config_dict({"file": "huge.png"}), folder=tmp_path)
+    assert 'seed.measured_profile.file = "huge.png": ' in str(info.value)
+    assert "pixels: crop or bin the frame" in str(info.value)
