@@ -22,6 +22,7 @@ without the file; sweep points and tolerance samples get the arrays inline (``im
 """
 from __future__ import annotations
 
+import functools
 import math
 from pathlib import Path
 from typing import Any, Mapping
@@ -312,13 +313,26 @@ def inline_profile(raw: dict, files: Mapping[str, str] | None = None, folder: st
         del table[key]
         table.pop(DATASET_KEYS[key], None)
         if text is not None:
-            array = parse_csv(text)
+            table[inline] = _rows(text)
         else:
             path = Path(name).expanduser()
             if not path.is_absolute() and folder:
                 path = Path(folder) / path
-            array = read_frame(path, dataset)[0]
-        table[inline] = array.tolist()
+            table[inline] = _as_rows(read_frame(path, dataset)[0])
+
+
+def _as_rows(array: np.ndarray) -> list:
+    """A frame as nested lists, integers where every value is one (shorter in the TOML of a point)."""
+    if np.all(array == np.round(array)) and float(np.abs(array).max(initial=0.0)) < 2.0**53:
+        return array.astype(np.int64).tolist()
+    return array.tolist()
+
+
+@functools.lru_cache(maxsize=4)
+def _rows(text: str) -> list:
+    """The rows of a stored frame, parsed once for all the points of a sweep (the lists are shared:
+    nothing changes them)."""
+    return _as_rows(parse_csv(text))
 
 
 # ----------------------------------------------------------------------------------------------
