@@ -212,6 +212,9 @@ def cmd_check(args) -> int:
           f"about {quantity_text(need, 'B')} of arrays)")
     for line in lines:
         print(line)
+    from ampmodel.config.profile import describe
+    for line in describe(config):
+        print(line)
     return EXIT_OK
 
 

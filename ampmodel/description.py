@@ -128,6 +128,30 @@ class Medium:
     fibre: Fibre | None = None
 
 
+@dataclass(frozen=True, eq=False)
+class MeasuredProfile:
+    """A seed profile measured with a camera (``seed.profile = "file"``): the image cleaned
+    (background subtracted, noise floor clipped: ``kernels/measured_profile.py``; the image as read
+    is kept in ``Config.data_files``), the pixel pitch at the seed plane (m) and an optional phase map
+    (rad, same shape). ``source`` names the file (for messages and ``check``)."""
+
+    cleaned: Any                     # (Ny, Nx) >= 0, what the seed is made of
+    pixel_x_m: float
+    pixel_y_m: float
+    phase_rad: Any = None            # (Ny, Nx) or None
+    source: str = ""
+
+    def d4sigma_m(self) -> tuple[float, float]:
+        """D4σ (m) in x and y of the cleaned image (ISO 11146-1 second moments)."""
+        from ampmodel.kernels.measured_profile import image_d4sigma
+        return image_d4sigma(self.cleaned, self.pixel_x_m, self.pixel_y_m)
+
+    def on_grid(self, x_m: Any, y_m: Any) -> tuple[Any, Any]:
+        """(relative profile, phase in rad or None) on the grid, centred on the centroid."""
+        from ampmodel.kernels.measured_profile import on_grid
+        return on_grid(self.cleaned, self.pixel_x_m, self.pixel_y_m, x_m, y_m, self.phase_rad)
+
+
 @dataclass(frozen=True)
 class Seed:
     """The input pulse (pulsed) or beam (cw)."""
@@ -137,7 +161,7 @@ class Seed:
     power_W: float | None = None      # cw
     duration_s: float | None = None   # pulsed: FWHM (gaussian, sech2) or full width (flat)
     shape: str = "gaussian"           # "gaussian" | "flat" | "sech2" | "file" (pulse_trace)
-    profile: str = "gaussian"         # "gaussian" | "flat" | "supergaussian"
+    profile: str = "gaussian"         # "gaussian" | "flat" | "supergaussian" | "file" (measured)
     order: float = 8.0                # supergaussian order
     diameter_m: float = 1e-3          # 2w (1/e² intensity diameter); flat: hard-edged diameter
     # where the seed is taken (the start plane of the layout); at most one of the two is set:
@@ -158,6 +182,8 @@ class Seed:
     # a measured spectrum ([seed.measured_spectrum]): wavelengths (m) and spectral density relative to
     # its peak; bandwidth_m is then its FWHM and wavelength_m its centroid
     spectrum_trace: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    # profile = "file": the measured profile (diameter_m is then its D4σ, mean of x and y)
+    measured: MeasuredProfile | None = None
 
 
 @dataclass(frozen=True)

@@ -25,6 +25,7 @@ from pathlib import Path
 from typing import Any, Iterator, Mapping
 
 from ampmodel.config.checks import Problems, join_path, show
+from ampmodel.config.profile import inline_profile
 from ampmodel.materials.material import CROSS_SECTION_COLUMNS, Spectrum, check_spectrum
 
 COLUMNS = tuple(CROSS_SECTION_COLUMNS)            # wavelength_nm, emission_cm2, absorption_cm2
@@ -175,15 +176,19 @@ def _inline(table: dict, text: str) -> None:
     table.update(arrays)
 
 
-def inline_files(raw: Mapping[str, Any], folder: str | Path | None) -> dict:
+def inline_files(raw: Mapping[str, Any], folder: str | Path | None,
+                 stored: Mapping[str, str] | None = None) -> dict:
     """A copy of a *validated* config dict with each spectrum file replaced by its arrays (read from
-    ``folder`` for relative paths), so that it can be run where the file is not."""
+    ``folder`` for relative paths), so that it can be run where the file is not; the frames of a
+    measured seed profile (config/profile.py) are taken from ``stored`` (``Config.data_files``: what
+    the config read) where they are there, else read again."""
     out = copy.deepcopy(dict(raw))
     for table in _spectrum_tables(out):
         path = Path(table["file"]).expanduser()
         if not path.is_absolute() and folder:
             path = Path(folder) / path
         _inline(table, path.read_bytes().decode("utf-8-sig"))
+    inline_profile(out, stored, folder)
     return out
 
 
@@ -194,4 +199,5 @@ def inline_stored_files(raw: Mapping[str, Any], files: Mapping[str, str]) -> dic
     for table in _spectrum_tables(out):
         if table["file"] in files:
             _inline(table, files[table["file"]])
+    inline_profile(out, files, read=False)
     return out

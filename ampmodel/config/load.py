@@ -24,6 +24,7 @@ from typing import Mapping, Sequence
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
 from ampmodel.config import measured as config_measured
+from ampmodel.config import profile as config_profile
 from ampmodel.config import schema as S
 from ampmodel.config import timing as config_timing
 from ampmodel.config.checks import (
@@ -185,6 +186,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
             if item.get("kind") in S.FIELD_ONLY_KINDS:
                 p.add(f"{path}.kind", f"a '{item['kind']}' step acts on the optical field: set "
                                       "grid.diffraction = true (or remove the step)", item["kind"])
+    if grid is not None and seed is not None and seed.measured is not None:
+        config_profile.check_with_grid(p, grid, seed.measured, mode)
     if grid is not None and steps is not None:
         config_timing.cavity_modes(p, raw, grid)
     if len(p) or grid is None or seed is None or media is None or steps is None:
@@ -217,11 +220,12 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     carries the seed (no transverse profile) and pulses may come at a repetition rate."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
-    if not fibre_layout and "diameter_mm" not in table:
+    profile = _measured(p, table, fibre_layout)
+    if not fibre_layout and "diameter_mm" not in table and table.get("profile") != "file":
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
     rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
     durations: list[str] = []          # the pulsed seed's duration key, checked below
-    measured: dict = {}                # the Seed fields of its measured traces (config/measured.py)
+    traces: dict = {}                  # the Seed fields of its measured traces (config/measured.py)
     if mode == "pulsed":
         for key in S.CW_SEED_KEYS:
             if key in table:
@@ -230,7 +234,7 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
         if "energy_J" not in table:
             p.add("seed.energy_J", f"missing: the pulse energy, {expected(S.SEED['energy_J'])} "
                                    '(required when mode = "pulsed")')
-        measured = config_measured.seed_fields(p, table, fibre_layout)     # a measured pulse or spectrum
+        traces = config_measured.seed_fields(p, table, fibre_layout)       # a measured pulse or spectrum
         if table.get("shape") != "file":
             durations = given_keys(p, table, S.DURATION_KEYS,
                                    none=("seed.duration_ns", "missing: the pulse duration (FWHM), a number > 0; or "
@@ -253,6 +257,8 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     if len(p) > before or wavelength_nm is None or mode is None:
         return None
     duration_s = to_si(durations[0], v[durations[0]]) if durations else None
+    if profile is not None:       # the measured beam's D4σ (mean of x and y) is the seed's diameter
+        v["diameter_mm"] = 0.5 * sum(profile.d4sigma_m()) / 1e-3
     seed = Seed(wavelength_m=to_si("wavelength_nm", wavelength_nm), energy_J=v.get("energy_J"),
                 power_W=v.get("power_W"), duration_s=duration_s, shape=v["shape"], profile=v["profile"],
                 order=v["order"], diameter_m=to_si("diameter_mm", v["diameter_mm"]) if "diameter_mm" in v else 0.0,
@@ -260,8 +266,26 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
                 curvature_m=to_si("curvature_mm", v["curvature_mm"]) if "curvature_mm" in v else None,
                 m_squared=v["m_squared"], phase_screen_seed=v["phase_screen_seed"], repetition_rate_Hz=rate_Hz,
                 bandwidth_m=to_si("bandwidth_nm", v["bandwidth_nm"]) if "bandwidth_nm" in v else None,
-                chirp=v["chirp"])
-    return dataclasses.replace(seed, **measured)
+                chirp=v["chirp"], measured=profile)
+    return dataclasses.replace(seed, **traces)
+
+
+def _measured(p: Problems, table: dict, fibre_layout: bool):
+    """The measured profile of ``profile = "file"`` (config/profile.py); None otherwise or with problems."""
+    if fibre_layout:
+        if "measured_profile" in table:
+            p.add("seed.measured_profile", "a fibre's mode carries the signal: remove the measured profile",
+                  table["measured_profile"])
+        return None
+    if table.get("profile") != "file":
+        if "measured_profile" in table:
+            p.add("seed.measured_profile", 'applies to profile = "file": set seed.profile = "file" or remove it',
+                  table["measured_profile"])
+        return None
+    if "diameter_mm" in table:
+        p.add("seed.diameter_mm", 'with profile = "file" the measured beam\'s D4σ is its diameter: remove '
+                                  "diameter_mm", table["diameter_mm"])
+    return config_profile.measured_profile(p, table.get("measured_profile"))
 
 
 # --- steps ------------------------------------------------------------------------------------

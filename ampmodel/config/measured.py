@@ -307,11 +307,12 @@ def _seed_tables(raw: Mapping[str, Any]):
             yield table, kind
 
 
-def inline_files(raw: Mapping[str, Any], folder: str | Path | None) -> dict:
+def inline_files(raw: Mapping[str, Any], folder: str | Path | None,
+                 stored: Mapping[str, str] | None = None) -> dict:
     """A copy of a *validated* config dict with every data file replaced by its arrays
-    (config/files.inline_files, then the seed's measured traces), so that it can be run where the
-    files are not."""
-    out = files.inline_files(raw, folder)
+    (config/files.inline_files, with a measured profile's frames from ``stored`` where they are there,
+    then the seed's measured traces), so that it can be run where the files are not."""
+    out = files.inline_files(raw, folder, stored)
     for table, kind in _seed_tables(out):
         path = Path(table["file"]).expanduser()
         if not path.is_absolute() and folder:

@@ -109,7 +109,7 @@ MATERIAL_TABLE.update({
 })
 
 PULSE_SHAPES = ("gaussian", "flat", "sech2", "file")
-BEAM_PROFILES = ("gaussian", "flat", "supergaussian")
+BEAM_PROFILES = ("gaussian", "flat", "supergaussian", "file")
 DURATION_KEYS = ("duration_ns", "duration_ps", "duration_fs", "duration_us")
 DURATION_RANGES = {"duration_ns": (1e-6, 1e7), "duration_ps": (1e-3, 1e10), "duration_fs": (1.0, 1e13),
                    "duration_us": (1e-9, 1e4)}        # 1 fs to 10 ms in each unit
@@ -138,7 +138,27 @@ SEED: dict[str, Key] = {
     "chirp": choice("direction of the chirp: up, longer wavelengths later; down, shorter", CHIRPS, default="up"),
     "measured_pulse": Key("table", 'a measured pulse shape (with shape = "file"): file, background, window_ns'),
     "measured_spectrum": Key("table", "a measured spectrum of a stretched seed: file, background"),
+    "measured_profile": Key("table", 'the measured profile of profile = "file": a camera frame and its pixel pitch'),
 }
+# [seed.measured_profile] (config/profile.py reads the files; README, "A measured seed profile")
+PHASE_UNITS = ("rad", "waves")
+MEASURED_PROFILE: dict[str, Key] = {
+    "file": text("the camera frame: CSV, .npy, greyscale PNG or TIFF, or HDF5 (with dataset)"),
+    "dataset": text("the dataset of an HDF5 file, e.g. /frames/0"),
+    "pixel_um": quantity("camera pixel pitch at the seed plane (x; y too unless pixel_y_um)", ge=0.05, le=1e4,
+                         required=True),
+    "pixel_y_um": quantity("camera pixel pitch at the seed plane along y", ge=0.05, le=1e4),
+    "background": number("counts subtracted from every pixel", ge=0, le=1e12, default=0.0),
+    "dark_file": text("a dark frame (same shape and formats) subtracted instead of a number"),
+    "dark_dataset": text("the dataset of an HDF5 dark_file"),
+    "clip": number("noise floor: values below this fraction of the peak are set to zero", ge=0, lt=0.5,
+                   default=1e-3),
+    "phase_file": text("a measured wavefront (same shape and pitch as the frame; grid.diffraction = true)"),
+    "phase_dataset": text("the dataset of an HDF5 phase_file"),
+    "phase_unit": choice("unit of the phase map", PHASE_UNITS, default="rad"),
+}
+# arrays given inline instead of files (what sweep points and reruns carry: README)
+MEASURED_PROFILE_ARRAYS = {"image": "file", "dark": "dark_file", "phase": "phase_file"}
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
 
@@ -421,6 +441,8 @@ def leaf_schema(raw: dict, trail: list) -> Mapping[str, Key] | None:
         return {k: s for k, s in TOP.items() if s.kind not in ("table", "tables")}
     if len(trail) == 2 and trail[0] in sections:
         return sections[trail[0]]
+    if len(trail) == 3 and trail[:2] == ["seed", "measured_profile"]:
+        return MEASURED_PROFILE
     fibre = trail[0] == "medium" and isinstance(trail[1], int) and isinstance(raw["medium"][trail[1]], dict) \
         and raw["medium"][trail[1]].get("kind") == "fibre"
     if trail[0] == "medium" and len(trail) == 3 and isinstance(trail[1], int):

@@ -71,6 +71,8 @@ def plain_config(value: Any, path: str, problems: Problems) -> Any:
                 out[k] = plain_config(v, join_path(path, k), problems)
         return out
     if isinstance(value, (list, tuple)):
+        if all(type(v) in (int, float) for v in value):      # an array of numbers (a frame's row): as it is
+            return list(value)
         return [plain_config(v, path, problems) for v in value]
     return value
 

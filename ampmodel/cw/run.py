@@ -38,7 +38,9 @@ def simulate_cw(config: Config, progress: bool | None = False):
     grid, seed_cfg = config.grid, config.seed
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
-    seed = beam_shapes.seed_fluence(x, y, seed_cfg.profile, seed_cfg.diameter_m, seed_cfg.order, seed_cfg.power_W)
+    shape = seed_cfg.measured.on_grid(x, y)[0] if seed_cfg.measured is not None else None
+    seed = beam_shapes.seed_fluence(x, y, seed_cfg.profile, seed_cfg.diameter_m, seed_cfg.order, seed_cfg.power_W,
+                                    shape)
     states = {m.name: build_medium(m, x, y, config.solver, seed_cfg.wavelength_m) for m in config.media}
     initial = {name: st.coarse(st.g0) for name, st in states.items()}
     sweep = solve(config, states, seed, x, y, progress)

@@ -212,9 +212,11 @@ def wavelength_span_m(shape: str, wavelength_m: float, bandwidth_m: float | None
 
 
 def seed_fluence(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m: float, order: float,
-                 energy_J: float) -> np.ndarray:
-    """(Ny, Nx) seed fluence (J/m²) whose sum over the grid times the pixel area equals ``energy_J``."""
-    shape = transverse_profile(x_m, y_m, profile, diameter_m, order)
+                 energy_J: float, shape: np.ndarray | None = None) -> np.ndarray:
+    """(Ny, Nx) seed fluence (J/m²) whose sum over the grid times the pixel area equals ``energy_J``;
+    ``shape``: a relative profile on the grid (a measured one) instead of ``profile``."""
+    if shape is None:
+        shape = transverse_profile(x_m, y_m, profile, diameter_m, order)
     pixel_area = abs(x_m[1] - x_m[0]) * abs(y_m[1] - y_m[0]) if len(x_m) > 1 else 1.0
     total = shape.sum() * pixel_area
     if total <= 0.0:
@@ -251,7 +253,8 @@ SCREEN_CORRELATION_RADII = 0.25
 def seed_start_field(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m: float, order: float,
                      energy_J: float, wavelength_m: float, waist_m: float | None = None,
                      curvature_m: float | None = None, m_squared: float = 1.0,
-                     screen_seed: int = 0) -> np.ndarray:
+                     screen_seed: int = 0, shape: np.ndarray | None = None,
+                     phase: np.ndarray | None = None) -> np.ndarray:
     """(Ny, Nx) complex seed field at the start plane, |E|² the fluence (J/m²) summing to ``energy_J``.
 
     The profile (:func:`transverse_profile`) is taken at the seed's waist with a flat wavefront,
@@ -274,17 +277,23 @@ def seed_start_field(x_m: np.ndarray, y_m: np.ndarray, profile: str, diameter_m:
       exp(+i·k·r²/(2R)) is applied (the convention E·exp(+ikz) of ``kernels/diffraction.py``: the
       phase of a thin lens of focal length −R).
 
-    Without these keys the field is sqrt(:func:`seed_fluence`) with a flat phase.
+    Without these keys the field is sqrt(:func:`seed_fluence`) with a flat phase. A measured seed
+    gives its relative profile on the grid as ``shape`` (instead of ``profile``) and may give its
+    measured wavefront as ``phase`` (rad, on the grid), applied first, at the start plane.
 
     References
     ----------
     H. Kogelnik and T. Li, Appl. Opt. 5, 1550 (1966); ISO 11146-1 (second-moment widths and M²).
     """
 
-    if profile == "gaussian" and m_squared == 1.0 and waist_m is not None:
+    if shape is None and profile == "gaussian" and m_squared == 1.0 and waist_m is not None:
         field = kd.gaussian_beam(x_m, y_m, diameter_m / 2.0, wavelength_m, -waist_m)
     else:
-        field = np.sqrt(transverse_profile(x_m, y_m, profile, diameter_m, order)).astype(complex)
+        if shape is None:
+            shape = transverse_profile(x_m, y_m, profile, diameter_m, order)
+        field = np.sqrt(shape).astype(complex)
+        if phase is not None:
+            field = field * np.exp(1j * phase)
         if m_squared > 1.0:
             field = _apply_m_squared(field, x_m, y_m, diameter_m, m_squared, screen_seed, measure_m2)
         if waist_m is not None and waist_m != 0.0:

@@ -73,7 +73,9 @@ class PulsedLayout:
             seed_field = _seed_field(config, x, x)
             seed_map = field_path.fluence_of(seed_field)
         else:
-            seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J)
+            shape = seed.measured.on_grid(x, x)[0] if seed.measured is not None else None
+            seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
+                                                shape)
         area = float((x[1] - x[0]) ** 2)
         seed_power = weights * seed_map.sum() * area / dt
         return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
@@ -224,10 +226,12 @@ def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[s
 def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """The seed's field at the start plane (waist position, curvature, M²: beam_shapes.seed_start_field)."""
     seed = config.seed
+    shape, phase = seed.measured.on_grid(x, y) if seed.measured is not None else (None, None)
     try:
         return beam_shapes.seed_start_field(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
                                             seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
-                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed)
+                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed,
+                                            shape=shape, phase=phase)
     except ValueError as exc:
         raise ConfigError([f"{config.source}: seed: {exc}"]) from None
 

@@ -26,7 +26,7 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 import numpy as np
 
 from ampmodel.config.checks import ConfigError
-from ampmodel.config.files import inline_files
+from ampmodel.config.measured import inline_files
 from ampmodel.config.schema import leaf_schema, walk
 from ampmodel.studies.backends import Cluster, cores, preflight, run_tasks
 from ampmodel.studies.figures import FigureError, resolve
@@ -81,7 +81,7 @@ class RowRuns:
                  progress: bool = False):
         self.plan, self.client, self.report, self.progress = plan, client, report, progress
         base = plan.base
-        self.raw = inline_files(base.raw, base.folder or None)
+        self.raw = inline_files(base.raw, base.folder or None, base.data_files)
         self.paths = [v.path for v in plan.vary]
         data = plan.data
         self.rows = [{p: as_config_value(self.raw, p, v) for p, v in row.items()} for row in data.rows]

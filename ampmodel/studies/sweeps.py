@@ -111,7 +111,7 @@ def prepare(base: Config, values: Sequence[Mapping[str, Any]], kind: str) -> tup
     label = "sample" if kind == "spread" else "point"
     for i, v in enumerate(values):
         # data files inline: a worker need not see them (the same data as the base config read)
-        raw = inline_files(point_raw(base.raw, v, base.title), base.folder or None)
+        raw = inline_files(point_raw(base.raw, v, base.title), base.folder or None, base.data_files)
         name = f"{label} {store.point_name(i)} ({describe(v)})"
         try:
             config = load_config(raw)
@@ -183,7 +183,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     start = time.perf_counter()
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
-    hashed = inline_files(base.raw, base.folder or None)     # a changed data file is another config
+    hashed = inline_files(base.raw, base.folder or None, base.data_files)     # a changed data file is another config
     previous = store.check_folder(out, kind, hashed, base.source)
     hash_ = store.config_hash(hashed)
     notes: list[str] = []

@@ -185,6 +185,31 @@ CASES: dict[str, tuple[list[str], int]] = {
     "bad_spectrum_file_order.toml": (['spectrum.file = "spectrum_bad_order.csv": column wavelength_nm: must be '
                                       "strictly increasing"], 1),
     "bad_spectrum_file_and_arrays.toml": (["medium[0] (f1).material.spectrum: both file and wavelength_nm given"], 1),
+    # a measured seed profile (seed.profile = "file", frames beside the config)
+    "bad_profile_file_missing.toml": (['seed.measured_profile.file = "no_such_frame.png": no such file',
+                                       "a relative path is taken from the config file's folder"], 1),
+    "bad_profile_format.toml": (['seed.measured_profile.file = "good_minimal.toml": unknown format \'.toml\'',
+                                 ".csv", ".npy", ".png", ".tif", ".h5"], 1),
+    "bad_profile_unreadable.toml": (['seed.measured_profile.file = "profile_not_an_image.png": cannot be read as an '
+                                     "image", "greyscale PNG or TIFF"], 1),
+    "bad_profile_not_2d.toml": (['seed.measured_profile.file = "profile_stack.npy": an array of shape (2, 16, 16), '
+                                 "not a 2-D frame"], 1),
+    "bad_profile_all_zero.toml": (["seed.measured_profile.background = 5000.0: nothing is left of the image",
+                                   "lower the background"], 1),
+    "bad_profile_dark_shape.toml": (['seed.measured_profile.dark_file = "profile_dark_small.csv": a frame of 12 x 12 '
+                                     "pixels, the image has 16 x 16", "same shape"], 1),
+    "bad_profile_pixel_missing.toml": (["seed.measured_profile.pixel_um: missing: camera pixel pitch"], 1),
+    "bad_profile_pixel_range.toml": (["seed.measured_profile.pixel_um = 0.0: out of range: must be a number from "
+                                      "0.05 to 10000"], 1),
+    "bad_profile_wider_than_window.toml": (["grid.width_mm = 8.0: the measured beam (D4σ 12.6 x 12.6 mm from "
+                                            "profile_frame.csv) is not smaller than the window",
+                                            "widen grid.width_mm", "seed.measured_profile.pixel_um"], 1),
+    "bad_profile_phase_without_diffraction.toml": (["seed.measured_profile.phase_file: a measured wavefront acts on "
+                                                    "the optical field: set grid.diffraction = true"], 1),
+    "bad_profile_with_diameter.toml": (['seed.diameter_mm = 4.0: with profile = "file" the measured beam\'s D4σ is '
+                                        "its diameter: remove diameter_mm"], 1),
+    "bad_profile_not_file_profile.toml": (['seed.measured_profile = {file = "profile_frame.csv", pixel_um = 250.0}: '
+                                           'applies to profile = "file"'], 1),
 }
 FILES = sorted(CASES)
 
