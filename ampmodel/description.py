@@ -128,6 +128,27 @@ class Medium:
     fibre: Fibre | None = None
 
 
+@dataclass(frozen=True, eq=False)
+class SeedBeam:
+    """A seed taken from an earlier run's result file (``seed.from``, read by config/chain.py), SI.
+
+    fluence_J_m2 : pulsed: (Nt, Ny, Nx) the fluence each time slice carries; cw: None
+    b_integral_rad : pulsed: (Nt, Ny, Nx) the B-integral the beam has accumulated (zeros: none known)
+    complex_field : pulsed with diffraction: (Nt, Ny, Nx) complex, |E|² = fluence; None: the fluence only
+    intensity_W_m2 : cw: (Ny, Nx) the intensity map; pulsed: None
+    origin : what the summary's ``seed_from`` records (the file, its SHA-256, its creation time and
+        software version, the step taken, how the beam was rebuilt)
+    notes : notes the run gives about the beam (``seed-from`` notices)
+    """
+
+    fluence_J_m2: Any = None
+    b_integral_rad: Any = None
+    complex_field: Any = None
+    intensity_W_m2: Any = None
+    origin: Mapping[str, Any] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+
 @dataclass(frozen=True)
 class Seed:
     """The input pulse (pulsed) or beam (cw)."""
@@ -150,6 +171,7 @@ class Seed:
     # λ(t) = λ0 ± bandwidth·t/duration from the pulse centre; "up": longer wavelengths later
     bandwidth_m: float | None = None
     chirp: str = "up"
+    beam: SeedBeam | None = None      # seed.from: the earlier run's beam (the fields above are its own)
 
 
 @dataclass(frozen=True)

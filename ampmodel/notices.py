@@ -40,6 +40,7 @@ CODES: dict[str, str] = {
     "fibre-modes": "a fibre's V number: more than one mode guided, or weakly guided",
     "ase": "fibres: amplified spontaneous emission large against the signal, or left out where it matters",
     "raman": "fibres: peak power above the stimulated-Raman threshold",
+    "seed-from": "a seed taken from an earlier run's result: the beam rebuilt where the file holds only part of it",
     "other": "a message without a code of its own",
 }
 

@@ -331,6 +331,7 @@ class Problems:
         self.builtin = dict(builtin or {})
         self.used_builtin: dict[str, Any] = {}
         self.data_files: dict[str, str] = {}
+        self.stored_seeds: dict[str, Any] = {}     # seed.from as written -> the beam a rerun passes in
 
     def add(self, path: str, message: str, value: Any = NO_VALUE) -> None:
         head = path if value is NO_VALUE else f"{path} = {show(value)}"

@@ -21,6 +21,7 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Mapping, Sequence
 
+from ampmodel.config import chain as config_chain
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
 from ampmodel.config import schema as S
@@ -55,7 +56,8 @@ from ampmodel.units import to_si
 
 def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
                 folder: str | os.PathLike | None = None,
-                builtin_materials: Mapping[str, Material] | None = None) -> Config:
+                builtin_materials: Mapping[str, Material] | None = None,
+                stored_seeds: Mapping[str, config_chain.Taken] | None = None) -> Config:
     """Read, override and validate a run config.
 
     Parameters
@@ -70,6 +72,9 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     builtin_materials : mapping of name -> Material, optional
         Built-in materials to use instead of the material files (a rerun uses the data its result
         file recorded).
+    stored_seeds : mapping of ``seed.from`` as written -> the beam taken, optional
+        The beam a chained run used (a rerun passes the copy its result file holds instead of
+        reading the earlier file).
 
     Returns
     -------
@@ -116,6 +121,7 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     else:
         raise TypeError(f"load_config takes a path or a mapping, not {type(source).__name__}")
 
+    problems.stored_seeds = dict(stored_seeds or {})
     if overrides:
         raw = apply_into(raw, overrides, problems)
     config = _validate(raw, problems, title)
@@ -154,7 +160,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) and not only_fibres else None
     config_cw.grid_keys(p, raw, mode)
     media, names = check_media(p, raw, mode)
-    seed = _seed(p, raw["seed"], mode, media, fibre_layout) if isinstance(raw.get("seed"), dict) else None
+    seed = _seed(p, raw["seed"], mode, media, fibre_layout, grid) if isinstance(raw.get("seed"), dict) else None
     steps = check_steps(p, raw, names, mode)
     solver = config_cw.solver(p, raw, mode)
     if fibre_layout:
@@ -211,11 +217,15 @@ def _grid(p: Problems, table: dict) -> Grid | None:
 # --- seed -------------------------------------------------------------------------------------
 
 def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None,
-          fibre_layout: bool = False) -> Seed | None:
+          fibre_layout: bool = False, grid: Grid | None = None) -> Seed | None:
     """The [seed] table; pulsed and cw seeds take different keys; in a fibre layout the fibre's mode
-    carries the seed (no transverse profile) and pulses may come at a repetition rate."""
+    carries the seed (no transverse profile) and pulses may come at a repetition rate; with ``from``
+    the seed is an earlier run's beam (config/chain.py)."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
+    if "from" in table:
+        rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
+        return config_chain.seed_from(p, table, v, mode, grid, fibre_layout, rate_Hz) if len(p) == before else None
     if not fibre_layout and "diameter_mm" not in table:
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")
     rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)

@@ -136,6 +136,9 @@ SEED: dict[str, Key] = {
                                     le=1e7),
     "bandwidth_nm": quantity("FWHM of the spectrum of a stretched (linearly chirped) pulse", gt=0, le=2000.0),
     "chirp": choice("direction of the chirp: up, longer wavelengths later; down, shorter", CHIRPS, default="up"),
+    # chained stages (config/chain.py): the seed is the beam of an earlier run's result file
+    "from": text("an earlier run's result.h5 whose beam is the seed (relative to the config file's folder)"),
+    "from_step": integer("the step of that run after which its beam is taken (default: the last)", 0, 100_000),
 }
 SEED_WAVEFRONT_KEYS = ("waist_mm", "curvature_mm")
 SEED_FIELD_KEYS = SEED_WAVEFRONT_KEYS + ("m_squared", "phase_screen_seed")
