@@ -56,8 +56,7 @@ from ampmodel.units import to_si
 
 def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
                 folder: str | os.PathLike | None = None,
-                builtin_materials: Mapping[str, Material] | None = None,
-                stored_seeds: Mapping[str, config_chain.Taken] | None = None) -> Config:
+                builtin_materials: Mapping[str, Material] | None = None, stored_seeds: Mapping | None = None) -> Config:
     """Read, override and validate a run config.
 
     Parameters
@@ -72,9 +71,7 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     builtin_materials : mapping of name -> Material, optional
         Built-in materials to use instead of the material files (a rerun uses the data its result
         file recorded).
-    stored_seeds : mapping of ``seed.from`` as written -> the beam taken, optional
-        The beam a chained run used (a rerun passes the copy its result file holds instead of
-        reading the earlier file).
+    stored_seeds : ``seed.from`` as written -> the beam a chained run took (a rerun: from its own file)
 
     Returns
     -------
@@ -93,13 +90,13 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     if isinstance(source, Mapping):
         name, title, text = "<dict>", "untitled", None
         base = Path(folder) if folder is not None else Path.cwd()
-        problems = Problems(name, base.absolute(), builtin_materials)
+        problems = Problems(name, base.absolute(), builtin_materials, stored_seeds)
         raw = plain_config(source, "", problems)
     elif isinstance(source, (str, os.PathLike)):
         path = Path(source)
         name, title = str(source), path.stem
         base = Path(folder) if folder is not None else path.parent
-        problems = Problems(name, base.absolute(), builtin_materials)
+        problems = Problems(name, base.absolute(), builtin_materials, stored_seeds)
         try:
             data = path.read_bytes()
             text = data.decode("utf-8-sig")
@@ -121,7 +118,6 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     else:
         raise TypeError(f"load_config takes a path or a mapping, not {type(source).__name__}")
 
-    problems.stored_seeds = dict(stored_seeds or {})
     if overrides:
         raw = apply_into(raw, overrides, problems)
     config = _validate(raw, problems, title)
