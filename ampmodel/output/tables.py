@@ -180,9 +180,16 @@ def train_line(train: dict) -> str:
             f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
 
 
+def seed_from_line(origin: dict) -> str:
+    """Where a chained stage's seed came from (summary ``seed_from``)."""
+    return (f"seed: from {origin.get('file')}, the beam after step {origin.get('step')} ({origin.get('step_kind')}) "
+            f"of {origin.get('steps')}, {origin.get('beam')} (written {origin.get('created_utc')} by ampmodel "
+            f"{origin.get('software_version')}; sha256 {str(origin.get('sha256'))[:12]}...)")
+
+
 def run_report_lines(s: dict) -> list[str]:
     """What `ampmodel run` prints of a run: its table, its warnings and the safety note."""
-    out: list[str] = []
+    out: list[str] = [seed_from_line(s["seed_from"])] if isinstance(s.get("seed_from"), dict) else []
     if s.get("layout") == "fibre":
         out += fibre_lines(s)
     else:
