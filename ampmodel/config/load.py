@@ -172,7 +172,11 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     if isinstance(raw.get("spread"), dict):
         check_spread(p, raw)
     if media is not None and seed is not None and not fibre_layout and len(p) == 0:
+        before = len(p)
         check_seed_spectrum(p, media, seed)
+        if seed.beam is not None:     # the seed's wavelengths are the earlier run's, not keys of this config
+            p.lines[before:] = [f"{line} (seed.from gives the seed's wavelengths: give the medium a cross-section "
+                                "spectrum that covers them)" for line in p.lines[before:]]
     if mode == "cw" and grid is not None and grid.diffraction:
         p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
                                   "set grid.diffraction = false", True)

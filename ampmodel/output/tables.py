@@ -182,9 +182,11 @@ def train_line(train: dict) -> str:
 
 def seed_from_line(origin: dict) -> str:
     """Where a chained stage's seed came from (summary ``seed_from``)."""
-    return (f"seed: from {origin.get('file')}, the beam after step {origin.get('step')} ({origin.get('step_kind')}) "
-            f"of {origin.get('steps')}, {origin.get('beam')} (written {origin.get('created_utc')} by ampmodel "
-            f"{origin.get('software_version')}; sha256 {str(origin.get('sha256'))[:12]}...)")
+    steps = origin.get("steps")
+    return (f"seed: from {origin.get('file')}, the beam after its step {origin.get('step')} ({origin.get('step_kind')}; "
+            f"steps 0 to {steps - 1 if isinstance(steps, int) else '?'}): {origin.get('beam')} (written "
+            f"{origin.get('created_utc')} by ampmodel {origin.get('software_version')}; sha256 "
+            f"{str(origin.get('sha256'))[:12]}...)")
 
 
 def run_report_lines(s: dict) -> list[str]:

@@ -101,7 +101,7 @@ def test_the_seed_is_recorded_and_rerun_needs_no_earlier_file(stage1, tmp_path, 
     cfg = write_stage2(tmp_path)
     code, out, err = _cli(["run", cfg, "--out", "s2", "--no-plots", "--quiet"], capsys, tmp_path, monkeypatch)
     assert code == EXIT_OK, err
-    assert "seed: from ../s1/result.h5, the beam after step 2 (pass) of 3, full" in out
+    assert "seed: from ../s1/result.h5, the beam after its step 2 (pass; steps 0 to 2): full (written" in out
     summary = json.loads((tmp_path / "s2" / "summary.json").read_text())
     origin = summary["seed_from"]
     earlier = read_provenance(stage1)

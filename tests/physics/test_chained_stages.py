@@ -134,3 +134,17 @@ def test_the_full_beam_is_stored_after_the_last_step(tmp_path):
         energy = fluence[()].sum() * area
         np.testing.assert_allclose(fluence[()].sum(axis=0), f["steps/002/fluence"][()], rtol=1e-13)
     assert energy == pytest.approx(stage1.summary["output_energy_J"], rel=1e-13)
+
+
+def test_a_field_stage_from_a_fluence_run_takes_a_flat_phase(tmp_path):
+    """No field stored (stage 1 without diffraction): the field is sqrt(fluence), flat phase, with a note;
+    the energy and the fluence of every time slice are the stored ones."""
+    run_stage1(tmp_path)
+    taken = stage2(tmp_path, diffraction=True).seed.beam
+    with h5py.File(tmp_path / "stage1" / "result.h5") as f:
+        stored = f["output/fluence"][()]
+    np.testing.assert_array_equal(taken.complex_field.imag, 0.0)
+    np.testing.assert_allclose(np.abs(taken.complex_field) ** 2, stored, rtol=1e-15, atol=1e-300)
+    chained = simulate(stage2(tmp_path, diffraction=True))
+    assert chained.summary["input_energy_J"] == pytest.approx(stored.sum() * (10e-3 / 32) ** 2, rel=1e-13)
+    assert any("flat phase" in n for n in chained.summary["notes"])
