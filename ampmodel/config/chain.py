@@ -255,7 +255,7 @@ def read_source(path: Path, name: str, step: int | None, mode: str, grid: Grid) 
                                             (nt, x.size, x.size), factors)
     origin = {"file": name, "sha256": _sha256(path), "created_utc": root["created_utc"],
               "software_version": root["software_version"], "title": root["title"], "step": index,
-              "step_kind": kind, "steps": len(names), "beam": how}
+              "step_kind": kind, "step_count": len(names), "beam": how}
     return Taken(SeedBeam(beam.fluence_J_m2, beam.b_integral_rad, beam.complex_field, beam.intensity_W_m2, origin,
                           beam.notes), attrs, mode, x, nt)
 

@@ -182,7 +182,7 @@ def train_line(train: dict) -> str:
 
 def seed_from_line(origin: dict) -> str:
     """Where a chained stage's seed came from (summary ``seed_from``)."""
-    steps = origin.get("steps")
+    steps = origin.get("step_count")
     return (f"seed: from {origin.get('file')}, the beam after its step {origin.get('step')} ({origin.get('step_kind')}; "
             f"steps 0 to {steps - 1 if isinstance(steps, int) else '?'}): {origin.get('beam')} (written "
             f"{origin.get('created_utc')} by ampmodel {origin.get('software_version')}; sha256 "

@@ -108,7 +108,7 @@ def test_the_seed_is_recorded_and_rerun_needs_no_earlier_file(stage1, tmp_path, 
     assert origin["sha256"] == hashlib.sha256(stage1.read_bytes()).hexdigest()
     assert origin["created_utc"] == earlier["created_utc"]
     assert origin["software_version"] == earlier["software_version"]
-    assert (origin["file"], origin["step"], origin["steps"], origin["beam"]) == ("../s1/result.h5", 2, 3, "full")
+    assert (origin["file"], origin["step"], origin["step_count"], origin["beam"]) == ("../s1/result.h5", 2, 3, "full")
     assert read_provenance(tmp_path / "s2" / "result.h5")["seed_from"] == origin
     with h5py.File(stage1) as f1, h5py.File(tmp_path / "s2" / "result.h5") as f2:
         np.testing.assert_array_equal(f2["seed/from/fluence"][()], f1["output/fluence"][()])
