@@ -123,9 +123,11 @@ def test_the_seed_is_recorded_and_rerun_needs_no_earlier_file(stage1, tmp_path, 
 
 
 def test_sweep_points_read_the_earlier_file(stage1, tmp_path, capsys, monkeypatch):
+    """Two worker processes started in another folder than the config's (the path is made absolute for
+    them); each point records the file's SHA-256, and a point reruns without the file."""
     sweep = '\n[sweep]\n"medium.amp.small_signal_gain" = [2.0, 6.0]\n'
     cfg = write_stage2(tmp_path, text=STAGE2 + sweep)
-    code, out, err = _cli(["sweep", cfg, "--out", "sw", "--jobs", "1", "--no-plots", "--quiet"], capsys, tmp_path,
+    code, out, err = _cli(["sweep", cfg, "--out", "sw", "--jobs", "2", "--no-plots", "--quiet"], capsys, tmp_path,
                           monkeypatch)
     assert code == EXIT_OK, err
     sha = hashlib.sha256(stage1.read_bytes()).hexdigest()
@@ -137,6 +139,9 @@ def test_sweep_points_read_the_earlier_file(stage1, tmp_path, capsys, monkeypatc
         assert summary["seed_from"]["sha256"] == sha
         outputs.append(summary["output_energy_J"])
     assert outputs[1] > outputs[0]
+    shutil.rmtree(tmp_path / "s1")
+    code, out, err = _cli(["rerun", points[0], "--no-plots", "--quiet"], capsys, tmp_path, monkeypatch)
+    assert code == EXIT_OK and "the figures match" in out, out + err
 
 
 def test_a_cw_stage_takes_the_intensity_after_a_step(tmp_path, capsys, monkeypatch):
