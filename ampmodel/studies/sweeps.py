@@ -184,6 +184,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
     hashed = inline_files(base.raw, base.folder or None)     # a changed data file is another config
+    if base.seed.beam is not None:                           # ... and so is another earlier stage (seed.from)
+        hashed["seed"] = {**hashed["seed"], "from_sha256": base.seed.beam.origin.get("sha256")}
     previous = store.check_folder(out, kind, hashed, base.source)
     hash_ = store.config_hash(hashed)
     notes: list[str] = []

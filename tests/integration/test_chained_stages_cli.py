@@ -215,3 +215,19 @@ def test_bad_sources_exit_2_naming_the_key(stage1, tmp_path, capsys, monkeypatch
     assert words in err, err
     assert "Traceback" not in err
     assert not (tmp_path / "s2").exists()
+
+
+def test_a_sweep_does_not_resume_on_another_earlier_stage(stage1, tmp_path, capsys, monkeypatch):
+    """The sweep folder's config hash holds the earlier file's SHA-256: stage 1 run again differently
+    (into the same folder, after removing it) is another config, and the sweep is not resumed on it."""
+    sweep = '\n[sweep]\n"medium.amp.small_signal_gain" = [2.0, 6.0]\n'
+    cfg = write_stage2(tmp_path, text=STAGE2 + sweep)
+    args = ["sweep", cfg, "--out", "sw", "--jobs", "1", "--no-plots", "--quiet"]
+    assert _cli(args, capsys, tmp_path, monkeypatch)[0] == EXIT_OK
+    shutil.rmtree(tmp_path / "s1")
+    code, _, err = _cli(["run", "rod.toml", "--out", "s1", "--no-plots", "--quiet", "--set", "seed.energy_J=0.02"],
+                        capsys, tmp_path, monkeypatch)
+    assert code == EXIT_OK, err
+    code, out, err = _cli(args, capsys, tmp_path, monkeypatch)
+    assert code == EXIT_BAD_INPUT
+    assert "seed.from_sha256" in err and "holds a sweep of a different config" in err
