@@ -42,7 +42,8 @@ and the step taken go into summary.json (``seed_from``) and result.h5 (``/proven
 the beam used is stored in the new result.h5 (``/seed/from``), so that ``ampmodel rerun`` needs no
 access to the earlier file (the rerun passes that copy in, ``Problems.stored_seeds``). Sweep and
 sizing points read the file themselves (its path made absolute by ``files.inline_files``): a result
-file is never overwritten by ampmodel, and each point records the SHA-256 it read.
+file is never overwritten by ampmodel, each point records the SHA-256 it read, and the sweep folder's
+config hash holds it (``studies/sweeps.py``: a sweep is not resumed on another earlier stage).
 """
 from __future__ import annotations
 
