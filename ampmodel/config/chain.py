@@ -237,6 +237,9 @@ def read_source(path: Path, name: str, step: int | None, mode: str, grid: Grid) 
         if index >= len(names):
             raise IndexError(len(names))
         x = _array(f, "grid/x")
+        if x.ndim != 1 or x.size < 2 or not x[1] > x[0]:
+            raise SourceProblem(f"/grid/x of shape {x.shape} is not a row of increasing pixel centres: a damaged "
+                                "result file")
         attrs = _seed_attrs(f, root["mode"])
         if root["mode"] != mode:
             return Taken(SeedBeam(), attrs, root["mode"], x, 0)
@@ -351,6 +354,9 @@ def seed_from(p: Problems, table: Mapping[str, Any], values: Mapping[str, Any], 
         return None
     except (SourceProblem, OSError) as exc:
         p.add("seed.from", f"{exc}", name)
+        return None
+    except (KeyError, ValueError, TypeError) as exc:     # h5py on a damaged structure
+        p.add("seed.from", f"cannot be read as a result file of ampmodel ({exc}): a damaged file", name)
         return None
     if taken.mode != mode:
         p.add("seed.from", f"a result of a {taken.mode} run, and this run is mode = {mode!r}: a {mode} stage takes its "

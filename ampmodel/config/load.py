@@ -223,6 +223,9 @@ def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None
     the seed is an earlier run's beam (config/chain.py)."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
+    if "from_step" in table and "from" not in table:
+        p.add("seed.from_step", "applies to a seed taken from an earlier run's result: give seed.from too, or "
+                                "remove from_step", table["from_step"])
     if "from" in table:
         rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
         return config_chain.seed_from(p, table, v, mode, grid, fibre_layout, rate_Hz) if len(p) == before else None

@@ -183,6 +183,9 @@ def _damage(stage1: Path, tmp_path: Path, how: str) -> str:
                 f["seed"].attrs["wavelength"] = "1064 nm"
             elif how == "no full beam":
                 del f["output"]
+            elif how == "beam of another shape":
+                del f["output/fluence"]
+                f["output/fluence"] = np.ones((3, 16, 16))
     return "../bad/result.h5"
 
 
@@ -194,6 +197,9 @@ def _damage(stage1: Path, tmp_path: Path, how: str) -> str:
     ("incomplete", None, "", "seed.from", "not complete"),
     ("wrong type", None, "", "seed.from", "attribute wavelength of /seed is str, not float"),
     ("no full beam", None, "", "seed.from", "give seed.from_step"),
+    ("beam of another shape", None, "", "seed.from", "/output/fluence is float64 of shape (3, 16, 16), not numbers"),
+    ("from_step alone", "from_step = 1\nenergy_J = 0.01\nduration_ns = 10.0\ndiameter_mm = 4.0", "", "seed.from_step",
+     "give seed.from too"),
     ("step out of range", 'from = "../s1/result.h5"\nfrom_step = 3', "", "seed.from_step", "steps 0 to 2"),
     ("step not an integer", 'from = "../s1/result.h5"\nfrom_step = 1.5', "", "seed.from_step", "integer"),
     ("energy given", 'from = "../s1/result.h5"\nenergy_J = 0.01', "", "seed.energy_J", "remove this key"),
