@@ -38,10 +38,13 @@ def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
     return ds
 
 
-def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None) -> None:
+def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None, full_beam: bool = True) -> None:
     """Write result.h5 in the layout of the module docstring (SI units, a ``units`` attribute on every dataset).
 
     ``attrs``: further root attributes (a sweep's point files record their index and values).
+    ``full_beam``: write the beam after the last step per time slice (``/output/fluence`` and
+    ``/output/b_integral``, what a chained stage takes); a sweep's point files leave it out (it would
+    multiply the folder's size; ``ampmodel rerun`` of a point writes it).
     The file is written under a temporary name and renamed when whole (``atomic.target``); its last
     write is the root attribute ``complete = True``.
     """
@@ -78,7 +81,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in rec.datasets.items():
                     _dataset(sg, name, np.asarray(data), units)
             _beam_figures(f, result.summary)
-            _output_beam(f, result)
+            _output_beam(f, result, full_beam)
             media = f.create_group("media")
             for name, m in result.media.items():
                 mg = media.create_group(name)
@@ -104,10 +107,11 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
             f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
 
 
-def _output_beam(f, result: Result) -> None:
+def _output_beam(f, result: Result, full_beam: bool) -> None:
     """/output: the beam after the last step (pulsed): the fluence of each time slice, its B-integral
-    and, with diffraction, the field (what a chained stage takes as its seed, config/chain.py)."""
-    if result.output_field is None and result.output_fluence is None:
+    and, with diffraction, the field (what a chained stage takes as its seed, config/chain.py);
+    without ``full_beam`` the field only."""
+    if result.output_field is None and (result.output_fluence is None or not full_beam):
         return
     o = f.create_group("output")
     o.attrs["meaning"] = "the beam after the last step (a later stage's seed.from takes it)"
@@ -115,6 +119,8 @@ def _output_beam(f, result: Result) -> None:
     if field is not None:
         _dataset(o, "field", field, "sqrt(J/m^2)",
                  meaning="complex field of each time slice after the last step; |field|^2 is the slice's fluence in J/m^2")
+        if not full_beam:
+            return
         ds = o.create_dataset("fluence", shape=field.shape, dtype=float, compression="gzip", compression_opts=1,
                               shuffle=True, chunks=(1,) + field.shape[1:])
         for t in range(field.shape[0]):          # slice by slice: no second beam in memory

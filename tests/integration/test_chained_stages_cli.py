@@ -142,6 +142,14 @@ def test_sweep_points_read_the_earlier_file(stage1, tmp_path, capsys, monkeypatc
     shutil.rmtree(tmp_path / "s1")
     code, out, err = _cli(["rerun", points[0], "--no-plots", "--quiet"], capsys, tmp_path, monkeypatch)
     assert code == EXIT_OK and "the figures match" in out, out + err
+    # a point file leaves the full beam out (the folder's size); its rerun's result.h5 holds it
+    with h5py.File(points[0]) as f:
+        assert "output/fluence" not in f
+    with h5py.File(tmp_path / "sw-0000-rerun" / "result.h5") as f:
+        assert f["output/fluence"].shape == (8, 16, 16)
+    third = write_stage2(tmp_path, text=STAGE2.replace("../s1/result.h5", "../sw/points/0000.h5"), name="s3.toml")
+    code, _, err = _cli(["run", third, "--out", "s3"], capsys, tmp_path, monkeypatch)
+    assert code == EXIT_BAD_INPUT and "seed.from" in err and "`ampmodel rerun` it" in err, err
 
 
 def test_a_cw_stage_takes_the_intensity_after_a_step(tmp_path, capsys, monkeypatch):
@@ -183,6 +191,8 @@ def _damage(stage1: Path, tmp_path: Path, how: str) -> str:
                 f["seed"].attrs["wavelength"] = "1064 nm"
             elif how == "no full beam":
                 del f["output"]
+            elif how == "fibre result":
+                f.create_group("fibre")
             elif how == "beam of another shape":
                 del f["output/fluence"]
                 f["output/fluence"] = np.ones((3, 16, 16))
@@ -197,6 +207,7 @@ def _damage(stage1: Path, tmp_path: Path, how: str) -> str:
     ("incomplete", None, "", "seed.from", "not complete"),
     ("wrong type", None, "", "seed.from", "attribute wavelength of /seed is str, not float"),
     ("no full beam", None, "", "seed.from", "give seed.from_step"),
+    ("fibre result", None, "", "seed.from", "a layout of fibres"),
     ("beam of another shape", None, "", "seed.from", "/output/fluence is float64 of shape (3, 16, 16), not numbers"),
     ("from_step alone", "from_step = 1\nenergy_J = 0.01\nduration_ns = 10.0\ndiameter_mm = 4.0", "", "seed.from_step",
      "give seed.from too"),
