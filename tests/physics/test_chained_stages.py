@@ -148,3 +148,30 @@ def test_a_field_stage_from_a_fluence_run_takes_a_flat_phase(tmp_path):
     chained = simulate(stage2(tmp_path, diffraction=True))
     assert chained.summary["input_energy_J"] == pytest.approx(stored.sum() * (10e-3 / 32) ** 2, rel=1e-13)
     assert any("flat phase" in n for n in chained.summary["notes"])
+
+
+@pytest.mark.parametrize("from_step", [None, 0])
+def test_chained_flat_top_stages_follow_frantz_nodvik(tmp_path, from_step):
+    """Two loss-free stages of given small-signal gains G1, G2 (no n2) on a flat-top seed: every pixel
+    of the beam leaves stage 2 with J2 = FN(G2, FN(G1, J0)), FN(G, J) = Fsat·ln[1 + G·(exp(J/Fsat) − 1)]
+    (Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963)). The total fluence of a pixel does not depend on
+    its pulse shape, so the separable beam of an earlier step (from_step = 0, before a loss step that
+    stage 2 does not take) gives it too."""
+    from physics_reference import fn_closed, photon_energy
+    material = {**MATERIAL, "n2_m2_W": 0.0}
+    one = {**PRE, "loss_per_cm": 0.0, "material": material, "small_signal_gain": 6.0}
+    two = {**POWER, "loss_per_cm": 0.0, "material": material, "small_signal_gain": 3.0}
+    seed = {"energy_J": 0.05, "duration_ns": 6.0, "diameter_mm": 3.0, "profile": "flat", "shape": "gaussian"}
+    steps1 = STAGE1_STEPS[:1] + ([{"kind": "loss", "transmission": 0.5}] if from_step is not None else [])
+    first = simulate(load_config(config([one], steps1, seed)))
+    first.save(tmp_path / "stage1", plots=False)
+    more = {} if from_step is None else {"from_step": from_step}
+    chained = simulate(load_config(config([two], STAGE2_STEPS[:1], {"from": "stage1/result.h5", **more}),
+                                   folder=tmp_path))
+    fsat = photon_energy(1064e-9) / 2.8e-23
+    j0 = first.seed_fluence_J_m2
+    lit = j0 > 0.5 * j0.max()
+    assert lit.sum() > 50 and j0[lit].max() / fsat > 0.5                  # saturated: far from the linear gain
+    expected = fn_closed(fn_closed(j0[lit], np.log(6.0), fsat), np.log(3.0), fsat)
+    np.testing.assert_allclose(chained.steps[-1].fluence_J_m2[lit], expected, rtol=1e-10)
+    assert expected.max() / j0[lit].max() < 0.6 * 18.0                    # and far below the product of the gains
