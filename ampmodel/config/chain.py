@@ -64,7 +64,6 @@ from ampmodel.notices import note
 
 MAX_BYTES = 64 * 2**30                # a result file larger than this is refused (memory)
 ALLOWED = ("from", "from_step", "repetition_rate_Hz", "repetition_rate_kHz")
-SEED_ATTRS = ("wavelength", "duration", "shape", "bandwidth", "chirp")   # /seed attributes (output/hdf5.py)
 COPY_GROUP = "seed/from"              # where a chained run's result.h5 keeps the beam it used
 
 
@@ -134,7 +133,8 @@ def _seed_attrs(f, mode: str) -> dict[str, Any]:
     if mode == "pulsed":
         out.update(duration=_attr(g, "duration", float, "/seed"), shape=_attr(g, "shape", str, "/seed"),
                    bandwidth=_attr(g, "bandwidth", float, "/seed"), chirp=_attr(g, "chirp", str, "/seed"))
-        if out["shape"] not in beam_shapes.HALF_WINDOW_FWHM or out["duration"] <= 0 or out["bandwidth"] < 0:
+        if (out["shape"] not in beam_shapes.HALF_WINDOW_FWHM or out["duration"] <= 0 or out["bandwidth"] < 0
+                or out["chirp"] not in ("up", "down")):
             raise SourceProblem(f"/seed: shape {out['shape']!r}, duration {out['duration']:g} s, bandwidth "
                                 f"{out['bandwidth']:g} m: not a seed ampmodel writes")
     if not out["wavelength"] > 0:
@@ -274,7 +274,11 @@ def read_copy(path: str | Path) -> Taken | None:
             return None
         g = f[COPY_GROUP]
         mode = _attr(f, "mode", str, "the file")
-        arrays = {k: _array(g, k, complex_ok=True) for k in ("fluence", "b_integral", "field", "intensity") if k in g}
+        arrays = {k: _array(f, f"{COPY_GROUP}/{k}", complex_ok=True)
+                  for k in ("fluence", "b_integral", "field", "intensity") if k in g}
+        needed = ("intensity",) if mode == "cw" else ("fluence", "b_integral")
+        if any(k not in arrays for k in needed):
+            raise SourceProblem(f"/{COPY_GROUP} lacks {', '.join(k for k in needed if k not in arrays)}: a damaged file")
         if "field" in arrays:
             arrays["field"] = arrays["field"].astype(np.complex128)
         origin = json.loads(_attr(g, "origin", str, f"/{COPY_GROUP}"))
