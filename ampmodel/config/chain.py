@@ -189,9 +189,9 @@ def _pulsed_beam(f, step: int, last: bool, diffraction: bool, shape: tuple[int, 
             fluence = field.real ** 2 + field.imag ** 2
             how = "full, with its field"
     elif last:
-        raise SourceProblem("no /output/fluence (the full beam): a sweep's point file, or a file written by a "
-                            "version before chained stages; `ampmodel rerun` it for a result.h5 that holds it, or "
-                            "give seed.from_step to take the separable beam of a step")
+        raise SourceProblem("no /output/fluence (the full beam): a sweep's point file leaves it out; give "
+                            "seed.from_step to take the separable beam of a step, or `ampmodel rerun` the point for "
+                            "a result.h5 that holds it")
     else:
         group = f"steps/{step:03d}"
         fluence_map = _array(f, f"{group}/fluence", (ny, nx))

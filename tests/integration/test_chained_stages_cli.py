@@ -149,7 +149,7 @@ def test_sweep_points_read_the_earlier_file(stage1, tmp_path, capsys, monkeypatc
         assert f["output/fluence"].shape == (8, 16, 16)
     third = write_stage2(tmp_path, text=STAGE2.replace("../s1/result.h5", "../sw/points/0000.h5"), name="s3.toml")
     code, _, err = _cli(["run", third, "--out", "s3"], capsys, tmp_path, monkeypatch)
-    assert code == EXIT_BAD_INPUT and "seed.from" in err and "`ampmodel rerun` it" in err, err
+    assert code == EXIT_BAD_INPUT and "seed.from" in err and "`ampmodel rerun` the point" in err, err
 
 
 def test_a_cw_stage_takes_the_intensity_after_a_step(tmp_path, capsys, monkeypatch):
