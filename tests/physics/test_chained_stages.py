@@ -175,3 +175,23 @@ def test_chained_flat_top_stages_follow_frantz_nodvik(tmp_path, from_step):
     expected = fn_closed(fn_closed(j0[lit], np.log(6.0), fsat), np.log(3.0), fsat)
     np.testing.assert_allclose(chained.steps[-1].fluence_J_m2[lit], expected, rtol=1e-10)
     assert expected.max() / j0[lit].max() < 0.6 * 18.0                    # and far below the product of the gains
+
+
+def test_a_chained_cw_stage_equals_the_two_stage_layout_to_the_solver_tolerance(tmp_path):
+    """cw: the steady state of both stages in one config, against stage 2 seeded by stage 1's intensity
+    map. Nothing couples stage 2 back to stage 1, so they agree to the iteration's tolerance (the
+    gain converged to 1e-9 of the largest small-signal gain; tolerance here 1e-6)."""
+    media = [{k: v for k, v in m.items() if k != "material"} | {"material": "Nd:YAG"} for m in (PRE, POWER)]
+
+    def cw(media_, steps, seed):
+        return {"title": "cw chain", "mode": "cw", "grid": {"points": 24, "width_mm": 10.0},
+                "medium": copy.deepcopy(media_), "step": copy.deepcopy(steps), "seed": dict(seed)}
+    seed = {"power_W": 20.0, "diameter_mm": 3.0}
+    both = simulate(load_config(cw(media, STAGE1_STEPS + STAGE2_STEPS, seed)))
+    simulate(load_config(cw(media[:1], STAGE1_STEPS, seed))).save(tmp_path / "stage1", plots=False)
+    chained = simulate(load_config(cw(media[1:], STAGE2_STEPS, {"from": "stage1/result.h5"}), folder=tmp_path))
+    assert chained.summary["input_power_W"] == pytest.approx(both.summary["steps"][2]["power_out_W"], rel=1e-6)
+    assert chained.summary["output_power_W"] == pytest.approx(both.summary["output_power_W"], rel=1e-6)
+    assert chained.summary["output_power_W"] > 1.5 * chained.summary["input_power_W"]
+    final = both.steps[-1].intensity_W_m2
+    np.testing.assert_allclose(chained.steps[-1].intensity_W_m2, final, rtol=1e-6, atol=1e-6 * final.max())
