@@ -11,7 +11,7 @@ import traceback
 from pathlib import Path
 
 from ampmodel._version import __version__
-from ampmodel.output.tables import quantity_text, run_report_lines
+from ampmodel.output.tables import quantity_text, run_report_lines, seed_from_line
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_NO_SOLUTION = 3     # size: the target is out of reach in the range, or a limit is crossed first; fit: no
@@ -215,6 +215,8 @@ def cmd_check(args) -> int:
     from ampmodel.config.profile import describe
     for line in describe(config):
         print(line)
+    if config.seed.beam is not None:           # a chained stage: where its seed comes from
+        print(f"  {seed_from_line(config.seed.beam.origin)}")
     return EXIT_OK
 
 

@@ -153,6 +153,27 @@ class MeasuredProfile:
 
 
 @dataclass(frozen=True)
+class SeedBeam:
+    """A seed taken from an earlier run's result file (``seed.from``, read by config/chain.py), SI.
+
+    fluence_J_m2 : pulsed: (Nt, Ny, Nx) the fluence each time slice carries; cw: None
+    b_integral_rad : pulsed: (Nt, Ny, Nx) the B-integral the beam has accumulated (zeros: none known)
+    complex_field : pulsed with diffraction: (Nt, Ny, Nx) complex, |E|² = fluence; None: the fluence only
+    intensity_W_m2 : cw: (Ny, Nx) the intensity map; pulsed: None
+    origin : what the summary's ``seed_from`` records (the file, its SHA-256, its creation time and
+        software version, the step taken, how the beam was rebuilt)
+    notes : notes the run gives about the beam (``seed-from`` notices)
+    """
+
+    fluence_J_m2: Any = None
+    b_integral_rad: Any = None
+    complex_field: Any = None
+    intensity_W_m2: Any = None
+    origin: Mapping[str, Any] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Seed:
     """The input pulse (pulsed) or beam (cw)."""
 
@@ -184,6 +205,7 @@ class Seed:
     spectrum_trace: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     # profile = "file": the measured profile (diameter_m is then its D4σ, mean of x and y)
     measured: MeasuredProfile | None = None
+    beam: SeedBeam | None = None      # seed.from: the earlier run's beam (the fields above are its own)
 
 
 @dataclass(frozen=True)

@@ -45,6 +45,7 @@ CODES: dict[str, str] = {
     "pulse-ends": "a measured pulse's trace that does not fall to its background at its ends",
     "pulse-coarse": "a measured pulse's trace coarser than the time slices, or slices too coarse for its "
                     "fastest edge",
+    "seed-from": "a seed taken from an earlier run's result: the beam rebuilt where the file holds only part of it",
     "other": "a message without a code of its own",
 }
 

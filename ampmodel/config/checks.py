@@ -317,6 +317,7 @@ class Problems:
     folder : the folder that relative paths in the config (data files) are taken from
     builtin : built-in materials to use instead of the material files, by name (a rerun uses the
         material data its result file recorded)
+    stored_seeds : ``seed.from`` as written -> the beam a chained run took (a rerun passes its own copy)
 
     Attributes
     ----------
@@ -324,13 +325,15 @@ class Problems:
     data_files : the data files the config read, path as written -> their text
     """
 
-    def __init__(self, source: str, folder: Any = None, builtin: Mapping[str, Any] | None = None):
+    def __init__(self, source: str, folder: Any = None, builtin: Mapping[str, Any] | None = None,
+                 stored_seeds: Mapping[str, Any] | None = None):
         self.source = source
         self.lines: list[str] = []
         self.folder = folder
         self.builtin = dict(builtin or {})
         self.used_builtin: dict[str, Any] = {}
         self.data_files: dict[str, str] = {}
+        self.stored_seeds = dict(stored_seeds or {})   # seed.from as written -> the beam a rerun passes in
 
     def add(self, path: str, message: str, value: Any = NO_VALUE) -> None:
         head = path if value is NO_VALUE else f"{path} = {show(value)}"

@@ -15,7 +15,8 @@ two rows, wavelengths strictly increasing within 150 nm to 20 µm, cross-section
 Every problem names the config key, the file and the line. The text of each file read is kept with
 the config (``Config.data_files``) and stored in result.h5, so that a run can be repeated without it.
 Sweep points and sizing runs get the arrays inline (``inline_files``): their workers need no access
-to the file.
+to the file. (An earlier run's result file, ``seed.from``, is the exception: ``inline_files`` makes
+its path absolute and the workers read it, see ``config/chain.py``.)
 """
 from __future__ import annotations
 
@@ -188,6 +189,11 @@ def inline_files(raw: Mapping[str, Any], folder: str | Path | None,
         if not path.is_absolute() and folder:
             path = Path(folder) / path
         _inline(table, path.read_bytes().decode("utf-8-sig"))
+    seed = out.get("seed")
+    if isinstance(seed, dict) and isinstance(seed.get("from"), str) and folder:
+        # an earlier run's result file (config/chain.py) is read by the worker itself: its path made absolute
+        path = Path(seed["from"]).expanduser()
+        seed["from"] = str(path if path.is_absolute() else (Path(folder) / path).absolute())
     inline_profile(out, stored, folder)
     return out
 

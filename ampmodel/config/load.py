@@ -21,6 +21,7 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Mapping, Sequence
 
+from ampmodel.config import chain as config_chain
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
 from ampmodel.config import measured as config_measured
@@ -57,7 +58,7 @@ from ampmodel.units import to_si
 
 def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
                 folder: str | os.PathLike | None = None,
-                builtin_materials: Mapping[str, Material] | None = None) -> Config:
+                builtin_materials: Mapping[str, Material] | None = None, stored_seeds: Mapping | None = None) -> Config:
     """Read, override and validate a run config.
 
     Parameters
@@ -72,6 +73,7 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     builtin_materials : mapping of name -> Material, optional
         Built-in materials to use instead of the material files (a rerun uses the data its result
         file recorded).
+    stored_seeds : ``seed.from`` as written -> the beam a chained run took (a rerun: from its own file)
 
     Returns
     -------
@@ -90,13 +92,13 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
     if isinstance(source, Mapping):
         name, title, text = "<dict>", "untitled", None
         base = Path(folder) if folder is not None else Path.cwd()
-        problems = Problems(name, base.absolute(), builtin_materials)
+        problems = Problems(name, base.absolute(), builtin_materials, stored_seeds)
         raw = plain_config(source, "", problems)
     elif isinstance(source, (str, os.PathLike)):
         path = Path(source)
         name, title = str(source), path.stem
         base = Path(folder) if folder is not None else path.parent
-        problems = Problems(name, base.absolute(), builtin_materials)
+        problems = Problems(name, base.absolute(), builtin_materials, stored_seeds)
         try:
             data = path.read_bytes()
             text = data.decode("utf-8-sig")
@@ -156,7 +158,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     grid = _grid(p, raw["grid"]) if isinstance(raw.get("grid"), dict) and not only_fibres else None
     config_cw.grid_keys(p, raw, mode)
     media, names = check_media(p, raw, mode)
-    seed = _seed(p, raw["seed"], mode, media, fibre_layout) if isinstance(raw.get("seed"), dict) else None
+    seed = _seed(p, raw["seed"], mode, media, fibre_layout, grid) if isinstance(raw.get("seed"), dict) else None
     steps = check_steps(p, raw, names, mode)
     solver = config_cw.solver(p, raw, mode)
     if fibre_layout:
@@ -172,7 +174,11 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     if isinstance(raw.get("spread"), dict):
         check_spread(p, raw)
     if media is not None and seed is not None and not fibre_layout and len(p) == 0:
+        before = len(p)
         check_seed_spectrum(p, media, seed)
+        if seed.beam is not None:     # the seed's wavelengths are the earlier run's, not keys of this config
+            p.lines[before:] = [f"{line} (seed.from gives the seed's wavelengths: give the medium a cross-section "
+                                "spectrum that covers them)" for line in p.lines[before:]]
     if mode == "cw" and grid is not None and grid.diffraction:
         p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
                                   "set grid.diffraction = false", True)
@@ -215,11 +221,18 @@ def _grid(p: Problems, table: dict) -> Grid | None:
 # --- seed -------------------------------------------------------------------------------------
 
 def _seed(p: Problems, table: dict, mode: str | None, media: list[Medium] | None,
-          fibre_layout: bool = False) -> Seed | None:
+          fibre_layout: bool = False, grid: Grid | None = None) -> Seed | None:
     """The [seed] table; pulsed and cw seeds take different keys; in a fibre layout the fibre's mode
-    carries the seed (no transverse profile) and pulses may come at a repetition rate."""
+    carries the seed (no transverse profile) and pulses may come at a repetition rate; with ``from``
+    the seed is an earlier run's beam (config/chain.py)."""
     before = len(p)
     v = check_table(p, table, "seed", S.SEED)
+    if "from_step" in table and "from" not in table:
+        p.add("seed.from_step", "applies to a seed taken from an earlier run's result: give seed.from too, or "
+                                "remove from_step", table["from_step"])
+    if "from" in table:
+        rate_Hz = config_fibre.check_seed(p, table, fibre_layout, mode)
+        return config_chain.seed_from(p, table, v, mode, grid, fibre_layout, rate_Hz) if len(p) == before else None
     profile = _measured(p, table, fibre_layout)
     if not fibre_layout and "diameter_mm" not in table and table.get("profile") != "file":
         p.add("seed.diameter_mm", f"missing: {S.SEED['diameter_mm'].meaning}, {expected(S.SEED['diameter_mm'])}")

@@ -139,6 +139,9 @@ SEED: dict[str, Key] = {
     "measured_pulse": Key("table", 'a measured pulse shape (with shape = "file"): file, background, window_ns'),
     "measured_spectrum": Key("table", "a measured spectrum of a stretched seed: file, background"),
     "measured_profile": Key("table", 'the measured profile of profile = "file": a camera frame and its pixel pitch'),
+    # chained stages (config/chain.py): the seed is the beam of an earlier run's result file
+    "from": text("an earlier run's result.h5 whose beam is the seed (relative to the config file's folder)"),
+    "from_step": integer("the step of that run after which its beam is taken (default: the last)", 0, 100_000),
 }
 # [seed.measured_profile] (config/profile.py reads the files; README, "A measured seed profile")
 PHASE_UNITS = ("rad", "waves")

@@ -38,9 +38,12 @@ def simulate_cw(config: Config, progress: bool | None = False):
     grid, seed_cfg = config.grid, config.seed
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
-    shape = seed_cfg.measured.on_grid(x, y)[0] if seed_cfg.measured is not None else None
-    seed = beam_shapes.seed_fluence(x, y, seed_cfg.profile, seed_cfg.diameter_m, seed_cfg.order, seed_cfg.power_W,
-                                    shape)
+    if seed_cfg.beam is not None:             # seed.from: an earlier cw run's intensity map
+        seed = seed_cfg.beam.intensity_W_m2.copy()
+    else:
+        shape = seed_cfg.measured.on_grid(x, y)[0] if seed_cfg.measured is not None else None
+        seed = beam_shapes.seed_fluence(x, y, seed_cfg.profile, seed_cfg.diameter_m, seed_cfg.order,
+                                        seed_cfg.power_W, shape)
     states = {m.name: build_medium(m, x, y, config.solver, seed_cfg.wavelength_m) for m in config.media}
     initial = {name: st.coarse(st.g0) for name, st in states.items()}
     sweep = solve(config, states, seed, x, y, progress)
@@ -61,5 +64,8 @@ def simulate_cw(config: Config, progress: bool | None = False):
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2, material=m.material.name,
             sources=dict(m.material.sources), pump_intensity_W_m2=pump_i, ions=st.levels, mask=st.mask)
     summary = cw_diagnostics.summarise(config, seed, sweep, states, media, x)
+    if seed_cfg.beam is not None:
+        summary["seed_from"] = dict(seed_cfg.beam.origin)
+        summary["warnings"].extend(seed_cfg.beam.notes)
     return Result(config=config, x_m=x, y_m=y, t_s=np.zeros(0), seed_fluence_J_m2=None, seed_power_W=None,
                   steps=records, media=media, summary=summary, seed_intensity_W_m2=seed)

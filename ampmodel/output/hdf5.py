@@ -2,8 +2,8 @@
 
 Layout: root attributes ``software_version``, ``config`` (the TOML text as run), ``mode``, ``title``,
 ``created_utc``, ``summary`` (the summary.json text) and ``complete`` (written last); ``/grid`` (x, y, t),
-``/seed``, ``/steps/NNN`` (after each step), ``/beam`` (beam figures per step), ``/output/field``
-(diffraction runs), ``/media/NAME`` (gain before and after), ``/fibre/NAME``, ``/train`` and
+``/seed``, ``/steps/NNN`` (after each step), ``/beam`` (beam figures per step), ``/output`` (pulsed: the
+beam after the last step, per time slice: fluence, B-integral and, with diffraction, the field), ``/media/NAME`` (gain before and after), ``/fibre/NAME``, ``/train`` and
 ``/provenance`` (what reproduces the run: :mod:`ampmodel.output.provenance`). The README's "Reading the
 outputs" lists every dataset.
 
@@ -38,10 +38,13 @@ def _dataset(group, name: str, data: np.ndarray, units: str, **attrs: Any):
     return ds
 
 
-def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None) -> None:
+def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = None, full_beam: bool = True) -> None:
     """Write result.h5 in the layout of the module docstring (SI units, a ``units`` attribute on every dataset).
 
     ``attrs``: further root attributes (a sweep's point files record their index and values).
+    ``full_beam``: write the beam after the last step per time slice (``/output/fluence`` and
+    ``/output/b_integral``, what a chained stage takes); a sweep's point files leave it out (it would
+    multiply the folder's size; ``ampmodel rerun`` of a point writes it).
     The file is written under a temporary name and renamed when whole (``atomic.target``); its last
     write is the root attribute ``complete = True``.
     """
@@ -78,11 +81,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in rec.datasets.items():
                     _dataset(sg, name, np.asarray(data), units)
             _beam_figures(f, result.summary)
-            if result.output_field is not None:
-                o = f.create_group("output")
-                _dataset(o, "field", result.output_field, "sqrt(J/m^2)",
-                         meaning="complex field of each time slice after the last step; |field|^2 is the "
-                                 "slice's fluence in J/m^2")
+            _output_beam(f, result, full_beam)
             media = f.create_group("media")
             for name, m in result.media.items():
                 mg = media.create_group(name)
@@ -106,6 +105,49 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 for name, (data, units) in result.train.items():
                     _dataset(tg, name, np.asarray(data), units)
             f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
+
+
+def _output_beam(f, result: Result, full_beam: bool) -> None:
+    """/output: the beam after the last step (pulsed): the fluence of each time slice, its B-integral
+    and, with diffraction, the field (what a chained stage takes as its seed, config/chain.py);
+    without ``full_beam`` the field only."""
+    if result.output_field is None and (result.output_fluence is None or not full_beam):
+        return
+    o = f.create_group("output")
+    o.attrs["meaning"] = "the beam after the last step (a later stage's seed.from takes it)"
+    field = result.output_field
+    if field is not None:
+        _dataset(o, "field", field, "sqrt(J/m^2)",
+                 meaning="complex field of each time slice after the last step; |field|^2 is the slice's fluence in J/m^2")
+        if not full_beam:
+            return
+        ds = o.create_dataset("fluence", shape=field.shape, dtype=float, compression="gzip", compression_opts=1,
+                              shuffle=True, chunks=(1,) + field.shape[1:])
+        for t in range(field.shape[0]):          # slice by slice: no second beam in memory
+            ds[t] = field[t].real ** 2 + field[t].imag ** 2
+    else:
+        ds = _dataset(o, "fluence", result.output_fluence, "J/m^2")
+    ds.attrs["units"] = "J/m^2"
+    ds.attrs["meaning"] = "fluence carried by each time slice after the last step (t, y, x)"
+    if result.output_b_integral is not None:
+        _dataset(o, "b_integral", result.output_b_integral, "rad",
+                 meaning="B-integral each time slice has accumulated at each pixel (t, y, x), mean power of the slice")
+
+
+def _seed_copy(s, result: Result) -> None:
+    """/seed/from: the beam a chained run took from an earlier result (seed.from), with where it came
+    from: ``ampmodel rerun`` takes it from here (config/chain.py: read_copy)."""
+    beam = result.config.seed.beam
+    if beam is None:
+        return
+    g = s.create_group("from")
+    g.attrs["origin"] = json.dumps(dict(beam.origin))
+    g.attrs["notes"] = json.dumps([str(n) for n in beam.notes])
+    g.attrs["meaning"] = "the seed this run took from an earlier run's result (seed.from), as it took it"
+    for name, data, units in (("fluence", beam.fluence_J_m2, "J/m^2"), ("b_integral", beam.b_integral_rad, "rad"),
+                              ("field", beam.complex_field, "sqrt(J/m^2)"), ("intensity", beam.intensity_W_m2, "W/m^2")):
+        if data is not None:
+            _dataset(g, name, data, units)
 
 
 def _upper_state(group, m) -> None:
@@ -132,9 +174,16 @@ def _grid_and_seed(f, result: Result, cw: bool) -> None:
     if result.wavelength_m is not None:
         _dataset(g, "wavelength", result.wavelength_m, "m", meaning="wavelength of each time slice (chirped seed)")
     s = f.create_group("seed")
+    seed = result.config.seed
+    s.attrs["wavelength"] = seed.wavelength_m
+    s.attrs["wavelength_units"] = "m"
+    _seed_copy(s, result)
     if cw:
         _dataset(s, "intensity", result.seed_intensity_W_m2, "W/m^2")
         return
+    if seed.duration_s is not None:
+        s.attrs.update(duration=seed.duration_s, duration_units="s", shape=seed.shape,
+                       bandwidth=seed.bandwidth_m or 0.0, bandwidth_units="m", chirp=seed.chirp)
     _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
     _dataset(s, "power", result.seed_power_W, "W")
     if result.seed_spectrum_J_m is not None:
@@ -227,7 +276,7 @@ def read_hdf5(path: str | os.PathLike) -> dict[str, Any]:
     with h5py.File(path, "r") as f:
         out["attrs"] = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
         out["grid"] = {k: f["grid"][k][()] for k in f["grid"]}
-        out["seed"] = {k: f["seed"][k][()] for k in f["seed"]}
+        out["seed"] = {k: v[()] for k, v in f["seed"].items() if isinstance(v, h5py.Dataset)}
         for name, g in f["steps"].items():
             out["steps"][name] = {k: g[k][()] for k in g} | {"attrs": dict(g.attrs)}
         for group in ("beam", "output"):

@@ -34,8 +34,11 @@ def provenance(config: Config) -> dict[str, str]:
     data_files : data files the config read (path as written -> their text)
     environment : versions of Python and the libraries, the platform
     config_source : the config file's path as given
+    seed_from : a chained stage (seed.from): the earlier result file, its SHA-256, creation time and
+        software version, the step taken
     """
-    return {
+    extra = {"seed_from": json.dumps(dict(config.seed.beam.origin))} if config.seed.beam is not None else {}
+    return {**extra,
         "materials": json.dumps({m.name: material_to_dict(m.material) for m in config.media}),
         "builtin_materials": json.dumps({name: material_to_dict(m) for name, m in config.builtin_materials.items()}),
         "data_files": json.dumps(dict(config.data_files)),

@@ -112,6 +112,9 @@ class Result:
     steps : one StepRecord per step, in order; media : name -> MediumRecord
     summary : the summary.json dict
     output_field : (Nt, Ny, Nx) complex field after the last step (diffraction runs; |E|² in J/m²)
+    output_fluence : (Nt, Ny, Nx) fluence of each time slice after the last step (J/m², pulsed runs on the
+        fluence path: the run's own beam, not a copy; with diffraction it is |output_field|²)
+    output_b_integral : (Nt, Ny, Nx) the B-integral each time slice has accumulated (rad, pulsed)
     fibres : name -> FibreRecord, for layouts of fibres
     train : pulse trains: datasets of the train, name -> (array, units), e.g. the energy of each
         pulse from the start of the train (empty for a single pulse)
@@ -132,6 +135,8 @@ class Result:
     summary: dict[str, Any]
     seed_intensity_W_m2: np.ndarray | None = None
     output_field: np.ndarray | None = None
+    output_fluence: np.ndarray | None = None
+    output_b_integral: np.ndarray | None = None
     fibres: dict[str, FibreRecord] = field(default_factory=dict)
     train: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
     field_transforms: int = 0

@@ -180,9 +180,18 @@ def train_line(train: dict) -> str:
             f"{quantity_text(train['stored_energy_before_pulse_J'], 'J')}; {settle}")
 
 
+def seed_from_line(origin: dict) -> str:
+    """Where a chained stage's seed came from (summary ``seed_from``)."""
+    steps = origin.get("step_count")
+    return (f"seed: from {origin.get('file')}, the beam after its step {origin.get('step')} ({origin.get('step_kind')}; "
+            f"steps 0 to {steps - 1 if isinstance(steps, int) else '?'}): {origin.get('beam')} (written "
+            f"{origin.get('created_utc')} by ampmodel {origin.get('software_version')}; sha256 "
+            f"{str(origin.get('sha256'))[:12]}...)")
+
+
 def run_report_lines(s: dict) -> list[str]:
     """What `ampmodel run` prints of a run: its table, its warnings and the safety note."""
-    out: list[str] = []
+    out: list[str] = [seed_from_line(s["seed_from"])] if isinstance(s.get("seed_from"), dict) else []
     if s.get("layout") == "fibre":
         out += fibre_lines(s)
     else:

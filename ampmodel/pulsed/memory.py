@@ -35,7 +35,8 @@ def required_array_bytes(config: Config) -> dict[str, int]:
     """
     pixels = config.grid.points ** 2
     nt = config.grid.time_slices
-    has_n2 = any(m.material.n2_m2_W for m in config.media)
+    # a chained seed (seed.from) brings its B-integral: the beam's copy of it is written even without n2
+    has_n2 = any(m.material.n2_m2_W for m in config.media) or config.seed.beam is not None
     return {"beam": (16 if config.grid.diffraction else 8) * nt * pixels,   # the field path: complex
             "b_integral": 8 * nt * pixels if has_n2 else 0,
             "gain": 8 * sum(2 * m.slices * pixels for m in config.media),

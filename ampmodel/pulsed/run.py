@@ -69,15 +69,19 @@ class PulsedLayout:
         states = {m.name: _medium_state(m, maps[m.name], slice_cross_sections(m, wavelengths))
                   for m in config.media}
         seed_field = None
-        if grid.diffraction or seed.waist_m is not None:
+        area = float((x[1] - x[0]) ** 2)
+        if seed.beam is not None:            # seed.from: an earlier run's beam, per time slice
+            seed_map = seed.beam.fluence_J_m2.sum(axis=0)
+            seed_power = seed.beam.fluence_J_m2.sum(axis=(1, 2)) * area / dt
+        elif grid.diffraction or seed.waist_m is not None:
             seed_field = _seed_field(config, x, x)
             seed_map = field_path.fluence_of(seed_field)
         else:
             shape = seed.measured.on_grid(x, x)[0] if seed.measured is not None else None
             seed_map = beam_shapes.seed_fluence(x, x, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
                                                 shape)
-        area = float((x[1] - x[0]) ** 2)
-        seed_power = weights * seed_map.sum() * area / dt
+        if seed.beam is None:
+            seed_power = weights * seed_map.sum() * area / dt
         return cls(config, x, maps, states, t, weights, dt, seed_map, seed_field, seed_power,
                    Timeline(medium_clocks(config, maps, area)), _clear_apertures(config, states), wavelengths,
                    beam_shapes.slice_peak_factors(seed.shape, grid.time_slices, seed.pulse_trace))
@@ -89,6 +93,8 @@ class PulsedLayout:
     def new_beam(self):
         """A fresh seed pulse on the grid (a field beam with diffraction)."""
         grid, seed = self.config.grid, self.config.seed
+        if seed.beam is not None:
+            return self._beam_from(seed.beam)
         if grid.diffraction:
             beam = field_path.start_beam(self.seed_field, self.weights, self.x_m, self.x_m, self.dt_s,
                                          seed.wavelength_m, grid.width_m, grid.fft_workers)
@@ -97,6 +103,17 @@ class PulsedLayout:
         fluence = self.weights[:, None, None] * self.seed_map[None, :, :]
         return BeamState(fluence=fluence, b_integral=np.zeros(fluence.shape), x_m=self.x_m, y_m=self.x_m,
                          dt_s=self.dt_s, wavelength_m=seed.wavelength_m, peak_factor=self.peak_factor)
+
+    def _beam_from(self, taken):
+        """A copy of an earlier run's beam (seed.from), its B-integral carried on."""
+        grid, seed = self.config.grid, self.config.seed
+        if grid.diffraction:
+            beam = field_path.FieldBeam(field=taken.complex_field.copy(), b_integral=taken.b_integral_rad.copy(), x_m=self.x_m,
+                                        y_m=self.x_m, dt_s=self.dt_s, wavelength_m=seed.wavelength_m,
+                                        width_m=grid.width_m, workers=grid.fft_workers, peak_factor=self.peak_factor)
+            return beam
+        return BeamState(fluence=taken.fluence_J_m2.copy(), b_integral=taken.b_integral_rad.copy(), x_m=self.x_m,
+                         y_m=self.x_m, dt_s=self.dt_s, wavelength_m=seed.wavelength_m, peak_factor=self.peak_factor)
 
     def act(self, step: Step, beam, tick) -> StepOutcome:
         """One step that is not a repeat, on the field path or the fluence path."""
@@ -170,6 +187,7 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
                   seed_power_W=run.seed_power_W, steps=records, media=media, summary=summary,
                   wavelength_m=run.wavelengths_m if chirped else None, seed_spectrum_J_m=seed_spectrum,
                   output_field=beam.field if config.grid.diffraction else None,
+                  output_fluence=None if config.grid.diffraction else beam.fluence, output_b_integral=beam.b_integral,
                   train=train.datasets if train is not None else {},
                   field_transforms=beam.fft_count if config.grid.diffraction else 0)
 
@@ -216,6 +234,9 @@ def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[s
     summary["output_duration_ns"] = pulse_shape.fwhm_s(t_fine, p_fine) * 1e9
     summary["output_peak_power_W"] = true_peak(power, run.peak_factor)
     summary["layout_time_ns"] = (train.summary["layout_time_s"] if train else run.timeline.elapsed_s) * 1e9
+    if config.seed.beam is not None:
+        summary["seed_from"] = dict(config.seed.beam.origin)
+        summary["warnings"].extend(config.seed.beam.notes)
     if train is not None:
         summary["average_power_W"] = train.summary["average_power_W"]
         summary["train"] = train.summary

@@ -135,7 +135,7 @@ def run_point(task: PointTask, write: bool = True) -> PointOutcome:
 def write_point(task: PointTask, result: Any) -> None:
     """Write a point's file from its Result, atomically."""
     from ampmodel.output.hdf5 import write_hdf5
-    write_hdf5(result, Path(task.path), attrs=task.attrs)
+    write_hdf5(result, Path(task.path), attrs=task.attrs, full_beam=False)   # no /output/fluence (README)
 
 
 def point_tasks(kind: str, base: Config, raws: list[dict], texts: list[str], values: Sequence[Mapping[str, Any]],

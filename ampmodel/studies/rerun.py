@@ -9,7 +9,8 @@ Material data: the rerun uses the *stored* data, never the material files of tod
 answers one question: does this code reproduce that result? Where today's files (or today's
 resolution of the config's material tables) differ from the stored data, the differences are listed
 (``RerunReport.material_differences``); ``current_materials=True`` runs with today's files instead.
-Data files (a spectrum file) are taken from the stored copies as well.
+Data files (a spectrum file) are taken from the stored copies as well, and so is the seed of a
+chained stage (``seed.from``: the beam it took, ``/seed/from``): the earlier result file is not needed.
 
 Comparison: figure by figure, as :func:`ampmodel.output.summary.compare_summaries` does (relative
 tolerance rtol, default 1e-9; round-off figures such as balance errors to an absolute rtol).
@@ -28,6 +29,7 @@ except ModuleNotFoundError:  # Python < 3.11
     import tomli as tomllib  # type: ignore[no-redef]
 
 from ampmodel._version import __version__
+from ampmodel.config.chain import SourceProblem, read_copy
 from ampmodel.config.checks import ConfigError
 from ampmodel.config.load import load_config
 from ampmodel.config.measured import inline_stored_files
@@ -120,7 +122,7 @@ def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool)
     raw = inline_stored_files(raw, stored.get("data_files") or {})
     label = f"{path} (its stored config)"
     try:
-        config = load_config(raw, builtin_materials=builtin)
+        config = load_config(raw, builtin_materials=builtin, stored_seeds=_stored_seed(path, raw))
     except ConfigError as err:
         raise ConfigError([line.replace("<dict>: ", f"{label}: ", 1) for line in err.problems] +
                           [f"{label}: the stored config is not valid in ampmodel {__version__} (stored by "
@@ -132,6 +134,21 @@ def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool)
                       if m.name in stored["materials"] else m for m in config.media)
         config = dataclasses.replace(config, media=media)
     return dataclasses.replace(config, text=text, source=str(stored.get("config_source", label)))
+
+
+def _stored_seed(path: Path, raw: Mapping[str, Any]) -> dict[str, Any]:
+    """A chained run's seed (seed.from) as its result file stored it: the earlier file is not read."""
+    seed = raw.get("seed")
+    if not isinstance(seed, dict) or not isinstance(seed.get("from"), str):
+        return {}
+    try:
+        taken = read_copy(path)
+    except (SourceProblem, OSError, ValueError, KeyError) as exc:
+        raise _problem(path, f"the seed it took from {seed['from']} (/seed/from) cannot be read: {exc}") from None
+    if taken is None:
+        raise _problem(path, f"a chained run (seed.from = {seed['from']!r}) whose file holds no copy of that seed "
+                             "(/seed/from): it cannot be run again from this file alone")
+    return {seed["from"]: taken}
 
 
 def _material_report(path: Path, stored: Mapping[str, Any]) -> dict[str, list[str]]:

@@ -146,6 +146,15 @@ def _fit_jobs(jobs: int, per_point: int, notes: list[str]) -> int:
     return fit
 
 
+def _hashed_config(base: Config) -> dict:
+    """The config a sweep folder's hash is taken of: data files inline (a changed data file is another
+    config), and so is the SHA-256 of an earlier stage's result (seed.from: another stage 1)."""
+    hashed = inline_files(base.raw, base.folder or None, base.data_files)
+    if base.seed.beam is not None:
+        hashed["seed"] = {**hashed["seed"], "from_sha256": base.seed.beam.origin.get("sha256")}
+    return hashed
+
+
 def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mapping[str, Any]], out: Path, *,
                backend: str = "loky", jobs: int | None = None, scheduler: str | None = None,
                progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
@@ -183,7 +192,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     start = time.perf_counter()
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
-    hashed = inline_files(base.raw, base.folder or None, base.data_files)     # a changed data file is another config
+    hashed = _hashed_config(base)
     previous = store.check_folder(out, kind, hashed, base.source)
     hash_ = store.config_hash(hashed)
     notes: list[str] = []

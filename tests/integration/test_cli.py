@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -17,7 +18,6 @@ SMALL_CW = ["--set", "grid.points=32"]            # a cw run has no time slices
 
 
 def is_cw(config: Path) -> bool:
-    import re
     return re.search(r'^mode\s*=\s*"cw"', config.read_text(), re.MULTILINE) is not None
 
 
@@ -137,11 +137,19 @@ def test_media_prints_every_material_with_sources():
 @pytest.mark.slow
 @pytest.mark.parametrize("config", CONFIGS, ids=[c.stem for c in CONFIGS])
 def test_example_configs_check_and_run(config, tmp_path):
-    check = ampmodel("check", str(config))
+    small = SMALL_CW if is_cw(config) else SMALL
+    chained = []
+    source = re.search(r'^from\s*=\s*"\.\./runs/([^/"]+)/result\.h5"', config.read_text(), re.MULTILINE)
+    if source:       # a chained stage: its earlier stage (configs/NAME.toml) runs first, at the same grid
+        earlier = ampmodel("run", str(ROOT / "configs" / f"{source.group(1)}.toml"), "--out",
+                           str(tmp_path / "earlier"), "--no-plots", *small)
+        assert earlier.returncode == 0, earlier.stderr
+        chained = ["--set", f'seed.from="{tmp_path / "earlier" / "result.h5"}"']
+    check = ampmodel("check", str(config), *chained, *small)
     assert check.returncode == 0, check.stderr
     assert "small-signal gain" in check.stdout
     out = tmp_path / "out"
-    proc = ampmodel("run", str(config), "--out", str(out), *(SMALL_CW if is_cw(config) else SMALL))
+    proc = ampmodel("run", str(config), "--out", str(out), *small, *chained)
     assert proc.returncode == 0, proc.stderr
     assert "Laser safety" in proc.stdout
     summary = assert_output_contract(out)

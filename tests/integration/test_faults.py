@@ -175,11 +175,11 @@ def _disk_full(after: int = 0):
     real = hdf5.write_hdf5
     calls = {"n": 0}
 
-    def write(result, path, attrs=None):
+    def write(result, path, attrs=None, **more):
         calls["n"] += 1
         if calls["n"] > after:
             raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(path))
-        return real(result, path, attrs)
+        return real(result, path, attrs, **more)
     return write
 
 

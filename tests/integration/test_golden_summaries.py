@@ -14,9 +14,15 @@ from __future__ import annotations
 import json
 import re
 import sys
+import tempfile
 from pathlib import Path
 
 import pytest
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python < 3.11
+    import tomli as tomllib  # type: ignore[no-redef]
 
 ROOT = Path(__file__).resolve().parents[2]
 CONFIGS = sorted((ROOT / "configs").glob("*.toml"))
@@ -31,11 +37,33 @@ def small_overrides(config: Path) -> list[str]:
     return SMALL_CW if cw else SMALL
 
 
+def earlier_stage(config: Path) -> Path | None:
+    """The example config whose result a chained stage takes (``seed.from = "../runs/NAME/result.h5"``:
+    configs/NAME.toml, as ``ampmodel run`` names its folder), or None."""
+    source = tomllib.loads(config.read_text()).get("seed", {}).get("from")
+    return ROOT / "configs" / f"{Path(source).parent.name}.toml" if source else None
+
+
+# seed_from entries that name the earlier stage's file (a temporary one here): they change from run to run
+FILE_ENTRIES = ("file", "sha256", "created_utc", "software_version")
+
+
 def summary_of(config: Path) -> dict:
-    """The summary of ``config`` at the small grid, as summary.json holds it."""
+    """The summary of ``config`` at the small grid, as summary.json holds it; a chained stage runs its
+    earlier stage first, at the same small grid, into a temporary folder."""
     from ampmodel import load_config, simulate
-    result = simulate(load_config(config, small_overrides(config)), progress=False)
-    return json.loads(json.dumps(result.summary))
+    overrides = small_overrides(config)
+    earlier = earlier_stage(config)
+    with tempfile.TemporaryDirectory() as folder:
+        if earlier is not None:
+            first = simulate(load_config(earlier, small_overrides(earlier)), progress=False)
+            first.save(Path(folder) / "earlier", plots=False)
+            overrides = overrides + [f'seed.from = "{Path(folder) / "earlier" / "result.h5"}"']
+        result = simulate(load_config(config, overrides), progress=False)
+    summary = json.loads(json.dumps(result.summary))
+    if "seed_from" in summary:
+        summary["seed_from"] = {k: v for k, v in summary["seed_from"].items() if k not in FILE_ENTRIES}
+    return summary
 
 
 def test_every_example_config_has_a_golden_summary():
