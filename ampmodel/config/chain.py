@@ -133,12 +133,35 @@ def _seed_attrs(f, mode: str) -> dict[str, Any]:
     if mode == "pulsed":
         out.update(duration=_attr(g, "duration", float, "/seed"), shape=_attr(g, "shape", str, "/seed"),
                    bandwidth=_attr(g, "bandwidth", float, "/seed"), chirp=_attr(g, "chirp", str, "/seed"))
-        if (out["shape"] not in beam_shapes.HALF_WINDOW_FWHM or out["duration"] <= 0 or out["bandwidth"] < 0
-                or out["chirp"] not in ("up", "down")):
+        out.update(_traces(f, g, out["shape"]))
+        if (out["shape"] not in (*beam_shapes.HALF_WINDOW_FWHM, "file") or out["duration"] <= 0
+                or out["bandwidth"] < 0 or out["chirp"] not in ("up", "down")):
             raise SourceProblem(f"/seed: shape {out['shape']!r}, duration {out['duration']:g} s, bandwidth "
                                 f"{out['bandwidth']:g} m: not a seed ampmodel writes")
     if not out["wavelength"] > 0:
         raise SourceProblem("/seed: the wavelength is not > 0: not a seed ampmodel writes")
+    return out
+
+
+def _trace(f, first: str, second: str) -> tuple[tuple[float, ...], tuple[float, ...]]:
+    """A stored trace (two finite rows of one length, the first increasing, the second >= 0)."""
+    x, y = _array(f, f"seed/{first}"), _array(f, f"seed/{second}")
+    if x.ndim != 1 or x.shape != y.shape or x.size < 2 or np.any(np.diff(x) <= 0) or np.any(y < 0):
+        raise SourceProblem(f"/seed/{first} and /seed/{second} are not a trace ampmodel writes: a damaged file")
+    return tuple(x.tolist()), tuple(y.tolist())
+
+
+def _traces(f, g, shape: str) -> dict[str, Any]:
+    """The Seed fields of a measured pulse and spectrum the earlier run used (output/hdf5.py writes them)."""
+    out: dict[str, Any] = {}
+    if shape == "file":
+        if "pulse_trace_time" not in g:
+            raise SourceProblem("/seed: a measured pulse without its trace (/seed/pulse_trace_time): written by "
+                                "an earlier version; run that stage again")
+        out["pulse_trace"] = _trace(f, "pulse_trace_time", "pulse_trace_power")
+        out["pulse_trace_outside"] = _attr(g, "pulse_trace_outside", float, "/seed")
+    if "spectrum_trace_wavelength" in g:
+        out["spectrum_trace"] = _trace(f, "spectrum_trace_wavelength", "spectrum_trace_density")
     return out
 
 
@@ -255,7 +278,7 @@ def read_source(path: Path, name: str, step: int | None, mode: str, grid: Grid) 
             nt = _array(f, "grid/t").size
             if x.size != grid.points or nt != grid.time_slices:
                 return Taken(SeedBeam(), attrs, mode, x, nt)
-            factors = beam_shapes.slice_peak_factors(attrs["shape"], nt)
+            factors = beam_shapes.slice_peak_factors(attrs["shape"], nt, attrs.get("pulse_trace"))
             beam, how, notes = _pulsed_beam(f, index, index == len(names) - 1, grid.diffraction,
                                             (nt, x.size, x.size), factors)
     origin = {"file": name, "sha256": _sha256(path), "created_utc": root["created_utc"],
@@ -386,4 +409,6 @@ def _seed(p: Problems, taken: Taken, rate_Hz: float | None, name: str) -> Seed |
         return Seed(wavelength_m=attrs["wavelength"], power_W=total, diameter_m=diameter, beam=beam)
     return Seed(wavelength_m=attrs["wavelength"], energy_J=total, duration_s=attrs["duration"],
                 shape=attrs["shape"], diameter_m=diameter, repetition_rate_Hz=rate_Hz,
-                bandwidth_m=attrs["bandwidth"] or None, chirp=attrs["chirp"], beam=beam)
+                bandwidth_m=attrs["bandwidth"] or None, chirp=attrs["chirp"], beam=beam,
+                pulse_trace=attrs.get("pulse_trace"), pulse_trace_outside=attrs.get("pulse_trace_outside", 0.0),
+                spectrum_trace=attrs.get("spectrum_trace"))

@@ -150,6 +150,20 @@ def _seed_copy(s, result: Result) -> None:
             _dataset(g, name, data, units)
 
 
+def _measured_traces(s, seed) -> None:
+    """A measured pulse's and spectrum's traces as the run used them (a later stage that takes its seed
+    from this file rebuilds the same time slices and wavelengths from them: config/chain.py)."""
+    if seed.pulse_trace is not None:
+        x, p = (np.asarray(a, dtype=float) for a in seed.pulse_trace)
+        _dataset(s, "pulse_trace_time", x, "1", meaning="measured pulse: time from its peak in units of its FWHM")
+        _dataset(s, "pulse_trace_power", p, "1", meaning="measured pulse: power over its peak")
+        s.attrs["pulse_trace_outside"] = seed.pulse_trace_outside
+    if seed.spectrum_trace is not None:
+        wl, d = (np.asarray(a, dtype=float) for a in seed.spectrum_trace)
+        _dataset(s, "spectrum_trace_wavelength", wl, "m", meaning="measured spectrum: wavelengths")
+        _dataset(s, "spectrum_trace_density", d, "1", meaning="measured spectrum: density over its peak")
+
+
 def _upper_state(group, m) -> None:
     """/media/NAME/upper_state_fraction_initial and _final: N2/Nt of each voxel, from the gain maps
     through g = (σe + σa)·N2 − σa·Nt (the record's ions; nothing where the doping is not known)."""
@@ -184,6 +198,7 @@ def _grid_and_seed(f, result: Result, cw: bool) -> None:
     if seed.duration_s is not None:
         s.attrs.update(duration=seed.duration_s, duration_units="s", shape=seed.shape,
                        bandwidth=seed.bandwidth_m or 0.0, bandwidth_units="m", chirp=seed.chirp)
+    _measured_traces(s, seed)
     _dataset(s, "fluence", result.seed_fluence_J_m2, "J/m^2")
     _dataset(s, "power", result.seed_power_W, "W")
     if result.seed_spectrum_J_m is not None:

@@ -195,3 +195,25 @@ def test_a_chained_cw_stage_equals_the_two_stage_layout_to_the_solver_tolerance(
     assert chained.summary["output_power_W"] > 1.5 * chained.summary["input_power_W"]
     final = both.steps[-1].intensity_W_m2
     np.testing.assert_allclose(chained.steps[-1].intensity_W_m2, final, rtol=1e-6, atol=1e-6 * final.max())
+
+
+def test_a_measured_pulse_and_spectrum_carry_over(tmp_path):
+    """Stage 1 with a measured pulse trace (fast rise, slow tail) and a measured spectrum (two peaks):
+    the chained stage rebuilds the same time slices, slice wavelengths and true-peak factors from the
+    traces stored with stage 1's seed, and equals the layout to round-off."""
+    t = np.linspace(-4e-9, 20e-9, 241)
+    power = np.where(t < 0, np.exp(-(t / 1.5e-9) ** 2), np.exp(-t / 4e-9))
+    wl = np.linspace(770e-9, 830e-9, 121)
+    density = np.exp(-((wl - 792e-9) / 6e-9) ** 2) + 0.7 * np.exp(-((wl - 810e-9) / 5e-9) ** 2)
+    seed = {"energy_J": 0.002, "diameter_mm": 3.5, "shape": "file", "chirp": "up",
+            "measured_pulse": {"time_s": t.tolist(), "power": power.tolist()},
+            "measured_spectrum": {"wavelength_m": wl.tolist(), "power": density.tolist()}}
+    media = [{**m, "material": "Ti:sapphire"} for m in (PRE, POWER)]
+    both = simulate(load_config(config(media, STAGE1_STEPS + STAGE2_STEPS, seed)))
+    simulate(load_config(config(media[:1], STAGE1_STEPS, seed))).save(tmp_path / "stage1", plots=False)
+    chained = simulate(load_config(config(media[1:], STAGE2_STEPS, {"from": "stage1/result.h5"}), folder=tmp_path))
+    assert chained.config.seed.shape == "file" and chained.config.seed.pulse_trace == both.config.seed.pulse_trace
+    assert chained.config.seed.spectrum_trace == both.config.seed.spectrum_trace
+    np.testing.assert_array_equal(chained.t_s, both.t_s)
+    np.testing.assert_array_equal(chained.wavelength_m, both.wavelength_m)
+    assert_same_stage(both, chained, first_step=3)
