@@ -24,8 +24,13 @@ NO_VALUE = object()
 # Helpers shared by every problem message
 # ----------------------------------------------------------------------------------------------
 
-def show(value: Any, limit: int = 70) -> str:
-    """A value as it reads in a TOML file, shortened to about ``limit`` characters."""
+def show(value: Any, limit: int = 70, depth: int = 0) -> str:
+    """A value as it reads in a TOML file, shortened to about ``limit`` characters (nested arrays and
+    tables beyond three levels shown as ``...``; an integer too long to print by its digit count)."""
+    if depth > 3 and isinstance(value, (dict, list)):
+        return "..."
+    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 200:
+        return f"an integer of about {int(value.bit_length() * 0.30103) + 1} digits"
     if isinstance(value, bool):
         out = "true" if value else "false"
     elif isinstance(value, str):
@@ -35,10 +40,10 @@ def show(value: Any, limit: int = 70) -> str:
     elif isinstance(value, int):
         out = str(value)
     elif isinstance(value, dict):
-        items = [f"{k} = {show(v, 20)}" for k, v in list(value.items())[:4]]
+        items = [f"{show_key(k)} = {show(v, 20, depth + 1)}" for k, v in list(value.items())[:4]]
         out = "{" + ", ".join(items) + (", ...}" if len(value) > 4 else "}")
     elif isinstance(value, list):
-        out = "[" + ", ".join(show(v, 20) for v in value[:5]) + (", ...]" if len(value) > 5 else "]")
+        out = "[" + ", ".join(show(v, 20, depth + 1) for v in value[:5]) + (", ...]" if len(value) > 5 else "]")
     elif value is None:
         out = "nothing"
     else:
@@ -76,7 +81,10 @@ def quoted_list(names: Iterable[Any]) -> str:
 
 
 def close_matches(word: Any, choices: Iterable[Any], n: int = 3) -> list[str]:
-    """The choices closest to ``word`` (case-insensitive), best first."""
+    """The choices closest to ``word`` (case-insensitive), best first (none for a word far longer than
+    any choice: no key is a thousand characters long)."""
+    if len(str(word)) > 200:
+        return []
     lowered: dict[str, str] = {}
     for c in choices:
         lowered.setdefault(str(c).lower(), str(c))
@@ -202,7 +210,10 @@ def _check_number(value: Any, key: Key, want: str) -> tuple[Any, str | None]:
             hint = "; a config is data: expressions are not evaluated, write the number itself"
         return None, f"must be {want}, not {type_name(value)}{hint}"
     if kind == "float":
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:
+            return None, f"out of range: must be {want}; this integer is too large for a number"
         if not math.isfinite(value):
             return None, f"must be {want}; nan and inf are not allowed"
     if not _in_range(value, key):
@@ -363,10 +374,20 @@ def given_keys(p: Problems, table: Mapping[str, Any], keys: Iterable[str], *, no
     return given
 
 
-def join_path(path: str, key: Any) -> str:
-    """``path.key`` as shown in problems (a key that is not a bare TOML key is quoted)."""
+KEY_SHOWN = 60      # a key longer than this is cut short in messages
+
+
+def show_key(key: Any) -> str:
+    """A key as shown in problems: quoted when it is not a bare TOML key, cut short when long."""
     key = str(key)
-    part = key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+    if len(key) > KEY_SHOWN:
+        key = f"{key[:KEY_SHOWN - 20]}...({len(key)} characters)"
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+
+
+def join_path(path: str, key: Any) -> str:
+    """``path.key`` as shown in problems (a key that is not a bare TOML key is quoted; a long one cut)."""
+    part = show_key(key)
     return f"{path}.{part}" if path else part
 
 

@@ -136,7 +136,7 @@ def _pass_fields(p: Problems, v: dict, path: str, names: list[str]) -> dict[str,
         hint = did_you_mean(ref, names) if isinstance(ref, str) else ""
         p.add(join_path(path, "medium"), f"no such medium; media: {', '.join(names)} "
                                          f"(or an index from 0 to {len(names) - 1}){hint}", ref)
-    fields["reverse"] = v["reverse"]
+    fields["reverse"] = v.get("reverse", False)      # a bad value is already a problem
     return fields
 
 

@@ -40,22 +40,58 @@ _TOML_HINTS = (
 )
 
 
+MAX_NESTING = 32       # tables and arrays nested deeper than this are refused (no config needs 5)
+
+
+def nesting_depth(value: Any) -> int:
+    """How deep tables and arrays nest in ``value`` (0 for a scalar), counted without recursion."""
+    deepest, stack = 0, [(value, 0)]
+    while stack:
+        item, depth = stack.pop()
+        children = item.values() if isinstance(item, dict) else item if isinstance(item, list) else None
+        if children is None:
+            continue
+        deepest = max(deepest, depth + 1)
+        if depth + 1 <= MAX_NESTING:
+            stack.extend((c, depth + 1) for c in children)
+    return deepest
+
+
 def parse_toml(text: str, problems: Problems) -> dict | None:
-    """Parse TOML text; a syntax error becomes one problem with its line and column."""
+    """Parse TOML text; a syntax error becomes one problem with its line and column; numbers beyond
+    what the reader takes and nesting beyond :data:`MAX_NESTING` are problems too, not tracebacks."""
     try:
-        return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        message = str(exc)
-        m = _AT.search(message)
-        if m:
-            where = f"line {m.group(1)}, column {m.group(2)}"
-            message = message[: m.start()]
-        else:
-            where = "the end of the file" if "end of document" in message else "an unknown place"
-            message = re.sub(r"\s*\(at end of document\)\s*$", "", message)
-        hint = next((h for start, h in _TOML_HINTS if message.startswith(start)), "")
-        problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}{hint}")
+        parsed = tomllib.loads(text)
+    except (RecursionError, MemoryError):
+        problems.lines.append(f"{problems.source}: arrays or tables nested too deep to read (a config nests "
+                              f"a few levels; at most {MAX_NESTING})")
         return None
+    except ValueError as exc:
+        if isinstance(exc, tomllib.TOMLDecodeError):
+            return _syntax_error(exc, problems)
+        problems.lines.append(f"{problems.source}: a number with too many digits ({str(exc).split(':')[0]}); "
+                              f"write it in exponent form, e.g. 1e6")
+        return None
+    if nesting_depth(parsed) > MAX_NESTING:
+        problems.lines.append(f"{problems.source}: tables or arrays nested more than {MAX_NESTING} levels deep "
+                              f"(dotted keys count as tables); a config nests a few levels")
+        return None
+    return parsed
+
+
+def _syntax_error(exc: Exception, problems: Problems) -> None:
+    """A TOML syntax error as one problem with its line and column."""
+    message = str(exc)
+    m = _AT.search(message)
+    if m:
+        where = f"line {m.group(1)}, column {m.group(2)}"
+        message = message[: m.start()]
+    else:
+        where = "the end of the file" if "end of document" in message else "an unknown place"
+        message = re.sub(r"\s*\(at end of document\)\s*$", "", message)
+    hint = next((h for start, h in _TOML_HINTS if message.startswith(start)), "")
+    problems.lines.append(f"{problems.source}: TOML syntax error at {where}: {message}{hint}")
+    return None
 
 
 def plain_config(value: Any, path: str, problems: Problems) -> Any:
@@ -112,12 +148,15 @@ def resolve_path(raw: dict, path: str) -> tuple[Any, Any]:
 # ----------------------------------------------------------------------------------------------
 
 def _parse_value(text: str) -> Any:
-    """A --set VALUE as a TOML value, or the plain string when it is not one."""
+    """A --set VALUE as a TOML value, or the plain string when it is not one (also one the reader
+    cannot take: too deep, too many digits; the value check then says what is wrong with it)."""
     try:
         parsed = tomllib.loads("v = " + text)
-    except tomllib.TOMLDecodeError:
+    except (ValueError, RecursionError, MemoryError):     # TOMLDecodeError is a ValueError
         return text
-    return parsed["v"] if list(parsed) == ["v"] else text
+    if list(parsed) != ["v"] or nesting_depth(parsed) > MAX_NESTING:
+        return text
+    return parsed["v"]
 
 
 def apply_into(raw: dict, overrides: Sequence[str], problems: Problems) -> dict:

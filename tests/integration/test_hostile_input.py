@@ -1,0 +1,64 @@
+"""Input a config reader must survive: numbers beyond a float, integers beyond the TOML reader's digit
+limit, nesting hundreds deep, a wrong type for a flag, a key of megabytes. Each ends as bad input (exit
+2, the key or the file named, nothing written), never a traceback."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "configs" / "single_pass_rod.toml"
+
+
+def ampmodel(*args: str, cwd: Path) -> subprocess.CompletedProcess:
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    return subprocess.run([sys.executable, "-m", "ampmodel", *args], capture_output=True, text=True, cwd=cwd,
+                          env=env, timeout=120)
+
+
+def assert_refused(proc: subprocess.CompletedProcess, *texts: str) -> None:
+    assert proc.returncode == 2, proc.stderr[-2000:]
+    assert "Traceback" not in proc.stderr and "nothing was run or written" in proc.stderr
+    assert len(proc.stderr) < 5000, len(proc.stderr)           # nothing echoed in full
+    for t in texts:
+        assert t in proc.stderr, proc.stderr[-2000:]
+
+
+@pytest.mark.parametrize("args, texts", [
+    (["--set", "seed.energy_J=1" + "0" * 400], ["seed.energy_J = an integer of about 401 digits", "too large"]),
+    (["--set", "step.0.reverse=2.5"], ["step[0].reverse = 2.5: must be true or false"]),
+    (["--set", "seed.energy_J=" + "[" * 600 + "]" * 600], ["seed.energy_J = ", "not a string"]),
+    (["--set", "seed.energy_J=" + "1" * 5000], ["seed.energy_J", "not a string"]),
+])
+def test_hostile_set_values_are_bad_input(tmp_path, args, texts):
+    for command in ("check", "run"):
+        proc = ampmodel(command, str(DEMO), *args, "--out", str(tmp_path / "o"), cwd=tmp_path) \
+            if command == "run" else ampmodel(command, str(DEMO), *args, cwd=tmp_path)
+        assert_refused(proc, *texts)
+    assert not (tmp_path / "o").exists()
+
+
+def _with(tmp_path: Path, name: str, edit) -> Path:
+    path = tmp_path / name
+    path.write_text(edit(DEMO.read_text()))
+    return path
+
+
+@pytest.mark.parametrize("name, edit, texts", [
+    ("digits.toml", lambda t: t.replace("energy_J = 0.020", "energy_J = 1" + "0" * 5000),
+     ["a number with too many digits", "exponent form"]),
+    ("deep.toml", lambda t: t + "\n[sweep]\nx = " + "[" * 600 + "]" * 600 + "\n", ["nested too deep"]),
+    ("dotted.toml", lambda t: "a." * 500 + "b = 1\n" + t, ["nested more than 32 levels deep"]),
+    ("hugekey.toml", lambda t: t.replace("[seed]", "[seed]\n" + "k" * 5_000_000 + " = 1"),
+     ["...(5000000 characters)", "unknown key"]),
+])
+def test_hostile_files_are_bad_input(tmp_path, name, edit, texts):
+    path = _with(tmp_path, name, edit)
+    assert_refused(ampmodel("check", str(path), cwd=tmp_path), *texts)
+    out = tmp_path / "o"
+    assert_refused(ampmodel("run", str(path), "--out", str(out), cwd=tmp_path), *texts)
+    assert not out.exists()
