@@ -245,6 +245,10 @@ def _type_problem(value: Any, key: Key, want: str) -> str | None:
     elif kind == "str":
         if not isinstance(value, str):
             return f"must be {want}, not {type_name(value)}"
+        control = next((c for c in value if ord(c) < 32 and c != "\t" or ord(c) == 127), None)
+        if control is not None:
+            return (f"holds a control character (U+{ord(control):04X}): a text may not (the result files "
+                    f"cannot store it); remove it")
         if key.choices and value not in key.choices:
             return f"must be {want}{did_you_mean(value, key.choices)}"
     elif kind == "table":

@@ -196,6 +196,8 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         config_profile.check_with_grid(p, grid, seed.measured, mode)
     if grid is not None and steps is not None:
         config_timing.cavity_modes(p, raw, grid)
+    if grid is not None and media is not None and not only_fibres:
+        _apertures_on_grid(p, grid, media)
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     config_timing.check(p, raw, media, seed, tuple(steps))
@@ -203,6 +205,18 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         return None
     return Config(title=top.get("title", default_title), mode=mode, grid=grid, media=tuple(media),
                   seed=seed, steps=tuple(steps), limits=limits, solver=solver, train=train)
+
+
+def _apertures_on_grid(p: Problems, grid: Grid, media: list[Medium]) -> None:
+    """Each bulk medium's clear aperture must hold a pixel centre of the grid (else no gain, no pump
+    and no beam through it: a slip of unit)."""
+    from ampmodel.kernels import beam_shapes
+    x = beam_shapes.pixel_centres(grid.points, grid.width_m)
+    for i, m in enumerate(media):
+        if m.kind != "fibre" and not beam_shapes.aperture_mask(x, x, m.aperture, m.diameter_m).any():
+            p.add(f"medium[{i}] ({m.name}).diameter_mm", f"the clear aperture covers no pixel of the grid (pixels of "
+                  f"{grid.width_m / grid.points * 1e3:.3g} mm): make it wider or the pixels finer (grid.points, "
+                  f"grid.width_mm)", m.diameter_m * 1e3)
 
 
 def _grid(p: Problems, table: dict) -> Grid | None:

@@ -27,9 +27,11 @@ from ampmodel.progress import progress_bar
 
 
 def mode_map(x_m: np.ndarray, mode_radius_m: float) -> np.ndarray:
-    """(Ny, Nx) Gaussian mode exp(−2r²/w²), normalised so that its sum times the pixel area is 1 (1/m²)."""
+    """(Ny, Nx) Gaussian mode exp(−2r²/w²), normalised so that its sum times the pixel area is 1 (1/m²);
+    taken relative to the pixel nearest the axis, so that a mode far narrower than a pixel still lands
+    in the centre pixels instead of underflowing to nothing."""
     r2 = x_m[None, :] ** 2 + x_m[:, None] ** 2
-    m = np.exp(-2.0 * r2 / mode_radius_m ** 2)
+    m = np.exp(-2.0 * (r2 - r2.min()) / mode_radius_m ** 2)
     return m / (m.sum() * (x_m[1] - x_m[0]) ** 2)
 
 

@@ -46,9 +46,9 @@ def aperture_figures(fluence: np.ndarray, inside: np.ndarray, pixel_area_m2: flo
     if f.size == 0 or not total > 0:
         return 0.0, 0.0
     peak = float(f.max())
-    mean = float((f * f).sum() / total)
-    fill = float(total / (peak * f.size))
-    return peak / mean, fill
+    g = f / peak                      # scale-free: a beam of 1e-250 J/m² gives the same figures
+    fill = float(g.sum() / f.size)
+    return float(g.sum() / (g * g).sum()), fill
 
 
 def m_squared(field: np.ndarray, x_m: np.ndarray, y_m: np.ndarray) -> tuple[float, float]:

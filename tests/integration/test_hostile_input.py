@@ -62,3 +62,36 @@ def test_hostile_files_are_bad_input(tmp_path, name, edit, texts):
     out = tmp_path / "o"
     assert_refused(ampmodel("run", str(path), "--out", str(out), cwd=tmp_path), *texts)
     assert not out.exists()
+
+
+def test_legal_looking_values_check_refuses_what_run_cannot_finish(tmp_path):
+    """A NUL in the title (the result file cannot store it) and a clear aperture narrower than a pixel
+    (no gain, no pump, no beam) are refused by check and run alike."""
+    cw = ROOT / "configs" / "cw_end_pumped_yb_yag.toml"
+    for config, setting, text in ((DEMO, 'title="a\\u0000b"', "holds a control character (U+0000)"),
+                                  (cw, "medium.crystal.diameter_mm=1e-300", "covers no pixel of the grid")):
+        assert_refused(ampmodel("check", str(config), "--set", setting, cwd=tmp_path), text)
+        assert_refused(ampmodel("run", str(config), "--set", setting, "--out", str(tmp_path / "o"), cwd=tmp_path), text)
+        assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("config, setting", [
+    ("single_pass_rod.toml", "seed.energy_J=1e-250"),          # beam figures of a vanishing beam
+    ("fibre_yb_cw.toml", "grid.width_mm=1e4"),                  # a fibre mode far narrower than a pixel
+])
+def test_what_check_accepts_run_completes_with_finite_figures(tmp_path, config, setting):
+    import h5py
+    import numpy as np
+    out = tmp_path / "o"
+    proc = ampmodel("run", str(ROOT / "configs" / config), "--set", setting, "--no-plots", "--quiet", "--out", str(out),
+                    cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    with h5py.File(out / "result.h5") as f:
+        for name in f["steps"]:
+            for data in f["steps"][name].values():
+                if data.dtype.kind == "f":
+                    assert np.all(np.isfinite(data[()])), (name, data.name)
+    import json
+    summary = json.loads((out / "summary.json").read_text())
+    numbers = [v for v in summary.values() if isinstance(v, float)]
+    assert numbers and all(np.isfinite(numbers))
