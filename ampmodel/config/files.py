@@ -22,6 +22,8 @@ from __future__ import annotations
 
 import copy
 import math
+import os
+import stat
 from pathlib import Path
 from typing import Any, Iterator, Mapping
 
@@ -36,6 +38,41 @@ MAX_ROWS = 100_000
 
 class FileProblem(Exception):
     """A data file that cannot be used; the message names the line where it can."""
+
+
+def read_regular(path: Path, limit: int) -> bytes:
+    """The bytes of ``path`` if it is a regular file of at most ``limit`` bytes; FileProblem otherwise.
+
+    The file is opened without waiting (O_NONBLOCK: a device, a pipe or a kernel file that would block
+    is refused, never waited on) and checked on the opened descriptor (not a path that may change)."""
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    except FileNotFoundError:
+        raise FileProblem("no such file; a relative path is taken from the config file's folder") from None
+    except OSError as exc:
+        raise FileProblem(f"cannot be opened ({exc.strerror or type(exc).__name__})") from None
+    try:
+        info = os.fstat(fd)
+        if not stat.S_ISREG(info.st_mode):
+            raise FileProblem("not a regular file (a folder, a device or a pipe); give a data file")
+        if info.st_size > limit:
+            raise FileProblem(f"the file is larger than {limit / 2**20:.3g} MiB; a data table needs far less")
+        chunks, total = [], 0
+        while True:
+            chunk = os.read(fd, 1 << 20)
+            if not chunk:
+                break
+            chunks.append(chunk)
+            total += len(chunk)
+            if total > limit:
+                raise FileProblem(f"the file is larger than {limit / 2**20:.3g} MiB; a data table needs far less")
+        return b"".join(chunks)
+    except BlockingIOError:
+        raise FileProblem("cannot be read without waiting (not a plain data file)") from None
+    except OSError as exc:
+        raise FileProblem(f"cannot be read ({exc.strerror or type(exc).__name__})") from None
+    finally:
+        os.close(fd)
 
 
 def parse_spectrum_csv(text: str) -> dict[str, list[float]]:
@@ -61,14 +98,14 @@ def parse_spectrum_csv(text: str) -> dict[str, list[float]]:
                     f"line {number}: the header (the first line that is not a comment) must name the columns with "
                     f"their units: "
                     f"{', '.join(COLUMNS)} (wavelengths in nm, cross-sections in cm2), not "
-                    f"{show(stripped, 60)}")
+                    f"{show(stripped, 32)}")
             header = fields
             columns = {name: [] for name in header}
             continue
         if len(fields) != len(header):
             raise FileProblem(f"line {number}: expected {len(header)} numbers separated by commas "
                               f"({', '.join(header)}), got {len(fields)} field{'s' if len(fields) != 1 else ''}: "
-                              f"{show(stripped, 60)}")
+                              f"{show(stripped, 32)}")
         for name, text_value in zip(header, fields, strict=True):
             try:
                 value = float(text_value)
@@ -88,6 +125,11 @@ def parse_spectrum_csv(text: str) -> dict[str, list[float]]:
     return {name: columns[name] for name in COLUMNS}
 
 
+def shorten(text: str, limit: int = 120) -> str:
+    """A path or name cut to ``limit`` characters for a message."""
+    return text if len(text) <= limit else text[: limit - 20] + f"...({len(text)} characters)"
+
+
 def read_data_file(p: Problems, where: str, name: Any) -> str | None:
     """The text of the data file ``name`` (relative to the config's folder): a regular file of at most
     MAX_BYTES of UTF-8 text; None with a problem on the key ``where``."""
@@ -97,19 +139,10 @@ def read_data_file(p: Problems, where: str, name: Any) -> str | None:
     path = Path(name).expanduser()
     if not path.is_absolute() and p.folder is not None:
         path = Path(p.folder) / path
-    if not path.exists():
-        p.add(where, f"no such file ({path}); a relative path is taken from the config file's folder", name)
-        return None
-    if not path.is_file():
-        p.add(where, f"not a file ({path} is a folder or a device); give a CSV file", name)
-        return None
     try:
-        if path.stat().st_size > MAX_BYTES:
-            p.add(where, f"the file is larger than {MAX_BYTES // 2**20} MiB; a data table needs far less", name)
-            return None
-        data = path.read_bytes()
-    except OSError as exc:
-        p.add(where, f"cannot be read ({exc.strerror or exc}); check the file's permissions", name)
+        data = read_regular(path, MAX_BYTES)
+    except FileProblem as exc:
+        p.add(where, f"{exc} ({shorten(str(path))})", name)
         return None
     try:
         return data.decode("utf-8-sig")

@@ -37,6 +37,7 @@ from ampmodel.config.checks import (
     join_path,
     type_name,
 )
+from ampmodel.config.files import FileProblem, read_regular, shorten
 from ampmodel.config.medium import builtin_material, check_media, check_seed_spectrum
 from ampmodel.config.steps import check_steps
 from ampmodel.config.sweep import check_spread, check_sweep
@@ -55,6 +56,32 @@ from ampmodel.units import to_si
 # ----------------------------------------------------------------------------------------------
 # Loading
 # ----------------------------------------------------------------------------------------------
+
+MAX_CONFIG_BYTES = 256 * 2**20     # a config with inline measured frames can be large; none is larger
+
+
+def _config_text(path: Path, name: str) -> str:
+    """The text of a config file (a regular UTF-8 file of at most MAX_CONFIG_BYTES); ConfigError else."""
+    try:
+        if path.is_dir():
+            raise IsADirectoryError
+        data = read_regular(path, MAX_CONFIG_BYTES)
+    except IsADirectoryError:
+        raise ConfigError([f"{name}: cannot read the config: it is a directory, not a TOML file"]) from None
+    except FileProblem as exc:
+        message = "no such config file" if str(exc).startswith("no such file") else f"cannot read the config: {exc}"
+        raise ConfigError([f"{shorten(name)}: {message}"]) from None
+    except OSError as exc:
+        raise ConfigError([f"{shorten(name)}: cannot read the config: {exc.strerror or exc}"]) from None
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        start = exc.start + (3 if data.startswith(b"\xef\xbb\xbf") else 0)
+        line = data[:start].count(b"\n") + 1
+        column = start - (data.rfind(b"\n", 0, start) + 1) + 1
+        raise ConfigError([f"{name}: cannot read the config: not UTF-8 text ({exc.reason} at line {line}, "
+                           f"column {column}, byte {start}); save the file as UTF-8"]) from None
+
 
 def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
                 folder: str | os.PathLike | None = None,
@@ -99,21 +126,7 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
         name, title = str(source), path.stem
         base = Path(folder) if folder is not None else path.parent
         problems = Problems(name, base.absolute(), builtin_materials, stored_seeds)
-        try:
-            data = path.read_bytes()
-            text = data.decode("utf-8-sig")
-        except FileNotFoundError:
-            raise ConfigError([f"{name}: no such config file"]) from None
-        except IsADirectoryError:
-            raise ConfigError([f"{name}: cannot read the config: it is a directory, not a TOML file"]) from None
-        except UnicodeDecodeError as exc:
-            start = exc.start + (3 if data.startswith(b"\xef\xbb\xbf") else 0)
-            line = data[:start].count(b"\n") + 1
-            column = start - (data.rfind(b"\n", 0, start) + 1) + 1
-            raise ConfigError([f"{name}: cannot read the config: not UTF-8 text ({exc.reason} at line {line}, "
-                               f"column {column}, byte {start}); save the file as UTF-8"]) from None
-        except OSError as exc:
-            raise ConfigError([f"{name}: cannot read the config: {exc.strerror or exc}"]) from None
+        text = _config_text(path, name)
         raw = parse_toml(text, problems)
         if raw is None:
             raise ConfigError(problems.lines)

@@ -63,7 +63,7 @@ def _header(fields: list[str], number: int, kind: str) -> tuple[int, float]:
     powers = [i for i, f in enumerate(lower) if f == "power" or f.startswith("power_")]
     axes = [i for i, f in enumerate(lower) if f == name or f.startswith(name + "_")]
     if len(powers) != 1 or len(axes) != 1:
-        raise FileProblem(f"line {number}: the header must be {want}, not {show(', '.join(fields), 60)}")
+        raise FileProblem(f"line {number}: the header must be {want}, not {show(', '.join(fields), 32)}")
     unit = lower[axes[0]][len(name) + 1:]
     if unit not in units:
         raise FileProblem(f"line {number}: the {name} column {show(fields[axes[0]], 30)} must carry its unit: "
@@ -95,13 +95,13 @@ def parse_trace_csv(text: str, kind: str) -> tuple[list[float], list[float]]:
             continue
         if len(fields) != 2:
             raise FileProblem(f"line {number}: expected 2 numbers separated by a comma, got {len(fields)} "
-                              f"field{'s' if len(fields) != 1 else ''}: {show(stripped, 60)}")
+                              f"field{'s' if len(fields) != 1 else ''}: {show(stripped, 32)}")
         try:
             values = [float(f) for f in fields]
         except ValueError:
-            raise FileProblem(f"line {number}: not two numbers: {show(stripped, 60)}") from None
+            raise FileProblem(f"line {number}: not two numbers: {show(stripped, 32)}") from None
         if not all(math.isfinite(v) for v in values):
-            raise FileProblem(f"line {number}: {show(stripped, 60)}: nan and inf are not allowed")
+            raise FileProblem(f"line {number}: {show(stripped, 32)}: nan and inf are not allowed")
         x = values[axis] * scale
         if xs and not x > xs[-1]:
             raise FileProblem(f"line {number}: the {KINDS[kind][0]} {show(fields[axis], 30)} is not above that of "

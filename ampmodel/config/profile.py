@@ -63,11 +63,11 @@ def parse_csv(text: str) -> np.ndarray:
         fields = stripped.split(",")
         if rows and len(fields) != len(rows[0]):
             raise FrameProblem(f"line {number}: {len(fields)} values where the first row has {len(rows[0])}: "
-                               f"{show(stripped, 40)}")
+                               f"{show(stripped, 32)}")
         try:
             values = [float(f) for f in fields]
         except ValueError:
-            raise FrameProblem(f"line {number}: not numbers separated by commas: {show(stripped, 40)}") from None
+            raise FrameProblem(f"line {number}: not numbers separated by commas: {show(stripped, 32)}") from None
         if not all(math.isfinite(v) for v in values):
             raise FrameProblem(f"line {number}: nan and inf are not allowed")
         rows.append(values)

@@ -3,6 +3,7 @@ limit, nesting hundreds deep, a wrong type for a flag, a key of megabytes. Each 
 2, the key or the file named, nothing written), never a traceback."""
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
@@ -95,3 +96,57 @@ def test_what_check_accepts_run_completes_with_finite_figures(tmp_path, config, 
     summary = json.loads((out / "summary.json").read_text())
     numbers = [v for v in summary.values() if isinstance(v, float)]
     assert numbers and all(np.isfinite(numbers))
+
+
+SPECTRUM_CONFIG = """\
+title = "spectrum file"
+[grid]
+width_mm = 8.0
+points = 16
+time_slices = 4
+[[medium]]
+name = "rod"
+length_mm = 10.0
+diameter_mm = 6.0
+small_signal_gain = 2.0
+[medium.material]
+wavelength_nm = 1030.0
+emission_cross_section_cm2 = 2e-20
+upper_lifetime_us = 950.0
+refractive_index = 1.82
+[medium.material.spectrum]
+file = {file}
+[seed]
+energy_J = 0.001
+duration_ns = 10.0
+diameter_mm = 3.0
+[[step]]
+kind = "pass"
+medium = "rod"
+"""
+
+
+def _spectrum_config(tmp_path: Path, file: str) -> Path:
+    path = tmp_path / "spectrum.toml"
+    path.write_text(SPECTRUM_CONFIG.replace("{file}", json.dumps(file)))
+    return path
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no named pipes on this system")
+def test_data_files_are_regular_files_read_without_waiting(tmp_path):
+    """A pipe (it would block a plain read forever), a device, a path too long to open: refused at
+    once, naming the key; a wrong line of a file is quoted by a short excerpt only."""
+    fifo = tmp_path / "pipe.csv"
+    os.mkfifo(fifo)
+    long_name = "x" * 5000 + ".csv"
+    secret = tmp_path / "secret.csv"
+    secret.write_text("root:" + "s" * 200 + ":0:0\n")
+    for file, text in ((str(fifo), "not a regular file"), ("/dev/zero", "not a regular file"),
+                       (long_name, "cannot be opened (File name too long)"), (str(secret), "must name the columns")):
+        proc = ampmodel("check", str(_spectrum_config(tmp_path, file)), cwd=tmp_path)
+        assert_refused(proc, "medium[0] (rod).material.spectrum.file", text)
+        assert "s" * 40 not in proc.stderr           # at most a short excerpt of the file's line
+    fifo_config = tmp_path / "config_pipe.toml"
+    os.mkfifo(fifo_config)
+    proc = ampmodel("check", str(fifo_config), cwd=tmp_path)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
