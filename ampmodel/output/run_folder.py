@@ -12,6 +12,7 @@ such folders when their lock is free (their owner is gone) and they are older th
 """
 from __future__ import annotations
 
+import glob
 import os
 import shutil
 import tempfile
@@ -28,10 +29,10 @@ STALE_AFTER_S = 30.0
 
 def free_name(base: Path) -> Path:
     """``base`` if free, else base-2, base-3, ...: a run never overwrites another."""
-    if not base.exists():
+    if not os.path.lexists(base):            # a dangling symbolic link is taken too: never written through
         return base
     n = 2
-    while Path(f"{base}-{n}").exists():
+    while os.path.lexists(f"{base}-{n}"):
         n += 1
     return Path(f"{base}-{n}")
 
@@ -64,7 +65,7 @@ def _try_lock(fd: int) -> bool:
 def remove_stale(parent: Path, name: str) -> list[Path]:
     """Remove the temporary folders of runs named ``name`` in ``parent`` whose owner is gone."""
     removed = []
-    for folder in parent.glob(f".{name}.*{PARTIAL_SUFFIX}"):
+    for folder in parent.glob(f".{glob.escape(name)}.*{PARTIAL_SUFFIX}"):   # the name literally
         try:
             if time.time() - folder.stat().st_mtime < STALE_AFTER_S:
                 continue
@@ -78,6 +79,15 @@ def remove_stale(parent: Path, name: str) -> list[Path]:
         finally:
             os.close(fd)
     return removed
+
+
+def check_name(base: Path) -> None:
+    """A run folder needs a name of its own: not the root of the file system, not ``.`` or ``..``
+    (ConfigError, bad input, before anything is computed)."""
+    from ampmodel.config.checks import ConfigError
+    if base.name in ("", ".", "..") or base.resolve() == Path(base.resolve().anchor):
+        raise ConfigError([f"--out {base}: not a folder name of its own (the root, . or ..): give a new folder's "
+                           f"path, e.g. runs/NAME"])
 
 
 @contextmanager
@@ -94,6 +104,7 @@ def partial_folder(base: Path) -> Iterator[Path]:
         The folder cannot be created (no permission, a read-only or full disk, a path through a file).
     """
     base = Path(base)
+    check_name(base)
     made = [p for p in (base.parent, *base.parent.parents) if not p.exists()]    # removed again on failure
     try:
         base.parent.mkdir(parents=True, exist_ok=True)

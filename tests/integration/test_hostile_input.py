@@ -150,3 +150,25 @@ def test_data_files_are_regular_files_read_without_waiting(tmp_path):
     os.mkfifo(fifo_config)
     proc = ampmodel("check", str(fifo_config), cwd=tmp_path)
     assert proc.returncode == 2 and "Traceback" not in proc.stderr
+
+
+def test_out_paths_are_taken_literally_and_checked_before_computing(tmp_path):
+    """--out / and --out . are refused before any computation; a dangling symbolic link is never
+    written through (the run takes the next free name); a name with glob characters is a name: the
+    clean-up of stale folders does not match other runs' folders with it."""
+    for out in ("/", "."):
+        assert_refused(ampmodel("run", str(DEMO), "--out", out, "--no-plots", "--quiet", cwd=tmp_path),
+                       "not a folder name of its own")
+    assert not Path("/-2").exists()
+    link = tmp_path / "dangling"
+    link.symlink_to(tmp_path / "no" / "such" / "folder")
+    proc = ampmodel("run", str(DEMO), "--out", str(link), "--no-plots", "--quiet", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert link.is_symlink() and not link.exists() and (tmp_path / "dangling-2" / "result.h5").is_file()
+    runs = tmp_path / "runs"
+    stale = runs / ".other.abc.partial"
+    stale.mkdir(parents=True)
+    os.utime(stale, (1, 1))                  # old and unlocked: would be removed if matched
+    proc = ampmodel("run", str(DEMO), "--out", str(runs / "*"), "--no-plots", "--quiet", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert stale.is_dir() and (runs / "*" / "result.h5").is_file()
