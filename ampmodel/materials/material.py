@@ -300,6 +300,46 @@ def material_from_dict(data: Mapping[str, Any]) -> Material:
                     notes=MappingProxyType(dict(data.get("notes", {}))), **data["si"])
 
 
+def stored_material_problems(data: Any) -> list[str]:
+    """What is wrong with material data a result file recorded (:func:`material_to_dict`), checked as a
+    config's material is: its structure, every value finite and within its key's plausible range, its
+    spectrum as a ``[spectrum]`` table. An empty list: :func:`material_from_dict` may take it."""
+    if not isinstance(data, Mapping) or not isinstance(data.get("name"), str) or not isinstance(data.get("si"), Mapping):
+        return ["not material data (a table with name and si)"]
+    problems = []
+    for name, value in data["si"].items():
+        if not isinstance(name, str) or name in _TEXT_FIELDS or name in ("spectrum", "sources", "notes"):
+            problems.append(f"si.{name}: not a value of a material")
+        elif value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
+                                    or not math.isfinite(value)):
+            problems.append(f"si.{name} = {value!r}: not a finite number")
+    if problems:
+        return problems
+    for key, spec in MATERIAL_KEYS.items():
+        value = data["si"].get(si_name(key))
+        if value is None or (value == 0.0 and (spec.allow_zero or not spec.required)):
+            continue
+        shown = value / to_si(key, 1.0)
+        if not spec.low <= shown <= spec.high:
+            problems.append(f"{key} = {shown:.4g}: outside {spec.low:g} to {spec.high:g} (the range a config allows)")
+    sp = data.get("spectrum")
+    if sp:
+        if not isinstance(sp, Mapping) or not all(isinstance(sp.get(k), list) for k in
+                                                   ("wavelength_m", "emission_m2", "absorption_m2")):
+            return problems + ["spectrum: not three lists"]
+        table = {"wavelength_nm": [w * 1e9 if isinstance(w, (int, float)) else w for w in sp["wavelength_m"]],
+                 "emission_cm2": [x * 1e4 if isinstance(x, (int, float)) else x for x in sp["emission_m2"]],
+                 "absorption_cm2": [x * 1e4 if isinstance(x, (int, float)) else x for x in sp["absorption_m2"]],
+                 "source": str(sp.get("source", "stored"))}
+        _, bad = check_spectrum(table, need_source=False)
+        problems += [f"spectrum.{key}: {message}" for key, _, message in bad]
+    try:
+        material_from_dict(data)
+    except (KeyError, TypeError, ValueError) as exc:
+        problems.append(f"cannot be rebuilt ({type(exc).__name__}: {exc})")
+    return problems
+
+
 def material_differences(stored: Mapping[str, Any], current: Mapping[str, Any]) -> list[str]:
     """Lines "key: stored -> current" between two :func:`material_to_dict` records (values in config
     units where the key has one; the spectrum and the sources compared as a whole)."""

@@ -23,18 +23,21 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-try:
-    import tomllib
-except ModuleNotFoundError:  # Python < 3.11
-    import tomli as tomllib  # type: ignore[no-redef]
+import numpy as np
 
 from ampmodel._version import __version__
 from ampmodel.config.chain import SourceProblem, read_copy
-from ampmodel.config.checks import ConfigError
+from ampmodel.config.checks import ConfigError, Problems
 from ampmodel.config.load import load_config
 from ampmodel.config.measured import inline_stored_files
+from ampmodel.config.text import parse_toml
 from ampmodel.materials import registry
-from ampmodel.materials.material import material_differences, material_from_dict, material_to_dict
+from ampmodel.materials.material import (
+    material_differences,
+    material_from_dict,
+    material_to_dict,
+    stored_material_problems,
+)
 from ampmodel.output.atomic import write_json
 from ampmodel.output.hdf5 import read_provenance
 from ampmodel.output.run_folder import claim, partial_folder
@@ -99,7 +102,8 @@ def read_stored(path: Path) -> tuple[dict[str, Any], list[str]]:
     notes = []
     if "config" not in stored or "summary" not in stored:
         raise _problem(path, "holds no config or summary: not a result file of ampmodel")
-    if not bool(stored.get("complete", False)):
+    _check_structure(path, stored)
+    if stored.get("complete") is not True:
         if "materials" in stored:
             raise _problem(path, "is not complete (no attribute complete = True): it was cut short while "
                                  "written or copied; nothing to compare with")
@@ -108,14 +112,39 @@ def read_stored(path: Path) -> tuple[dict[str, Any], list[str]]:
     return stored, notes
 
 
+def _check_structure(path: Path, stored: dict[str, Any]) -> None:
+    """The recorded entries a rerun uses, of the types this version writes (a damaged or crafted file
+    is bad input, not a traceback); stored material data checked as a config's (ranges included)."""
+    complete = stored.get("complete", False)
+    if isinstance(complete, np.bool_):
+        complete = bool(complete)
+    if not isinstance(complete, bool):
+        raise _problem(path, "its attribute complete is not true or false: a damaged file")
+    stored["complete"] = complete
+    if not isinstance(stored["config"], str):
+        raise _problem(path, "its attribute config is not a text: a damaged file")
+    for key in ("builtin_materials", "materials", "data_files"):
+        value = stored.get(key)
+        if value is not None and not isinstance(value, dict):
+            raise _problem(path, f"/provenance/{key} is not a table: a damaged file")
+    if any(not isinstance(v, str) for v in (stored.get("data_files") or {}).values()):
+        raise _problem(path, "/provenance/data_files holds a file that is not text: a damaged file")
+    for key in ("builtin_materials", "materials"):
+        for name, data in (stored.get(key) or {}).items():
+            problems = stored_material_problems(data)
+            if problems:
+                raise _problem(path, f"/provenance/{key}: the material data of {name} are not valid: "
+                                     f"{'; '.join(problems[:3])}")
+
+
 def _load_stored(path: Path, stored: Mapping[str, Any], current_materials: bool):
     """The Config of the stored run (material data and data files as recorded unless
     ``current_materials``)."""
     text = stored["config"]
-    try:
-        raw = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise _problem(path, f"the stored config is not valid TOML ({exc})") from None
+    problems = Problems(str(path))
+    raw = parse_toml(text, problems)
+    if raw is None:
+        raise _problem(path, f"the stored config is not valid TOML ({'; '.join(problems.lines)})")
     builtin = None
     if not current_materials and stored.get("builtin_materials"):
         builtin = {name: material_from_dict(d) for name, d in stored["builtin_materials"].items()}

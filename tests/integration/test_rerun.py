@@ -168,3 +168,35 @@ def test_compare_summaries_tolerances():
     assert sorted(d.path for d in diffs) == ["extra", "mode", "output_energy_J", "steps[0].gain", "train.pulses",
                                              "warnings"]
     assert Difference("x", 1.0, 2.0).text() == "x: stored 1.0, now 2.0 (relative +1.000e+00)"
+
+
+def _tamper_materials(f, edit):
+    ds = f["provenance/builtin_materials"]
+    data = json.loads(ds[()])
+    edit(data["Nd:YAG"])
+    del f["provenance/builtin_materials"]
+    f.create_dataset("provenance/builtin_materials", data=json.dumps(data), dtype=h5py.string_dtype())
+
+
+@pytest.mark.parametrize("what, tamper, text", [
+    ("complete as an array", lambda f: f.attrs.__setitem__("complete", [1, 1]), "complete is not true or false"),
+    ("config not a text", lambda f: f.attrs.__setitem__("config", 3.5), "config is not a text"),
+    ("NaN lifetime", lambda f: _tamper_materials(f, lambda m: m["si"].__setitem__("upper_lifetime_s", float("nan"))),
+     "si.upper_lifetime_s = nan: not a finite number"),
+    ("negative lifetime", lambda f: _tamper_materials(f, lambda m: m["si"].__setitem__("upper_lifetime_s", -1e-3)),
+     "upper_lifetime_us = -1000: outside"),
+    ("garbage spectrum", lambda f: _tamper_materials(f, lambda m: m.__setitem__("spectrum", {
+        "wavelength_m": [1, "x"], "emission_m2": [1], "absorption_m2": []})), "spectrum"),
+    ("materials not a table", lambda f: _tamper_materials(f, lambda m: m.__setitem__("si", [1, 2])),
+     "not material data"),
+])
+def test_a_crafted_result_file_is_bad_input(run_dir, tmp_path, capsys, monkeypatch, what, tamper, text):
+    """rerun trusts nothing in the file: each damaged entry is bad input (exit 2) naming what is wrong;
+    stored material data pass the ranges a config's material must."""
+    path = run_dir / "result.h5"
+    with h5py.File(path, "r+") as f:
+        tamper(f)
+    code, _, err = _cli(["rerun", path, "--no-plots", "--quiet"], capsys, tmp_path, monkeypatch)
+    assert code == EXIT_BAD_INPUT, (what, err)
+    assert text in err and "Traceback" not in err, (what, err)
+    assert not (run_dir.parent / "rod-rerun").exists()
