@@ -415,8 +415,10 @@ def _stopped(command: str, err: BaseException, argv: list[str], why: str) -> Non
     progress = getattr(err, "progress", None)
     label = "samples" if command == "spread" else "points"
     if progress is not None and progress.done is not None:
+        table = Path(progress.out) / ("samples.h5" if command == "spread" else "sweep.h5")
         kept = (f"{progress.done} of {progress.total} {label} are done and kept in {progress.out}/ "
-                f"(the {'samples' if command == 'spread' else 'sweep'} table lists them)")
+                + (f"(the {'samples' if command == 'spread' else 'sweep'} table lists them)" if table.is_file()
+                   else "(their point files; the table is written when the run goes on)"))
     elif progress is not None:
         kept = f"the {label} done so far are kept in {progress.out}/"
     else:

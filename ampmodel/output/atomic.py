@@ -71,6 +71,28 @@ def target(path: str | os.PathLike) -> Iterator[Path]:
         raise
 
 
+@contextmanager
+def hdf5_file(path: str | os.PathLike) -> Iterator[Any]:
+    """Yield a new HDF5 file (h5py.File) built in memory; when the block ends without an exception,
+    its image is written to ``path`` with plain writes through :func:`target`.
+
+    The HDF5 library never writes to the disk itself: a full or failing disk is an ordinary OSError
+    naming ``path`` (no half-closed HDF5 objects whose clean-up could crash the interpreter), and the
+    partial file is removed. The file's image is held in memory once while it is written."""
+    import io
+
+    import h5py
+    buffer = io.BytesIO()
+    with h5py.File(buffer, "w") as f:
+        yield f
+    with target(path) as tmp:
+        try:
+            with open(tmp, "wb") as fh:
+                fh.write(buffer.getbuffer())
+        except OSError as exc:
+            raise OSError(exc.errno, exc.strerror, str(path)) from None
+
+
 def write_text(path: str | os.PathLike, text: str) -> None:
     """Write ``text`` (UTF-8) to ``path`` through :func:`target`."""
     with target(path) as tmp:

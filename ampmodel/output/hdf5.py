@@ -7,7 +7,7 @@ beam after the last step, per time slice: fluence, B-integral and, with diffract
 ``/provenance`` (what reproduces the run: :mod:`ampmodel.output.provenance`). The README's "Reading the
 outputs" lists every dataset.
 
-The file is written through ``atomic.target`` (temporary name in the same folder, flushed, then
+The file is built in memory and written through ``atomic.hdf5_file`` (temporary name in the same folder, flushed, then
 renamed) so that a folder never holds a file that looks complete but is not.
 """
 from __future__ import annotations
@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING, Any, Mapping
 import numpy as np
 
 from ampmodel._version import __version__
-from ampmodel.output.atomic import COMPLETE_ATTR, target
+from ampmodel.output.atomic import COMPLETE_ATTR, hdf5_file
 from ampmodel.output.provenance import provenance
 
 if TYPE_CHECKING:
@@ -45,66 +45,63 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
     ``full_beam``: write the beam after the last step per time slice (``/output/fluence`` and
     ``/output/b_integral``, what a chained stage takes); a sweep's point files leave it out (it would
     multiply the folder's size; ``ampmodel rerun`` of a point writes it).
-    The file is written under a temporary name and renamed when whole (``atomic.target``); its last
+    The file is built in memory, written under a temporary name and renamed when whole (``atomic.hdf5_file``); its last
     write is the root attribute ``complete = True``.
     """
-    import h5py
-
-    with target(path) as tmp:
-        with h5py.File(tmp, "w") as f:
-            f.attrs["software_version"] = __version__
-            f.attrs["config"] = result.config.text
-            f.attrs["mode"] = result.config.mode
-            f.attrs["title"] = result.config.title
-            f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
-            f.attrs["summary"] = json.dumps(result.summary)
-            _provenance(f, result.config)
-            for key, value in (attrs or {}).items():
-                f.attrs[key] = value
-            cw = result.config.mode == "cw"
-            _grid_and_seed(f, result, cw)
-            steps = f.create_group("steps")
-            for rec in result.steps:
-                sg = steps.create_group(f"{rec.index:03d}")
-                sg.attrs["kind"] = rec.kind
-                sg.attrs["medium"] = rec.medium or ""
-                if cw:
-                    _dataset(sg, "intensity", rec.intensity_W_m2, "W/m^2")
-                    if rec.axis_intensity_W_m2 is not None:
-                        _dataset(sg, "axis_z", rec.axis_z_m, "m")
-                        _dataset(sg, "axis_intensity", rec.axis_intensity_W_m2, "W/m^2",
-                                 meaning="on-axis intensity at the medium's slice faces, at axis_z")
-                    continue
-                _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
-                _dataset(sg, "power", rec.power_W, "W")
-                _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
-                for name, (data, units) in rec.datasets.items():
-                    _dataset(sg, name, np.asarray(data), units)
-            _beam_figures(f, result.summary)
-            _output_beam(f, result, full_beam)
-            media = f.create_group("media")
-            for name, m in result.media.items():
-                mg = media.create_group(name)
-                mg.attrs["material"] = m.material
-                mg.attrs["material_sources"] = json.dumps(m.sources)
-                attrs = dict(slice_length=m.slice_length_m, saturation_fluence=m.saturation_fluence_J_m2,
-                             saturation_intensity=m.saturation_intensity_W_m2,
-                             slice_length_units="m", saturation_fluence_units="J/m^2",
-                             saturation_intensity_units="W/m^2")
-                _dataset(mg, "gain_initial", m.gain_initial_per_m, "1/m", **attrs)
-                _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
-                _upper_state(mg, m)
-                if m.pump_intensity_W_m2 is not None:
-                    _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
-                             meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
-                                     "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
-            if result.fibres:
-                _write_fibres(f.create_group("fibre"), result.fibres)
-            if result.train:
-                tg = f.create_group("train")
-                for name, (data, units) in result.train.items():
-                    _dataset(tg, name, np.asarray(data), units)
-            f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
+    with hdf5_file(path) as f:
+        f.attrs["software_version"] = __version__
+        f.attrs["config"] = result.config.text
+        f.attrs["mode"] = result.config.mode
+        f.attrs["title"] = result.config.title
+        f.attrs["created_utc"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+        f.attrs["summary"] = json.dumps(result.summary)
+        _provenance(f, result.config)
+        for key, value in (attrs or {}).items():
+            f.attrs[key] = value
+        cw = result.config.mode == "cw"
+        _grid_and_seed(f, result, cw)
+        steps = f.create_group("steps")
+        for rec in result.steps:
+            sg = steps.create_group(f"{rec.index:03d}")
+            sg.attrs["kind"] = rec.kind
+            sg.attrs["medium"] = rec.medium or ""
+            if cw:
+                _dataset(sg, "intensity", rec.intensity_W_m2, "W/m^2")
+                if rec.axis_intensity_W_m2 is not None:
+                    _dataset(sg, "axis_z", rec.axis_z_m, "m")
+                    _dataset(sg, "axis_intensity", rec.axis_intensity_W_m2, "W/m^2",
+                             meaning="on-axis intensity at the medium's slice faces, at axis_z")
+                continue
+            _dataset(sg, "fluence", rec.fluence_J_m2, "J/m^2")
+            _dataset(sg, "power", rec.power_W, "W")
+            _dataset(sg, "b_integral", rec.b_integral_rad, "rad")
+            for name, (data, units) in rec.datasets.items():
+                _dataset(sg, name, np.asarray(data), units)
+        _beam_figures(f, result.summary)
+        _output_beam(f, result, full_beam)
+        media = f.create_group("media")
+        for name, m in result.media.items():
+            mg = media.create_group(name)
+            mg.attrs["material"] = m.material
+            mg.attrs["material_sources"] = json.dumps(m.sources)
+            attrs = dict(slice_length=m.slice_length_m, saturation_fluence=m.saturation_fluence_J_m2,
+                         saturation_intensity=m.saturation_intensity_W_m2,
+                         slice_length_units="m", saturation_fluence_units="J/m^2",
+                         saturation_intensity_units="W/m^2")
+            _dataset(mg, "gain_initial", m.gain_initial_per_m, "1/m", **attrs)
+            _dataset(mg, "gain_final", m.gain_final_per_m, "1/m", **attrs)
+            _upper_state(mg, m)
+            if m.pump_intensity_W_m2 is not None:
+                _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
+                         meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
+                                 "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
+        if result.fibres:
+            _write_fibres(f.create_group("fibre"), result.fibres)
+        if result.train:
+            tg = f.create_group("train")
+            for name, (data, units) in result.train.items():
+                _dataset(tg, name, np.asarray(data), units)
+        f.attrs[COMPLETE_ATTR] = True        # last: a file without it is not whole
 
 
 def _output_beam(f, result: Result, full_beam: bool) -> None:

@@ -20,6 +20,7 @@ import os
 import socket
 import threading
 import uuid
+import warnings
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
@@ -245,7 +246,9 @@ def run_tasks(function: Callable[[Any], Any], tasks: Sequence[Any], backend: str
         return
     from joblib.externals.loky.process_executor import TerminatedWorkerError
     try:
-        yield from Parallel(n_jobs=n, backend="loky", return_as="generator_unordered")(calls)
+        with warnings.catch_warnings():      # a stopped run cancels its queued tasks: said by the caller
+            warnings.filterwarnings("ignore", message=".*tasks which were still being processed", category=UserWarning)
+            yield from Parallel(n_jobs=n, backend="loky", return_as="generator_unordered")(calls)
     except TerminatedWorkerError as exc:
         raise WorkerLost(f"a worker process died while it computed ({exc}); killed from outside, or by "
                          f"the system when memory ran out (fewer --jobs need less memory)") from None

@@ -358,31 +358,30 @@ def write_table(out: Path, stem: str, kind: str, columns: Sequence[Column], done
     import h5py
     n = len(done)
     h5_path, csv_path = out / f"{stem}.h5", out / f"{stem}.csv"
-    with atomic.target(h5_path) as tmp:
-        with h5py.File(tmp, "w") as f:
-            f.attrs["software_version"] = __version__
-            f.attrs["kind"] = kind
-            f.attrs["created_utc"] = _now()
-            for k, v in attrs.items():
-                f.attrs[k] = v
-            ds = f.create_dataset("index", data=np.arange(n, dtype=np.int64))
-            ds.attrs["units"] = "1"
-            groups = {"swept": f.create_group("swept"), "summary": f.create_group("summary")}
-            for col in columns:
-                data, is_text = _as_array(col.values)
-                if is_text:
-                    ds = groups[col.group].create_dataset(col.name, data=data, dtype=h5py.string_dtype())
-                else:
-                    ds = groups[col.group].create_dataset(col.name, data=data)
-                ds.attrs["units"] = "" if is_text else col.units
-            links = f.create_group("points")
-            for i in range(n):
-                if done[i]:
-                    links[point_name(i)] = h5py.ExternalLink(f"{POINTS}/{point_name(i)}.h5", "/")
-            f.attrs["points_done"] = int(sum(bool(d) for d in done))
-            f.attrs["points_total"] = n
-            f.attrs["all_points_done"] = bool(all(done))
-            f.attrs[atomic.COMPLETE_ATTR] = True      # last: the file is whole (not: every point is done)
+    with atomic.hdf5_file(h5_path) as f:
+        f.attrs["software_version"] = __version__
+        f.attrs["kind"] = kind
+        f.attrs["created_utc"] = _now()
+        for k, v in attrs.items():
+            f.attrs[k] = v
+        ds = f.create_dataset("index", data=np.arange(n, dtype=np.int64))
+        ds.attrs["units"] = "1"
+        groups = {"swept": f.create_group("swept"), "summary": f.create_group("summary")}
+        for col in columns:
+            data, is_text = _as_array(col.values)
+            if is_text:
+                ds = groups[col.group].create_dataset(col.name, data=data, dtype=h5py.string_dtype())
+            else:
+                ds = groups[col.group].create_dataset(col.name, data=data)
+            ds.attrs["units"] = "" if is_text else col.units
+        links = f.create_group("points")
+        for i in range(n):
+            if done[i]:
+                links[point_name(i)] = h5py.ExternalLink(f"{POINTS}/{point_name(i)}.h5", "/")
+        f.attrs["points_done"] = int(sum(bool(d) for d in done))
+        f.attrs["points_total"] = n
+        f.attrs["all_points_done"] = bool(all(done))
+        f.attrs[atomic.COMPLETE_ATTR] = True      # last: the file is whole (not: every point is done)
 
     with atomic.target(csv_path) as tmp:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
