@@ -216,6 +216,18 @@ class Cluster:
         self.client = self.cluster = None
 
 
+def release_workers() -> None:
+    """Shut down joblib's reusable loky workers now (they would otherwise wait idle for minutes, holding
+    the output streams of a parent that may be gone: a caller piping the output would hang)."""
+    try:
+        from joblib.externals.loky import reusable_executor
+        executor = getattr(reusable_executor, "_executor", None)     # None: no workers were started
+        if executor is not None:
+            executor.shutdown(wait=True, kill_workers=True)
+    except Exception:  # noqa: BLE001 - an executor already broken: nothing left to release
+        pass
+
+
 def run_tasks(function: Callable[[Any], Any], tasks: Sequence[Any], backend: str = "loky", jobs: int | None = None,
               client=None) -> Iterator[Any]:
     """Run ``function(task)`` for every task; yield the results as they come (in any order).

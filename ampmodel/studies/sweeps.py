@@ -28,7 +28,16 @@ from ampmodel.config.text import dump_toml, resolve_path
 from ampmodel.description import Config
 from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
 from ampmodel.studies import store as store
-from ampmodel.studies.backends import BACKENDS, BackendError, Cluster, WorkerLost, cores, preflight, run_tasks
+from ampmodel.studies.backends import (
+    BACKENDS,
+    BackendError,
+    Cluster,
+    WorkerLost,
+    cores,
+    preflight,
+    release_workers,
+    run_tasks,
+)
 from ampmodel.studies.figures import check_before_run, figure_check, with_figures
 from ampmodel.studies.points import (
     PointOutcome,
@@ -302,8 +311,11 @@ def _run(tasks: list[PointTask], summaries: list, failed: dict, seconds: dict, b
                     _collect(outcome, summaries, failed, seconds, bar)
             return n
         n = _fit_jobs(min(jobs or cores(), len(tasks)), per_point, notes)
-        for outcome in run_tasks(run_point, tasks, "loky", n):
-            _collect(outcome, summaries, failed, seconds, bar)
+        try:
+            for outcome in run_tasks(run_point, tasks, "loky", n):
+                _collect(outcome, summaries, failed, seconds, bar)
+        finally:
+            release_workers()       # before the serial work (table, plots): no idle worker outlives the run
         return n
     finally:
         bar.close()
