@@ -21,6 +21,8 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Mapping, Sequence
 
+import numpy as np
+
 from ampmodel.config import chain as config_chain
 from ampmodel.config import cw as config_cw
 from ampmodel.config import fibre as config_fibre
@@ -210,7 +212,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     if grid is not None and steps is not None:
         config_timing.cavity_modes(p, raw, grid)
     if grid is not None and media is not None and not only_fibres:
-        _apertures_on_grid(p, grid, media)
+        _apertures_on_grid(p, grid, media, seed)
     if len(p) or grid is None or seed is None or media is None or steps is None:
         return None
     config_timing.check(p, raw, media, seed, tuple(steps))
@@ -220,16 +222,30 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
                   seed=seed, steps=tuple(steps), limits=limits, solver=solver, train=train)
 
 
-def _apertures_on_grid(p: Problems, grid: Grid, media: list[Medium]) -> None:
-    """Each bulk medium's clear aperture must hold a pixel centre of the grid (else no gain, no pump
-    and no beam through it: a slip of unit)."""
+def _apertures_on_grid(p: Problems, grid: Grid, media: list[Medium], seed: Seed | None) -> None:
+    """Each bulk medium's clear aperture, its pump's profile and the seed's profile must light a pixel
+    of the grid (else no gain, no pump, no beam: a slip of unit)."""
     from ampmodel.kernels import beam_shapes
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
+    if seed is not None and seed.measured is None and seed.beam is None and seed.diameter_m > 0:
+        if not np.any(beam_shapes.transverse_profile(x, x, seed.profile, seed.diameter_m, seed.order) > 0.0):
+            p.add("seed.diameter_mm", f"the seed's profile covers no pixel of the grid (pixels of "
+                  f"{grid.width_m / grid.points * 1e3:.3g} mm): widen the seed or make the pixels finer",
+                  seed.diameter_m * 1e3)
+    pixel = f"(pixels of {grid.width_m / grid.points * 1e3:.3g} mm): make it wider or the pixels finer (grid.points, " \
+            f"grid.width_mm)"
     for i, m in enumerate(media):
-        if m.kind != "fibre" and not beam_shapes.aperture_mask(x, x, m.aperture, m.diameter_m).any():
-            p.add(f"medium[{i}] ({m.name}).diameter_mm", f"the clear aperture covers no pixel of the grid (pixels of "
-                  f"{grid.width_m / grid.points * 1e3:.3g} mm): make it wider or the pixels finer (grid.points, "
-                  f"grid.width_mm)", m.diameter_m * 1e3)
+        if m.kind == "fibre":
+            continue
+        inside = beam_shapes.aperture_mask(x, x, m.aperture, m.diameter_m)
+        if not inside.any():
+            p.add(f"medium[{i}] ({m.name}).diameter_mm", f"the clear aperture covers no pixel of the grid {pixel}",
+                  m.diameter_m * 1e3)
+        elif m.pump is not None and m.pump.diameter_m is not None:
+            profile = beam_shapes.transverse_profile(x, x, m.pump.profile, m.pump.diameter_m, m.pump.order)
+            if not np.any(profile[inside] > 0.0):
+                p.add(f"medium[{i}] ({m.name}).pump.diameter_mm", f"the pump's profile covers no pixel of the clear "
+                      f"aperture {pixel}", m.pump.diameter_m * 1e3)
 
 
 def _grid(p: Problems, table: dict) -> Grid | None:

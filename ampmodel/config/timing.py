@@ -89,6 +89,10 @@ def cavity_modes(p: Problems, raw: dict, grid: Grid) -> None:
             p.add(key, "applies without diffraction only: with grid.diffraction = true the field path forms the "
                        "cavity's own mode from its lenses (lens steps standing for the curved mirrors) round trip "
                        "after round trip; remove mode_diameter_mm, or set grid.diffraction = false", value)
+        elif isinstance(value, (int, float)) and to_si("mode_diameter_mm", value) < 0.5 * grid.width_m / grid.points:
+            p.add(key, f"the cavity mode is narrower than half a pixel ({grid.width_m / grid.points * 1e3:.3g} mm): "
+                       "it would light no pixel; check the mode's diameter (1/e^2, in mm) or make the pixels finer",
+                  value)
         elif isinstance(value, (int, float)) and to_si("mode_diameter_mm", value) > grid.width_m:
             p.add(key, f"the cavity mode is wider than the grid's window ({grid.width_m * 1e3:g} mm): the window "
                        "would cut it; widen grid.width_mm, or check the mode's diameter (1/e^2, in mm)", value)

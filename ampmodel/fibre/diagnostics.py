@@ -194,7 +194,7 @@ def _medium_entry(config: Config, stage: FibreStage, fig: StageFigures, cw: bool
         train = stage.train
         e_in = float(np.sum(stage.input))
         e_out = float(train.pulse.energy_out_J.sum())
-        entry.update({"gain_dB": 10 * math.log10(e_out / e_in) if e_in > 0 and e_out > 0 else float("-inf"),
+        entry.update({"gain_dB": decibels(e_out, e_in),
                       "stored_energy_J": _stored_J(model, train.n2_before),
                       "stored_energy_final_J": _stored_J(model, train.n2_after),
                       "extracted_energy_J": train.pulse.extracted_J,
@@ -218,6 +218,12 @@ class _Walk:
     peak_axis: float = 0.0
     peak_fluence: float = 0.0
     chain: list = field(default_factory=list)   # (gain, noise factor) of each element, for Friis
+
+
+def decibels(out: float, into: float) -> float | None:
+    """10·log10(out/into), or None (null in summary.json) when either is not above zero: a signal that
+    leaves nothing has no gain in dB."""
+    return 10.0 * math.log10(out / into) if out > 0 and into > 0 else None
 
 
 def summarise_fibre(config: Config, stages: list[FibreStage], x_m: np.ndarray) -> dict[str, Any]:
@@ -323,7 +329,7 @@ def _pulsed_fibre_entry(config: Config, st: FibreStage, fig: StageFigures, walk:
     walk.extracted += train.pulse.extracted_J
     entry = {"index": st.step.index, "kind": "pass", "medium": model.name, "energy_in_J": value,
              "energy_out_J": out, "gain": out / value if value > 0 else 0.0,
-             "gain_dB": 10 * math.log10(out / value) if value > 0 and out > 0 else float("-inf"),
+             "gain_dB": decibels(out, value),
              "peak_fluence_J_cm2": peak_f * J_CM2,
              "peak_intensity_W_cm2": fig.peak_power_W * fig.peak_axis_per_m2 * W_CM2,
              "b_integral_rad": b, "clipped_energy_J": 0.0, "passive_loss_J": train.pulse.loss_J}
@@ -341,7 +347,7 @@ def _cw_totals(config: Config, fibres: list[FibreStage], walk: _Walk, steps: lis
                               if i > 0)
     return {
         "input_power_W": p_in, "output_power_W": value, "gain": value / p_in,
-        "gain_dB": 10 * math.log10(value / p_in) if value > 0 else float("-inf"),
+        "gain_dB": decibels(value, p_in),
         "b_integral_rad": sum(st_["b_integral_rad"] for st_ in steps),
         "noise_figure_dB": 10 * math.log10(noise),
         "optical_efficiency": (value - p_in) / pump_in if pump_in > 0 else 0.0,
@@ -369,13 +375,13 @@ def _pulsed_totals(config: Config, stages: list[FibreStage], fibres: list[FibreS
                         f"rad in total (common practice)"))
     stored = sum(m["stored_energy_J"] for m in media)
     return {
-        "input_energy_J": e_in, "output_energy_J": value, "gain": value / e_in,
-        "gain_dB": 10 * math.log10(value / e_in) if value > 0 else float("-inf"),
+        "input_energy_J": e_in, "output_energy_J": value, "gain": value / e_in if e_in > 0 else 0.0,
+        "gain_dB": decibels(value, e_in),
         "stored_energy_J": stored, "stored_energy_final_J": sum(m["stored_energy_final_J"] for m in media),
         "extracted_energy_J": walk.extracted,
         "extraction_efficiency": (value - e_in) / stored if stored > 0 else 0.0,
         "lost_energy_J": walk.lost, "peak_fluence_J_cm2": walk.peak_fluence * J_CM2, "b_integral_rad": b_total,
-        "energy_balance_error": (e_in + walk.extracted - value - walk.lost) / value,
+        "energy_balance_error": (e_in + walk.extracted - value - walk.lost) / value if value > 0 else 0.0,
         "pulse_duration_ns": seed.duration_s * 1e9, "time_slice_ns": last.dt_s * 1e9,
         "repetition_rate_Hz": rate,
         "input_power_W": e_in * rate if rate else None, "output_power_W": value * rate if rate else None,

@@ -125,8 +125,14 @@ def anderson_step(ys: list[np.ndarray], gs: list[np.ndarray]) -> np.ndarray:
         return gs[-1]
     df = np.stack([b - a for a, b in zip(f[:-1], f[1:], strict=True)], axis=1)
     dg = np.stack([b - a for a, b in zip(gs[:-1], gs[1:], strict=True)], axis=1)
-    gamma = np.linalg.lstsq(df, f[-1], rcond=1e-12)[0]
-    return gs[-1] - dg @ gamma
+    if not (np.all(np.isfinite(df)) and np.all(np.isfinite(f[-1]))):
+        return gs[-1]                       # a non-finite difference: the plain step
+    try:
+        gamma = np.linalg.lstsq(df, f[-1], rcond=1e-12)[0]
+    except np.linalg.LinAlgError:           # the least-squares solve failed: the plain step
+        return gs[-1]
+    step = gs[-1] - dg @ gamma
+    return step if np.all(np.isfinite(step)) else gs[-1]
 
 
 def solve_cw(model: FibreModel, signal_power_W: float, tolerance: float = DEFAULT_TOLERANCE,
@@ -301,7 +307,7 @@ def output_figures(sol: CWSolution) -> dict[str, float]:
         "signal_in_W": sol.signal_in_W,
         "signal_out_W": s_out,
         "gain": gain,
-        "gain_dB": 10 * np.log10(gain) if gain > 0 else -np.inf,
+        "gain_dB": 10 * np.log10(gain) if gain > 0 else None,
         "pump_in_W": pump_in,
         "pump_out_W": pump_out,
         "pump_absorbed_W": pump_in - pump_out,

@@ -111,7 +111,10 @@ def gain_map(medium: Medium, x_m: np.ndarray, y_m: np.ndarray) -> GainMap:
     pump = medium.pump
     assert pump is not None
     ions = Ions.of(medium)
-    model = pumping.build_pump(medium, x_m, y_m, mask)
+    try:
+        model = pumping.build_pump(medium, x_m, y_m, mask)
+    except pumping.PumpProfileError as exc:
+        raise GainMapError(str(exc)) from None
     pumped = (pumping.pump_steady if pump.continuous else pumping.pump_pulse)(medium, model, mask, pixel_area)
     gain = np.where(mask[None, :, :], ions.gain_per_m(pumped.n2_per_m3), 0.0)
     _check_finite(medium, gain, dz)

@@ -92,6 +92,10 @@ class PumpModel:
         return self.delivered_W - self.ends * float(self.flux_in.sum()) * pixel_area_m2 * self.photon_energy_J
 
 
+class PumpProfileError(ValueError):
+    """A pump whose profile lights no pixel of the medium's clear aperture (bad input)."""
+
+
 def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarray) -> PumpModel:
     """The pump of a medium on the transverse grid: its power while on is ``power_W`` (continuous)
     or ``energy_J/duration_s`` (a square pump pulse)."""
@@ -114,6 +118,9 @@ def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarra
         sap = alpha0 / nt
         sep = mat.pump_emission_cross_section_m2 or 0.0
         bleach, create_b = sap + sep, eta * sap + sep
+    if not np.any(np.where(mask, profile, 0.0) > 0.0):
+        raise PumpProfileError(f"medium {medium.name!r}: the pump's profile covers no pixel of the clear aperture; "
+                               f"widen medium.{medium.name}.pump.diameter_mm or make the pixels finer")
     if pump.geometry == "end":
         areal = profile / (profile.sum() * pixel_area)                     # 1/m², whole profile
         ends = 2 if pump.direction == "both" else 1
@@ -121,8 +128,6 @@ def build_pump(medium: Medium, x_m: np.ndarray, y_m: np.ndarray, mask: np.ndarra
     else:
         inside = np.where(mask, profile, 0.0)
         total = inside.sum() * pixel_area
-        if total <= 0.0:
-            raise ValueError(f"medium {medium.name!r}: the pump profile does not reach the clear aperture")
         rate = inside / total * (delivered * pump.absorbed_fraction / hnu / medium.length_m)   # 1/(m³·s)
         flux = rate / (alpha0 if alpha0 is not None else 1.0)
     return PumpModel(geometry=pump.geometry, flux_in=flux, alpha0_per_m=alpha0 if alpha0 is not None else 1.0,

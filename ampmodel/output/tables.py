@@ -57,6 +57,11 @@ def cw_table_lines(summary: dict) -> list[str]:
     return out
 
 
+def _db(value: float | None) -> str:
+    """A gain in dB, or what a null one means (nothing leaves the fibre)."""
+    return "none: nothing leaves" if value is None else f"{value:.2f} dB"
+
+
 def fibre_lines(summary: dict) -> list[str]:
     """The table of a layout of fibres (cw or pulsed)."""
     out: list[str] = []
@@ -77,7 +82,7 @@ def fibre_lines(summary: dict) -> list[str]:
                    f"{quantity_text(s[key + '_out_' + unit], unit):>11} {gain:>8.2f}")
     if cw:
         out.append(f"input {quantity_text(summary['input_power_W'], 'W')} -> output {quantity_text(summary['output_power_W'], 'W')} "
-                   f"(gain {summary['gain_dB']:.2f} dB, noise figure {summary['noise_figure_dB']:.2f} dB); residual pump "
+                   f"(gain {_db(summary['gain_dB'])}, noise figure {summary['noise_figure_dB']:.2f} dB); residual pump "
                    f"{quantity_text(summary['pump_power_out_W'], 'W')}, ASE forward {quantity_text(summary['ase_forward_W'], 'W')}, "
                    f"backward {quantity_text(summary['ase_backward_W'], 'W')}")
         out.append(f"steady state: {summary['cw_iterations']} iterations, last change {summary['cw_residual']:.1e}; "
@@ -85,7 +90,7 @@ def fibre_lines(summary: dict) -> list[str]:
         return out
     rate = summary.get("repetition_rate_Hz")
     out.append(f"input {quantity_text(summary['input_energy_J'], 'J')} -> output {quantity_text(summary['output_energy_J'], 'J')} "
-               f"(gain {summary['gain_dB']:.2f} dB), peak power {quantity_text(summary['output_peak_power_W'], 'W')}, "
+               f"(gain {_db(summary['gain_dB'])}), peak power {quantity_text(summary['output_peak_power_W'], 'W')}, "
                f"FWHM {summary['output_pulse_duration_ns']:.3g} ns"
                + (f", mean power {quantity_text(summary['output_power_W'], 'W')} at {quantity_text(rate, 'Hz')}" if rate else
                " (a single pulse)"))

@@ -48,7 +48,7 @@ def plot_spectra(result: Result, path: Path) -> Path:
     f_seed, u_seed = unit_prefix(finite_max(seed), ENERGY_UNITS)
     seed_label = f"seed ({result.config.seed.bandwidth_m * 1e9:.3g} nm FWHM)" if result.config.seed.bandwidth_m else "seed"
     out_label = (f"output ({summary.get('output_bandwidth_nm', float('nan')):.3g} nm FWHM, centre "
-                 f"{summary.get('output_centre_nm', float('nan')):.5g} nm)")
+                 f"{summary.get('output_centre_nm') or float('nan'):.5g} nm)")
     ax.plot(nm, out / f_out, color=OUTPUT_COLOUR, label=out_label)
     ax.set_ylabel(f"output ({u_out}/nm)")
     twin = ax.twinx()

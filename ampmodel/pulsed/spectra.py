@@ -7,6 +7,7 @@ is the seed's wavelength and its width the transform limit of its pulse shape.
 """
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -72,10 +73,12 @@ def add_spectra(config: Config, summary: dict[str, Any], records: list[StepRecor
             figures.append(spectral_centre_and_width(energies, wavelengths_m, widths))
         seed_spectrum = spectrum_J_m(seed_power_W * dt_s, step)
         _outside_warnings(config, summary, wavelengths_m, seed_power_W, states)
+    def nm(value: float) -> float | None:             # a pulse with no energy left has no spectrum: null
+        return value * 1e9 if math.isfinite(value) else None
     for entry, (centre, width) in zip(summary["steps"], figures, strict=True):
-        entry["centre_nm"], entry["bandwidth_nm"] = centre * 1e9, width * 1e9
+        entry["centre_nm"], entry["bandwidth_nm"] = nm(centre), nm(width)
     centre, width = figures[-1] if figures else (seed.wavelength_m, 0.0)
-    summary["output_centre_nm"], summary["output_bandwidth_nm"] = centre * 1e9, width * 1e9
+    summary["output_centre_nm"], summary["output_bandwidth_nm"] = nm(centre), nm(width)
     if seed.bandwidth_m and width > 0.0:
         summary["output_transform_limit_ps"] = transform_limit_duration_s(width, centre) * 1e12
     return seed_spectrum

@@ -312,7 +312,7 @@ def test_every_problem_is_reported_at_once():
     raw["limits"] = {"damage_fraction": 0}
     problems = problems_of(raw)
     expected = ["grid.points = true: must be an integer from 8 to 4096, not a boolean",
-                "grid.width_mm = inf: must be a number > 0 and <= 10000; nan and inf are not allowed",
+                "grid.width_mm = inf: must be a number from 0.001 to 10000; nan and inf are not allowed",
                 "medium[0] (rod).material.refractive_index = -1",
                 "seed.sahpe = \"flat\": unknown key; did you mean 'shape'?",
                 "seed.power_W = 3.0: is a key of a cw seed",

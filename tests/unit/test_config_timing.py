@@ -142,7 +142,7 @@ def test_continuous_pump():
      "medium[0] (rod).pump.duration_us = 100.0: a continuous pump has no pulse length"),
     ({"continuous": True, "energy_J": 1.0}, "medium[0] (rod).pump.energy_J = 1.0: a continuous pump takes power_W"),
     ({"continuous": True}, "medium[0] (rod).pump.power_W: missing: the power of the continuous pump"),
-    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length (pulsed mode), a number > 0 and <= 1e7; "
+    ({"power_W": 50.0}, "medium[0] (rod).pump.duration_us: missing: pump pulse length (pulsed mode), a number from 0.001 to 1e7; "
                         "or continuous = true with power_W"),
     ({"continuous": "yes", "power_W": 5.0}, 'medium[0] (rod).pump.continuous = "yes": must be true or false'),
 ])
