@@ -183,6 +183,8 @@ def add_field_figures(summary: dict[str, Any], sweep: Sweep, seed_beam: dict[str
         entry.update(beam)
         entry["edge_absorbed_power_W"] = oc.edge_absorbed_W
         entry["b_integral_rad"] = oc.b_integral_rad
+        if oc.pinhole_transmission is not None:
+            entry["pinhole_transmission"] = oc.pinhole_transmission
         summary["warnings"].extend(oc.warnings)
     summary["b_integral_rad"] = max([oc.b_integral_rad for oc in sweep.outcomes] + [0.0])
     summary["edge_absorbed_power_W"] = sum(oc.edge_absorbed_W for oc in sweep.outcomes)

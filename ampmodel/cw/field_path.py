@@ -149,7 +149,8 @@ def other_field_step(beam: FieldBeam, step: Step) -> tuple[FieldBeam, CwOutcome]
     oc = FIELD_STEP_ACTIONS[step.kind](beam, step)
     return beam, CwOutcome(oc.energy_in_J, oc.energy_out_J, clipped_W=oc.clipped_J, passive_loss_W=oc.passive_loss_J,
                            peak_intensity_W_m2=oc.peak_intensity_W_m2, edge_absorbed_W=oc.edge_absorbed_J,
-                           b_integral_rad=float(beam.b_integral.max()), warnings=list(oc.warnings))
+                           b_integral_rad=float(beam.b_integral.max()), warnings=list(oc.warnings),
+                           pinhole_transmission=oc.pinhole_transmission)
 
 
 def field_actions(config: Config, seed_field: np.ndarray, x_m: np.ndarray) -> SweepActions:

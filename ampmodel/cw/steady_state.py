@@ -58,6 +58,7 @@ class CwOutcome:
     edge_absorbed_W: float = 0.0          # field path: taken by the window's absorbing edge
     b_integral_rad: float = 0.0           # field path: the largest B-integral of a pixel after the step
     warnings: list[str] = field(default_factory=list)
+    pinhole_transmission: float | None = None   # field path: a spatial filter's
 
 
 def _axis_index(n: int) -> int:

@@ -243,3 +243,21 @@ def test_kerr_phase_is_the_b_integral_of_the_amplified_intensity():
     g, length = math.log(2.0) / 1e-2, 1e-2
     expected = 2.0 * math.pi / WAVELENGTH * n2 * i0 * math.expm1(g * length) / g
     assert result.summary["b_integral_rad"] == pytest.approx(expected, rel=1e-3)
+
+
+def test_filter_relay_and_soft_aperture_keep_the_power_balance():
+    """The field-only steps in cw (a spatial filter, a 4f relay of magnification 1.5, a soft aperture)
+    after a pass, with an M² = 1.5 seed: every watt counted (balance 1e-12), the filter's pinhole
+    transmission at least its power out over in (the window also takes the rings outside it) and
+    within 1e-3 of it, and its clipping warned of."""
+    raw = config(64, 6.0, {"diameter_mm": 1.5, "power_W": 1.0, "m_squared": 1.5},
+                 [{"kind": "pass", "medium": "rod"},
+                  {"kind": "filter", "focal_mm": 200.0, "pinhole_diameter_mm": 0.3},
+                  {"kind": "relay", "magnification": 1.5}, {"kind": "aperture", "diameter_mm": 3.0, "order": 10.0}])
+    s = run(raw).summary
+    assert abs(s["power_balance_error"]) < 1e-12
+    f = s["steps"][1]
+    ratio = f["power_out_W"] / f["power_in_W"]
+    assert ratio - 1e-12 <= f["pinhole_transmission"] <= ratio + 1e-3
+    assert f["pinhole_transmission"] < 0.999
+    assert any("step 1 (filter)" in w for w in s["warnings"])
