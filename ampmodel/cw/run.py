@@ -35,10 +35,12 @@ def memory_estimate_bytes(config: Config) -> int:
 
 def _seed_field(config: Config, x: np.ndarray) -> np.ndarray:
     """The cw seed's field (Ny, Nx) at the start plane, |E|² in W/m² (``beam_shapes.seed_start_field``:
-    waist, curvature, M², a measured profile and wavefront); seed.from: the earlier run's intensity
-    map with a flat wavefront (a cw result stores no phase)."""
+    waist, curvature, M², a measured profile and wavefront); seed.from: the earlier run's field
+    (config/chain.py: its /output/field, or sqrt(intensity) with a flat phase)."""
     seed = config.seed
     if seed.beam is not None:
+        if seed.beam.complex_field is not None:
+            return seed.beam.complex_field.copy()
         return np.sqrt(seed.beam.intensity_W_m2).astype(np.complex128)
     shape, phase = seed.measured.on_grid(x, x) if seed.measured is not None else (None, None)
     try:
