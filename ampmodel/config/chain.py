@@ -26,7 +26,9 @@ What is taken:
   over the slices at each pixel, at the true peak); a note (code ``seed-from``) says so.
 - **a field wanted, none stored** (this run with diffraction, the earlier one without, or an earlier
   step): the field is sqrt(fluence) with a flat phase, with a note.
-- **cw**: the intensity map after the step (``/steps/NNN/intensity``): complete at every step.
+- **cw**: the intensity map after the step (``/steps/NNN/intensity``): complete at every step; for a
+  run with diffraction, after the last step the field itself (``/output/field``, a run with
+  diffraction), else sqrt(intensity) with a flat phase, with a note.
 
 The grid must be the stored one (``grid.points``, ``grid.width_mm`` and, pulsed, ``grid.time_slices``):
 a chained stage continues on the same pixels and time slices, and a different grid is refused with
@@ -197,6 +199,22 @@ def _steps(f) -> list[str]:
     return names
 
 
+def _cw_beam(f, intensity: np.ndarray, last: bool, diffraction: bool) -> tuple[SeedBeam, str, list[str]]:
+    """The cw beam after a step: its intensity map and, for this run with diffraction, the earlier
+    run's field after the last step (``/output/field``, (1, Ny, Nx)) or sqrt(intensity) with a flat
+    phase and a note."""
+    if not diffraction:
+        return SeedBeam(intensity_W_m2=intensity), "intensity", []
+    if last and "output" in f and "field" in f["output"]:
+        field = _array(f, "output/field", (1,) + intensity.shape, complex_ok=True)[0].astype(np.complex128)
+        return (SeedBeam(intensity_W_m2=field.real ** 2 + field.imag ** 2, complex_field=field),
+                "intensity, with its field", [])
+    text = ("seed: the earlier run stored no field for this beam (a cw field is stored after the last step of a "
+            "run with diffraction): the field is taken as sqrt(intensity) with a flat phase (a beam at its waist)")
+    return (SeedBeam(intensity_W_m2=intensity, complex_field=np.sqrt(intensity).astype(np.complex128),
+                     notes=(note("seed-from", text),)), "intensity", [text])
+
+
 def _pulsed_beam(f, step: int, last: bool, diffraction: bool, shape: tuple[int, int, int],
                  factors: np.ndarray) -> tuple[SeedBeam, str, list[str]]:
     """The pulsed beam after ``step``: full after the last step, separable before it."""
@@ -273,7 +291,7 @@ def read_source(path: Path, name: str, step: int | None, mode: str, grid: Grid) 
             intensity = _array(f, f"steps/{names[index]}/intensity", (x.size, x.size))
             if np.any(intensity < 0.0):
                 raise SourceProblem("a negative intensity: a damaged result file")
-            beam, how, notes = SeedBeam(intensity_W_m2=intensity), "intensity", []
+            beam, how, notes = _cw_beam(f, intensity, index == len(names) - 1, grid.diffraction)
         else:
             nt = _array(f, "grid/t").size
             if x.size != grid.points or nt != grid.time_slices:

@@ -194,14 +194,13 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
         if seed.beam is not None:     # the seed's wavelengths are the earlier run's, not keys of this config
             p.lines[before:] = [f"{line} (seed.from gives the seed's wavelengths: give the medium a cross-section "
                                 "spectrum that covers them)" for line in p.lines[before:]]
-    if mode == "cw" and grid is not None and grid.diffraction:
-        p.add("grid.diffraction", 'split-step diffraction is available for mode = "pulsed" only in this version; '
-                                  "set grid.diffraction = false", True)
-    if mode == "cw" and isinstance(raw.get("seed"), dict):
+    if mode == "cw" and isinstance(raw.get("seed"), dict) and not (grid is not None and grid.diffraction):
         for key in S.SEED_FIELD_KEYS:
             if key in raw["seed"]:
-                p.add(join_path("seed", key), 'applies to mode = "pulsed" only in this version (a cw seed is taken '
-                                              "at its waist with a flat wavefront); remove it", raw["seed"][key])
+                p.add(join_path("seed", key), "shapes the seed's optical field: a cw seed takes it with "
+                                              "grid.diffraction = true (without diffraction it is taken at its "
+                                              "waist with a flat wavefront); set grid.diffraction = true or "
+                                              "remove it", raw["seed"][key])
     if grid is not None and not grid.diffraction and isinstance(raw.get("step"), list):
         for path, item in config_timing.all_step_tables(raw["step"]):
             if item.get("kind") in S.FIELD_ONLY_KINDS:

@@ -280,7 +280,7 @@ def check_with_grid(p: Problems, grid: Grid, profile: MeasuredProfile, mode: str
     """What a measured profile needs of the grid: diffraction for a phase map, a window wider than the beam."""
     if profile.phase_rad is not None and not grid.diffraction:
         p.add(join_path(PATH, "phase_file"), "a measured wavefront acts on the optical field: set grid.diffraction = "
-                                      f"true{' (pulsed mode)' if mode == 'cw' else ''}, or remove it")
+                                      "true, or remove it")
     dx, dy = profile.d4sigma_m()
     if max(dx, dy) >= grid.width_m:
         p.add("grid.width_mm", f"the measured beam (D4σ {dx * 1e3:.3g} x {dy * 1e3:.3g} mm from "

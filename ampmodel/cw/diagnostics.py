@@ -144,7 +144,7 @@ def _step_entries(config: Config, sweep: Sweep, peak: float,
     limits = config.limits
     steps, lost = [], 0.0
     for step, oc in zip(config.steps, sweep.outcomes, strict=True):
-        lost += oc.clipped_W + oc.passive_loss_W
+        lost += oc.clipped_W + oc.passive_loss_W + oc.edge_absorbed_W
         peak = max(peak, oc.peak_intensity_W_m2)
         entry = {"index": step.index, "kind": step.kind, "medium": step.medium,
                  "power_in_W": oc.power_in_W, "power_out_W": oc.power_out_W,
@@ -172,3 +172,22 @@ def _step_entries(config: Config, sweep: Sweep, peak: float,
                                     f"{what} ({damage * W_CM2:.3g} W/cm²; common practice); damage thresholds are "
                                     f"estimates: verify with your optics' data"))
     return steps, lost, peak
+
+
+def add_field_figures(summary: dict[str, Any], sweep: Sweep, seed_beam: dict[str, float],
+                      figures: list[dict[str, float]], grid_warnings: list[str]) -> None:
+    """With diffraction: each step's beam figures, the power the window's absorbing edge took and the
+    B-integral (the largest of a pixel after the step), the seed's beam figures, the grid's warnings
+    and the steps' own (an undersampled lens phase, a pinhole wider than the grid)."""
+    for entry, oc, beam in zip(summary["steps"], sweep.outcomes, figures, strict=True):
+        entry.update(beam)
+        entry["edge_absorbed_power_W"] = oc.edge_absorbed_W
+        entry["b_integral_rad"] = oc.b_integral_rad
+        if oc.pinhole_transmission is not None:
+            entry["pinhole_transmission"] = oc.pinhole_transmission
+        summary["warnings"].extend(oc.warnings)
+    summary["b_integral_rad"] = max([oc.b_integral_rad for oc in sweep.outcomes] + [0.0])
+    summary["edge_absorbed_power_W"] = sum(oc.edge_absorbed_W for oc in sweep.outcomes)
+    summary["diffraction"] = True
+    summary["seed_beam"] = seed_beam
+    summary["warnings"].extend(grid_warnings)

@@ -34,6 +34,10 @@ class CwMedium:
     g0, isat : small-signal gain coefficient (1/m) and saturation intensity (W/m²) of each voxel
         (pump-dependent with a pump; isat a float without one)
     entering : step index -> (nz, Ny, Nx) intensity entering each voxel's gain step in that pass
+    phase_rad : field path (grid.diffraction = true): an optional (Ny, Nx) phase map (rad) that each
+        pass applies at its middle (half the medium, the phase, the other half); None (the default)
+        is no phase. A hook for a phase the medium itself imposes (e.g. a thermal lens), filled by
+        whatever models it before the run; ``cw/field_path.py`` applies it
     forward, backward : sums of ``entering`` over the passes in each direction
     """
 
@@ -52,6 +56,7 @@ class CwMedium:
     forward: np.ndarray | None = None
     backward: np.ndarray | None = None
     initial_iterations: int = 0
+    phase_rad: np.ndarray | None = None
 
     @property
     def name(self) -> str:

@@ -7,7 +7,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from ampmodel.beam.field import fluence_of
+from ampmodel.config.checks import ConfigError
 from ampmodel.cw import diagnostics as cw_diagnostics
+from ampmodel.cw import field_path
 from ampmodel.cw.medium import build_medium
 from ampmodel.cw.steady_state import solve
 from ampmodel.description import Config
@@ -24,7 +27,29 @@ def memory_estimate_bytes(config: Config) -> int:
     passes = {m.name: sum(1 for s in config.steps if s.kind == "pass" and s.medium == m.name)
               for m in config.media}
     media = sum((8 + passes[m.name]) * m.slices * pixels * (4 if m.loss_per_m > 0 else 1) for m in config.media)
-    return 8 * (media + (3 + len(config.steps)) * pixels)
+    maps = (3 + len(config.steps)) * pixels
+    if config.grid.diffraction:     # complex fields: each step's, the beam, its spectrum, FFT scratch
+        maps += 2 * (len(config.steps) + 8) * pixels
+    return 8 * (media + maps)
+
+
+def _seed_field(config: Config, x: np.ndarray) -> np.ndarray:
+    """The cw seed's field (Ny, Nx) at the start plane, |E|² in W/m² (``beam_shapes.seed_start_field``:
+    waist, curvature, M², a measured profile and wavefront); seed.from: the earlier run's field
+    (config/chain.py: its /output/field, or sqrt(intensity) with a flat phase)."""
+    seed = config.seed
+    if seed.beam is not None:
+        if seed.beam.complex_field is not None:
+            return seed.beam.complex_field.copy()
+        return np.sqrt(seed.beam.intensity_W_m2).astype(np.complex128)
+    shape, phase = seed.measured.on_grid(x, x) if seed.measured is not None else (None, None)
+    try:
+        return beam_shapes.seed_start_field(x, x, seed.profile, seed.diameter_m, seed.order, seed.power_W,
+                                            seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
+                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed,
+                                            shape=shape, phase=phase)
+    except ValueError as exc:
+        raise ConfigError([f"{config.source}: seed: {exc}"]) from None
 
 
 def simulate_cw(config: Config, progress: bool | None = False):
@@ -38,7 +63,12 @@ def simulate_cw(config: Config, progress: bool | None = False):
     grid, seed_cfg = config.grid, config.seed
     x = beam_shapes.pixel_centres(grid.points, grid.width_m)
     y = x.copy()
-    if seed_cfg.beam is not None:             # seed.from: an earlier cw run's intensity map
+    seed_field = actions = None
+    if grid.diffraction:
+        seed_field = _seed_field(config, x)
+        seed = fluence_of(seed_field)
+        actions = field_path.field_actions(config, seed_field, x)
+    elif seed_cfg.beam is not None:           # seed.from: an earlier cw run's intensity map
         seed = seed_cfg.beam.intensity_W_m2.copy()
     else:
         shape = seed_cfg.measured.on_grid(x, y)[0] if seed_cfg.measured is not None else None
@@ -46,7 +76,10 @@ def simulate_cw(config: Config, progress: bool | None = False):
                                         seed_cfg.power_W, shape)
     states = {m.name: build_medium(m, x, y, config.solver, seed_cfg.wavelength_m) for m in config.media}
     initial = {name: st.coarse(st.g0) for name, st in states.items()}
-    sweep = solve(config, states, seed, x, y, progress)
+    sweep = solve(config, states, seed, x, y, progress, actions)
+    fields = None
+    if grid.diffraction:
+        fields, sweep.maps = sweep.maps, [fluence_of(f) for f in sweep.maps]
 
     records = []
     for step, intensity, oc in zip(config.steps, sweep.maps, sweep.outcomes, strict=True):
@@ -64,8 +97,12 @@ def simulate_cw(config: Config, progress: bool | None = False):
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2, material=m.material.name,
             sources=dict(m.material.sources), pump_intensity_W_m2=pump_i, ions=st.levels, mask=st.mask)
     summary = cw_diagnostics.summarise(config, seed, sweep, states, media, x)
+    if fields is not None:
+        cw_diagnostics.add_field_figures(summary, sweep, *field_path.field_figures(config, states, seed_field,
+                                                                                    fields, x))
     if seed_cfg.beam is not None:
         summary["seed_from"] = dict(seed_cfg.beam.origin)
         summary["warnings"].extend(seed_cfg.beam.notes)
     return Result(config=config, x_m=x, y_m=y, t_s=np.zeros(0), seed_fluence_J_m2=None, seed_power_W=None,
-                  steps=records, media=media, summary=summary, seed_intensity_W_m2=seed)
+                  steps=records, media=media, summary=summary, seed_intensity_W_m2=seed,
+                  output_field=fields[-1][None, :, :] if fields else None)

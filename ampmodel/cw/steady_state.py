@@ -23,7 +23,8 @@ A. E. Siegman, Lasers, University Science Books (1986): steady-state saturation.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import Any, Callable
 
 import numpy as np
 
@@ -54,6 +55,10 @@ class CwOutcome:
     peak_intensity_W_m2: float = 0.0
     axis_z_m: np.ndarray | None = None
     axis_intensity_W_m2: np.ndarray | None = None
+    edge_absorbed_W: float = 0.0          # field path: taken by the window's absorbing edge
+    b_integral_rad: float = 0.0           # field path: the largest B-integral of a pixel after the step
+    warnings: list[str] = field(default_factory=list)
+    pinhole_transmission: float | None = None   # field path: a spatial filter's
 
 
 def _axis_index(n: int) -> int:
@@ -134,6 +139,28 @@ def other_step(intensity: np.ndarray, step: Step, x_m: np.ndarray, y_m: np.ndarr
 
 
 @dataclass
+class SweepActions:
+    """What a sweep does to the beam: ``start()`` a fresh seed beam; ``run_pass(beam, state, step,
+    damping)`` -> (beam, outcome, change of a gain coefficient); ``run_other(beam, step)`` -> (beam,
+    outcome); ``record(beam)`` what the sweep keeps of the beam after each step. The intensity path's
+    (``intensity_actions``) or the field path's (``cw/field_path.py``)."""
+
+    start: Callable[[], Any]
+    run_pass: Callable[[Any, CwMedium, Step, float], tuple[Any, CwOutcome, float]]
+    run_other: Callable[[Any, Step], tuple[Any, CwOutcome]]
+    record: Callable[[Any], np.ndarray]
+
+
+def intensity_actions(seed: np.ndarray, x_m: np.ndarray, y_m: np.ndarray, wavelength_m: float) -> SweepActions:
+    """The intensity path: the beam is the intensity map (W/m²)."""
+    pixel_area = float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
+    return SweepActions(start=seed.copy,
+                        run_pass=lambda i, st, step, damping: cw_pass(i, st, step, damping, pixel_area),
+                        run_other=lambda i, step: other_step(i, step, x_m, y_m, wavelength_m),
+                        record=np.copy)
+
+
+@dataclass
 class Sweep:
     """The final sweep of the layout: the intensity after each step and each step's outcome."""
 
@@ -145,8 +172,9 @@ class Sweep:
 
 
 def solve(config: Config, states: dict[str, CwMedium], seed: np.ndarray, x_m: np.ndarray, y_m: np.ndarray,
-          progress: bool | None = False) -> Sweep:
-    """Iterate the layout to its steady state (module docstring).
+          progress: bool | None = False, actions: SweepActions | None = None) -> Sweep:
+    """Iterate the layout to its steady state (module docstring); ``actions``: what a sweep does to the
+    beam (default the intensity path's, from the ``seed`` intensity map).
 
     Raises
     ------
@@ -163,7 +191,8 @@ def solve(config: Config, states: dict[str, CwMedium], seed: np.ndarray, x_m: np
     damping = 1.0 if single else solver.damping
     previous = math.inf
     residual = math.inf
-    wavelength = config.seed.wavelength_m
+    if actions is None:
+        actions = intensity_actions(seed, x_m, y_m, config.seed.wavelength_m)
     with progress_bar(False if single else progress, unit="sweep", desc="cw steady state") as bar:
         for iteration in range(1, solver.max_iterations + 1):
             change = 0.0
@@ -173,15 +202,15 @@ def solve(config: Config, states: dict[str, CwMedium], seed: np.ndarray, x_m: np
                     if counts[st.name] == 0:
                         change = max(change, float(np.max(np.abs(st.g0 - st.gain))))
                         st.gain = st.g0.copy()
-            intensity = seed.copy()
+            beam = actions.start()
             maps, outcomes = [], []
             for step in config.steps:
                 if step.kind == "pass":
-                    intensity, oc, c = cw_pass(intensity, states[step.medium], step, damping, pixel_area)
+                    beam, oc, c = actions.run_pass(beam, states[step.medium], step, damping)
                     change = max(change, c)
                 else:
-                    intensity, oc = other_step(intensity, step, x_m, y_m, wavelength)
-                maps.append(intensity.copy())
+                    beam, oc = actions.run_other(beam, step)
+                maps.append(actions.record(beam))
                 outcomes.append(oc)
             residual = change / scale
             if bar is not None:

@@ -113,6 +113,10 @@ def _output_beam(f, result: Result, full_beam: bool) -> None:
     o = f.create_group("output")
     o.attrs["meaning"] = "the beam after the last step (a later stage's seed.from takes it)"
     field = result.output_field
+    if field is not None and result.config.mode == "cw":
+        _dataset(o, "field", field, "sqrt(W/m^2)",
+                 meaning="complex field after the last step (one slice); |field|^2 is the intensity in W/m^2")
+        return
     if field is not None:
         _dataset(o, "field", field, "sqrt(J/m^2)",
                  meaning="complex field of each time slice after the last step; |field|^2 is the slice's fluence in J/m^2")

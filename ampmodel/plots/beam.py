@@ -20,9 +20,12 @@ from ampmodel.plots.common import (
     block_mean,
     centre_index,
     finite_max,
+    is_cw,
     new_figure,
     pixel_extent,
     save_png,
+    seed_map,
+    step_map,
     step_ticks,
     title_suffix,
 )
@@ -49,11 +52,11 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
 
     Parameters
     ----------
-    result : the run (maps in J/m², grid in m), shown in J/cm² over mm
+    result : the run (maps in J/m², a cw run's in W/m², grid in m), shown in J/cm² (W/cm²) over mm
     path : PNG file to write
     """
-    maps = [np.asarray(result.seed_fluence_J_m2, dtype=float)] + \
-        [np.asarray(r.fluence_J_m2, dtype=float) for r in result.steps]
+    maps = [seed_map(result)] + [step_map(result, r) for r in result.steps]
+    unit, what = ("W/cm²", "Intensity") if is_cw(result) else ("J/cm²", "Fluence")
     labels = ["seed"] + [step_label(result.config.steps, r.index, short=True) for r in result.steps]
     n = len(maps)
     cols = min(n, MAX_PANELS_PER_ROW)
@@ -75,7 +78,7 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
         peak = finite_max(shown)
         ax.imshow(block_mean(block_mean(shown, 0), 1), origin="lower", extent=(x0, x1, y0, y1),
                   cmap=MAP_CMAP, vmin=0.0, vmax=peak if peak > 0 else 1.0, interpolation="nearest")
-        ax.set_title(f"{label}\npeak {peak:.3g} J/cm²", fontsize="small")
+        ax.set_title(f"{label}\npeak {peak:.3g} {unit}", fontsize="small")
         ax.tick_params(labelsize="x-small")
         if c == 0:
             ax.set_ylabel("y (mm)", fontsize="small")
@@ -92,10 +95,10 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
                          f"p/m {fig_i['modulation_peak_to_mean']:.2g}", fontsize="x-small")
         lo.set_xlabel("x or y (mm)", fontsize="small")
         if c == 0:
-            lo.set_ylabel("J/cm²", fontsize="small")
+            lo.set_ylabel(unit, fontsize="small")
         if i == 0:
             lo.legend(fontsize="x-small", loc="upper right")
-    fig.suptitle("Fluence at each step (maps, and lineouts through the axis)" + title_suffix(result))
+    fig.suptitle(f"{what} at each step (maps, and lineouts through the axis)" + title_suffix(result))
     return save_png(fig, path)
 
 

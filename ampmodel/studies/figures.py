@@ -49,14 +49,14 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
         output_power_W output_pulse_duration_ns output_transform_limit_ps peak_fluence_J_cm2
         peak_intensity_W_cm2 photon_balance_error power_balance_error pulse_duration_ns pump_power_W
         pump_power_out_W repetition_rate_Hz stored_energy_J stored_energy_final_J time_slice_ns
-        worst_damage_margin"""),
+        worst_damage_margin edge_absorbed_power_W"""),
     "step": _names("""
         b_integral_rad bandwidth_nm build_up_time_ns centre_nm clipped_energy_J clipped_power_W count
         d4sigma_x_mm d4sigma_y_mm damage_margin delay_ns edge_absorbed_energy_J energy_in_J energy_out_J
         extracted_energy_J extracted_power_W fill_factor gain gain_dB max_count modulation_peak_to_mean
         passive_loss_J passive_loss_W peak_fluence_J_cm2 peak_intensity_W_cm2 peak_power_W power_in_W
         power_out_W round_trip_count round_trip_ns peak_fluence_in_J_cm2 damage_fluence_J_cm2 damage_intensity_W_cm2
-        b_integral_margin
+        b_integral_margin edge_absorbed_power_W pinhole_transmission
         output_duration_ns"""),
     "medium": _names("""
         absorbed_pump_energy_J absorbed_pump_fraction absorbed_pump_photons_per_s absorbed_pump_power_W

@@ -100,8 +100,9 @@ def test_soft_aperture_and_relay_on_the_fluence_path():
     assert beam.fluence[0].max() == pytest.approx(spot.max() / 4, rel=3e-2)
 
 
-def test_cw_mode_refuses_diffraction_and_the_seed_field_keys():
-    """Diffraction is for pulsed runs in this version: a cw config with it, or with a seed waist, says so."""
+def test_cw_mode_takes_diffraction_and_the_seed_field_keys_with_it():
+    """A cw config takes grid.diffraction = true and, with it, the seed's waist, curvature and M²;
+    without diffraction a seed waist is refused with the key and the fix named."""
     from pathlib import Path
 
     from ampmodel.config.checks import ConfigError
@@ -112,8 +113,11 @@ def test_cw_mode_refuses_diffraction_and_the_seed_field_keys():
     raw = tomllib.loads((root / "configs" / "cw_double_pass_single_frequency.toml").read_text())
     raw["grid"]["diffraction"] = True
     raw["seed"]["waist_mm"] = 100.0
+    config = load_config(raw)
+    assert config.grid.diffraction and config.seed.waist_m == pytest.approx(0.1)
+    raw["grid"]["diffraction"] = False
     with pytest.raises(ConfigError) as info:
         load_config(raw)
     text = "\n".join(info.value.problems)
-    assert 'grid.diffraction = true: split-step diffraction is available for mode = "pulsed" only' in text
-    assert "seed.waist_mm = 100.0: applies to mode = \"pulsed\" only" in text
+    assert "seed.waist_mm = 100.0: shapes the seed's optical field" in text
+    assert "set grid.diffraction = true or remove it" in text
