@@ -8,6 +8,7 @@ from __future__ import annotations
 import numpy as np
 
 from ampmodel.cw import diagnostics as cw_diagnostics
+from ampmodel.cw import thermal as cw_thermal
 from ampmodel.cw.medium import build_medium
 from ampmodel.cw.steady_state import solve
 from ampmodel.description import Config
@@ -64,8 +65,22 @@ def simulate_cw(config: Config, progress: bool | None = False):
             saturation_intensity_W_m2=m.material.saturation_intensity_W_m2, material=m.material.name,
             sources=dict(m.material.sources), pump_intensity_W_m2=pump_i, ions=st.levels, mask=st.mask)
     summary = cw_diagnostics.summarise(config, seed, sweep, states, media, x)
+    _add_heat(summary, states, media, x, y, seed_cfg.wavelength_m)
     if seed_cfg.beam is not None:
         summary["seed_from"] = dict(seed_cfg.beam.origin)
         summary["warnings"].extend(seed_cfg.beam.notes)
     return Result(config=config, x_m=x, y_m=y, t_s=np.zeros(0), seed_fluence_J_m2=None, seed_power_W=None,
                   steps=records, media=media, summary=summary, seed_intensity_W_m2=seed)
+
+
+def _add_heat(summary: dict, states: dict, media: dict[str, MediumRecord], x: np.ndarray, y: np.ndarray,
+              wavelength_m: float | None) -> None:
+    """Each pumped medium's heat, temperature and thermal lens into its summary entry and record."""
+    for entry in summary["media"]:
+        st = states[entry["name"]]
+        if st.pump is None:
+            continue
+        figures, heat, rise, opd = cw_thermal.heat_entries(st, x, y, wavelength_m or st.medium.material.wavelength_m)
+        entry.update(figures)
+        rec = media[entry["name"]]
+        rec.heat_W_m3, rec.temperature_rise_K, rec.opd_m = heat, rise, opd
