@@ -24,6 +24,7 @@ from ampmodel.pulsed import diagnostics, repeats, spectra, trains
 from ampmodel.pulsed.clocks import Timeline, medium_clocks
 from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState, pass_medium
+from ampmodel.pulsed.thermal import add_train_heat
 
 
 @dataclass
@@ -180,6 +181,8 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
         decayed = {n: c.decayed_J for n, c in run.timeline.clocks.items()}
     media = _media_records(run, initial_ln_gain, pumped, decayed)
     summary = _summary(run, beam, outcomes, media, checks, train)
+    if train is not None:
+        add_train_heat(config, train, summary, media, run.x_m, config.seed.wavelength_m)
     seed_spectrum = spectra.add_spectra(config, summary, records, run.wavelengths_m, run.seed_power_W, run.dt_s,
                                         run.states)
     chirped = seed_spectrum is not None

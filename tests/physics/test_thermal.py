@@ -161,3 +161,20 @@ def test_gaussian_beam_through_a_heated_rod_focuses_as_its_thin_lens():
     assert _w2(beam) == pytest.approx(w2, rel=0.02)
     # without the lens the beam would have grown instead
     assert w2 < w0 ** 2
+
+
+def test_pulse_train_heat_over_the_period():
+    """A 10 kHz train of an end-pumped Nd:YVO4 crystal (four-level, η = 1): over the steady state's period
+    absorbed pump = extracted + heat + fluorescence (the upper-state energy is periodic), to the
+    train's tolerance; every ion the pump creates leaves h·νs, so heat / absorbed = 1 − λp/λs, here to
+    1e-4: the pump interval's time steps count the photons absorbed and the ions created a little apart
+    (kernels/pump_rates.py: pump_interval, second order in its step; measured 5e-6)."""
+    config = load_config(ROOT / "configs" / "khz_end_pumped_train.toml")
+    result = simulate(config)
+    entry = result.summary["media"][0]
+    assert abs(result.summary["train"]["heat_balance_error"]) < 1e-9
+    pump = config.media[0].pump
+    assert entry["heat_fraction"] == pytest.approx(1 - pump.wavelength_m / config.seed.wavelength_m, rel=1e-4)
+    assert entry["heat_W"] == pytest.approx(entry["heat_fraction"] * entry["absorbed_pump_average_power_W"], rel=1e-12)
+    assert result.media[entry["name"]].heat_W_m3.shape == result.media[entry["name"]].gain_final_per_m.shape
+    assert entry["depolarisation_estimate"] == "not available"
