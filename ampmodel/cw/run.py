@@ -19,12 +19,13 @@ from ampmodel.output.result import MediumRecord, Result, StepRecord
 def memory_estimate_bytes(config: Config) -> int:
     """Peak bytes of a cw run's arrays: per medium the gain, small-signal gain, saturation intensity,
     the two direction sums, the intensity entering each voxel in each pass, and (pumped) the pump's
-    fields, on the internal grid (loss sub-slices, at most MAX_LOSS_SUBSTEPS, counted as 4 here), plus
+    fields and the heat and temperature, on the internal grid (loss sub-slices, at most MAX_LOSS_SUBSTEPS, counted as 4 here), plus
     the maps."""
     pixels = config.grid.points ** 2
     passes = {m.name: sum(1 for s in config.steps if s.kind == "pass" and s.medium == m.name)
               for m in config.media}
     media = sum((8 + passes[m.name]) * m.slices * pixels * (4 if m.loss_per_m > 0 else 1) for m in config.media)
+    media += sum(3 * m.slices * pixels for m in config.media if m.pump is not None)   # heat, its voxel form, rise
     return 8 * (media + (3 + len(config.steps)) * pixels)
 
 
