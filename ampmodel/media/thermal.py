@@ -95,9 +95,11 @@ def depolarisation_estimate(medium: Medium, heat_W: float, wavelength_m: float) 
 
 
 def thermal_figures(medium: Medium, heat_W_m3: np.ndarray, x_m: np.ndarray, y_m: np.ndarray,
-                    mask: np.ndarray, wavelength_m: float) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
+                    mask: np.ndarray, wavelength_m: float,
+                    applied: bool = False) -> tuple[dict[str, Any], np.ndarray | None, np.ndarray | None]:
     """The summary entries of a heated medium, its temperature rise (Nz, Ny, Nx, K) and OPD (Ny, Nx, m)
-    (None, None without thermal data: the entries then say so)."""
+    (None, None without thermal data: the entries then say so); ``applied``: the run's field path
+    applied the lens on its passes."""
     dv = (medium.length_m / heat_W_m3.shape[0]) * float((x_m[1] - x_m[0]) * (y_m[1] - y_m[0]))
     heat_W = float(heat_W_m3.sum() * dv)
     if not has_thermal_data(medium):
@@ -109,7 +111,7 @@ def thermal_figures(medium: Medium, heat_W_m3: np.ndarray, x_m: np.ndarray, y_m:
         "temperature_max_C": medium.coolant_C + float(rise.max()),
         "temperature_rise_max_K": float(rise.max()),
         "thermal_focal_length_m": lens_focal_length_m(opd, heat_W_m3, x_m, y_m, mask),
-        "thermal_lens_applied": bool(medium.thermal_lens),
+        "thermal_lens_applied": bool(applied and medium.thermal_lens),
         "depolarisation_estimate": depolarisation_estimate(medium, heat_W, wavelength_m),
     }
     if math.isinf(entry["thermal_focal_length_m"]):

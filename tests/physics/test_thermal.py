@@ -178,3 +178,17 @@ def test_pulse_train_heat_over_the_period():
     assert entry["heat_W"] == pytest.approx(entry["heat_fraction"] * entry["absorbed_pump_average_power_W"], rel=1e-12)
     assert result.media[entry["name"]].heat_W_m3.shape == result.media[entry["name"]].gain_final_per_m.shape
     assert entry["depolarisation_estimate"] == "not available"
+
+
+def test_a_train_with_diffraction_applies_its_lens_and_the_switch_turns_it_off():
+    """grid.diffraction = true: the train's second solve carries each medium's lens (a focusing lens makes
+    the output beam differ from the run without it); thermal_lens = false gives the run without a lens,
+    whose heat is the same to the pump's bleaching (four-level: heat = h·νp·absorbed − h·νs·created)."""
+    base = ["grid.diffraction=true", "grid.time_slices=4", "grid.points=48"]
+    on = simulate(load_config(ROOT / "configs" / "khz_end_pumped_train.toml", base))
+    off = simulate(load_config(ROOT / "configs" / "khz_end_pumped_train.toml",
+                               base + ["medium.crystal.thermal_lens=false"]))
+    m_on, m_off = on.summary["media"][0], off.summary["media"][0]
+    assert m_on["thermal_lens_applied"] and not m_off["thermal_lens_applied"]
+    assert m_on["heat_W"] == pytest.approx(m_off["heat_W"], rel=1e-3)
+    assert abs(on.summary["output_energy_J"] / off.summary["output_energy_J"] - 1) > 1e-3
