@@ -126,6 +126,9 @@ class Medium:
     doping_per_m3: float | None = None  # overrides the material's typical doping
     kind: str = "bulk"
     fibre: Fibre | None = None
+    cooling: str = "barrel"           # "barrel" (rod, 2-D radial flow) | "face" (disc, cooled at z = L)
+    coolant_C: float = 20.0           # the cooled surface's temperature (°C)
+    thermal_lens: bool = True         # the field path applies the thermal lens's phase on each pass
 
 
 @dataclass(frozen=True, eq=False)

@@ -32,6 +32,8 @@ SUFFIXES: dict[str, tuple[str, float]] = {
     "_kHz": ("_Hz", 1e3),
     "_Hz": ("_Hz", 1.0),
     "_rad": ("_rad", 1.0),
+    "_W_mK": ("_W_mK", 1.0),
+    "_per_K": ("_per_K", 1.0),
 }
 _ORDER = sorted(SUFFIXES, key=len, reverse=True)
 
@@ -75,7 +77,7 @@ UNIT_TEXT: dict[str, str] = {
     "_J_cm2": "J/cm^2", "_W_cm2": "W/cm^2", "_m2_W": "m^2/W", "_per_cm": "1/cm", "_per_m3": "1/m^3",
     "_per_m": "1/m", "_cm2": "cm^2", "_m": "m", "_cm": "cm", "_mm": "mm", "_um": "um", "_nm": "nm",
     "_s": "s", "_us": "us", "_ns": "ns", "_ps": "ps", "_fs": "fs", "_mJ": "mJ", "_J": "J", "_W": "W",
-    "_kHz": "kHz", "_Hz": "Hz", "_rad": "rad", "_dB": "dB",
+    "_kHz": "kHz", "_Hz": "Hz", "_rad": "rad", "_W_mK": "W/(m K)", "_per_K": "1/K", "_dB": "dB",
 }
 
 

@@ -96,7 +96,8 @@ def _medium(p: Problems, item: dict, path: str, name: str, mode: str | None = "p
         slices=v["slices"], loss_per_m=to_si("loss_per_cm", v["loss_per_cm"]),
         small_signal_gain=v.get("small_signal_gain"),
         stored_energy_J=v.get("stored_energy_J"), pump=pump,
-        doping_per_m3=v.get("doping_per_m3"), kind=v["kind"])
+        doping_per_m3=v.get("doping_per_m3"), kind=v["kind"], cooling=v["cooling"],
+        coolant_C=float(v["coolant_C"]), thermal_lens=v["thermal_lens"])
     _check_ion_ceiling(p, medium, path)
     return medium if len(p) == before else None
 

@@ -71,6 +71,10 @@ MEDIUM: dict[str, Key] = {
     "small_signal_gain": number("single-pass small-signal gain G0", ge=1, lt=1e30),
     "stored_energy_J": quantity("extractable stored energy", gt=0, le=1e6),
     "pump": Key("table", "a pump description that builds the gain map"),
+    "cooling": choice("how the medium is cooled: its barrel held at coolant_C (a rod) or its back face "
+                      "(a disc)", ("barrel", "face"), default="barrel"),
+    "coolant_C": number("temperature of the cooled surface (degrees Celsius)", ge=-200, le=500, default=20.0),
+    "thermal_lens": flag("apply the thermal lens's phase on the field path's passes", default=True),
 }
 
 GEOMETRIES = ("end", "side")

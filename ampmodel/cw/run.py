@@ -11,6 +11,7 @@ from ampmodel.beam.field import fluence_of
 from ampmodel.config.checks import ConfigError
 from ampmodel.cw import diagnostics as cw_diagnostics
 from ampmodel.cw import field_path
+from ampmodel.cw import thermal as cw_thermal
 from ampmodel.cw.medium import build_medium
 from ampmodel.cw.steady_state import solve
 from ampmodel.description import Config
@@ -21,12 +22,13 @@ from ampmodel.output.result import MediumRecord, Result, StepRecord
 def memory_estimate_bytes(config: Config) -> int:
     """Peak bytes of a cw run's arrays: per medium the gain, small-signal gain, saturation intensity,
     the two direction sums, the intensity entering each voxel in each pass, and (pumped) the pump's
-    fields, on the internal grid (loss sub-slices, at most MAX_LOSS_SUBSTEPS, counted as 4 here), plus
+    fields and the heat and temperature, on the internal grid (loss sub-slices, at most MAX_LOSS_SUBSTEPS, counted as 4 here), plus
     the maps."""
     pixels = config.grid.points ** 2
     passes = {m.name: sum(1 for s in config.steps if s.kind == "pass" and s.medium == m.name)
               for m in config.media}
     media = sum((8 + passes[m.name]) * m.slices * pixels * (4 if m.loss_per_m > 0 else 1) for m in config.media)
+    media += sum(3 * m.slices * pixels for m in config.media if m.pump is not None)   # heat, its voxel form, rise
     maps = (3 + len(config.steps)) * pixels
     if config.grid.diffraction:     # complex fields: each step's, the beam, its spectrum, FFT scratch
         maps += 2 * (len(config.steps) + 8) * pixels
@@ -77,6 +79,12 @@ def simulate_cw(config: Config, progress: bool | None = False):
     states = {m.name: build_medium(m, x, y, config.solver, seed_cfg.wavelength_m) for m in config.media}
     initial = {name: st.coarse(st.g0) for name, st in states.items()}
     sweep = solve(config, states, seed, x, y, progress, actions)
+    lensed = False
+    if grid.diffraction and cw_thermal.apply_lenses(states, x, y, seed_cfg.wavelength_m):
+        # the thermal lens of the steady state's heat, then the steady state again with it (one update:
+        # the heat of a four-level medium does not depend on the extraction)
+        lensed = True
+        sweep = solve(config, states, seed, x, y, progress, field_path.field_actions(config, seed_field, x))
     fields = None
     if grid.diffraction:
         fields, sweep.maps = sweep.maps, [fluence_of(f) for f in sweep.maps]
@@ -100,9 +108,24 @@ def simulate_cw(config: Config, progress: bool | None = False):
     if fields is not None:
         cw_diagnostics.add_field_figures(summary, sweep, *field_path.field_figures(config, states, seed_field,
                                                                                     fields, x))
+    _add_heat(summary, states, media, x, y, seed_cfg.wavelength_m, lensed)
     if seed_cfg.beam is not None:
         summary["seed_from"] = dict(seed_cfg.beam.origin)
         summary["warnings"].extend(seed_cfg.beam.notes)
     return Result(config=config, x_m=x, y_m=y, t_s=np.zeros(0), seed_fluence_J_m2=None, seed_power_W=None,
                   steps=records, media=media, summary=summary, seed_intensity_W_m2=seed,
                   output_field=fields[-1][None, :, :] if fields else None)
+
+
+def _add_heat(summary: dict, states: dict, media: dict[str, MediumRecord], x: np.ndarray, y: np.ndarray,
+              wavelength_m: float | None, lensed: bool = False) -> None:
+    """Each pumped medium's heat, temperature and thermal lens into its summary entry and record."""
+    for entry in summary["media"]:
+        st = states[entry["name"]]
+        if st.pump is None:
+            continue
+        figures, heat, rise, opd = cw_thermal.heat_entries(st, x, y, wavelength_m or st.medium.material.wavelength_m,
+                                                           applied=lensed)
+        entry.update(figures)
+        rec = media[entry["name"]]
+        rec.heat_W_m3, rec.temperature_rise_K, rec.opd_m = heat, rise, opd

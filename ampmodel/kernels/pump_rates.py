@@ -51,6 +51,8 @@ class PumpedColumns(NamedTuple):
     transmitted : (C,) pump photons that left each column through its faces (photons/m²)
     created : (Nz, C) upper-state ions created by the pump in each voxel (1/m³)
     decayed : (Nz, C) ions lost by spontaneous decay in each voxel (1/m³)
+    absorbed_voxels : (Nz, C) pump photons absorbed in each voxel (photons/m² of column; summed over
+        z: ``absorbed``)
     """
 
     n2: np.ndarray
@@ -58,6 +60,7 @@ class PumpedColumns(NamedTuple):
     transmitted: np.ndarray
     created: np.ndarray
     decayed: np.ndarray
+    absorbed_voxels: np.ndarray | None = None
 
 
 def slice_mean(y: np.ndarray) -> np.ndarray:
@@ -193,6 +196,7 @@ def pump_interval(n2: np.ndarray, flux_in: np.ndarray, dz_m: float, duration_s: 
     transmitted = np.zeros(flux_in.shape)
     created = np.zeros(n2.shape)
     decayed = np.zeros(n2.shape)
+    absorbed_voxels = np.zeros(n2.shape)
     state = n2.copy()
 
     def flux(density: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -212,9 +216,10 @@ def pump_interval(n2: np.ndarray, flux_in: np.ndarray, dz_m: float, duration_s: 
         state, made, lost = relax(state, mean, create_a, create_b_m2, lifetime_s, dt)
         created += made
         decayed += lost
-        absorbed += taken.sum(axis=0) * dt
+        absorbed_voxels += taken * dt
         transmitted += out * dt
-    return PumpedColumns(state, absorbed, transmitted, created, decayed)
+    absorbed = absorbed_voxels.sum(axis=0)
+    return PumpedColumns(state, absorbed, transmitted, created, decayed, absorbed_voxels)
 
 
 def steady_columns(flux_in: np.ndarray, dz_m: float, nz: int, alpha0_per_m: float, bleach_m2: float,

@@ -43,6 +43,13 @@ MATERIAL_KEYS: dict[str, KeySpec] = {
     "pump_absorption_cross_section_cm2": KeySpec(False, 1e-26, 1e-16, "absorption cross-section at the pump wavelength"),
     "pump_emission_cross_section_cm2": KeySpec(False, 1e-26, 1e-16, "emission cross-section at the pump wavelength (quasi-three-level bleaching limit)", allow_zero=True),
     "raman_gain_m_W": KeySpec(False, 1e-15, 1e-11, "peak stimulated-Raman gain coefficient (fibres: the Raman threshold)"),
+    "thermal_conductivity_W_mK": KeySpec(False, 0.1, 2000.0, "thermal conductivity near room temperature (heat and thermal lens)"),
+    "dn_dT_per_K": KeySpec(False, -1e-4, 1e-4, "thermo-optic coefficient dn/dT at the lasing wavelength (thermal lens)", allow_zero=True),
+    "thermal_expansion_per_K": KeySpec(False, 1e-8, 1e-4, "linear thermal expansion coefficient (depolarisation estimate)"),
+    "poisson_ratio": KeySpec(False, 0.01, 0.5, "Poisson's ratio (depolarisation estimate)"),
+    "photoelastic_p11": KeySpec(False, -1.0, 1.0, "photo-elastic coefficient p11 (depolarisation estimate)", allow_zero=True),
+    "photoelastic_p12": KeySpec(False, -1.0, 1.0, "photo-elastic coefficient p12 (depolarisation estimate)", allow_zero=True),
+    "photoelastic_p44": KeySpec(False, -1.0, 1.0, "photo-elastic coefficient p44 (depolarisation estimate)", allow_zero=True),
 }
 STRING_KEYS = {"name": "material name", "broadening": "line broadening: 'homogeneous' or 'inhomogeneous'"}
 BROADENINGS = ("homogeneous", "inhomogeneous")
@@ -178,6 +185,13 @@ class Material:
     pump_absorption_cross_section_m2: float | None = None
     pump_emission_cross_section_m2: float | None = None
     raman_gain_m_W: float | None = None
+    thermal_conductivity_W_mK: float | None = None
+    dn_dT_per_K: float | None = None
+    thermal_expansion_per_K: float | None = None
+    poisson_ratio: float | None = None
+    photoelastic_p11: float | None = None
+    photoelastic_p12: float | None = None
+    photoelastic_p44: float | None = None
     broadening: str = "homogeneous"
     spectrum: Spectrum | None = None
     description: str = ""

@@ -95,6 +95,7 @@ def write_hdf5(result: Result, path: Path, attrs: Mapping[str, Any] | None = Non
                 _dataset(mg, "pump_intensity", m.pump_intensity_W_m2, "W/m^2",
                          meaning="mean pump intensity in each voxel, all pump passes (side pumping: the "
                                  "intensity that gives the voxel's unbleached absorbed rate, alpha0*I/(h*nu))")
+            _thermal(mg, m)
         if result.fibres:
             _write_fibres(f.create_group("fibre"), result.fibres)
         if result.train:
@@ -163,6 +164,19 @@ def _measured_traces(s, seed) -> None:
         wl, d = (np.asarray(a, dtype=float) for a in seed.spectrum_trace)
         _dataset(s, "spectrum_trace_wavelength", wl, "m", meaning="measured spectrum: wavelengths")
         _dataset(s, "spectrum_trace_density", d, "1", meaning="measured spectrum: density over its peak")
+
+
+def _thermal(group, m) -> None:
+    """/media/NAME/heat, /temperature_rise and /opd: the heat density, the temperature rise above the
+    coolant and the thermal optical path difference of one trip (cw runs with a pump)."""
+    if m.heat_W_m3 is not None:
+        _dataset(group, "heat", m.heat_W_m3, "W/m^3", meaning="heat density of each voxel in the steady state")
+    if m.temperature_rise_K is not None:
+        _dataset(group, "temperature_rise", m.temperature_rise_K, "K",
+                 meaning="temperature rise above the coolant of each voxel")
+    if m.opd_m is not None:
+        _dataset(group, "opd", m.opd_m, "m", meaning="thermal optical path difference of one trip, "
+                                                     "integral of dn/dT * temperature rise along z")
 
 
 def _upper_state(group, m) -> None:

@@ -100,6 +100,9 @@ class MediumRecord:
     # g = (σe + σa)·N2 − σa·Nt at the wavelength of the gain maps: N2/Nt follows from g (None: Nt unknown)
     ions: Any = None
     mask: np.ndarray | None = None     # (Ny, Nx) the clear aperture (outside it there is no medium)
+    heat_W_m3: np.ndarray | None = None           # (Nz, Ny, Nx) heat density (cw with a pump)
+    temperature_rise_K: np.ndarray | None = None  # (Nz, Ny, Nx) above the coolant (with thermal data)
+    opd_m: np.ndarray | None = None               # (Ny, Nx) thermal optical path difference of one trip
 
 
 @dataclass

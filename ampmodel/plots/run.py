@@ -28,6 +28,7 @@ from ampmodel.plots.gain import plot_medium_gain
 from ampmodel.plots.layout import b_integrals, plot_b_integral, plot_energy_per_step, plot_pulse_power
 from ampmodel.plots.maps import plot_fluence_maps
 from ampmodel.plots.spectra import has_spectrum, plot_spectra
+from ampmodel.plots.thermal import has_heat, plot_heat
 from ampmodel.plots.trains import plot_round_trips, plot_train
 
 if TYPE_CHECKING:
@@ -52,7 +53,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     there are several), ``train.png`` for a pulse train (``trains.py``) and ``spectrum.png`` for a
     chirped seed (``spectra.py``). A cw run writes
     ``intensity_maps.png``, ``power_per_step.png`` and ``gain_<medium>.png`` (the steady-state gain
-    along z and the intensity of each pass; cw.py).
+    along z and the intensity of each pass; cw.py) and, for a pumped medium (cw, or a pulse train),
+    ``heat_<medium>.png`` (heat density and temperature; thermal.py).
     A layout of fibres writes the maps (``intensity_maps.png`` and ``power_per_step.png``
     in cw) and the pulse, then per fibre ``fibre_<name>_powers.png``, ``gain_<name>.png`` (gain and
     inversion along it) and ``fibre_<name>_ase.png`` (fibre.py).
@@ -85,6 +87,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
             paths.append(plot_cw_gain(result, name, out / f"gain_{stem}.png"))
         else:
             paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
+        if has_heat(result, name):
+            paths.append(plot_heat(result, name, out / f"heat_{stem}.png"))
     if not cw and result.steps and finite_max(b_integrals(result)[0]) > 0:
         paths.append(plot_b_integral(result, out / "b_integral.png"))
     if result.steps and has_beam_figures(result):

@@ -38,6 +38,10 @@ class MediumClock:
         aperture (ions/m³/s, unbleached; for estimates), or None without a pump
     pumped_J, decayed_J : energy put into and lost from the upper state so far, counted at the
         signal photon energy (h·nu_s per ion, the unit of the stored energy)
+    absorbed_pump_J, heat_J_m3 : the pump energy absorbed so far, and the heat it left in each voxel
+        inside the aperture: h·νp·(photons absorbed) − h·νs·(ions created) (the quantum defect of
+        every ion created, whether it is later extracted or decays, and the whole photon where
+        η < 1: ``cw/thermal.py`` gives the same per voxel in the steady state)
     """
 
     name: str
@@ -51,6 +55,8 @@ class MediumClock:
     pump_duration_s: float = 0.0
     pumped_J: float = 0.0
     decayed_J: float = 0.0
+    absorbed_pump_J: float = 0.0
+    heat_J_m3: np.ndarray | None = None      # (Nz, n) heat left in each voxel so far (J/m³)
 
     @property
     def sum_cross_section_m2(self) -> float:
@@ -99,7 +105,18 @@ class MediumClock:
         """Pump (when on) and decay for ``duration_s``, in place, with the bookkeeping."""
         if duration_s <= 0.0:
             return
-        n2, created, decayed = self.advance(self.n2(ln_gain), duration_s, pump_on)
+        if pump_on and self.pump is not None:
+            p = self.pump
+            out = pr.pump_interval(self.n2(ln_gain), p.flux_in[self.mask], self.slice_length_m, duration_s,
+                                   p.alpha0_per_m, p.bleach_m2, p.create_b_m2, p.quantum_efficiency,
+                                   self.lifetime_s, p.back_reflectance, side=p.side, direction=p.direction)
+            n2, created, decayed = out.n2, float(out.created.sum()), float(out.decayed.sum())
+            heat = p.photon_energy_J * out.absorbed_voxels / self.slice_length_m - self.photon_energy_J * out.created
+            self.heat_J_m3 = heat if self.heat_J_m3 is None else self.heat_J_m3 + heat
+            self.absorbed_pump_J += float(out.absorbed.sum()) * p.photon_energy_J * self.voxel_volume_m3 \
+                / self.slice_length_m
+        else:
+            n2, created, decayed = self.advance(self.n2(ln_gain), duration_s, pump_on)
         self.set_n2(ln_gain, n2)
         scale = self.photon_energy_J * self.voxel_volume_m3
         self.pumped_J += created * scale
@@ -144,7 +161,8 @@ class Timeline:
         """Start a new pulse: time and bookkeeping from zero."""
         self.elapsed_s = 0.0
         for c in self.clocks.values():
-            c.pumped_J = c.decayed_J = 0.0
+            c.pumped_J = c.decayed_J = c.absorbed_pump_J = 0.0
+            c.heat_J_m3 = None
 
 
 def unseeded_n2(c: MediumClock, period_s: float) -> np.ndarray:

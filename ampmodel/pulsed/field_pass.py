@@ -28,6 +28,10 @@ def pass_medium_field(beam: FieldBeam, medium: MediumState, index: float, revers
     is also the B-integral increment (kernels.field_step.gain_kerr_chunk). Light diffracted outside the
     clear aperture inside the medium travels on without gain.
 
+    A thermal lens (``medium.thermal_phase_rad``, (Ny, Nx) rad) multiplies the field by exp(i·φ) right
+    after the gain step of the middle slice in the order the beam meets them (index (Nz − 1)//2: the
+    medium's middle for an odd Nz, half a slice before it for an even Nz), as a thin lens there.
+
     The time slices go through the medium a chunk at a time (kernels.field_step.chunk_rows slices,
     which stay in the processor cache through the transforms and the gain step), in ``beam.workers``
     threads as a wavefront (ampmodel/beam/chunks.py): a chunk's gain step in a z-slice follows the chunk
@@ -137,6 +141,8 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
     b_step = np.zeros(nt)                                    # per time slice (chunks write their own rows)
     peak_slice = np.zeros(nt)
     b_all = beam.b_integral.reshape(nt, pixels)
+    lens = None if medium.thermal_phase_rad is None else np.exp(1j * medium.thermal_phase_rad)
+    middle = (nz - 1) // 2
     sp = medium.spectral
     spectral = None if sp is None else (sp.ratio, sp.scale, sp.offset_per_m * dz, -sp.absorption_per_m * dz)
 
@@ -154,6 +160,8 @@ def _through_the_slices(beam: FieldBeam, medium: MediumState, index: float, reve
                                      plane[j], inc, rows_spectral)
             sums[c, j] = out[:4]
             np.maximum(peak_slice[t0:t0 + len(e)], out.peak_slice_fluence, out=peak_slice[t0:t0 + len(e)])
+            if lens is not None and j == middle:
+                e *= lens
             return
         if s == 0 and kerr:
             inc[...] = 0.0

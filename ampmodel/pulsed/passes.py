@@ -21,6 +21,8 @@ class MediumState:
     ln_gain : (Nz, Ny, Nx) g·dz per voxel at the material's wavelength; mask : (Ny, Nx) clear aperture
     spectral : how each time slice of the pulse meets the medium when they are not all at the
         material's wavelength (None: the plain pass at its Fsat)
+    thermal_phase_rad : (Ny, Nx) phase of the thermal lens of one trip (``media/thermal.py:
+        thermal_phase_rad``), applied by the field path at the middle of each pass (None: no lens)
     """
 
     name: str
@@ -31,6 +33,7 @@ class MediumState:
     loss_per_m: float
     n2_m2_W: float
     spectral: SliceCrossSections | None = None
+    thermal_phase_rad: np.ndarray | None = None
 
 
 def _scatter(full: np.ndarray, idx: np.ndarray, block: np.ndarray) -> None:

@@ -24,6 +24,7 @@ from ampmodel.pulsed import diagnostics, repeats, spectra, trains
 from ampmodel.pulsed.clocks import Timeline, medium_clocks
 from ampmodel.pulsed.field_pass import pass_medium_field
 from ampmodel.pulsed.passes import MediumState, pass_medium
+from ampmodel.pulsed.thermal import add_train_heat, lens_phases
 
 
 @dataclass
@@ -167,9 +168,7 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
     beam = run.new_beam()
     train = None
     if config.seed.repetition_rate_Hz is not None:
-        with progress_bar(progress, unit="pulse", desc="pulse train") as bar:
-            train = trains.run_train(config, run.new_beam, run.run_layout, run.states, run.timeline, run.seed_map,
-                                     bar.update if bar is not None else None)
+        run, train = _train(config, run, progress)
         beam, outcomes, records, checks = train.beam, train.outcomes, train.records, train.checks
         initial_ln_gain, pumped, decayed = train.ln_gain_before, train.pumped_J, train.decayed_J
     else:
@@ -180,6 +179,8 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
         decayed = {n: c.decayed_J for n, c in run.timeline.clocks.items()}
     media = _media_records(run, initial_ln_gain, pumped, decayed)
     summary = _summary(run, beam, outcomes, media, checks, train)
+    if train is not None:
+        add_train_heat(config, train, summary, media, run.x_m, config.seed.wavelength_m)
     seed_spectrum = spectra.add_spectra(config, summary, records, run.wavelengths_m, run.seed_power_W, run.dt_s,
                                         run.states)
     chirped = seed_spectrum is not None
@@ -190,6 +191,26 @@ def simulate_pulsed(config: Config, progress: bool | None = False) -> Result:
                   output_fluence=None if config.grid.diffraction else beam.fluence, output_b_integral=beam.b_integral,
                   train=train.datasets if train is not None else {},
                   field_transforms=beam.fft_count if config.grid.diffraction else 0)
+
+
+def _train(config: Config, run: PulsedLayout, progress: bool | None):
+    """A pulse train solved; with diffraction and media whose thermal lens is on, solved again with the
+    lens of the first solve's heat on every pass (pulsed/thermal.py). Returns the layout and the train."""
+    with progress_bar(progress, unit="pulse", desc="pulse train") as bar:
+        train = trains.run_train(config, run.new_beam, run.run_layout, run.states, run.timeline, run.seed_map,
+                                 bar.update if bar is not None else None)
+    if not config.grid.diffraction:
+        return run, train
+    phases = lens_phases(config, train, {n: gm.mask for n, gm in run.maps.items()}, run.x_m)
+    if not phases:
+        return run, train
+    run = PulsedLayout.build(config)
+    for name, phase in phases.items():
+        run.states[name].thermal_phase_rad = phase
+    with progress_bar(progress, unit="pulse", desc="pulse train, with its thermal lens") as bar:
+        train = trains.run_train(config, run.new_beam, run.run_layout, run.states, run.timeline, run.seed_map,
+                                 bar.update if bar is not None else None)
+    return run, train
 
 
 def _medium_state(medium, gm: GainMap, spectral: SliceCrossSections | None) -> MediumState:

@@ -81,6 +81,7 @@ class TrainRun:
     warnings: list[str] = field(default_factory=list)
     datasets: dict[str, tuple[np.ndarray, str]] = field(default_factory=dict)
     checks: list = field(default_factory=list)
+    heat: dict = field(default_factory=dict)   # per medium (absorbed pump J, decayed J, heat (Nz, n) J/m³) over the period
 
 
 # ----------------------------------------------------------------------------------------------
@@ -252,7 +253,7 @@ def run_train(config: Config, new_beam: Callable[[], BeamState], run_layout: Cal
     return TrainRun(beam=recorded.beam, outcomes=recorded.outcomes, records=recorded.records,
                     ln_gain_before=recorded.before, pumped_J={n: v[0] for n, v in layout.items()},
                     decayed_J={n: v[1] for n, v in layout.items()}, summary=summary, warnings=warnings,
-                    datasets=datasets, checks=recorded.checks)
+                    datasets=datasets, checks=recorded.checks, heat=recorded.heat)
 
 
 def _summary(config: Config, recorded: _SteadyPulse, cycle: train_cycles.Orbit, orbit: train_cycles.Orbit | None,
@@ -340,6 +341,7 @@ class _SteadyPulse:
     extracted_J: float
     change_J: float
     layout_time_s: float
+    heat: dict = field(default_factory=dict)
 
 
 def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) -> _SteadyPulse:
@@ -357,12 +359,14 @@ def _steady_pulse(pulse: _Pulses, u_star: np.ndarray, seed_fluence: np.ndarray) 
     change = sum(float(np.sum(n2_next[n] - n2_star[n])) * c.photon_energy_J * c.voxel_volume_m3
                  for n, c in clocks.items())
     layout_time_s = pulse.timeline.elapsed_s
+    heat = {n: (c.absorbed_pump_J, c.decayed_J, None if c.heat_J_m3 is None else c.heat_J_m3.copy())
+            for n, c in clocks.items()}
     state.set(u_star)                        # leave the media as before the steady pulse ...
     for n, s in states.items():              # ... and then as after its layout (the "final" gain)
         np.copyto(s.ln_gain, after[n])
     return _SteadyPulse(beam, outcomes, records, checks, before, after, layout, beam.energy_J(),
                         float(seed_fluence.sum() * beam.pixel_area_m2), stored_before, pumped, decayed,
-                        extracted, change, layout_time_s)
+                        extracted, change, layout_time_s, heat)
 
 
 def _from_the_start(pulse: _Pulses, u0: np.ndarray, e_out: float, tolerance: float,

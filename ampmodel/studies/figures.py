@@ -69,13 +69,15 @@ SUMMARY_KEYS: dict[str, frozenset[str]] = {
         signal_photons_added_per_s small_signal_gain_dB small_signal_gain_on_axis
         small_signal_gain_on_axis_final solver_change solver_iterations solver_newton_steps solver_tolerance
         spontaneous_decays_per_s storage_efficiency stored_energy_J stored_energy_final_J
-        transmitted_pump_energy_J transmitted_pump_power_W upper_state_fraction_max v_number"""),
+        transmitted_pump_energy_J transmitted_pump_power_W upper_state_fraction_max v_number
+        heat_W heat_fraction heat_balance_error fluorescence_power_W coolant_C temperature_max_C
+        temperature_rise_max_K thermal_focal_length_m depolarisation_estimate absorbed_pump_average_power_W"""),
     "train": _names("""
         average_power_W decay_power_W direct_pulse_energy_J energy_balance_error extracted_power_W
         fixed_point_pulse_evaluations fixed_point_residual input_average_power_W layout_time_s period_s
         pulse_energy_J pulses_to_steady_state pump_stored_power_W repetition_rate_Hz
         stored_energy_before_pulse_J tolerance fixed_point_pulse_energy_J cycle_length pulse_energy_mean_J
-        cycle_fixed_point_evaluations cycle_fixed_point_residual"""),
+        cycle_fixed_point_evaluations cycle_fixed_point_residual heat_balance_error"""),
     "seed_beam": _names("d4sigma_x_mm d4sigma_y_mm fill_factor modulation_peak_to_mean"),
 }
 

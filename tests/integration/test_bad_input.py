@@ -71,6 +71,7 @@ CASES: dict[str, tuple[list[str], int]] = {
                                    "give its power as power_W"], 1),
     "bad_cw_pump_energy.toml": (["medium[0] (rod).pump.energy_J = 1.5: applies to pulsed mode only",
                                  "medium[0] (rod).pump.power_W: missing"], 2),
+    "bad_cooling.toml": (['medium[0] (rod).cooling = "side": must be one of', "coolant_C = -300.0: out of range"], 2),
     "bad_cw_solver.toml": (["solver.max_iterations = 0: out of range: must be an integer from 1"], 1),
     "bad_cw_time_slices.toml": (["grid.time_slices = 32: applies to pulsed mode only"], 1),
     "bad_cw_damage_fluence.toml": (['step[1].damage_fluence_J_cm2 = 10.0: applies to mode = "pulsed" only',
