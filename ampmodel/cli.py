@@ -41,7 +41,10 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("config", help="the run config (TOML)")
     c.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
                    help="change one value first, like `run --set`")
-    sub.add_parser("media", help="the built-in materials with their values and sources")
+    media = sub.add_parser("media", help="the built-in materials: a short table; NAME for one material's values "
+                                         "and sources; --all for every material's")
+    media.add_argument("names", nargs="*", metavar="NAME", help="a built-in material, e.g. Nd:YAG (any letter case)")
+    media.add_argument("--all", action="store_true", help="every value and source of every material")
     b = sub.add_parser("bench", help="speed and memory figures against their targets (a few minutes)")
     b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
     b.add_argument("--quick", action="store_true", help="small cases (seconds): checks that the benchmark runs")
@@ -155,6 +158,10 @@ def cmd_run(args) -> int:
     from ampmodel.simulation import check_memory, simulate
     config = _load(args.config, args.overrides)
     check_memory(config)                       # a grid too large: refused before anything is made
+    for table, command in (("sweep", "sweep"), ("spread", "spread")):
+        if isinstance(config.raw.get(table), dict):
+            print(f"note: {args.config} has a [{table}] table; `run` computes its base case only; "
+                  f"`{_prog()} {command} {args.config}` runs the table")
     base = Path(args.out) if args.out else Path("runs") / Path(args.config).stem
     with partial_folder(base) as tmp:          # before the computation: an unwritable place fails now
         result = simulate(config, progress=False if args.quiet else None)
@@ -254,8 +261,22 @@ def _check_lines(config) -> list[str]:
 
 
 def cmd_media(args) -> int:
+    from ampmodel.config.checks import ConfigError
     from ampmodel.materials import registry
-    print(registry.table_text())
+    if args.names:
+        problems = []
+        for name in args.names:
+            try:
+                registry.get(name)
+            except KeyError as exc:
+                problems.append(f"ampmodel media {name}: {exc.args[0]}")
+        if problems:
+            raise ConfigError(problems)
+        print(registry.table_text(args.names), end="")
+    elif args.all:
+        print(registry.table_text(), end="")
+    else:
+        print(registry.short_table(), end="")
     return EXIT_OK
 
 

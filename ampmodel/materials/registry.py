@@ -167,8 +167,8 @@ def _load_all() -> dict[str, Material]:
 
 
 def names() -> list[str]:
-    """Names of the built-in materials, sorted (e.g. ``"Nd:YAG"``)."""
-    return sorted(_load_all())
+    """Names of the built-in materials, sorted without regard to letter case (e.g. ``"Nd:YAG"``)."""
+    return sorted(_load_all(), key=lambda n: (n.casefold(), n))
 
 
 def closest(name: str) -> list[str]:
@@ -213,8 +213,26 @@ def _wrapped(label: str, text: str, indent: int) -> list[str]:
                          break_on_hyphens=False) or [prefix.rstrip()]
 
 
-def table_text() -> str:
-    """The built-in materials as text: per material its values in config units and their sources.
+def short_table() -> str:
+    """One line per built-in material (sorted without regard to case): its kind, lasing wavelength,
+    emission cross-section, upper-state lifetime and saturation fluence; how to see the rest."""
+    rows = [("material", "kind", "lambda nm", "sigma_e cm2", "tau us", "Fsat J/cm2")]
+    for name in names():
+        m = _load_all()[name]
+        rows.append((m.name, "quasi-3-level" if m.quasi_three_level else "four-level", f"{m.wavelength_m * 1e9:g}",
+                     f"{m.emission_cross_section_m2 * 1e4:.3g}", f"{m.upper_lifetime_s * 1e6:.4g}",
+                     f"{m.saturation_fluence_J_m2 / 1e4:.3g}"))
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    lines = ["  ".join(c.ljust(w) if i < 2 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths, strict=True)))
+             for r in rows]
+    lines.append("")
+    lines.append("ampmodel media NAME: one material's values with their sources; ampmodel media --all: every material's")
+    return "\n".join(lines) + "\n"
+
+
+def table_text(selected: list[str] | None = None) -> str:
+    """The built-in materials (or those ``selected``, by name) as text: per material its values in config
+    units and their sources.
 
     Each material also shows the derived saturation fluence h·nu/(sigma_e + sigma_a) in J/cm² and
     saturation intensity Fsat/tau in W/cm² (Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963)). Lines
@@ -222,7 +240,7 @@ def table_text() -> str:
     """
     key_width = max(len(key) for key in MATERIAL_KEYS)
     lines: list[str] = []
-    for name in names():
+    for name in (names() if selected is None else [get(n).name for n in selected]):
         material = _load_all()[name]
         kind = "quasi-three-level" if material.quasi_three_level else "four-level"
         lines.append(f"{material.name}  ({kind}, {material.broadening} broadening)")

@@ -125,7 +125,7 @@ def test_help_lists_the_commands():
 
 
 def test_media_prints_every_material_with_sources():
-    proc = ampmodel("media")
+    proc = ampmodel("media", "--all")
     assert proc.returncode == 0, proc.stderr
     for name in ("Nd:YAG", "Nd:YLF", "Nd:YVO4", "Nd:phosphate glass", "Nd:silicate glass", "Yb:YAG",
                  "Ti:sapphire", "Cr:LiSAF", "alexandrite", "Yb:silica fibre", "Er:silica fibre"):
