@@ -42,3 +42,14 @@ def test_run_on_a_config_with_a_sweep_table_says_it_runs_the_base_case(tmp_path)
     plain = ampmodel("run", str(ROOT / "configs" / "single_pass_rod.toml"), "--out", str(tmp_path / "p"), "--quiet",
                      "--no-plots", cwd=tmp_path)
     assert "base case only" not in plain.stdout
+
+
+def test_the_python_example_runs(tmp_path):
+    """configs/explore_results.py: a run through the API, its result read with h5py, a lineout, a sweep."""
+    proc = subprocess.run([sys.executable, str(ROOT / "configs" / "explore_results.py"), str(tmp_path / "out")],
+                          capture_output=True, text=True, cwd=ROOT, env={**os.environ, "PYTHONPATH": str(ROOT)},
+                          timeout=300)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert (tmp_path / "out" / "lineout.png").stat().st_size > 10_000
+    assert (tmp_path / "out" / "demo" / "result.h5").is_file() and (tmp_path / "out" / "sweep" / "sweep.h5").is_file()
+    assert proc.stdout.count("-> output") == 4 and "Laser safety" in proc.stdout
