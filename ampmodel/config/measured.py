@@ -215,25 +215,36 @@ def _window(p: Problems, table: Mapping[str, Any], path: str, t: np.ndarray, pow
     return cut_t, cut_p, max(0.0, 1.0 - float(kept))
 
 
+def _cleaned_trace(p: Problems, table: Any, path: str, kind: str, keys: tuple[str, ...],
+                   takes: str) -> tuple[np.ndarray, np.ndarray] | None:
+    """The (x, y) arrays of a ``[seed.measured_pulse]`` or ``[seed.measured_spectrum]`` table (``kind``
+    "pulse" or "spectrum"), read and with its background removed; None with problems: not a table, a
+    key not among ``keys``, an unusable file or array."""
+    name = path.rsplit(".", 1)[-1]
+    if not isinstance(table, dict):
+        p.add(path, f"must be a table [seed.{name}] with {takes}", table)
+        return None
+    unknown = [key for key in table if key not in keys]
+    for key in unknown:
+        p.add(join_path(path, key), f"unknown key; [seed.{name}] takes {', '.join(keys)}", table[key])
+    if unknown:
+        return None
+    arrays = _arrays(p, table, path, kind)
+    if arrays is None:
+        return None
+    x, y = arrays
+    y = _clean(p, table, path, y)
+    return None if y is None else (x, y)
+
+
 def measured_pulse(p: Problems, table: Any, path: str = "seed.measured_pulse") -> dict | None:
     """The Seed fields of a measured pulse: ``duration_s`` (the trace's FWHM), ``pulse_trace`` (times in
     units of the FWHM from the peak, power relative to the peak, cut to the window) and
     ``pulse_trace_outside`` (the fraction of the trace's energy outside the window); None with problems."""
-    if not isinstance(table, dict):
-        p.add(path, "must be a table [seed.measured_pulse] with file (and optionally background, window_ns)", table)
+    trace = _cleaned_trace(p, table, path, "pulse", PULSE_KEYS, "file (and optionally background, window_ns)")
+    if trace is None:
         return None
-    for key in table:
-        if key not in PULSE_KEYS:
-            p.add(join_path(path, key), f"unknown key; [seed.measured_pulse] takes {', '.join(PULSE_KEYS)}", table[key])
-    if any(key not in PULSE_KEYS for key in table):
-        return None
-    arrays = _arrays(p, table, path, "pulse")
-    if arrays is None:
-        return None
-    t, power = arrays
-    power = _clean(p, table, path, power)
-    if power is None:
-        return None
+    t, power = trace
     cut = _window(p, table, path, t, power)
     if cut is None:
         return None
@@ -253,22 +264,10 @@ def measured_pulse(p: Problems, table: Any, path: str = "seed.measured_pulse") -
 def measured_spectrum(p: Problems, table: Any, path: str = "seed.measured_spectrum") -> dict | None:
     """The Seed fields of a measured spectrum: ``spectrum_trace`` (wavelengths (m), density relative to
     the peak), ``wavelength_m`` (its centroid) and ``bandwidth_m`` (its FWHM); None with problems."""
-    if not isinstance(table, dict):
-        p.add(path, "must be a table [seed.measured_spectrum] with file (and optionally background)", table)
+    trace = _cleaned_trace(p, table, path, "spectrum", SPECTRUM_KEYS, "file (and optionally background)")
+    if trace is None:
         return None
-    for key in table:
-        if key not in SPECTRUM_KEYS:
-            p.add(join_path(path, key), f"unknown key; [seed.measured_spectrum] takes {', '.join(SPECTRUM_KEYS)}",
-                  table[key])
-    if any(key not in SPECTRUM_KEYS for key in table):
-        return None
-    arrays = _arrays(p, table, path, "spectrum")
-    if arrays is None:
-        return None
-    wl, density = arrays
-    density = _clean(p, table, path, density)
-    if density is None:
-        return None
+    wl, density = trace
     where = join_path(path, "file" if "file" in table else "wavelength_m")
     if wl[0] < 150e-9 or wl[-1] > 20e-6:
         p.add(where, f"wavelengths from {wl[0] * 1e9:.6g} to {wl[-1] * 1e9:.6g} nm: they must lie within 150 nm to "
