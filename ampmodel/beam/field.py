@@ -190,3 +190,17 @@ def advance(beam: FieldBeam, length_m: float, index: float, steps: int = 1) -> N
 # ----------------------------------------------------------------------------------------------
 
 
+def start_field(seed, x_m: np.ndarray, y_m: np.ndarray, total: float, source: str) -> np.ndarray:
+    """The seed's field (Ny, Nx) at the start plane holding ``total`` (J, or W in cw) as |E|² summed over
+    the pixels (``beam_shapes.seed_start_field``: waist, curvature, M², a measured profile and
+    wavefront); a seed that cannot be formed on the grid is bad input (ConfigError naming ``source``)."""
+    from ampmodel.config.checks import ConfigError
+    from ampmodel.kernels import beam_shapes
+    shape, phase = seed.measured.on_grid(x_m, y_m) if seed.measured is not None else (None, None)
+    try:
+        return beam_shapes.seed_start_field(x_m, y_m, seed.profile, seed.diameter_m, seed.order, total,
+                                            seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
+                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed,
+                                            shape=shape, phase=phase)
+    except ValueError as exc:
+        raise ConfigError([f"{source}: seed: {exc}"]) from None

@@ -7,8 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ampmodel.beam.field import fluence_of
-from ampmodel.config.checks import ConfigError
+from ampmodel.beam.field import fluence_of, start_field
 from ampmodel.cw import diagnostics as cw_diagnostics
 from ampmodel.cw import field_path
 from ampmodel.cw import thermal as cw_thermal
@@ -44,14 +43,7 @@ def _seed_field(config: Config, x: np.ndarray) -> np.ndarray:
         if seed.beam.complex_field is not None:
             return seed.beam.complex_field.copy()
         return np.sqrt(seed.beam.intensity_W_m2).astype(np.complex128)
-    shape, phase = seed.measured.on_grid(x, x) if seed.measured is not None else (None, None)
-    try:
-        return beam_shapes.seed_start_field(x, x, seed.profile, seed.diameter_m, seed.order, seed.power_W,
-                                            seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
-                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed,
-                                            shape=shape, phase=phase)
-    except ValueError as exc:
-        raise ConfigError([f"{config.source}: seed: {exc}"]) from None
+    return start_field(seed, x, x, seed.power_W, config.source)
 
 
 def simulate_cw(config: Config, progress: bool | None = False):

@@ -267,15 +267,7 @@ def _summary(run: PulsedLayout, beam, outcomes: list[StepOutcome], media: dict[s
 
 def _seed_field(config: Config, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """The seed's field at the start plane (waist position, curvature, M²: beam_shapes.seed_start_field)."""
-    seed = config.seed
-    shape, phase = seed.measured.on_grid(x, y) if seed.measured is not None else (None, None)
-    try:
-        return beam_shapes.seed_start_field(x, y, seed.profile, seed.diameter_m, seed.order, seed.energy_J,
-                                            seed.wavelength_m, waist_m=seed.waist_m, curvature_m=seed.curvature_m,
-                                            m_squared=seed.m_squared, screen_seed=seed.phase_screen_seed,
-                                            shape=shape, phase=phase)
-    except ValueError as exc:
-        raise ConfigError([f"{config.source}: seed: {exc}"]) from None
+    return field_path.start_field(config.seed, x, y, config.seed.energy_J, config.source)
 
 
 def _clear_apertures(config: Config, states: dict[str, MediumState]) -> dict[int, np.ndarray]:
