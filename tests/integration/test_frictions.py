@@ -8,13 +8,10 @@ import subprocess
 import sys
 from pathlib import Path
 
+from sweep_helpers import ampmodel
+
 ROOT = Path(__file__).resolve().parents[2]
 
-
-def ampmodel(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.run([sys.executable, "-m", "ampmodel", *args], capture_output=True, text=True, cwd=cwd,
-                          env=env, timeout=120)
 
 
 def test_media_short_table_one_material_and_all(tmp_path):

@@ -10,6 +10,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from sweep_helpers import ampmodel
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -26,11 +27,6 @@ def small_disk(tmp_path):
     yield mount
     subprocess.run(["umount", str(mount)], capture_output=True)
 
-
-def ampmodel(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.run([sys.executable, "-m", "ampmodel", *args], capture_output=True, text=True, cwd=cwd,
-                          env=env, timeout=300)
 
 
 def test_a_run_on_a_full_disk_exits_6_naming_the_file(small_disk, tmp_path):

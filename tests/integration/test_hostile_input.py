@@ -6,19 +6,14 @@ from __future__ import annotations
 import json
 import os
 import subprocess
-import sys
 from pathlib import Path
 
 import pytest
+from sweep_helpers import ampmodel
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "configs" / "single_pass_rod.toml"
 
-
-def ampmodel(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.run([sys.executable, "-m", "ampmodel", *args], capture_output=True, text=True, cwd=cwd,
-                          env=env, timeout=120)
 
 
 def assert_refused(proc: subprocess.CompletedProcess, *texts: str) -> None:
