@@ -3,8 +3,8 @@
 Every ratio compares two things timed in the same run one after the other, each repeated and the best
 time kept (the least disturbed by other work on the machine). Single-threaded work in this process
 (simulate, the plain loop, the scaling) is timed in CPU time (time.process_time): on a machine shared
-with other jobs, waiting for a core is not counted; the wall times are reported beside. The sweep and
-the start-up are wall times (they are about processes). The targets live here and only here: tests
+with other jobs, waiting for a core is not counted; the wall times are reported beside. The sweep, the
+figures and the start-up are wall times (they are about processes). The targets live here and only here: tests
 never assert a time.
 
 Figures (the full set; ``quick`` runs the same measurements on small cases, for a test):
@@ -32,5 +32,9 @@ Figures (the full set; ``quick`` runs the same measurements on small cases, for 
 * ``memory_peak_MB``: the peak of the 256² four-pass case, interpreter included (target <= 600 MB);
 * ``memory_estimate_ratio``: :func:`ampmodel.simulation.memory_estimate_bytes` against that measured peak
   (the guard that refuses too-large runs; target 1.0 to 1.3: never below the real peak);
+* ``figures_speedup``: writing the figures of a run (the rod at 96², two passes: the demo's set of
+  figures) and of a 2 x 2 sweep of it, drawn as before (one figure after another in this process, PNG
+  at zlib level 6, each figure cleared) against as now (forked worker processes on the cores this
+  process may use, zlib level 1; plots/drawing.py), wall time, interleaved (target >= 2.0);
 * ``startup_s``: wall time of ``ampmodel --help`` in a new process (target <= 0.5 s).
 """

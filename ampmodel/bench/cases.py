@@ -12,12 +12,14 @@ from typing import Any
 # slab's seed over 0.5 nm (linearly up-chirped) across Nd:YAG's 1064 nm line.
 FULL = {"points": 256, "time_slices": 64, "slices": 20, "passes": 4, "repeat": 3,
         "scaling": (128, 256, 512), "memory_points": 512, "sweep_points": 8, "sweep_grid": 128,
-        "diffraction_grid": 128, "startup_repeat": 5}
+        "diffraction_grid": 128, "startup_repeat": 5, "figures_grid": 96, "figures_time_slices": 24,
+        "figures_sweep_grid": 48, "figures_repeat": 3}
 
 
 QUICK = {"points": 48, "time_slices": 12, "slices": 5, "passes": 4, "repeat": 1,
          "scaling": (32, 48, 64), "memory_points": 64, "sweep_points": 8, "sweep_grid": 32,
-         "diffraction_grid": 32, "startup_repeat": 3}
+         "diffraction_grid": 32, "startup_repeat": 3, "figures_grid": 32, "figures_time_slices": 8,
+        "figures_sweep_grid": 24, "figures_repeat": 1}
 
 
 MB = 1e6

@@ -312,3 +312,57 @@ def measure_startup(repeat: int) -> list[float]:
             raise RuntimeError("ampmodel --help failed")
         times.append(t)
     return times
+
+
+def _figure_cases(size: dict) -> tuple[Any, Any]:
+    """A run like the demo (the rod case: maps, energy, pulse, gain, B-integral, beam figures) and a
+    2 x 2 sweep of it over seed energy and small-signal gain (its summaries, as a sweep holds them)."""
+    from types import SimpleNamespace
+
+    from ampmodel import simulate
+    from ampmodel.config.load import load_config
+    n, nt = size["figures_grid"], size["figures_time_slices"]
+    run = simulate(load_config(bench_config(n, nt, 6, 2, lit="rod")))
+    values, summaries = [], []
+    for energy in (0.01, 0.05):
+        for gain in (4.0, 8.0):
+            raw = bench_config(size["figures_sweep_grid"], 8, 4, 2, lit="rod", energy_J=energy)
+            raw["medium"][0]["small_signal_gain"] = gain
+            values.append({"seed.energy_J": energy, "medium.rod.small_signal_gain": gain})
+            summaries.append(simulate(load_config(raw)).summary)
+    sweep = SimpleNamespace(paths=["seed.energy_J", "medium.rod.small_signal_gain"], values=values,
+                            summaries=summaries, title="figure benchmark sweep", out=Path("figures"))
+    return run, sweep
+
+
+def measure_figures(size: dict, repeat: int) -> dict[str, Any]:
+    """Wall time of writing a run's figures and a sweep's, drawn as before (one figure after another in
+    this process, PNG at zlib level 6, each figure cleared after writing) and as now (worker processes,
+    zlib level 1, left to the garbage collector), interleaved, best of
+    ``repeat``, into fresh temporary folders."""
+    import shutil
+    import tempfile
+
+    from ampmodel.plots.common import AS_BEFORE
+    from ampmodel.plots.drawing import default_workers, draw_all
+    from ampmodel.plots.run import figure_jobs
+    from ampmodel.plots.sweep import sweep_jobs
+    run, sweep = _figure_cases(size)
+    times: dict[str, list[float]] = {"before_s": [], "now_s": []}
+    files = 0
+    with tempfile.TemporaryDirectory(prefix="ampmodel-bench-") as tmp:
+        for k in range(repeat):
+            for how, kwargs in (("before_s", {"workers": 1, "writing": AS_BEFORE}), ("now_s", {})):
+                folder = Path(tmp) / f"{how}{k}"
+                folder.mkdir()
+
+                def draw(folder=folder, kwargs=kwargs) -> int:
+                    jobs = figure_jobs(run, folder / "run") + sweep_jobs(sweep, "grid", folder / "sweep")
+                    return len(draw_all(jobs, **kwargs))
+                (folder / "run").mkdir()
+                t, files = _time(draw)
+                times[how].append(t)
+                shutil.rmtree(folder)
+    before, now = min(times["before_s"]), min(times["now_s"])
+    return {"before_s": before, "now_s": now, "speedup": before / now, "files": files,
+            "workers": default_workers(), "times_s": times}

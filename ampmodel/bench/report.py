@@ -14,6 +14,7 @@ from ampmodel.bench.cases import FULL, MB, QUICK, SPECTRAL_BANDWIDTH_NM, bench_c
 from ampmodel.bench.measure import (
     idle_cpus,
     measure_diffraction,
+    measure_figures,
     measure_memory,
     measure_pulsed,
     measure_scaling,
@@ -151,6 +152,16 @@ def memory_figures(size: dict) -> list[Figure]:
         f"run {mid['run_B'] / MB:.0f} MB + interpreter and modules {mid['baseline_B'] / MB:.0f} MB", mid)]
 
 
+def figures_figure(fg: dict[str, Any], repeat: int) -> Figure:
+    """Writing the figures of a run and of a sweep: as before against as now."""
+    return Figure(
+        "figures_speedup", "figures of a run and a 2 x 2 sweep: time drawn as before / as now", fg["speedup"], "x",
+        ">= 2.0", _check(fg["speedup"], low=2.0),
+        f"wall time, best of {repeat}, {fg['files']} PNG files: one after another at zlib level 6, each figure cleared (as before) "
+        f"{fg['before_s']:.3g} s, on {fg['workers']} worker processes at level 1 (now) {fg['now_s']:.3g} s",
+        fg)
+
+
 def startup_figure(times: list[float]) -> Figure:
     best = min(times)
     return Figure(
@@ -159,7 +170,7 @@ def startup_figure(times: list[float]) -> Figure:
 
 
 STAGES = ("pulsed (plain loops, simulate: slab, rod, chirped seed)", "sweep on 1 and 2 workers", "scaling",
-          "memory (child processes)", "start-up")
+          "memory (child processes)", "figures, as before and as now", "start-up")
 
 
 def run_bench(quick: bool = False, progress: bool = True) -> dict[str, Any]:
@@ -189,6 +200,8 @@ def run_bench(quick: bool = False, progress: bool = True) -> dict[str, Any]:
         stage(3)
         figures += memory_figures(size)
         stage(4)
+        figures.append(figures_figure(measure_figures(size, size["figures_repeat"]), size["figures_repeat"]))
+        stage(5)
         figures.append(startup_figure(measure_startup(size["startup_repeat"])))
         if bar is not None:
             bar.update(1)

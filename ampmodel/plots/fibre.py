@@ -6,6 +6,7 @@ Each figure has its own Agg canvas and is written atomically (the helpers of com
 """
 from __future__ import annotations
 
+from functools import partial
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -22,6 +23,7 @@ from ampmodel.plots.common import (
     title_suffix,
     unit_prefix,
 )
+from ampmodel.plots.drawing import PANELS, FigureJob
 
 if TYPE_CHECKING:
     from ampmodel.output.result import FibreRecord, Result
@@ -176,17 +178,18 @@ def _watts(value: float) -> str:
     return f"{value / scale:.3g} {unit}"
 
 
-def make_fibre_plots(result: Result, directory: Path, used: set[str]) -> list[Path]:
-    """The fibre figures: ``fibre_<name>_powers.png``, ``gain_<name>.png`` and, with ASE,
+def fibre_jobs(result: Result, directory: Path) -> list[FigureJob]:
+    """The fibre figures as jobs: ``fibre_<name>_powers.png``, ``gain_<name>.png`` and, with ASE,
     ``fibre_<name>_ase.png`` for each fibre."""
-    out = []
+    jobs = []
+    used: set[str] = set()
     for name, rec in result.fibres.items():
         stem = safe_name(name)
         while stem in used:
             stem += "_"
         used.add(stem)
-        out.append(plot_fibre_powers(result, rec, directory / f"fibre_{stem}_powers.png"))
-        out.append(plot_fibre_gain(result, rec, directory / f"gain_{stem}.png"))
-        if rec.ase_wavelength_m.size:
-            out.append(plot_fibre_ase(result, rec, directory / f"fibre_{stem}_ase.png"))
-    return out
+        for fn, path in ((plot_fibre_powers, f"fibre_{stem}_powers.png"), (plot_fibre_gain, f"gain_{stem}.png"),
+                         (plot_fibre_ase, f"fibre_{stem}_ase.png")):
+            if fn is not plot_fibre_ase or rec.ase_wavelength_m.size:
+                jobs.append(FigureJob(directory / path, partial(fn, result, rec, directory / path), PANELS))
+    return jobs

@@ -23,7 +23,8 @@ from ampmodel.plots.common import (
     safe_name,
 )
 from ampmodel.plots.cw import plot_cw_gain
-from ampmodel.plots.fibre import make_fibre_plots
+from ampmodel.plots.drawing import LIGHT, MAPS, PANELS, FigureJob, draw_all
+from ampmodel.plots.fibre import fibre_jobs
 from ampmodel.plots.gain import plot_medium_gain
 from ampmodel.plots.layout import b_integrals, plot_b_integral, plot_energy_per_step, plot_pulse_power
 from ampmodel.plots.maps import plot_fluence_maps
@@ -35,16 +36,12 @@ if TYPE_CHECKING:
     from ampmodel.output.result import Result
 
 
-
-
-
-
-
 # ----------------------------------------------------------------------------------------------
 
 
-def make_plots(result: Result, directory: Path) -> list[Path]:
-    """Write the figures of a run as PNG files into ``directory`` (created if needed).
+def make_plots(result: Result, directory: Path, workers: int | None = None) -> list[Path]:
+    """Write the figures of a run as PNG files into ``directory`` (created if needed), drawn by
+    ``workers`` processes at once (drawing.py).
 
     Files: ``fluence_maps.png``, ``energy_per_step.png``, ``pulse_power.png`` (pulsed runs),
     ``gain_<medium>.png`` for each medium, ``b_integral.png`` when any step has a non-zero
@@ -63,6 +60,8 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     ----------
     result : the run (all arrays SI: m, s, J/m², W, 1/m, rad)
     directory : folder for the PNG files
+    workers : processes that draw the figures (default: the cores this process may use; 1: one after
+        another in this process; ``drawing.py``)
 
     Returns
     -------
@@ -70,36 +69,43 @@ def make_plots(result: Result, directory: Path) -> list[Path]:
     """
     out = Path(directory)
     out.mkdir(parents=True, exist_ok=True)
+    return draw_all(figure_jobs(result, out), workers)
+
+
+def figure_jobs(result: Result, out: Path) -> list[FigureJob]:
+    """The figures of a run as jobs (file, drawing function, expected cost), in the order of
+    :func:`make_plots`; nothing is drawn yet."""
     cw = is_cw(result)
-    paths = [plot_fluence_maps(result, out / ("intensity_maps.png" if cw else "fluence_maps.png")),
-             plot_energy_per_step(result, out / ("power_per_step.png" if cw else "energy_per_step.png"))]
+
+    def job(fn, path: Path, *args, weight: float = LIGHT) -> FigureJob:
+        return FigureJob(path, lambda: fn(result, *args, path), weight)
+
+    jobs = [job(plot_fluence_maps, out / ("intensity_maps.png" if cw else "fluence_maps.png"), weight=MAPS),
+            job(plot_energy_per_step, out / ("power_per_step.png" if cw else "energy_per_step.png"))]
     if not cw and np.asarray(result.t_s).size:
-        paths.append(plot_pulse_power(result, out / "pulse_power.png"))
+        jobs.append(job(plot_pulse_power, out / "pulse_power.png"))
     if getattr(result, "fibres", None):
-        return paths + make_fibre_plots(result, out, set())
+        return jobs + fibre_jobs(result, out)
     used: set[str] = set()
     for name in result.media:
         stem = safe_name(name)
         while stem in used:
             stem += "_"
         used.add(stem)
-        if cw:
-            paths.append(plot_cw_gain(result, name, out / f"gain_{stem}.png"))
-        else:
-            paths.append(plot_medium_gain(result, name, out / f"gain_{stem}.png"))
+        jobs.append(job(plot_cw_gain if cw else plot_medium_gain, out / f"gain_{stem}.png", name, weight=PANELS))
         if has_heat(result, name):
-            paths.append(plot_heat(result, name, out / f"heat_{stem}.png"))
+            jobs.append(job(plot_heat, out / f"heat_{stem}.png", name, weight=PANELS))
     if not cw and result.steps and finite_max(b_integrals(result)[0]) > 0:
-        paths.append(plot_b_integral(result, out / "b_integral.png"))
+        jobs.append(job(plot_b_integral, out / "b_integral.png"))
     if result.steps and has_beam_figures(result):
-        paths.append(plot_beam_steps(result, out / "beam_steps.png"))
-        paths.append(plot_beam_size(result, out / "beam_size.png"))
+        jobs.append(job(plot_beam_steps, out / "beam_steps.png", weight=PANELS))
+        jobs.append(job(plot_beam_size, out / "beam_size.png"))
     repeats = [e for e in (result.summary or {}).get("steps", []) if isinstance(e, dict) and e.get("kind") == "repeat"]
     for entry in repeats:
         name = "round_trips.png" if len(repeats) == 1 else f"round_trips_step{entry.get('index')}.png"
-        paths.append(plot_round_trips(result, entry, out / name))
+        jobs.append(job(plot_round_trips, out / name, entry, weight=PANELS))
     if isinstance((result.summary or {}).get("train"), dict):
-        paths.append(plot_train(result, out / "train.png"))
+        jobs.append(job(plot_train, out / "train.png", weight=PANELS))
     if has_spectrum(result):
-        paths.append(plot_spectra(result, out / "spectrum.png"))
-    return paths
+        jobs.append(job(plot_spectra, out / "spectrum.png", weight=PANELS))
+    return jobs

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ampmodel.plots.common import OUTPUT_COLOUR, SEED_COLOUR, new_figure, save_png
-from ampmodel.plots.sweep import _human, path_label
+from ampmodel.plots.sweep import _human, _wrapped, path_label
 
 MAX_PANELS = 6
 
@@ -45,8 +45,8 @@ def plot_sensitivity(sensitivity: Mapping[str, Sequence[Mapping[str, Any]]], fig
         ax = fig.add_subplot(rows, cols, n + 1)
         _panel(ax, figure, list(sensitivity[figure])[::-1], noise)
     band = f"; grey: |ρ| < 2/√n = {noise:.2f}, within the noise" if noise is not None else ""
-    fig.suptitle("sensitivity: which tolerance moves each figure (Spearman's rank correlation"
-                 + (f", {samples} samples" if samples else "") + f"{band})" + (f"\n{title}" if title else ""),
+    fig.suptitle(_wrapped("sensitivity: which tolerance moves each figure (Spearman's rank correlation"
+                 + (f", {samples} samples" if samples else "") + f"{band})" + (f"\n{title}" if title else ""), fig),
                  fontsize=10)
     return [save_png(fig, folder / "sensitivity.png")]
 

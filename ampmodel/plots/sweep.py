@@ -20,6 +20,8 @@ more than a factor of 20 (swept values) or 100 (results) of positive values is l
 from __future__ import annotations
 
 import math
+import textwrap
+from functools import partial
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
@@ -27,6 +29,8 @@ import numpy as np
 
 from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
+from ampmodel.plots.drawing import LIGHT, PANELS, FigureJob, draw_all
+from ampmodel.plots.limits import LimitLine, limit_lines
 from ampmodel.units import unit_of
 
 CMAP_LINES = "viridis"
@@ -236,26 +240,36 @@ def _groups(paths: Sequence[str], values: list[dict], x_path: str, axes: dict[st
 
 def _map(fig, ax, key: str, x_axis: _Axis, y_axis: _Axis, values: list[dict], y: np.ndarray,
          label: str) -> None:
-    """A colour map of ``y`` over the grid of two swept paths, cells annotated when few."""
-    xs = [x_axis.position(lv) for lv in x_axis.levels]
-    ys = [y_axis.position(lv) for lv in y_axis.levels]
-    z = np.full((len(ys), len(xs)), np.nan)
+    """A colour map of ``y`` over the grid of two swept paths: one cell of equal size per pair of values
+    (ticks name the values, so uneven or logarithmic steps never squeeze a cell), annotated when few."""
+    z = np.full((len(y_axis.levels), len(x_axis.levels)), np.nan)
     for i, v in enumerate(values):
         cx = x_axis.levels.index(v[x_axis.path] if x_axis.numeric else _text(v[x_axis.path]))
         cy = y_axis.levels.index(v[y_axis.path] if y_axis.numeric else _text(v[y_axis.path]))
         z[cy, cx] = y[i]
-    mesh = ax.pcolormesh(x_axis.edges(), y_axis.edges(), z, shading="flat", cmap=MAP_CMAP)
+    ny, nx = z.shape
+    mesh = ax.pcolormesh(np.arange(nx + 1) - 0.5, np.arange(ny + 1) - 0.5, z, shading="flat", cmap=MAP_CMAP)
     fig.colorbar(mesh, ax=ax, label=label)
     if z.size <= 48:
         finite = z[np.isfinite(z)]
         mid = 0.5 * (finite.min() + finite.max()) if finite.size else 0.0
-        for cy, yy in enumerate(ys):
-            for cx, xx in enumerate(xs):
+        size = 8 if nx <= 6 else 7 if nx <= 8 else 6
+        for cy in range(ny):
+            for cx in range(nx):
                 if np.isfinite(z[cy, cx]):
-                    ax.text(xx, yy, f"{z[cy, cx]:.3g}", ha="center", va="center", fontsize=8,
+                    ax.text(cx, cy, f"{z[cy, cx]:.3g}", ha="center", va="center", fontsize=size,
                             color="black" if z[cy, cx] > mid else "white")
-    x_axis.apply(ax, "x")
-    y_axis.apply(ax, "y")
+    for axis, swept, n in ((ax.xaxis, x_axis, nx), (ax.yaxis, y_axis, ny)):
+        axis.set_label_text(swept.label)
+        axis.set_ticks(range(n), [_level_text(swept, lv) for lv in swept.levels])
+    ax.set_xlim(-0.5, nx - 0.5)
+    ax.set_ylim(-0.5, ny - 0.5)
+    if nx > 6:
+        ax.tick_params(axis="x", labelrotation=40)
+
+
+def _level_text(axis: _Axis, level: Any) -> str:
+    return f"{axis.position(level):.4g}" if axis.numeric else str(level)
 
 
 def _choose_x(paths: Sequence[str], axes: Mapping[str, _Axis], combine: str) -> str:
@@ -273,7 +287,28 @@ def _varying(key: str, summaries: Sequence[Mapping | None]) -> np.ndarray | None
     return y
 
 
-def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
+# Summary figures that restate an input of the run (the seed inside the grid, the pump power, the
+# pulse duration): not drawn against a swept value they merely follow (_echoes).
+INPUT_ECHOES = ("input_energy_J", "input_power_W", "pump_power_W", "pulse_duration_ns", "time_slice_ns",
+                "repetition_rate_Hz")
+
+
+def _echoes(key: str, y: np.ndarray, values: list[dict], paths: Sequence[str]) -> bool:
+    """Whether figure ``key`` is an input restated: one of INPUT_ECHOES in a fixed ratio to a swept value
+    (to 1e-9) over every point, so its figure would be that value drawn against itself."""
+    if key not in INPUT_ECHOES:
+        return False
+    for p in paths:
+        v = np.array([float(x[p]) if is_number(x[p]) else np.nan for x in values])
+        ok = np.isfinite(v) & np.isfinite(y) & (v != 0)
+        if np.unique(v[ok]).size >= 2:
+            ratio = y[ok] / v[ok]
+            if np.all(np.abs(ratio - ratio[0]) <= 1e-9 * abs(ratio[0])):
+                return True
+    return False
+
+
+def plot_sweep(result, combine: str, folder: Path, limits: Any = None, workers: int | None = None) -> list[Path]:
     """Write the figures of a sweep (see the module docstring); return their paths.
 
     Parameters
@@ -281,8 +316,14 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
     result : sweeps.SweepResult (paths, values, summaries)
     combine : "grid" or "zip"
     folder : where the PNG files go (created)
+    limits : the config's Limits: damage-fluence and B-integral lines on those figures (limits.py)
+    workers : processes that draw the figures (drawing.py; default: the cores this process may use)
     """
-    folder = Path(folder)
+    return draw_all(sweep_jobs(result, combine, Path(folder), limits), workers)
+
+
+def sweep_jobs(result, combine: str, folder: Path, limits: Any = None) -> list[FigureJob]:
+    """The figures of a sweep as jobs (drawing.py), in the order :func:`plot_sweep` returns them."""
     folder.mkdir(parents=True, exist_ok=True)
     paths, values, summaries = list(result.paths), result.values, result.summaries
     if not values:
@@ -294,59 +335,97 @@ def plot_sweep(result, combine: str, folder: Path) -> list[Path]:
     warned = np.array([bool(s and s.get("warnings")) for s in summaries])
     two_grid = combine == "grid" and len(paths) == 2
     along = f" ({_listing(others)} varying with it)" if combine == "zip" and others else ""
-    written: list[Path] = []
     views: dict[str, tuple[np.ndarray, str, float, str]] = {}
     for key in scalar_keys(summaries):
         if key in NOT_PLOTTED:
             continue
         y = _varying(key, summaries)
-        if y is None:
+        if y is None or _echoes(key, y, values, paths):
             continue
         views[key] = _scalar_view(key, y)
-        shown, label, _, _ = views[key]
-        fig = new_figure(11.0 if two_grid or len(groups) > 3 else 6.6, 4.4)   # room for a legend beside
-        ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
+
+    def panel(ax, key: str) -> None:
+        shown, label, scale, _ = views[key]
         _curves(ax, key, axes[x_path], groups, values, shown, warned)
         ax.set_ylabel(label)
         if _log_axis(shown.tolist(), 100.0):
             ax.set_yscale("log")
+        _lines(ax, limit_lines(key, summaries, limits), scale, shown, "y", views[key][3])
+
+    def one(key: str) -> Path:
+        shown, label, _, _ = views[key]
+        fig = new_figure(12.0 if two_grid else 8.2, 4.4)   # room for the legend beside the axes
+        ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
+        panel(ax, key)
         _legend(ax, groups, warned, axes, others, combine)
         if two_grid:
             _map(fig, fig.add_subplot(1, 2, 2), key, axes[x_path], axes[others[0]], values, shown, label)
-        fig.suptitle(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
-                     f"{along}", fontsize=10)
-        written.append(save_png(fig, folder / f"{key}.png"))
+        fig.suptitle(_wrapped(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
+                              f"{along}", fig), fontsize=10)
+        return save_png(fig, folder / f"{key}.png")
+
+    def overview(panels: list[str]) -> Path:
+        rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
+        fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + 3.0, 3.8 * rows + 0.4)   # the legend beside
+        grid = [fig.add_subplot(rows, cols, n + 1) for n in range(len(panels))]
+        for ax, key in zip(grid, panels, strict=True):
+            panel(ax, key)
+        _legend(grid[0], groups, warned, axes, others, combine, figure=fig, more=grid[1:])
+        fig.suptitle(_wrapped(f"{result.title or result.out.name}: sweep overview{along}", fig), fontsize=10)
+        return save_png(fig, folder / "overview.png")
+
+    jobs = [FigureJob(folder / f"{key}.png", partial(one, key), PANELS if two_grid else LIGHT) for key in views]
     panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
     if len(panels) >= 2:
-        rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
-        beside = 3.2 if len(groups) > 3 else 0.0       # a long legend goes beside the panels
-        fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + beside, 3.8 * rows + 0.4)
-        for n, key in enumerate(panels):
-            ax = fig.add_subplot(rows, cols, n + 1)
-            shown, label, _, _ = views[key]
-            _curves(ax, key, axes[x_path], groups, values, shown, warned)
-            ax.set_ylabel(label)
-            if _log_axis(shown.tolist(), 100.0):
-                ax.set_yscale("log")
-            if n == 0:
-                _legend(ax, groups, warned, axes, others, combine, figure=fig)
-        fig.suptitle(f"{result.title or result.out.name}: sweep overview{along}", fontsize=10)
-        written.append(save_png(fig, folder / "overview.png"))
-    return written
+        jobs.append(FigureJob(folder / "overview.png", partial(overview, panels), float(len(panels))))
+    return jobs
+
+
+def _wrapped(text: str, fig, points: float = 10.0) -> str:
+    """``text`` broken into lines that fit the figure's width (a character of ``points`` size takes
+    about 0.55 of it), each line of a multi-line text wrapped on its own."""
+    width = max(20, int(fig.get_figwidth() * 72 / (0.55 * points)) - 4)
+    return "\n".join(textwrap.fill(line, width) for line in text.split("\n"))
+
+
+def _lines(ax, lines: Sequence[LimitLine], scale: float, shown: np.ndarray, which: str, unit: str) -> None:
+    """Draw limit lines across the axis (``which``: "y" for horizontal lines, "x" for vertical) where
+    they fall near the data; a line far beyond it (the data would shrink to a sliver) gets a legend entry
+    with an arrow and its value instead. Every one carries the gid "limit" (for the legend)."""
+    finite = shown[np.isfinite(shown)]
+    top = float(finite.max()) if finite.size else 0.0
+    log = (ax.get_yscale() if which == "y" else ax.get_xscale()) == "log"
+    for line in lines:
+        v = line.value * scale
+        text = f"{line.label}: {v:.3g}" + ("" if unit in ("", "1") else "%" if unit == "%" else f" {unit}")
+        if top > 0 and v > (10.0 if log else 2.5) * top:
+            ax.plot([], [], ls="none", marker=r"$\uparrow$" if which == "y" else r"$\rightarrow$", ms=8,
+                    color=line.colour, label=f"{text}, off the axis", gid="limit")
+            continue
+        draw = ax.axhline if which == "y" else ax.axvline
+        draw(v, color=line.colour, ls=line.style, lw=1.3, label=text, zorder=1.5, gid="limit")
 
 
 def _listing(names: Sequence[str]) -> str:
     return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
-def _legend(ax, groups, warned, axes, others, combine, figure=None) -> None:
-    """The curves' legend (and the warning ring): in the axes when short, beside them when long (for
-    the whole figure when ``figure`` is given)."""
+def _legend(ax, groups, warned, axes, others, combine, figure=None, more=()) -> None:
+    """The curves' legend, the warning ring and the limit lines, beside the axes (for the whole figure,
+    at its right, when ``figure`` is given; ``more``: further axes whose limit lines it names), never over
+    the data."""
     from matplotlib.lines import Line2D
-    handles, labels = ax.get_legend_handles_labels()
-    keep = [(h, lb) for h, lb in zip(handles, labels, strict=True) if lb != "_warn"]
-    if len(keep) > 12:
-        keep = keep[:11] + [(Line2D([], [], ls="none"), f"... {len(keep) - 11} more")]
+    keep, seen = [], set()
+    for a in (ax, *more):
+        for h, lb in zip(*a.get_legend_handles_labels(), strict=True):
+            if lb != "_warn" and lb not in seen:
+                seen.add(lb)
+                keep.append((h, lb))
+    curves = [k for k in keep if k[0].get_gid() != "limit"]
+    lines = [k for k in keep if k[0].get_gid() == "limit"]
+    if len(curves) > 12:
+        curves = curves[:11] + [(Line2D([], [], ls="none"), f"... {len(curves) - 11} more")]
+    keep = curves + lines
     if warned.any():
         keep.append((Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=WARN_COLOUR, mew=1.4),
                      "run with warnings"))
@@ -354,52 +433,67 @@ def _legend(ax, groups, warned, axes, others, combine, figure=None) -> None:
         return
     title = axis_label(path_label(others[0]), axes[others[0]].unit) if len(others) == 1 and combine == "grid" \
         and len(groups) > 1 else None
-    args = ([h for h, _ in keep], [lb for _, lb in keep])
+    args = ([h for h, _ in keep], [textwrap.fill(lb, 34, subsequent_indent="  ") for _, lb in keep])
     style = dict(title=title, fontsize=8, title_fontsize=8, frameon=False)
-    if len(keep) <= 4:
-        ax.legend(*args, **style)
-    elif figure is not None:
+    if figure is not None:
         figure.legend(*args, loc="outside right upper", **style)
     else:
-        ax.legend(*args, loc="upper left", bbox_to_anchor=(1.01, 1.0), **style)
+        ax.legend(*args, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0, **style)
 
 
 def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
-                    folder: Path, title: str = "") -> list[Path]:
-    """One histogram per varying summary scalar, with its 5, 50 and 95 % percentiles marked.
+                    folder: Path, title: str = "", limits: Any = None, bounds: Sequence[Any] = (),
+                    workers: int | None = None) -> list[Path]:
+    """One histogram per varying summary scalar, with its 5, 50 and 95 % percentiles marked, and the
+    damage, B-integral and bound lines of that figure (limits.py).
 
     Parameters
     ----------
     summaries : one summary.json dict per sample (None for a sample that failed)
     percentiles : key -> {"p5", "p50", "p95"} in the unit the key carries
     folder : where ``hist_<key>.png`` go (created)
+    title : the config's title; limits : its Limits; bounds : the run's bounds (FIGURE<=VALUE ...)
+    workers : processes that draw the figures (drawing.py)
     """
-    folder = Path(folder)
+    return draw_all(histogram_jobs(summaries, percentiles, Path(folder), title, limits, bounds), workers)
+
+
+def histogram_jobs(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
+                   folder: Path, title: str = "", limits: Any = None, bounds: Sequence[Any] = ()) -> list[FigureJob]:
+    """The histograms of :func:`plot_histograms` as jobs (drawing.py)."""
     folder.mkdir(parents=True, exist_ok=True)
-    written = []
+    jobs = []
     for key in scalar_keys(summaries):
         if key in NOT_PLOTTED or key not in percentiles:
             continue
         y = _varying(key, summaries)
-        if y is None:
-            continue
-        shown, label, scale, shown_unit = _scalar_view(key, y)
-        data = shown[np.isfinite(shown)]
-        fig = new_figure(6.6, 4.2)
-        ax = fig.add_subplot(1, 1, 1)
-        bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
-        ax.hist(data, bins=bins, color=SEED_COLOUR, alpha=0.8, edgecolor="white", linewidth=0.5)
-        p = percentiles[key]
-        unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
-        for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
-            value = p[name] * scale
-            ax.axvline(value, color=WARN_COLOUR, ls=style, lw=1.4,
-                       label=f"{name[1:]} %: {value:.4g}{unit}")
-        ax.set_xlabel(label)
-        ax.set_ylabel(f"samples (of {data.size})")
-        ax.legend(fontsize=8, frameon=False, title="percentiles", title_fontsize=8)
-        ax.grid(True, alpha=0.3)
-        fig.suptitle(f"{_human(key)}: spread over {data.size} samples" + (f" ({title})" if title else ""),
-                     fontsize=10)
-        written.append(save_png(fig, folder / f"hist_{key}.png"))
-    return written
+        if y is not None:
+            lines = limit_lines(key, summaries, limits, bounds)
+            jobs.append(FigureJob(folder / f"hist_{key}.png",
+                                  partial(_histogram, key, y, percentiles[key], lines, folder, title)))
+    return jobs
+
+
+def _histogram(key: str, y: np.ndarray, p: Mapping[str, float], lines: Sequence[LimitLine], folder: Path,
+               title: str) -> Path:
+    shown, label, scale, shown_unit = _scalar_view(key, y)
+    data = shown[np.isfinite(shown)]
+    fig = new_figure(8.2, 4.2)
+    ax = fig.add_subplot(1, 1, 1)
+    bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
+    ax.hist(data, bins=bins, color=SEED_COLOUR, alpha=0.8, edgecolor="white", linewidth=0.5)
+    unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
+    for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
+        value = p[name] * scale
+        ax.axvline(value, color="0.2", ls=style, lw=1.4, label=f"{name[1:]} %: {value:.4g}{unit}")
+    _lines(ax, lines, scale, data, "x", shown_unit)
+    ax.set_xlabel(label)
+    ax.set_ylabel(f"samples (of {data.size})")
+    handles, labels = ax.get_legend_handles_labels()
+    ax.legend(handles, [textwrap.fill(lb, 34, subsequent_indent="  ") for lb in labels], fontsize=8, frameon=False,
+              title="percentiles, limits", title_fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+              borderaxespad=0.0)
+    ax.grid(True, alpha=0.3)
+    fig.suptitle(_wrapped(f"{_human(key)}: spread over {data.size} samples" + (f" ({title})" if title else ""),
+                          fig), fontsize=10)
+    return save_png(fig, folder / f"hist_{key}.png")

@@ -43,6 +43,7 @@ Statistician 50, 361-365 (1996) (definition 7); numpy.percentile (method "linear
 from __future__ import annotations
 
 import csv
+import functools
 import hashlib
 import os
 from dataclasses import dataclass, field
@@ -236,13 +237,16 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
         result.sensitivity = sensitivity(list(result.percentiles), flat, paths, run.values)
         _write_stats(out, result, base)
         if plots:
+            from ampmodel.plots.drawing import PANELS, FigureJob, draw_all
             from ampmodel.plots.sensitivity import plot_sensitivity
-            from ampmodel.plots.sweep import plot_histograms
-            result.plots = plot_histograms(with_figures(run.summaries, shown), result.percentiles, out / "plots",
-                                           base.title)
+            from ampmodel.plots.sweep import histogram_jobs
+            jobs = histogram_jobs(with_figures(run.summaries, shown), result.percentiles, out / "plots", base.title,
+                                  base.limits, parsed)
             keys = [k for k in KEY_FIGURES if k in result.sensitivity] + [k for k in shown if k in result.sensitivity]
-            result.plots += plot_sensitivity(result.sensitivity, list(dict.fromkeys(keys)), out / "plots",
-                                             base.title, len(run.values) - len(run.failed))
+            ranked = functools.partial(plot_sensitivity, result.sensitivity, list(dict.fromkeys(keys)),
+                                       out / "plots", base.title, len(run.values) - len(run.failed))
+            jobs.append(FigureJob(out / "plots" / "sensitivity.png", ranked, PANELS))
+            result.plots = [p for p in draw_all(jobs) if p.exists()]
         box["result"] = result
 
     run_points("spread", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,

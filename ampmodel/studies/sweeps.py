@@ -423,7 +423,7 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
         if plots:
             from ampmodel.plots.sweep import plot_sweep
             shown = dataclasses.replace(result, summaries=with_figures(result.summaries, figures))
-            result.plots = plot_sweep(shown, combine, out / "plots")
+            result.plots = plot_sweep(shown, combine, out / "plots", limits=base.limits)
 
     return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                       progress=progress, timeout_s=timeout_s, table_stem="sweep",

@@ -11,7 +11,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[2]
 KEYS = {"pulsed_ratio", "pulsed_composite_ratio", "pulsed_rod_ratio", "pulsed_spectral_ratio", "diffraction_ratio", "sweep_speedup", "scaling_spread",
-        "memory_ratio", "memory_estimate_ratio", "memory_peak_MB", "startup_s"}
+        "memory_ratio", "memory_estimate_ratio", "memory_peak_MB", "figures_speedup", "startup_s"}
 
 
 def ampmodel(*args: str) -> subprocess.CompletedProcess:
