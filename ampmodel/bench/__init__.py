@@ -33,8 +33,9 @@ Figures (the full set; ``quick`` runs the same measurements on small cases, for 
 * ``memory_estimate_ratio``: :func:`ampmodel.simulation.memory_estimate_bytes` against that measured peak
   (the guard that refuses too-large runs; target 1.0 to 1.3: never below the real peak);
 * ``figures_speedup``: writing the figures of a run (the rod at 96², two passes: the demo's set of
-  figures) and of a 2 x 2 sweep of it, drawn as before (one figure after another in this process, PNG
-  at zlib level 6, each figure cleared) against as now (forked worker processes on the cores this
-  process may use, zlib level 1; plots/drawing.py), wall time, interleaved (target >= 2.0);
+  figures) and of a 2 x 2 sweep of it, drawn as before (one figure after another in this process, a
+  canvas built for each, PNG at zlib level 6, each figure cleared) against as now (forked worker
+  processes on the cores this process may use, the sweep's figures on one shared canvas per process,
+  zlib level 1; plots/drawing.py, plots/sweep.py), wall time, interleaved (target >= 2.0);
 * ``startup_s``: wall time of ``ampmodel --help`` in a new process (target <= 0.5 s).
 """

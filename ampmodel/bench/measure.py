@@ -337,8 +337,9 @@ def _figure_cases(size: dict) -> tuple[Any, Any]:
 
 def measure_figures(size: dict, repeat: int) -> dict[str, Any]:
     """Wall time of writing a run's figures and a sweep's, drawn as before (one figure after another in
-    this process, PNG at zlib level 6, each figure cleared after writing) and as now (worker processes,
-    zlib level 1, left to the garbage collector), interleaved, best of
+    this process, a canvas built for each, PNG at zlib level 6, each figure cleared after writing) and as
+    now (worker processes, the sweep's figures of single summary figures on one shared canvas per
+    process, zlib level 1, left to the garbage collector), interleaved, best of
     ``repeat``, into fresh temporary folders."""
     import shutil
     import tempfile
@@ -356,8 +357,9 @@ def measure_figures(size: dict, repeat: int) -> dict[str, Any]:
                 folder = Path(tmp) / f"{how}{k}"
                 folder.mkdir()
 
-                def draw(folder=folder, kwargs=kwargs) -> int:
-                    jobs = figure_jobs(run, folder / "run") + sweep_jobs(sweep, "grid", folder / "sweep")
+                def draw(folder=folder, kwargs=kwargs, shared=how == "now_s") -> int:
+                    jobs = figure_jobs(run, folder / "run") + sweep_jobs(sweep, "grid", folder / "sweep",
+                                                                         shared=shared)
                     return len(draw_all(jobs, **kwargs))
                 (folder / "run").mkdir()
                 t, files = _time(draw)

@@ -20,12 +20,15 @@ more than a factor of 20 (swept values) or 100 (results) of positive values is l
 from __future__ import annotations
 
 import math
+import os
 import textwrap
+from dataclasses import dataclass
 from functools import partial
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
+from matplotlib.axes import Axes
 
 from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
@@ -238,34 +241,46 @@ def _groups(paths: Sequence[str], values: list[dict], x_path: str, axes: dict[st
     return out
 
 
-def _map(fig, ax, key: str, x_axis: _Axis, y_axis: _Axis, values: list[dict], y: np.ndarray,
-         label: str) -> None:
-    """A colour map of ``y`` over the grid of two swept paths: one cell of equal size per pair of values
-    (ticks name the values, so uneven or logarithmic steps never squeeze a cell), annotated when few."""
-    z = np.full((len(y_axis.levels), len(x_axis.levels)), np.nan)
-    for i, v in enumerate(values):
-        cx = x_axis.levels.index(v[x_axis.path] if x_axis.numeric else _text(v[x_axis.path]))
-        cy = y_axis.levels.index(v[y_axis.path] if y_axis.numeric else _text(v[y_axis.path]))
-        z[cy, cx] = y[i]
-    ny, nx = z.shape
-    mesh = ax.pcolormesh(np.arange(nx + 1) - 0.5, np.arange(ny + 1) - 0.5, z, shading="flat", cmap=MAP_CMAP)
-    fig.colorbar(mesh, ax=ax, label=label)
-    if z.size <= 48:
-        finite = z[np.isfinite(z)]
-        mid = 0.5 * (finite.min() + finite.max()) if finite.size else 0.0
+class _HeatMap:
+    """A colour map of a figure over the grid of two swept paths: one cell of equal size per pair of
+    values (ticks name the values, so uneven or logarithmic steps never squeeze a cell), cells annotated
+    when few. Built once (mesh, colour bar, cell labels); :meth:`show` puts a figure's values in."""
+
+    def __init__(self, fig, ax, x_axis: _Axis, y_axis: _Axis):
+        self.x_axis, self.y_axis = x_axis, y_axis
+        ny, nx = len(y_axis.levels), len(x_axis.levels)
+        self.mesh = ax.pcolormesh(np.arange(nx + 1) - 0.5, np.arange(ny + 1) - 0.5, np.zeros((ny, nx)),
+                                  shading="flat", cmap=MAP_CMAP)
+        self.bar = fig.colorbar(self.mesh, ax=ax)
         size = 8 if nx <= 6 else 7 if nx <= 8 else 6
-        for cy in range(ny):
-            for cx in range(nx):
-                if np.isfinite(z[cy, cx]):
-                    ax.text(cx, cy, f"{z[cy, cx]:.3g}", ha="center", va="center", fontsize=size,
-                            color="black" if z[cy, cx] > mid else "white")
-    for axis, swept, n in ((ax.xaxis, x_axis, nx), (ax.yaxis, y_axis, ny)):
-        axis.set_label_text(swept.label)
-        axis.set_ticks(range(n), [_level_text(swept, lv) for lv in swept.levels])
-    ax.set_xlim(-0.5, nx - 0.5)
-    ax.set_ylim(-0.5, ny - 0.5)
-    if nx > 6:
-        ax.tick_params(axis="x", labelrotation=40)
+        self.cells = [[ax.text(cx, cy, "", ha="center", va="center", fontsize=size) for cx in range(nx)]
+                      for cy in range(ny)] if nx * ny <= 48 else []
+        for axis, swept, n in ((ax.xaxis, x_axis, nx), (ax.yaxis, y_axis, ny)):
+            axis.set_label_text(swept.label)
+            axis.set_ticks(range(n), [_level_text(swept, lv) for lv in swept.levels])
+        ax.set_xlim(-0.5, nx - 0.5)
+        ax.set_ylim(-0.5, ny - 0.5)
+        if nx > 6:
+            ax.tick_params(axis="x", labelrotation=40)
+
+    def show(self, values: list[dict], y: np.ndarray, label: str) -> None:
+        xa, ya = self.x_axis, self.y_axis
+        z = np.full((len(ya.levels), len(xa.levels)), np.nan)
+        for i, v in enumerate(values):
+            cx = xa.levels.index(v[xa.path] if xa.numeric else _text(v[xa.path]))
+            cy = ya.levels.index(v[ya.path] if ya.numeric else _text(v[ya.path]))
+            z[cy, cx] = y[i]
+        finite = z[np.isfinite(z)]
+        self.mesh.set_array(np.ma.masked_invalid(z))
+        self.mesh.set_clim(float(finite.min()), float(finite.max())) if finite.size else None
+        self.bar.set_label(label)
+        mid = 0.5 * (finite.min() + finite.max()) if finite.size else 0.0
+        for cy, row in enumerate(self.cells):
+            for cx, text in enumerate(row):
+                ok = bool(np.isfinite(z[cy, cx]))
+                text.set_visible(ok)
+                text.set_text(f"{z[cy, cx]:.3g}" if ok else "")
+                text.set_color("black" if ok and z[cy, cx] > mid else "white")
 
 
 def _level_text(axis: _Axis, level: Any) -> str:
@@ -322,19 +337,95 @@ def plot_sweep(result, combine: str, folder: Path, limits: Any = None, workers: 
     return draw_all(sweep_jobs(result, combine, Path(folder), limits), workers)
 
 
-def sweep_jobs(result, combine: str, folder: Path, limits: Any = None) -> list[FigureJob]:
-    """The figures of a sweep as jobs (drawing.py), in the order :func:`plot_sweep` returns them."""
+@dataclass
+class _SweepView:
+    """What every figure of one sweep shares: the swept axes, the groups of points, the figures' values."""
+
+    result: Any
+    combine: str
+    limits: Any
+    axes: dict[str, _Axis]
+    x_path: str
+    others: list[str]
+    groups: list[tuple[str, list[int]]]
+    warned: np.ndarray
+    views: dict[str, tuple[np.ndarray, str, float, str]]
+
+    @property
+    def two_grid(self) -> bool:
+        return self.combine == "grid" and len(self.result.paths) == 2
+
+    @property
+    def along(self) -> str:
+        return f" ({_listing(self.others)} varying with it)" if self.combine == "zip" and self.others else ""
+
+    def panel(self, ax, key: str) -> None:
+        """One figure's curves, scale, label and limit lines on ``ax``."""
+        shown, label, scale, unit = self.views[key]
+        _curves(ax, key, self.axes[self.x_path], self.groups, self.result.values, shown, self.warned)
+        ax.set_ylabel(label)
+        if _log_axis(shown.tolist(), 100.0):
+            ax.set_yscale("log")
+        _lines(ax, limit_lines(key, self.result.summaries, self.limits), scale, shown, "y", unit)
+
+
+REUSABLE = hasattr(Axes, "_set_position")     # this matplotlib lets a canvas be shown again (_KeyCanvas)
+
+
+class _KeyCanvas:
+    """The figure of one summary figure against the swept values: built once (figure, axes, curves,
+    colour map, ticks) and shown again for each figure of the sweep, only what differs replaced (a
+    shared canvas). Every show draws the same image as a canvas built for that figure alone."""
+
+    def __init__(self, view: _SweepView):
+        self.view = view
+        self.fig = new_figure(12.0 if view.two_grid else 8.2, 4.4)      # room for the legend beside the axes
+        self.ax = self.fig.add_subplot(1, 2, 1) if view.two_grid else self.fig.add_subplot(1, 1, 1)
+        self.heat = _HeatMap(self.fig, self.fig.add_subplot(1, 2, 2), view.axes[view.x_path],
+                             view.axes[view.others[0]]) if view.two_grid else None
+        self.places = [(ax, ax.get_position(original=True), ax.get_position()) for ax in self.fig.axes]
+        self.shown = 0
+
+    def _clean(self) -> None:
+        """Back to the figure as built: the curves, limit lines and legend of the last figure removed, the
+        axes at their places before the layout (the colour map is updated in place)."""
+        for artist in (*self.ax.lines, *self.ax.texts):
+            artist.remove()
+        if self.ax.get_legend() is not None:
+            self.ax.get_legend().remove()
+        self.ax.set_yscale("linear")
+        self.ax.relim()
+        self.ax.set_autoscale_on(True)
+        for ax, original, active in self.places:       # where the layout started from when built (the public
+            ax._set_position(original, which="original")   # set_position would take the axes out of the layout)
+            ax._set_position(active, which="active")
+
+    def show(self, key: str, path: Path) -> Path:
+        v = self.view
+        if self.shown:
+            self._clean()
+        self.shown += 1
+        shown, label, _, _ = v.views[key]
+        v.panel(self.ax, key)
+        _legend(self.ax, v.groups, v.warned, v.axes, v.others, v.combine)
+        if self.heat is not None:
+            self.heat.show(v.result.values, shown, label)
+        title = f"{_human(key)} against {_listing([v.x_path] + v.others) if v.combine != 'zip' else v.x_path}"
+        self.fig.suptitle(_wrapped(title + v.along, self.fig), fontsize=10)
+        return save_png(self.fig, path)
+
+
+def sweep_jobs(result, combine: str, folder: Path, limits: Any = None, shared: bool = True) -> list[FigureJob]:
+    """The figures of a sweep as jobs (drawing.py), in the order :func:`plot_sweep` returns them.
+
+    ``shared``: the figures of single summary figures are drawn on one canvas per process, built once
+    (:class:`_KeyCanvas`); False builds a canvas for each (the benchmark's way of drawing as before)."""
     folder.mkdir(parents=True, exist_ok=True)
     paths, values, summaries = list(result.paths), result.values, result.summaries
     if not values:
         return []
     axes = {p: _Axis(p, [v[p] for v in values]) for p in paths}
     x_path = _choose_x(paths, axes, combine)
-    others = [p for p in paths if p != x_path]
-    groups = _groups(paths, values, x_path, axes, combine)
-    warned = np.array([bool(s and s.get("warnings")) for s in summaries])
-    two_grid = combine == "grid" and len(paths) == 2
-    along = f" ({_listing(others)} varying with it)" if combine == "zip" and others else ""
     views: dict[str, tuple[np.ndarray, str, float, str]] = {}
     for key in scalar_keys(summaries):
         if key in NOT_PLOTTED:
@@ -343,38 +434,30 @@ def sweep_jobs(result, combine: str, folder: Path, limits: Any = None) -> list[F
         if y is None or _echoes(key, y, values, paths):
             continue
         views[key] = _scalar_view(key, y)
-
-    def panel(ax, key: str) -> None:
-        shown, label, scale, _ = views[key]
-        _curves(ax, key, axes[x_path], groups, values, shown, warned)
-        ax.set_ylabel(label)
-        if _log_axis(shown.tolist(), 100.0):
-            ax.set_yscale("log")
-        _lines(ax, limit_lines(key, summaries, limits), scale, shown, "y", views[key][3])
+    view = _SweepView(result, combine, limits, axes, x_path, [p for p in paths if p != x_path],
+                      _groups(paths, values, x_path, axes, combine),
+                      np.array([bool(s and s.get("warnings")) for s in summaries]), views)
+    canvases: dict[int, _KeyCanvas] = {}        # one per process: a forked worker builds its own
 
     def one(key: str) -> Path:
-        shown, label, _, _ = views[key]
-        fig = new_figure(12.0 if two_grid else 8.2, 4.4)   # room for the legend beside the axes
-        ax = fig.add_subplot(1, 2, 1) if two_grid else fig.add_subplot(1, 1, 1)
-        panel(ax, key)
-        _legend(ax, groups, warned, axes, others, combine)
-        if two_grid:
-            _map(fig, fig.add_subplot(1, 2, 2), key, axes[x_path], axes[others[0]], values, shown, label)
-        fig.suptitle(_wrapped(f"{_human(key)} against {_listing([x_path] + others) if combine != 'zip' else x_path}"
-                              f"{along}", fig), fontsize=10)
-        return save_png(fig, folder / f"{key}.png")
+        if not shared or not REUSABLE:
+            return _KeyCanvas(view).show(key, folder / f"{key}.png")
+        canvas = canvases.get(os.getpid())
+        if canvas is None:
+            canvas = canvases[os.getpid()] = _KeyCanvas(view)
+        return canvas.show(key, folder / f"{key}.png")
 
     def overview(panels: list[str]) -> Path:
         rows, cols = (2, 2) if len(panels) == 4 else (1, len(panels))
         fig = new_figure((11.0 if cols == 2 else 5.2 * cols) + 3.0, 3.8 * rows + 0.4)   # the legend beside
         grid = [fig.add_subplot(rows, cols, n + 1) for n in range(len(panels))]
         for ax, key in zip(grid, panels, strict=True):
-            panel(ax, key)
-        _legend(grid[0], groups, warned, axes, others, combine, figure=fig, more=grid[1:])
-        fig.suptitle(_wrapped(f"{result.title or result.out.name}: sweep overview{along}", fig), fontsize=10)
+            view.panel(ax, key)
+        _legend(grid[0], view.groups, view.warned, axes, view.others, combine, figure=fig, more=grid[1:])
+        fig.suptitle(_wrapped(f"{result.title or result.out.name}: sweep overview{view.along}", fig), fontsize=10)
         return save_png(fig, folder / "overview.png")
 
-    jobs = [FigureJob(folder / f"{key}.png", partial(one, key), PANELS if two_grid else LIGHT) for key in views]
+    jobs = [FigureJob(folder / f"{key}.png", partial(one, key), PANELS if view.two_grid else LIGHT) for key in views]
     panels = [next(k for k in group if k in views) for group in OVERVIEW if any(k in views for k in group)]
     if len(panels) >= 2:
         jobs.append(FigureJob(folder / "overview.png", partial(overview, panels), float(len(panels))))

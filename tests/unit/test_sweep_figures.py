@@ -21,7 +21,8 @@ GAINS = [5.0, 9.0]
 def _summary(e: float, g: float) -> dict:
     out = e * g * 0.8
     return {"input_energy_J": 0.98 * e, "output_energy_J": out, "peak_fluence_J_cm2": 4 * out,
-            "b_integral_rad": 30 * out, "gain": 0.8 * g, "warnings": [],
+            "b_integral_rad": 30 * out, "lost_energy_J": e * e, "gain": 0.8 * g,   # lost energy: a log axis
+            "warnings": ["W"] if e > 0.03 and g > 6 else [],
             "steps": [{"index": 0, "damage_fluence_J_cm2": 8.0, "b_integral_rad": 10 * out},
                       {"index": 1, "damage_fluence_J_cm2": 6.0, "b_integral_rad": 20 * out}]}
 
@@ -129,3 +130,19 @@ def test_titles_and_legends_stay_inside_the_figure_and_off_the_data(tmp_path):
         assert legend is not None and _inside(fig, legend), job.path.name
         assert not _boxes_overlap(legend.get_window_extent(fig.canvas.get_renderer()),
                                   ax.get_window_extent(fig.canvas.get_renderer())), job.path.name
+
+
+@pytest.mark.parametrize("combine", ["grid", "zip"])
+def test_a_shared_canvas_draws_what_a_canvas_of_its_own_draws(tmp_path, combine):
+    """The sweep's figures on one canvas shown again for each (only what differs replaced) are the
+    same files, byte for byte, as each drawn on a canvas built for it alone."""
+    from ampmodel.plots.drawing import draw_all
+    sweep = _sweep(tmp_path)
+    if combine == "zip":
+        sweep.values = sweep.values[::2]
+        sweep.summaries = sweep.summaries[::2]
+    fresh = draw_all(sweep_jobs(sweep, combine, tmp_path / "fresh", Limits(), shared=False), workers=1)
+    shared = draw_all(sweep_jobs(sweep, combine, tmp_path / "shared", Limits(), shared=True), workers=1)
+    assert len(fresh) >= 4
+    for a, b in zip(fresh, shared, strict=True):
+        assert a.read_bytes() == b.read_bytes(), a.name
