@@ -15,6 +15,7 @@ jobs run one after another in the calling process, in order.
 """
 from __future__ import annotations
 
+import glob
 import os
 import signal
 import sys
@@ -23,6 +24,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Sequence
 
+from ampmodel.output.atomic import PART_SUFFIX
 from ampmodel.plots import common
 
 # Expected cost of a figure relative to a one-panel line plot (measured on the examples); only the
@@ -82,6 +84,13 @@ def _child(jobs: Sequence[FigureJob], queue: int, done: int) -> None:
         os._exit(code)
 
 
+def _remove_parts(jobs: Sequence[FigureJob]) -> None:
+    """Remove the temporary files a child killed while writing left beside the jobs' files."""
+    for job in jobs:
+        for part in Path(job.path).parent.glob(f".{glob.escape(Path(job.path).name)}.*{PART_SUFFIX}"):
+            part.unlink(missing_ok=True)
+
+
 def draw_all(jobs: Sequence[FigureJob], workers: int | None = None,
              writing: common.PngWriting | None = None) -> list[Path]:
     """Draw every job; return the paths written, in the jobs' order.
@@ -139,6 +148,7 @@ def draw_all(jobs: Sequence[FigureJob], workers: int | None = None,
                 os.waitpid(pid, 0)
             except OSError:
                 pass
+        _remove_parts(jobs)
         raise
     finally:
         for fd in (queue, done_r, done_w):

@@ -95,3 +95,23 @@ def test_writing_as_before_uses_level_6_and_clears(tmp_path):
     draw_all([FigureJob(tmp_path / "a.png", job)], workers=1)
     assert figs[1].axes
 
+
+
+@FORK
+def test_an_interrupted_drawing_leaves_no_partial_files(tmp_path):
+    import time
+    parent = os.getpid()
+
+    def job(k: int) -> Path:
+        if os.getpid() == parent:                    # Ctrl-C here while a worker is writing
+            time.sleep(0.5)
+            raise KeyboardInterrupt
+        part = tmp_path / f".f{k}.png.x{k}.part"     # as a worker killed while writing leaves it
+        part.write_bytes(b"partial")
+        time.sleep(30)
+        return part
+
+    jobs = [FigureJob(tmp_path / f"f{k}.png", lambda k=k: job(k)) for k in range(2)]
+    with pytest.raises(KeyboardInterrupt):
+        draw_all(jobs, workers=2)
+    assert not list(tmp_path.iterdir())
