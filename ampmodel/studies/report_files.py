@@ -100,7 +100,8 @@ def _figures(d: Path) -> tuple[list[tuple[str, bytes]], bool]:
     plots = d / "plots"
     if not plots.is_dir():
         return [], False
-    return [(p.name, p.read_bytes()) for p in sorted(plots.glob("*.png")) if not p.name.startswith(".")], True
+    pngs = sorted(plots.glob("*.png"), key=lambda p: (p.name != "overview.png", p.name))    # the overview first
+    return [(p.name, p.read_bytes()) for p in pngs if not p.name.startswith(".")], True
 
 
 def _stamp(path: Path) -> str:
@@ -146,11 +147,10 @@ def _points_data(d: Path, kind: str) -> ReportData:
 
 
 def _config_title(text: str) -> str:
-    import tomllib
-    try:
-        return str(tomllib.loads(text).get("title", ""))
-    except (tomllib.TOMLDecodeError, TypeError):
-        return ""
+    from ampmodel.config.checks import Problems
+    from ampmodel.config.text import parse_toml
+    parsed = parse_toml(text, Problems("config")) if text else None
+    return str(parsed.get("title", "")) if isinstance(parsed, dict) else ""
 
 
 def _fit_data(d: Path) -> ReportData:
@@ -189,3 +189,32 @@ def write_report(folder: str | os.PathLike, out: str | os.PathLike | None = None
     target = Path(out) if out is not None else Path(folder) / REPORT
     write_text(target, report_text(folder))
     return target
+
+
+def rebuild(folder: str | os.PathLike, out: str | os.PathLike | None = None) -> Path:
+    """``ampmodel report DIR [--out FILE]``: write the report of ``folder`` again; return its path.
+
+    Only report.html is replaced (or ``out`` written, which must not exist yet).
+
+    Raises
+    ------
+    ConfigError : ``folder`` is not a result folder, or ``out`` exists or lies in no folder; nothing
+        is written then
+    """
+    from ampmodel.config.checks import ConfigError
+    problems = []
+    try:
+        folder_kind(folder)
+    except NotAResultFolder as exc:
+        problems.append(f"ampmodel report: {exc}")
+    if out is not None:
+        target = Path(out)
+        if os.path.lexists(target):
+            problems.append(f"--out {target}: exists; the report never overwrites a file: give a new file name, or "
+                            f"leave --out out to replace {Path(folder) / REPORT}")
+        elif not target.parent.is_dir():
+            problems.append(f"--out {target}: the folder {target.parent} does not exist: create it or give another "
+                            f"path")
+    if problems:
+        raise ConfigError(problems)
+    return write_report(folder, out)
