@@ -160,7 +160,7 @@ def _load(path: str, overrides: list[str]):
 def cmd_run(args) -> int:
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.simulation import check_memory, simulate
-    from ampmodel.studies.report_files import write_report
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     config = _load(args.config, args.overrides)
     check_memory(config)                       # a grid too large: refused before anything is made
     for table, command in (("sweep", "sweep"), ("spread", "spread")):
@@ -171,11 +171,12 @@ def cmd_run(args) -> int:
     with partial_folder(base) as tmp:          # before the computation: an unwritable place fails now
         result = simulate(config, progress=False if args.quiet else None)
         result.save(tmp, plots=not args.no_plots)
-        write_report(tmp)
+        page = write_report(tmp)
         out = claim(tmp, base)
     print(f"ampmodel run: {config.title}")
     print("\n".join(run_report_lines(result.summary)))
-    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/" if not args.no_plots else "") + ", report.html)")
+    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/" if not args.no_plots else "") +
+          (", report.html)" if page else ")"))
     return EXIT_OK
 
 
@@ -195,7 +196,8 @@ def cmd_rerun(args) -> int:
               f"(the rerun uses the {report.used} data):")
         for line in lines:
             print(f"  {line}")
-    print(f"wrote {report.out}/ (result.h5, summary.json, rerun.json" + (", plots/)" if not args.no_plots else ")"))
+    print(f"wrote {report.out}/ (result.h5, summary.json, rerun.json" + (", plots/" if not args.no_plots else "") +
+          (", report.html)" if (report.out / "report.html").is_file() else ")"))
     if report.matched:
         print(f"the figures match: {report.compared} compared, within a relative {report.rtol:g} "
               f"(round-off figures such as energy_balance_error within {report.rtol:g} absolute)")
@@ -320,7 +322,7 @@ def cmd_size(args) -> int:
 
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.report import print_sizing
-    from ampmodel.studies.report_files import write_report
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     from ampmodel.studies.sizing import RTOL, plan_sizing, run_sizing
     # every option checked before anything is made: all bad ones at once
     plan = plan_sizing(args.config, args.target, args.vary, args.within, args.limits, overrides=args.overrides,
@@ -336,10 +338,10 @@ def cmd_size(args) -> int:
             write_json(result.as_dict(), tmp / "size.json")
             if result.result is not None:
                 result.result.save(tmp, plots=True)
-            write_report(tmp)
+            page = write_report(tmp)
             out = claim(tmp, base)
             print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/" if result.result else "") +
-                  ", report.html)")
+                  (", report.html)" if page else ")"))
     return code
 
 
@@ -351,7 +353,7 @@ def cmd_fit(args) -> int:
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.fitting import plan_fit, run_fit
     from ampmodel.studies.report import print_fit
-    from ampmodel.studies.report_files import write_report
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     from ampmodel.studies.sweeps import default_folder
     # every option checked before anything is made or run: all bad ones at once
     plan = plan_fit(args.config, args.data, args.vary, overrides=args.overrides,
@@ -363,9 +365,9 @@ def cmd_fit(args) -> int:
                          progress=not args.quiet)
         code = print_fit(result)
         result.save(tmp, plots=not args.no_plots)
-        write_report(tmp)
+        page = write_report(tmp)
         out = claim(tmp, base)
-    print(f"wrote {out}/ (fit.json" + (", plots/" if not args.no_plots else "") + ", report.html)")
+    print(f"wrote {out}/ (fit.json" + (", plots/" if not args.no_plots else "") + (", report.html)" if page else ")"))
     return code
 
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import os
+import sys
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -189,6 +190,26 @@ def write_report(folder: str | os.PathLike, out: str | os.PathLike | None = None
     target = Path(out) if out is not None else Path(folder) / REPORT
     write_text(target, report_text(folder))
     return target
+
+
+def write_report_keeping_results(folder: str | os.PathLike) -> bool:
+    """Write ``folder/report.html`` at the end of a command; return whether it was written.
+
+    The report is derived: a page that cannot be built (a fault of ampmodel) must not cost the results
+    it describes. Such a fault is said on stderr, with the command that builds the page again, and the
+    command goes on; an output that cannot be written (a full disk, no permission) is raised as for
+    any other file of the folder."""
+    from ampmodel.output.atomic import is_write_error
+    try:
+        write_report(folder)
+        return True
+    except Exception as exc:  # noqa: BLE001 - any fault of the page; the results stay
+        if is_write_error(exc):
+            raise
+        print(f"ampmodel: internal error while building report.html ({type(exc).__name__}: {exc}); the results "
+              f"are kept (please report it with the folder); `ampmodel report DIR` builds the page again",
+              file=sys.stderr)
+        return False
 
 
 def rebuild(folder: str | os.PathLike, out: str | os.PathLike | None = None) -> Path:

@@ -64,7 +64,7 @@ from ampmodel.studies.figures import (
     parse_limit,
     with_figures,
 )
-from ampmodel.studies.report_files import REPORT, write_report
+from ampmodel.studies.report_files import REPORT, write_report_keeping_results
 from ampmodel.studies.sweeps import PREFLIGHT_TIMEOUT_S, SweepResult, default_folder, load_with_table, run_points
 from ampmodel.studies.tolerances import SENSITIVITY_METHOD, sensitivity, yield_table
 from ampmodel.units import unit_of
@@ -244,7 +244,7 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
             keys = [k for k in KEY_FIGURES if k in result.sensitivity] + [k for k in shown if k in result.sensitivity]
             result.plots += plot_sensitivity(result.sensitivity, list(dict.fromkeys(keys)), out / "plots",
                                              base.title, len(run.values) - len(run.failed))
-        write_report(out)                   # after the statistics and the plots: it shows them
+        write_report_keeping_results(out)   # after the statistics and the plots: it shows them
         box["result"] = result
 
     run_points("spread", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,

@@ -148,3 +148,23 @@ def test_a_sweep_with_a_failed_point_marks_it(tmp_path):
     assert re.search(r'<tr class="failed"><td class="num">0000</td><td class="num">2</td>', page)
     assert "1 of 2 points failed" in page and "points/0001.h5" in page
     assert "the figures were not drawn (--no-plots)" in page
+
+
+def test_a_report_that_cannot_be_built_costs_no_results(tmp_path, monkeypatch, capsys):
+    from ampmodel import cli
+    from ampmodel.studies import report_files
+
+    def broken(*args, **kwargs):
+        raise RuntimeError("a fault of the page")
+
+    monkeypatch.setattr(report_files, "build_html", broken)
+    out = tmp_path / "kept"
+    code = cli.main(["run", str(ROOT / "configs" / "single_pass_rod.toml"), "--out", str(out), "--quiet",
+                     "--no-plots", *SMALL])
+    printed = capsys.readouterr()
+    assert code == 0
+    assert (out / "result.h5").is_file() and (out / "summary.json").is_file() and not (out / "report.html").exists()
+    assert "internal error while building report.html (RuntimeError: a fault of the page)" in printed.err
+    assert "`ampmodel report DIR` builds the page again" in printed.err
+    assert f"wrote {out}/ (result.h5, summary.json)" in printed.out
+    assert not list(out.glob(".*"))                                  # no partial file left
