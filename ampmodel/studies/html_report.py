@@ -181,8 +181,9 @@ def figure_title(file_name: str) -> str:
                           ("round_trips_step", "round trips of step ")):
         if stem.startswith(prefix):
             return words + _figure_words(stem[len(prefix):])
-    if stem.startswith("fibre_"):
-        return "fibre " + stem[len("fibre_"):].replace("_", " ")
+    if stem.startswith("fibre_") and stem.endswith(("_powers", "_ase")):
+        name, what = stem[len("fibre_"):].rsplit("_", 1)
+        return f"{'powers along' if what == 'powers' else 'ASE spectra of'} fibre {name}"
     return _figure_words(stem)
 
 
@@ -206,7 +207,7 @@ _HEADLINES: tuple[tuple[str, str, str], ...] = (
     ("stored_energy_J", "stored energy before the pulse", "J"), ("absorbed_pump_power_W", "absorbed pump power", "W"),
     ("output_peak_power_W", "output peak power", "W"), ("output_duration_ns", "output pulse FWHM, ns", ".4g"),
     ("peak_fluence_J_cm2", "peak fluence, J/cm²", ".3g"), ("peak_intensity_W_cm2", "peak intensity, W/cm²", ".3g"),
-    ("b_integral_rad", "B-integral, rad", ".3g"), ("b_integral_margin", "B-integral over its budget", ".2g"),
+    ("b_integral_rad", "B-integral, rad", ".3g"), ("b_integral_margin", "B-integral as a fraction of its budget", ".2g"),
     ("energy_balance_error", "energy balance error", ".1e"), ("power_balance_error", "power balance error", ".1e"),
 )
 

@@ -177,6 +177,8 @@ def test_an_unknown_kind_is_refused():
                                          ("output_energy_J.png", "output energy (J)"),
                                          ("hist_peak_fluence_J_cm2.png", "histogram of peak fluence (J/cm²)"),
                                          ("fluence_maps.png", "fluence maps at the steps"),
+                                         ("fibre_pre_amp_powers.png", "powers along fibre pre_amp"),
+                                         ("fibre_power_ase.png", "ASE spectra of fibre power"),
                                          ("steps.0.gain.png", "steps 0 gain")])
 def test_figure_titles(name, words):
     assert figure_title(name) == words
