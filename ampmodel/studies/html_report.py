@@ -21,6 +21,7 @@ from ampmodel.materials.registry import material_lines
 from ampmodel.output.summary import is_number
 from ampmodel.output.tables import fibre_lines, media_lines, quantity_text, seed_from_line, table_lines
 from ampmodel.safety import SAFETY_NOTE
+from ampmodel.studies.report import limit_state
 
 KINDS = ("run", "sweep", "spread", "size", "fit")
 KIND_WORDS = {"run": "run", "sweep": "parameter sweep", "spread": "tolerance run", "size": "sizing",
@@ -450,11 +451,12 @@ def _size_section(size: Mapping[str, Any]) -> str:
             ["target", f"{size.get('target_figure')} = {_num(size.get('target'))}"],
             ["value found", _num(size.get("value"), 10)], ["runs", str(size.get("runs"))]]
     margins = [[m["figure"], m["op"], _num(m["limit"]), _num(m["value"], 6), _num(m["margin"], 4),
-                _pct(m.get("relative_margin"))] for m in size.get("margins") or []]
+                _pct(m.get("relative_margin")), limit_state(m)] for m in size.get("margins") or []]
     body = f"<p>{_e(size.get('message', ''))}</p>\n" + _table(["", ""], rows)
     if margins:
-        body += "\n<h3>Limits at the answer</h3>\n" + _table(["figure", "", "limit", "value", "margin", "of the limit"],
-                                                             margins, numeric=[False, False, True, True, True, True])
+        body += "\n<h3>Limits at the answer</h3>\n" + _table(
+            ["figure", "", "limit", "value", "margin", "of the limit", "state"], margins,
+            numeric=[False, False, True, True, True, True, False])
     return _section("Sizing", body, "sizing")
 
 

@@ -199,16 +199,20 @@ def print_sizing(result) -> int:
         if result.margins:
             print("limits:")
             for m in result.margins:
-                tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
-                state = "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
                 print(f"  {m['figure']} {m['op']} {m['limit']:g}: {m['value']:.6g}, margin {m['margin']:.4g} "
-                      f"({100 * m['relative_margin']:.1f} % of the limit), {state}")
+                      f"({100 * m['relative_margin']:.1f} % of the limit), {limit_state(m)}")
         if s.get("warnings"):
             print("warnings there:")
             for w in s["warnings"]:
                 print(f"  - {w}")
         _safety()
     return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION
+
+
+def limit_state(m: dict) -> str:
+    """A limit at a sizing's answer in words: met (binding) within a millionth of the limit, holds, or CROSSED."""
+    tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
+    return "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
 
 
 def print_fit(result) -> int:
