@@ -86,6 +86,10 @@ def _parser() -> argparse.ArgumentParser:
     e.add_argument("--quiet", action="store_true", help="no progress bar")
     _size_parser(sub)
     _fit_parser(sub)
+    rp = sub.add_parser("report", help="write report.html of a run, sweep, spread, size or fit folder again from "
+                                       "its stored results")
+    rp.add_argument("folder", metavar="DIR", help="the folder a run, sweep, spread, size --out or fit wrote")
+    rp.add_argument("--out", metavar="FILE", help="write the page to FILE instead (never overwritten)")
     return p
 
 
@@ -156,6 +160,7 @@ def _load(path: str, overrides: list[str]):
 def cmd_run(args) -> int:
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.simulation import check_memory, simulate
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     config = _load(args.config, args.overrides)
     check_memory(config)                       # a grid too large: refused before anything is made
     for table, command in (("sweep", "sweep"), ("spread", "spread")):
@@ -166,10 +171,12 @@ def cmd_run(args) -> int:
     with partial_folder(base) as tmp:          # before the computation: an unwritable place fails now
         result = simulate(config, progress=False if args.quiet else None)
         result.save(tmp, plots=not args.no_plots)
+        page = write_report(tmp)
         out = claim(tmp, base)
     print(f"ampmodel run: {config.title}")
     print("\n".join(run_report_lines(result.summary)))
-    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/)" if not args.no_plots else ")"))
+    print(f"wrote {out}/ (result.h5, summary.json" + (", plots/" if not args.no_plots else "") +
+          (", report.html)" if page else ")"))
     return EXIT_OK
 
 
@@ -189,7 +196,8 @@ def cmd_rerun(args) -> int:
               f"(the rerun uses the {report.used} data):")
         for line in lines:
             print(f"  {line}")
-    print(f"wrote {report.out}/ (result.h5, summary.json, rerun.json" + (", plots/)" if not args.no_plots else ")"))
+    print(f"wrote {report.out}/ (result.h5, summary.json, rerun.json" + (", plots/" if not args.no_plots else "") +
+          (", report.html)" if (report.out / "report.html").is_file() else ")"))
     if report.matched:
         print(f"the figures match: {report.compared} compared, within a relative {report.rtol:g} "
               f"(round-off figures such as energy_balance_error within {report.rtol:g} absolute)")
@@ -208,10 +216,11 @@ def cmd_check(args) -> int:
     from ampmodel.config.checks import ConfigError
     from ampmodel.media import gain_maps
     from ampmodel.simulation import check_memory
+    from ampmodel.studies.report import check_lines
     config = _load(args.config, args.overrides)
     need = check_memory(config)
     try:
-        lines = _check_lines(config)
+        lines = check_lines(config)
     except gain_maps.GainMapError as exc:
         raise ConfigError([f"{config.source}: {exc}"]) from None
     nm, ns = len(config.media), len(config.steps)
@@ -225,39 +234,6 @@ def cmd_check(args) -> int:
     if config.seed.beam is not None:           # a chained stage: where its seed comes from
         print(f"  {seed_from_line(config.seed.beam.origin)}")
     return EXIT_OK
-
-
-def _check_lines(config) -> list[str]:
-    """What `check` says of each medium: its small-signal gain (and stored energy or absorbed pump)."""
-    from ampmodel.kernels import beam_shapes
-    from ampmodel.media import gain_maps
-    if any(m.kind == "fibre" for m in config.media):
-        from ampmodel.fibre.run import describe_fibres
-        return list(describe_fibres(config))
-    x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
-    lines = []
-    if config.mode == "cw":
-        from ampmodel.cw.medium import build_medium
-        for m in config.media:
-            st = build_medium(m, x, x, config.solver, config.seed.wavelength_m)
-            g = st.coarse(st.g0)
-            line = (f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-                    f"{gain_maps.on_axis_gain(g, m.length_m / m.slices):.4g}")
-            if st.pump_field is not None:
-                absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
-                line += f", absorbed pump {quantity_text(absorbed, 'W')} of {quantity_text(st.pump.power_W, 'W')} (no signal)"
-            lines.append(line)
-        return lines
-    from ampmodel.pulsed.measured import describe
-    lines.extend(describe(config))              # a measured pulse or spectrum
-    for m in config.media:
-        gm = gain_maps.gain_map(m, x, x)
-        stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
-                                         gm.slice_length_m * (x[1] - x[0]) ** 2)
-        lines.append(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
-                     f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy "
-                     f"{quantity_text(stored, 'J')}")
-    return lines
 
 
 def cmd_media(args) -> int:
@@ -346,6 +322,7 @@ def cmd_size(args) -> int:
 
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.report import print_sizing
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     from ampmodel.studies.sizing import RTOL, plan_sizing, run_sizing
     # every option checked before anything is made: all bad ones at once
     plan = plan_sizing(args.config, args.target, args.vary, args.within, args.limits, overrides=args.overrides,
@@ -361,8 +338,10 @@ def cmd_size(args) -> int:
             write_json(result.as_dict(), tmp / "size.json")
             if result.result is not None:
                 result.result.save(tmp, plots=True)
+            page = write_report(tmp)
             out = claim(tmp, base)
-            print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/)" if result.result else ")"))
+            print(f"wrote {out}/ (size.json" + (", result.h5, summary.json, plots/" if result.result else "") +
+                  (", report.html)" if page else ")"))
     return code
 
 
@@ -374,6 +353,7 @@ def cmd_fit(args) -> int:
     from ampmodel.output.run_folder import claim, partial_folder
     from ampmodel.studies.fitting import plan_fit, run_fit
     from ampmodel.studies.report import print_fit
+    from ampmodel.studies.report_files import write_report_keeping_results as write_report
     from ampmodel.studies.sweeps import default_folder
     # every option checked before anything is made or run: all bad ones at once
     plan = plan_fit(args.config, args.data, args.vary, overrides=args.overrides,
@@ -385,14 +365,20 @@ def cmd_fit(args) -> int:
                          progress=not args.quiet)
         code = print_fit(result)
         result.save(tmp, plots=not args.no_plots)
+        page = write_report(tmp)
         out = claim(tmp, base)
-    print(f"wrote {out}/ (fit.json" + (", plots/)" if not args.no_plots else ")"))
+    print(f"wrote {out}/ (fit.json" + (", plots/" if not args.no_plots else "") + (", report.html)" if page else ")"))
     return code
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench,
-            "sweep": cmd_sweep, "spread": cmd_spread, "size": cmd_size, "rerun": cmd_rerun,
-            "fit": cmd_fit}
+def cmd_report(args) -> int:
+    from ampmodel.studies.report_files import rebuild
+    print(f"wrote {rebuild(args.folder, args.out)}")
+    return EXIT_OK
+
+
+COMMANDS = {"run": cmd_run, "check": cmd_check, "media": cmd_media, "bench": cmd_bench, "sweep": cmd_sweep,
+            "spread": cmd_spread, "size": cmd_size, "rerun": cmd_rerun, "fit": cmd_fit, "report": cmd_report}
 
 
 _MAIN_PID = os.getpid()

@@ -238,28 +238,35 @@ def table_text(selected: list[str] | None = None) -> str:
     saturation intensity Fsat/tau in W/cm² (Frantz & Nodvik, J. Appl. Phys. 34, 2346 (1963)). Lines
     are at most 100 characters wide.
     """
-    key_width = max(len(key) for key in MATERIAL_KEYS)
     lines: list[str] = []
     for name in (names() if selected is None else [get(n).name for n in selected]):
-        material = _load_all()[name]
-        kind = "quasi-three-level" if material.quasi_three_level else "four-level"
-        lines.append(f"{material.name}  ({kind}, {material.broadening} broadening)")
-        if material.description:
-            lines.extend(_wrapped("", material.description, 2))
-        for key, value in config_values(material).items():
-            lines.append(f"  {key:<{key_width}}  {_format_value(value)}")
-            lines.extend(_wrapped("source: ", material.sources.get(key, "(none)"), 6))
-            if key in material.notes:
-                lines.extend(_wrapped("range: ", material.notes[key], 6))
-        if material.spectrum is not None:
-            sp = material.spectrum
-            lines.append(f"  {'cross-section spectrum':<{key_width}}  {len(sp.wavelength_m)} points, {sp.range_nm}")
-            lines.extend(_wrapped("source: ", sp.source, 6))
-        fsat_J_cm2 = material.saturation_fluence_J_m2 / 1e4
-        isat_W_cm2 = material.saturation_intensity_W_m2 / 1e4
-        lines.append(f"  {'saturation fluence, J/cm2':<{key_width}}  {_format_value(fsat_J_cm2)}"
-                     "   (derived: h·nu/(sigma_e + sigma_a))")
-        lines.append(f"  {'saturation intensity, W/cm2':<{key_width}}  {_format_value(isat_W_cm2)}"
-                     "   (derived: Fsat/tau)")
+        lines += material_lines(_load_all()[name])
         lines.append("")
     return "\n".join(lines).rstrip() + "\n"
+
+
+def material_lines(material: Material) -> list[str]:
+    """One material as lines of text: its kind, description, every value in config units with its
+    source (and plausible range), the spectrum, and the derived saturation fluence and intensity.
+    ``table_text`` prints these for built-in materials; a run's report for the material data it used."""
+    key_width = max(len(key) for key in MATERIAL_KEYS)
+    kind = "quasi-three-level" if material.quasi_three_level else "four-level"
+    lines = [f"{material.name}  ({kind}, {material.broadening} broadening)"]
+    if material.description:
+        lines.extend(_wrapped("", material.description, 2))
+    for key, value in config_values(material).items():
+        lines.append(f"  {key:<{key_width}}  {_format_value(value)}")
+        lines.extend(_wrapped("source: ", material.sources.get(key, "(none)"), 6))
+        if key in material.notes:
+            lines.extend(_wrapped("range: ", material.notes[key], 6))
+    if material.spectrum is not None:
+        sp = material.spectrum
+        lines.append(f"  {'cross-section spectrum':<{key_width}}  {len(sp.wavelength_m)} points, {sp.range_nm}")
+        lines.extend(_wrapped("source: ", sp.source, 6))
+    fsat_J_cm2 = material.saturation_fluence_J_m2 / 1e4
+    isat_W_cm2 = material.saturation_intensity_W_m2 / 1e4
+    lines.append(f"  {'saturation fluence, J/cm2':<{key_width}}  {_format_value(fsat_J_cm2)}"
+                 "   (derived: h·nu/(sigma_e + sigma_a))")
+    lines.append(f"  {'saturation intensity, W/cm2':<{key_width}}  {_format_value(isat_W_cm2)}"
+                 "   (derived: Fsat/tau)")
+    return lines

@@ -1,7 +1,8 @@
 """Writing files so that no file ever looks complete when it is not.
 
 Every output file of ampmodel (result.h5, summary.json, plots, point files, sweep.h5, sweep.csv,
-manifest.json, spread.json, spread.csv, size.json, rerun.json) is written through :func:`target`:
+manifest.json, spread.json, spread.csv, size.json, rerun.json, report.html) is written through
+:func:`target`:
 
 1. the data go to a temporary file in the same folder, named ``.<name>.<random>.part`` (hidden, and
    marked partial by its suffix);

@@ -1,4 +1,5 @@
-"""What ``ampmodel sweep``, ``spread`` and ``size`` print, and their exit codes (the CLI stays thin)."""
+"""What ``ampmodel check``, ``sweep``, ``spread``, ``size`` and ``fit`` print, and their exit codes (the CLI stays
+thin)."""
 from __future__ import annotations
 
 import re
@@ -7,6 +8,7 @@ from typing import Any, Sequence
 
 from ampmodel.config.checks import show
 from ampmodel.output.summary import is_number, scalar_keys
+from ampmodel.output.tables import quantity_text
 from ampmodel.safety import SAFETY_NOTE
 from ampmodel.studies.figures import with_figures
 
@@ -113,6 +115,8 @@ def _files(result, extra: Sequence[str] = ()) -> None:
     names = [result.table_h5.name, result.table_csv.name, *extra, "points/"]
     if result.plots:
         names.append(f"plots/ ({len(result.plots)} PNG)")
+    if (result.out / "report.html").is_file():
+        names.append("report.html")
     print(f"wrote {result.out}/ ({', '.join(names)})")
 
 
@@ -195,16 +199,20 @@ def print_sizing(result) -> int:
         if result.margins:
             print("limits:")
             for m in result.margins:
-                tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
-                state = "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
                 print(f"  {m['figure']} {m['op']} {m['limit']:g}: {m['value']:.6g}, margin {m['margin']:.4g} "
-                      f"({100 * m['relative_margin']:.1f} % of the limit), {state}")
+                      f"({100 * m['relative_margin']:.1f} % of the limit), {limit_state(m)}")
         if s.get("warnings"):
             print("warnings there:")
             for w in s["warnings"]:
                 print(f"  - {w}")
         _safety()
     return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION
+
+
+def limit_state(m: dict) -> str:
+    """A limit at a sizing's answer in words: met (binding) within a millionth of the limit, holds, or CROSSED."""
+    tiny = 1e-6 * max(abs(m["limit"]), 1e-300)
+    return "met (binding)" if abs(m["margin"]) <= tiny else "holds" if m["margin"] > 0 else "CROSSED"
 
 
 def print_fit(result) -> int:
@@ -230,3 +238,36 @@ def print_fit(result) -> int:
     if len(result.points) > MAX_ROWS:
         print(f"... {len(result.points) - MAX_ROWS} more rows (fit.json lists them all)")
     return EXIT_OK if result.status == "ok" else EXIT_NO_SOLUTION
+
+
+def check_lines(config) -> list[str]:
+    """What `check` says of each medium: its small-signal gain (and stored energy or absorbed pump)."""
+    from ampmodel.kernels import beam_shapes
+    from ampmodel.media import gain_maps
+    if any(m.kind == "fibre" for m in config.media):
+        from ampmodel.fibre.run import describe_fibres
+        return list(describe_fibres(config))
+    x = beam_shapes.pixel_centres(config.grid.points, config.grid.width_m)
+    lines = []
+    if config.mode == "cw":
+        from ampmodel.cw.medium import build_medium
+        for m in config.media:
+            st = build_medium(m, x, x, config.solver, config.seed.wavelength_m)
+            g = st.coarse(st.g0)
+            line = (f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
+                    f"{gain_maps.on_axis_gain(g, m.length_m / m.slices):.4g}")
+            if st.pump_field is not None:
+                absorbed = st.pump_field.absorbed.sum() * (x[1] - x[0]) ** 2 * st.pump.photon_energy_J
+                line += f", absorbed pump {quantity_text(absorbed, 'W')} of {quantity_text(st.pump.power_W, 'W')} (no signal)"
+            lines.append(line)
+        return lines
+    from ampmodel.pulsed.measured import describe
+    lines.extend(describe(config))              # a measured pulse or spectrum
+    for m in config.media:
+        gm = gain_maps.gain_map(m, x, x)
+        stored = gain_maps.stored_energy_J(gm.gain_per_m, m.material.saturation_fluence_J_m2,
+                                         gm.slice_length_m * (x[1] - x[0]) ** 2)
+        lines.append(f"  medium {m.name} ({m.material.name}): on-axis small-signal gain "
+                     f"{gain_maps.on_axis_gain(gm.gain_per_m, gm.slice_length_m):.4g}, stored energy "
+                     f"{quantity_text(stored, 'J')}")
+    return lines

@@ -42,6 +42,7 @@ from ampmodel.output.atomic import write_json
 from ampmodel.output.hdf5 import read_provenance
 from ampmodel.output.run_folder import claim, partial_folder
 from ampmodel.output.summary import DEFAULT_RTOL, Difference, compare_summaries, plain
+from ampmodel.studies.report_files import write_report_keeping_results
 
 
 @dataclass
@@ -264,5 +265,6 @@ def rerun(path: str | os.PathLike, out: str | os.PathLike | None = None, *, rtol
         report.compared, report.differences = compare_summaries(stored["summary"], plain(result.summary), rtol)
         result.save(tmp, plots=plots)
         write_json(report.as_dict(), tmp / "rerun.json")
+        write_report_keeping_results(tmp)         # the new run's page (a run folder with its rerun.json)
         report.out = claim(tmp, base)
     return report, result

@@ -65,6 +65,7 @@ from ampmodel.studies.figures import (
     parse_limit,
     with_figures,
 )
+from ampmodel.studies.report_files import REPORT, write_report_keeping_results
 from ampmodel.studies.sweeps import PREFLIGHT_TIMEOUT_S, SweepResult, default_folder, load_with_table, run_points
 from ampmodel.studies.tolerances import SENSITIVITY_METHOD, sensitivity, yield_table
 from ampmodel.units import unit_of
@@ -247,10 +248,11 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
                                        out / "plots", base.title, len(run.values) - len(run.failed))
             jobs.append(FigureJob(out / "plots" / "sensitivity.png", ranked, PANELS))
             result.plots = [p for p in draw_all(jobs) if p.exists()]
+        write_report_keeping_results(out)   # after the statistics and the plots: it shows them
         box["result"] = result
 
     run_points("spread", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                progress=progress, timeout_s=timeout_s, table_stem="samples",
                table_attrs={"random_seed": seed, "samples": samples}, manifest_table=table, finish=finish,
-               derived=("spread.json", "spread.csv"), first_check=figure_check(named, base.source) if named else None)
+               derived=("spread.json", "spread.csv", REPORT), first_check=figure_check(named, base.source) if named else None)
     return box["result"]

@@ -50,6 +50,7 @@ from ampmodel.studies.points import (
     run_point,
     sweep_points,
 )
+from ampmodel.studies.report_files import REPORT, write_report_keeping_results
 
 __all__ = ["run_sweep", "SweepResult", "sweep_points", "run_points", "time_sweep", "BackendError",
            "FolderError"]
@@ -424,10 +425,11 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
             from ampmodel.plots.sweep import plot_sweep
             shown = dataclasses.replace(result, summaries=with_figures(result.summaries, figures))
             result.plots = plot_sweep(shown, combine, out / "plots", limits=base.limits)
+        write_report_keeping_results(out)   # after the plots: it embeds them
 
     return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                       progress=progress, timeout_s=timeout_s, table_stem="sweep",
-                      table_attrs={"combine": combine}, manifest_table=table, finish=finish,
+                      table_attrs={"combine": combine}, manifest_table=table, finish=finish, derived=(REPORT,),
                       first_check=figure_check(named, base.source) if named else None)
 
 

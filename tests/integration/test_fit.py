@@ -128,6 +128,11 @@ def test_noise_free_data_give_g0_and_transmission_through_the_command_line(flat,
     assert fit["data"] == data.read_text() and "[[step]]" in fit["config"]     # the fit can be repeated
     assert (out / "plots" / "fit_output_energy_J.png").stat().st_size > 5000
     assert "medium.rod.small_signal_gain" in proc.stdout and "std error" in proc.stdout
+    page = (out / "report.html").read_text(encoding="utf-8")          # the report: values, errors, rms, figure
+    for path in ("medium.rod.small_signal_gain", "step.1.transmission"):
+        assert f"<td>{path}</td><td class=\"num\">{fit['values'][path]:.8g}</td>" in page
+    assert f"Residual rms {fit['residual_rms']:.4g}" in page and "plots/fit_output_energy_J.png" in page
+    assert page.count("data:image/png;base64,") == 1 and proc.stdout.rstrip().endswith("report.html)")
     # a second fit into the same place goes beside the first
     again = ampmodel("fit", str(flat), "--data", str(data), "--vary", VARY[0], "--vary", VARY[1], "--out", str(out),
                      "--jobs", "1", "--quiet", "--no-plots", cwd=tmp_path)

@@ -220,6 +220,10 @@ def test_a_per_step_limit_binds_before_the_output_reaches_the_target(two_pass, t
     assert saved["limits"] == [f"steps.0.peak_fluence_J_cm2<={limit:g}"]
     assert saved["figures"]["steps.0.peak_fluence_J_cm2"] == pytest.approx(limit, rel=1e-6)
     assert saved["figures"]["output_energy_J"] == saved["summary"]["output_energy_J"]
+    page = (out / "report.html").read_text(encoding="utf-8")        # the sizing's report: answer, margins, run
+    assert "<h2>Sizing</h2>" in page and f"{saved['value']:.10g}" in page and "met (binding)" in page
+    assert f"<td>steps.0.peak_fluence_J_cm2</td><td>&lt;=</td><td class=\"num\">{limit:.5g}</td>" in page
+    assert page.count("data:image/png;base64,") == len(list((out / "plots").glob("*.png"))) > 0
 
 
 def test_rtol_sets_the_bracket_of_the_answer(two_pass, tmp_path):

@@ -252,3 +252,20 @@ def test_a_figure_the_first_sample_lacks_stops_the_run_with_nothing_written(tmp_
             "(step.3.transmission = ") in proc.stderr
     assert "steps.0 has no figure 'round_trip_count'" in proc.stderr
     assert not (tmp_path / "o").exists()
+
+
+def test_the_report_holds_the_percentiles_the_yield_the_sensitivity_and_every_histogram(limited_run):
+    out, proc, _ = limited_run
+    assert proc.stdout.splitlines()[-1].endswith("report.html)")
+    page = (out / "report.html").read_text(encoding="utf-8")
+    stats = json.loads((out / "spread.json").read_text())
+    p = stats["percentiles"]["output_energy_J"]
+    assert f"<td>output_energy_J</td><td>J</td><td class=\"num\">{p['p5']:.5g}</td>" in page
+    for y in [*stats["yield"]["limits"], stats["yield"]["all"]]:
+        assert f"<td>{y['limit'].replace('<', '&lt;').replace('>', '&gt;')}</td>" in page
+        assert f"{100 * y['share']:.1f} %" in page
+    best = stats["sensitivity"]["figures"]["output_energy_J"][0]
+    assert f"{best['path']} {best['rho']:+.2f}" in page
+    pngs = sorted((out / "plots").glob("*.png"))
+    assert page.count("data:image/png;base64,") == len(pngs) and "plots/sensitivity.png" in page
+    assert page.count('<tr class="failed">') == 0 and "Every sample has its result file." in page
