@@ -97,11 +97,26 @@ def _files(d: Path) -> list[tuple[str, int]]:
     return sorted(out)
 
 
+# The figures of a run in the order a run writes them (plots/run.py), names (stems) or prefixes ending in
+# "_"; a study's overview first; anything else after them, by name.
+FIGURE_ORDER = ("overview", "fluence_maps", "intensity_maps", "energy_per_step", "power_per_step", "pulse_power",
+                "gain_", "heat_", "fibre_", "b_integral", "beam_steps", "beam_size", "round_trips", "train",
+                "spectrum")
+
+
+def _figure_rank(name: str) -> tuple[int, str]:
+    stem = name.removesuffix(".png")
+    for k, head in enumerate(FIGURE_ORDER):
+        if stem == head or (head.endswith("_") and stem.startswith(head)):
+            return k, name
+    return len(FIGURE_ORDER), name
+
+
 def _figures(d: Path) -> tuple[list[tuple[str, bytes]], bool]:
     plots = d / "plots"
     if not plots.is_dir():
         return [], False
-    pngs = sorted(plots.glob("*.png"), key=lambda p: (p.name != "overview.png", p.name))    # the overview first
+    pngs = sorted(plots.glob("*.png"), key=lambda p: _figure_rank(p.name))
     return [(p.name, p.read_bytes()) for p in pngs if not p.name.startswith(".")], True
 
 

@@ -182,3 +182,12 @@ def test_an_unknown_kind_is_refused():
                                          ("steps.0.gain.png", "steps 0 gain")])
 def test_figure_titles(name, words):
     assert figure_title(name) == words
+
+
+def test_a_runs_figures_come_in_the_order_the_run_writes_them():
+    from ampmodel.studies.report_files import _figure_rank
+    names = ["b_integral.png", "beam_size.png", "energy_per_step.png", "fluence_maps.png", "gain_rod.png",
+             "hist_gain.png", "overview.png", "pulse_power.png", "spectrum.png", "b_integral_rad.png"]
+    assert sorted(names, key=_figure_rank) == [
+        "overview.png", "fluence_maps.png", "energy_per_step.png", "pulse_power.png", "gain_rod.png",
+        "b_integral.png", "beam_size.png", "spectrum.png", "b_integral_rad.png", "hist_gain.png"]
