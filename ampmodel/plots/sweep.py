@@ -57,6 +57,9 @@ LABELS = {
     "absorbed_pump_power_W": "absorbed pump power", "pump_power_W": "pump power",
     "optical_efficiency": "optical efficiency (extracted / pump)",
     "small_signal_gain": "small-signal gain G0", "loss_per_cm": "passive loss",
+    "b_integral_margin": "B-integral over its limit", "damage_margin": "fluence over the damage fluence",
+    "worst_damage_margin": "worst step's fluence over its damage fluence",
+    "output_peak_power_W": "output peak power", "output_duration_ns": "output pulse duration (FWHM)",
 }
 _PRETTY_UNITS = {"J/cm^2": "J/cm²", "W/cm^2": "W/cm²", "cm^2": "cm²", "m^2/W": "m²/W", "1/m^3": "1/m³",
                  "um": "µm", "us": "µs"}
