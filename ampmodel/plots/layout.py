@@ -65,9 +65,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     ax_e.scatter(pos[:1], plot_e[:1], color=SEED_COLOUR, s=40, zorder=3, label="seed")
     ax_e.scatter(pos[1:], plot_e[1:], color=OUTPUT_COLOUR, s=40, zorder=3, label="after step")
     if log_e:
-        ax_e.set_yscale("log")
-        span = positive.max() / positive.min()
-        ax_e.set_ylim(top=positive.max() * span ** 0.15)     # room for the values written above the points
+        _log_axis_with_room(ax_e, positive)
     else:
         ax_e.set_ylim(bottom=0, top=max(finite_max(shown) * 1.15, 1e-30) if finite_max(shown) > 0 else 1.0)
     if n <= 14:
@@ -88,11 +86,10 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     gp = gval_ok[gval_ok > 0]
     log_g = gp.size >= 2 and gp.max() / gp.min() > 30
     if log_g:
-        ax_g.set_yscale("log")
         keep = gval_ok > 0
         ax_g.bar(gpos_ok[keep], gval_ok[keep], width=0.6,
                  color=[c for c, k in zip(colours, keep, strict=True) if k])
-        ax_g.set_ylim(top=max(gp.max(), 1.0) * (gp.max() / min(gp.min(), 1.0)) ** 0.15)   # room for the values
+        _log_axis_with_room(ax_g, np.append(gp, 1.0))
     elif gval_ok.size:
         ax_g.bar(gpos_ok, gval_ok, width=0.6, color=colours)
         ax_g.set_ylim(bottom=0, top=max(1.0, finite_max(gval_ok)) * 1.18)
@@ -112,6 +109,13 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     step_ticks(ax_g, labels, pos, width_in)
     fig.suptitle(f"{what.capitalize()} through the layout" + title_suffix(result))
     return save_png(fig, path)
+
+
+def _log_axis_with_room(ax, positive: np.ndarray) -> None:
+    """A log y axis whose top leaves 15 % of the decades of ``positive`` (> 0) above the largest value,
+    room for the values written above the points or bars."""
+    ax.set_yscale("log")
+    ax.set_ylim(top=positive.max() * (positive.max() / positive.min()) ** 0.15)
 
 
 def plot_pulse_power(result: Result, path: Path) -> Path:
