@@ -29,11 +29,17 @@ from ampmodel.plots.common import (
     step_ticks,
     title_suffix,
 )
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
 
 BEAM_KEYS = ("d4sigma_x_mm", "d4sigma_y_mm", "modulation_peak_to_mean", "fill_factor")
+FILL_COLOUR = "#c9dcc9"     # pale: a figure of the layout, not an alarm
+FILL_AXIS_LABEL = "fill factor of the next medium's aperture"
+FILL_CAPTION = ("fill factor: the beam's energy over its peak fluence times the clear aperture of the medium "
+                "it meets next;\nlow before the beam is expanded to fill that aperture, which is expected, "
+                "not a fault")
 MAX_PANELS_PER_ROW = 5
 
 
@@ -90,21 +96,25 @@ def plot_beam_steps(result: Result, path: Path) -> Path:
         lo.tick_params(labelsize="x-small")
         lo.grid(True, alpha=0.3)
         fig_i = figures[i] if i < len(figures) and isinstance(figures[i], dict) else {}
-        if "d4sigma_x_mm" in fig_i:
-            lo.set_title(f"D4σ {fig_i['d4sigma_x_mm']:.3g} x {fig_i['d4sigma_y_mm']:.3g} mm, "
-                         f"p/m {fig_i['modulation_peak_to_mean']:.2g}", fontsize="x-small")
+        figures_text = (f"D4σ {fig_i['d4sigma_x_mm']:.3g} x {fig_i['d4sigma_y_mm']:.3g} mm, "
+                        f"p/m {fig_i['modulation_peak_to_mean']:.2g}" if "d4sigma_x_mm" in fig_i else "")
+        if figures_text:
+            lo.set_title(figures_text, fontsize="x-small")
+        if i == 0:          # one key for the lines of every panel, below them all
+            fig.legend(handles=lo.get_lines(), loc="outside lower center", ncols=2, fontsize="small",
+                       frameon=False)
         lo.set_xlabel("x or y (mm)", fontsize="small")
         if c == 0:
             lo.set_ylabel(unit, fontsize="small")
-        if i == 0:
-            lo.legend(fontsize="x-small", loc="upper right")
     fig.suptitle(f"{what} at each step (maps, and lineouts through the axis)" + title_suffix(result))
     return save_png(fig, path)
 
 
 def plot_beam_size(result: Result, path: Path) -> Path:
     """D4σ diameters in x and y along the layout (top) and the peak-to-mean modulation and fill
-    factor over the clear aperture (bottom), seed first.
+    factor over the clear aperture (bottom), seed first. The fill factor of a step that is not a pass
+    is over the clear aperture of the next medium the beam meets: a caption says so, and it is drawn
+    as pale bars, since a low value after free space or a relay is expected, not a fault.
 
     Parameters
     ----------
@@ -129,22 +139,22 @@ def plot_beam_size(result: Result, path: Path) -> Path:
     top = max(finite_max(dx), finite_max(dy))
     ax.set_ylim(0, top * 1.15 if top > 0 else 1.0)
     ax.set_ylabel("second-moment diameter D4σ (mm)")
-    ax.set_title("Beam size along the layout")
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="best", fontsize="small")
+    legend_above(ax, "Beam size along the layout")
     ax.tick_params(axis="x", labelbottom=False)
-    ax2.plot(pos, mod, color="#7a3f9d", marker="o", label="peak-to-mean modulation (left)")
+    ax3 = ax2.twinx()           # the fill factor: pale bars behind, on the right axis
+    ax3.bar(pos, fill, width=0.55, color=FILL_COLOUR, label="fill factor (right axis, bars)")
+    ax3.set_ylabel(FILL_AXIS_LABEL)
+    ax3.set_ylim(0, 1.05)
+    ax2.set_zorder(ax3.get_zorder() + 1)       # the modulation line in front of the bars
+    ax2.patch.set_visible(False)
+    ax2.plot(pos, mod, color="#7a3f9d", marker="o", label="peak-to-mean modulation (left axis)")
     ax2.set_ylabel("peak-to-mean modulation")
     ax2.set_ylim(0, max(2.2, finite_max(mod) * 1.1))
     ax2.axhline(1.0, color="0.5", linestyle=":", linewidth=1.0)
-    ax3 = ax2.twinx()
-    ax3.plot(pos, fill, color="#2a8a4a", marker="^", linestyle="--", label="fill factor (right)")
-    ax3.set_ylabel("fill factor of the clear aperture")
-    ax3.set_ylim(0, 1.05)
-    handles = ax2.get_lines()[:1] + ax3.get_lines()[:1]
-    ax2.legend(handles=handles, loc="best", fontsize="small")
-    ax2.set_title("Modulation and fill factor over the clear aperture (README: definitions)")
     ax2.grid(True, alpha=0.3)
+    legend_above(ax2, "Modulation over the clear aperture, and fill factor (README: beam figures)\n"
+                 + FILL_CAPTION, handles=ax2.get_lines()[:1] + list(ax3.containers[:1]))
     ax2.set_xlabel("step")
     step_ticks(ax2, labels, pos, width_in)
     fig.suptitle("Beam figures through the layout" + title_suffix(result))

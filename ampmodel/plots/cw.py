@@ -28,6 +28,7 @@ from ampmodel.plots.common import (
     title_suffix,
 )
 from ampmodel.plots.gain import gain_colour_scale, gain_maps_per_cm, limit_to_medium
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -71,8 +72,7 @@ def plot_cw_gain(result: Result, name: str, path: Path) -> Path:
     pump = _plot_pump_along_z(ax2, result, name, (ay, ax), nz, dz_mm)
     if pump is not None:
         handles.append(pump)
-    if handles:
-        ax2.legend(handles=handles, loc="upper center", ncol=3, fontsize="small", framealpha=0.9)
+    legend_above(ax2, "on-axis intensity of each pass (arrow: direction of travel)", handles=handles)
     ax2.set_xlim(0.0, length_mm if length_mm > 0 else 1.0)
 
     material = getattr(med, "material", "")
@@ -110,11 +110,10 @@ def _plot_axis_gain(ax1, g0_axis: np.ndarray, g1_axis: np.ndarray, dz_mm: float)
     ax1.axhline(0.0, color="0.5", linewidth=0.8)
     ghi = max(finite_max(g0_axis), finite_max(g1_axis), 0.0)
     glo = min(finite_min(g0_axis), finite_min(g1_axis), 0.0)
-    ax1.set_ylim(glo * 1.15, ghi * 1.35 if ghi > 0 else 1.0)
+    ax1.set_ylim(glo * 1.15, ghi * 1.08 if ghi > 0 else 1.0)
     ax1.set_ylabel("on-axis g (1/cm)")
-    ax1.set_title("on-axis gain coefficient along z")
     ax1.grid(True, alpha=0.3)
-    ax1.legend(loc="upper right", fontsize="small", framealpha=0.9)
+    legend_above(ax1, "on-axis gain coefficient along z")
     ax1.tick_params(axis="x", labelbottom=False)
 
 
@@ -133,10 +132,9 @@ def _plot_pass_intensities(ax2, result: Result, passes: list) -> list:
                       color=PASS_COLOURS[n % len(PASS_COLOURS)], marker="<" if reverse else ">", markevery=4,
                       markersize=5, label=f"step {rec.index}: pass {'←' if reverse else '→'}")
         handles.append(h)
-    ax2.set_ylim(0.0, peak / factor * 1.45 if peak > 0 else 1.0)     # headroom for the legend
+    ax2.set_ylim(0.0, peak / factor * 1.08 if peak > 0 else 1.0)
     ax2.set_ylabel(f"on-axis signal intensity ({unit})")
     ax2.set_xlabel("z along the medium (mm)")
-    ax2.set_title("on-axis intensity of each pass (arrow: direction of travel)")
     ax2.grid(True, alpha=0.3)
     return handles
 

@@ -1,7 +1,7 @@
 """Figures of a layout of fibres: powers, gain and inversion along each fibre, ASE spectra.
 
 Drawn from a Result's FibreRecords (SI), shown in the units a laser engineer reads: z in m, powers in
-W on a logarithmic axis (they span decades), ASE as spectral density in dBm/nm, inversion as N2/Nt.
+W on an axis that follows the data (logarithmic when they span decades), ASE as spectral density in dBm/nm, inversion as N2/Nt.
 Each figure has its own Agg canvas and is written atomically (the helpers of common.py).
 """
 from __future__ import annotations
@@ -24,6 +24,7 @@ from ampmodel.plots.common import (
     unit_prefix,
 )
 from ampmodel.plots.drawing import PANELS, FigureJob
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import FibreRecord, Result
@@ -33,10 +34,26 @@ ASE_COLOUR = "#8e44ad"
 RING_CMAP = "viridis"
 
 
-def _log_floor(*arrays: np.ndarray) -> float:
-    """A lower limit for a log axis: 1e-6 of the largest value shown (tiny ASE tails would squash it)."""
-    peak = max((float(np.nanmax(a)) for a in arrays if a is not None and np.size(a)), default=1.0)
-    return peak * 1e-6 if peak > 0 else 1e-12
+LOG_SPAN = 30.0             # data spanning more than this ratio get a logarithmic axis
+LOG_DEPTH = 1e-6            # a log axis shows at most this far below the largest value
+MARGIN = 0.05               # of the shown range (of its decades on a log axis), above and below
+
+
+def power_axis(*arrays: np.ndarray) -> tuple[str, float, float]:
+    """(scale, bottom, top) of a power axis that follows the data: logarithmic when the positive values
+    span more than ``LOG_SPAN`` (down to the smallest, at most ``LOG_DEPTH`` below the largest, so that
+    ASE tails that fall to nothing do not squash the rest), linear from 0 otherwise; with a margin of
+    ``MARGIN`` of the range (of its decades on a log axis) each way."""
+    values = np.concatenate([np.ravel(np.asarray(a, dtype=float)) for a in arrays if a is not None] or [np.zeros(0)])
+    positive = values[np.isfinite(values) & (values > 0)]
+    if not positive.size:
+        return "linear", 0.0, 1.0
+    hi = float(positive.max())
+    lo = max(float(positive.min()), hi * LOG_DEPTH)
+    if hi / lo > LOG_SPAN:
+        pad = (hi / lo) ** MARGIN
+        return "log", lo / pad, hi * pad
+    return "linear", 0.0, hi * (1.0 + MARGIN)
 
 
 def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
@@ -61,15 +78,15 @@ def plot_fibre_powers(result: Result, rec: FibreRecord, path: Path) -> Path:
         ax.plot(z, fwd, color=ASE_COLOUR, lw=1.3, label="ASE forward, all bins")
         ax.plot(z, bwd, color=ASE_COLOUR, lw=1.3, ls="--", label="ASE backward, all bins")
         shown += [fwd, bwd]
-    ax.set_yscale("log")
-    ax.set_ylim(bottom=_log_floor(*shown))
+    scale, bottom, top = power_axis(*shown)
+    ax.set_yscale(scale)
+    ax.set_ylim(bottom, top)
     ax.set_xlim(z[0], z[-1])
     ax.set_xlabel("position along the fibre z (m)")
     ax.set_ylabel("power (W)")
     ax.grid(True, which="both", alpha=0.25)
-    ax.legend(loc="best", fontsize="small", framealpha=0.9)
     what = "steady state" if cw else "just before a pulse"
-    ax.set_title(f"fibre {rec.name}: powers along the fibre ({what})")
+    legend_above(ax, f"fibre {rec.name}: powers along the fibre ({what})")
     if not cw:
         ax2 = fig.add_subplot(2, 1, 2)
         energy = rec.pulse_energy_J
@@ -120,9 +137,8 @@ def plot_fibre_gain(result: Result, rec: FibreRecord, path: Path) -> Path:
     ax.set_xlabel("position along the fibre z (m)")
     ax.set_ylabel("inversion N2/Nt")
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="best", fontsize="x-small", framealpha=0.9, ncol=2 if rings > 4 else 1)
-    ax.set_title("inversion: " + ("with the signal (solid) and with the pump alone (dashed)" if cw
-                                  else "just before (solid) and just after (dashed) a pulse"))
+    legend_above(ax, "inversion: " + ("with the signal (solid) and with the pump alone (dashed)" if cw
+                                      else "just before (solid) and just after (dashed) a pulse"), font_pt=7.0)
     if recovery:
         ax = fig.add_subplot(rows, 1, 3)
         t = rec.recovery_t_s
@@ -165,9 +181,8 @@ def plot_fibre_ase(result: Result, rec: FibreRecord, path: Path) -> Path:
     ax.set_xlabel("wavelength (nm)")
     ax.set_ylabel("ASE spectral density (dBm/nm)")
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="lower right", fontsize="small", framealpha=0.9)
     what = "steady state" if rec.mode == "cw" else "between pulses, just before a pulse"
-    ax.set_title(f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
+    legend_above(ax, f"ASE leaving fibre {rec.name} ({what}; {wl.size} bins of {float(np.mean(width_nm)):.3g} nm)")
     fig.suptitle("ASE spectra" + title_suffix(result))
     return save_png(fig, path)
 

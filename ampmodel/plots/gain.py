@@ -21,6 +21,7 @@ from ampmodel.plots.common import (
     save_png,
     title_suffix,
 )
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -128,13 +129,12 @@ def plot_medium_gain(result: Result, name: str, path: Path) -> Path:
     ax2.axhline(0.0, color="0.5", linewidth=0.8)
     ax2.set_xlabel("z along the medium (mm)")
     ax2.set_ylabel("on-axis g (1/cm)")
-    ax2.set_title("on-axis gain coefficient along z")
     ax2.set_xlim(0.0, length_mm if length_mm > 0 else 1.0)
     glo = min(finite_min(on0), finite_min(on1), 0.0)
     ghi = max(finite_max(on0), finite_max(on1))
-    ax2.set_ylim(glo * 1.1, ghi * 1.2 if ghi > 0 else 1.0)
+    ax2.set_ylim(glo * 1.1, ghi * 1.08 if ghi > 0 else 1.0)
     ax2.grid(True, alpha=0.3)
-    ax2.legend(loc="best", fontsize="small", framealpha=0.9)
+    legend_above(ax2, "on-axis gain coefficient along z")
 
     material = getattr(med, "material", "")
     note = f"{passes} pass{'es' if passes != 1 else ''}" if passes else "not passed in this layout"

@@ -25,6 +25,7 @@ from ampmodel.plots.common import (
     title_suffix,
     unit_prefix,
 )
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -64,7 +65,7 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     ax_e.scatter(pos[:1], plot_e[:1], color=SEED_COLOUR, s=40, zorder=3, label="seed")
     ax_e.scatter(pos[1:], plot_e[1:], color=OUTPUT_COLOUR, s=40, zorder=3, label="after step")
     if log_e:
-        ax_e.set_yscale("log")
+        _log_axis_with_room(ax_e, positive)
     else:
         ax_e.set_ylim(bottom=0, top=max(finite_max(shown) * 1.15, 1e-30) if finite_max(shown) > 0 else 1.0)
     if n <= 14:
@@ -74,9 +75,8 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
                               ha="center", fontsize="small")
     what = "power" if cw else "energy"
     ax_e.set_ylabel(f"{what} ({unit})")
-    ax_e.set_title(f"{what.capitalize()} after each step")
     ax_e.grid(True, alpha=0.3)
-    ax_e.legend(loc="best", fontsize="small")
+    legend_above(ax_e, f"{what.capitalize()} after each step")
     ax_e.tick_params(axis="x", labelbottom=False)
 
     gpos, gval = pos[1:], gains
@@ -86,10 +86,10 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     gp = gval_ok[gval_ok > 0]
     log_g = gp.size >= 2 and gp.max() / gp.min() > 30
     if log_g:
-        ax_g.set_yscale("log")
         keep = gval_ok > 0
         ax_g.bar(gpos_ok[keep], gval_ok[keep], width=0.6,
                  color=[c for c, k in zip(colours, keep, strict=True) if k])
+        _log_axis_with_room(ax_g, np.append(gp, 1.0))
     elif gval_ok.size:
         ax_g.bar(gpos_ok, gval_ok, width=0.6, color=colours)
         ax_g.set_ylim(bottom=0, top=max(1.0, finite_max(gval_ok)) * 1.18)
@@ -109,6 +109,13 @@ def plot_energy_per_step(result: Result, path: Path) -> Path:
     step_ticks(ax_g, labels, pos, width_in)
     fig.suptitle(f"{what.capitalize()} through the layout" + title_suffix(result))
     return save_png(fig, path)
+
+
+def _log_axis_with_room(ax, positive: np.ndarray) -> None:
+    """A log y axis whose top leaves 15 % of the decades of ``positive`` (> 0) above the largest value,
+    room for the values written above the points or bars."""
+    ax.set_yscale("log")
+    ax.set_ylim(top=positive.max() * (positive.max() / positive.min()) ** 0.15)
 
 
 def plot_pulse_power(result: Result, path: Path) -> Path:
@@ -149,10 +156,9 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
     ax.plot(t / tf, out / pf, color=OUTPUT_COLOUR, linestyle="--",
             label=f"{out_name}, {out_e / eu[0]:.3g} {eu[1]}{figures}", **kw)
     ax.set_ylabel(f"power ({pu})")
-    ax.set_ylim(bottom=0, top=max(ps, po) / pf * 1.3 if max(ps, po) > 0 else 1.0)   # room for the legend
-    ax.set_title("Pulse power of the whole beam (mean over each time slice)")
+    ax.set_ylim(bottom=0, top=max(ps, po) / pf * 1.08 if max(ps, po) > 0 else 1.0)
     ax.grid(True, alpha=0.3)
-    ax.legend(loc="upper right", fontsize="small")
+    legend_above(ax, "Pulse power of the whole beam (mean over each time slice)")
     if shapes:
         axn = axes[1]
         for p, peak, colour, ls, name in ((seed, ps, SEED_COLOUR, "-", "seed"),
@@ -160,9 +166,8 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
             axn.plot(t / tf, p / peak if peak > 0 else p, color=colour, linestyle=ls, label=name, **kw)
         axn.set_ylabel("power / own peak")
         axn.set_ylim(0, 1.1)
-        axn.set_title("Normalised pulse shapes (each divided by its own peak)")
         axn.grid(True, alpha=0.3)
-        axn.legend(loc="upper right", fontsize="small")
+        legend_above(axn, "Normalised pulse shapes (each divided by its own peak)")
     axes[-1].set_xlabel(f"time ({tu})")
     if t.size == 1:
         axes[-1].set_xlim(t[0] / tf - 1.0, t[0] / tf + 1.0)
@@ -171,7 +176,13 @@ def plot_pulse_power(result: Result, path: Path) -> Path:
 
 
 def b_integrals(result: Result) -> tuple[np.ndarray, np.ndarray]:
-    """(accumulated, per-step) B-integral in rad: the largest over the beam after / within each step."""
+    """(accumulated, per-step) B-integral in rad: the largest over the beam after / within each step.
+
+    The accumulated value is the largest of each step's B-integral map. The value added in a step is
+    the summary's ``b_integral_rad`` of that step when the summary has it for every step (exactly 0
+    for a step that adds none, such as a relay, which only moves or rescales the map); only a Result
+    without it falls back to the largest increase of the map over the step before.
+    """
     total, step = [], []
     prev = np.zeros_like(np.asarray(result.seed_fluence_J_m2, dtype=float))
     for r in result.steps:
@@ -179,11 +190,17 @@ def b_integrals(result: Result) -> tuple[np.ndarray, np.ndarray]:
         total.append(finite_max(b))
         step.append(finite_max(b - prev) if b.shape == prev.shape else finite_max(b))
         prev = b
-    return np.array(total), np.maximum(np.array(step), 0.0)
+    entries = (result.summary or {}).get("steps")
+    if isinstance(entries, list) and len(entries) == len(result.steps):
+        added = [e.get("b_integral_rad") if isinstance(e, dict) else None for e in entries]
+        if all(isinstance(v, (int, float)) for v in added):
+            step = [float(v) for v in added]
+    return np.array(total), np.maximum(np.array(step, dtype=float), 0.0)
 
 
 def plot_b_integral(result: Result, path: Path) -> Path:
-    """Accumulated B-integral after each step, with the per-step and total limits as dashed lines.
+    """Accumulated B-integral after each step, the B-integral each step adds (bars, from the summary),
+    and the per-step and total limits as dashed lines.
 
     Parameters
     ----------
@@ -215,8 +232,7 @@ def plot_b_integral(result: Result, path: Path) -> Path:
     ax.set_ylim(0, top * 1.15 if top > 0 else 1.0)
     ax.set_ylabel("B-integral, largest over the beam (rad)")
     ax.set_xlabel("step")
-    ax.set_title("B-integral through the layout" + title_suffix(result))
     ax.grid(True, axis="y", alpha=0.3)
-    ax.legend(loc="upper left", fontsize="small", framealpha=0.9)
+    legend_above(ax, "B-integral through the layout" + title_suffix(result))
     step_ticks(ax, labels, pos, width_in)
     return save_png(fig, path)

@@ -24,6 +24,7 @@ from ampmodel.plots.common import (
     step_map,
     title_suffix,
 )
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -79,9 +80,8 @@ def _lineout_axis(ax, coord_m: np.ndarray, seed: np.ndarray, out: np.ndarray, ax
         ax.set_ylabel(f"{quantity} ({unit})")
     ax.set_ylim(bottom=0)
     ax.set_xlabel(f"{axis_name} ({unit_x})")
-    ax.set_title(f"lineout along {axis_name} at {other_name} = 0")
     ax.grid(True, alpha=0.3)
-    (ax2 if twin else ax).legend(handles=[h1, h2], loc="best", fontsize="small", framealpha=0.9)
+    legend_above(ax, f"lineout along {axis_name} at {other_name} = 0", handles=[h1, h2])
 
 
 def plot_fluence_maps(result: Result, path: Path) -> Path:

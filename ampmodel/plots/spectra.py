@@ -17,6 +17,7 @@ from ampmodel.plots.common import (
     title_suffix,
     unit_prefix,
 )
+from ampmodel.plots.placement import legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -57,9 +58,7 @@ def plot_spectra(result: Result, path: Path) -> Path:
     twin.tick_params(axis="y", colors=SEED_COLOUR)
     for a in (ax, twin):
         a.set_ylim(bottom=0.0)
-    lines = ax.get_lines() + twin.get_lines()
-    ax.legend(lines, [line.get_label() for line in lines], loc="upper right", fontsize=8)
-    ax.set_title("Spectral energy density")
+    legend_above(ax, "Spectral energy density", handles=ax.get_lines() + twin.get_lines())
     ax.grid(alpha=0.3)
     for values, colour, label in ((seed, SEED_COLOUR, "seed"), (out, OUTPUT_COLOUR, "output")):
         peak = finite_max(values)
@@ -73,8 +72,7 @@ def plot_spectra(result: Result, path: Path) -> Path:
     ax_n.set_ylim(0.0, 1.05)
     ax_n.set_ylabel("normalised to its peak")
     ax_n.set_xlabel("wavelength (nm)")
-    ax_n.set_title("Shape (gain narrowing and pulling); dotted: half maximum")
-    ax_n.legend(loc="upper right", fontsize=8)
+    legend_above(ax_n, "Shape (gain narrowing and pulling); dotted: half maximum")
     ax_n.grid(alpha=0.3)
     fig.suptitle("Spectrum of the chirped pulse" + title_suffix(result))
     return save_png(fig, path)

@@ -19,6 +19,7 @@ from ampmodel.plots.common import (
     title_suffix,
     unit_prefix,
 )
+from ampmodel.plots.placement import TOP_AXIS_PT, legend_above
 
 if TYPE_CHECKING:
     from ampmodel.output.result import Result
@@ -69,13 +70,12 @@ def plot_round_trips(result: Result, entry: dict, path: Path) -> Path:
         ax.set_ylim(bottom=0)
     ax.set_ylabel(f"energy ({unit})")
     rule = "until the peak" if entry.get("until") == "peak" else f"count = {entry.get('count')}"
-    ax.set_title(f"Energy after each round trip of step {entry.get('index')} (repeat, {rule}; "
-                 f"round trip {rt_ns:.4g} ns)")
     ax.grid(True, which="both", alpha=0.3)
-    ax.legend(loc="upper left", fontsize="small")
     if rt_ns > 0:
         top = ax.secondary_xaxis("top", functions=(lambda r: r * rt_ns, lambda t: t / rt_ns))
         top.set_xlabel("time since injection (ns)")
+    legend_above(ax, f"Energy after each round trip of step {entry.get('index')} (repeat, {rule}; "
+                 f"round trip {rt_ns:.4g} ns)", lift_pt=TOP_AXIS_PT if rt_ns > 0 else 0.0)
     before = np.concatenate(([seed], energies[:-1]))
     gains = np.full(n, np.nan)
     np.divide(energies, before, out=gains, where=before > 0)
@@ -129,9 +129,8 @@ def plot_train(result: Result, path: Path) -> Path:
         ax_e.axhline(steady_e[0] / ef, color="0.3", linestyle="--", linewidth=1.0,
                      label=f"steady state {steady_e[0] / ef:.4g} {eu}, {average}")
     ax_e.set_ylabel(f"pulse energy ({eu})")
-    ax_e.set_title(f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {_settling_text(train)}")
     ax_e.grid(True, alpha=0.3)
-    ax_e.legend(loc="best", fontsize="small")
+    legend_above(ax_e, f"Output pulse by pulse at {train.get('repetition_rate_Hz', 0):g} Hz: {_settling_text(train)}")
     sf, su = unit_prefix(max(finite_max(stored), finite_max(np.asarray(steady_s))), ENERGY_UNITS)
     ax_s.plot(k, stored / sf, color=SEED_COLOUR, label="stored energy before the pulse", **kw)
     if len(cycle) > 1:
@@ -141,9 +140,8 @@ def plot_train(result: Result, path: Path) -> Path:
                      label=f"steady state {steady_s[0] / sf:.4g} {su}")
     ax_s.set_ylabel(f"stored energy ({su})")
     ax_s.set_xlabel("pulse number from the start of the train")
-    ax_s.set_title("Extractable stored energy before each pulse (pumped without a seed before pulse 1)")
     ax_s.grid(True, alpha=0.3)
-    ax_s.legend(loc="best", fontsize="small")
+    legend_above(ax_s, "Extractable stored energy before each pulse (pumped without a seed before pulse 1)")
     for ax in (ax_e, ax_s):
         lo, hi = ax.get_ylim()
         ax.set_ylim(min(lo, 0.0) if lo <= 0 else lo, hi)
