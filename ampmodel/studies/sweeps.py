@@ -183,16 +183,14 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     paths, values : the value paths and one {path: value} per point, config units
     out : the output folder (created)
     backend, jobs, scheduler : see ``backends.run_tasks``; ``jobs`` None is every core
-    progress : show a tqdm bar (count and time left) on stderr
-    timeout_s : dask pre-flight timeout
+    progress, timeout_s : show a tqdm bar (count and time left) on stderr; the dask pre-flight timeout
     table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
     manifest_table : the [sweep] or [spread] table, recorded in the manifest
     finish : called with the result while the folder is still locked (plots, statistics)
     derived : further files made from the table (removed at the start with the table, written by ``finish``)
     first_check : checks the figures a table names on a first summary before the folder is touched
         (ConfigError); ``points.first_point`` says which summary (a point it runs is not run again)
-    command_line : a sweep given by --vary (``points.vary_record``), recorded in the manifest; a folder
-        resumes only with the same (``store.check_folder``)
+    command_line : a sweep's --vary (``points.vary_record``): in the manifest; a folder resumes only with the same
 
     Raises
     ------
