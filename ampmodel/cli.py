@@ -49,7 +49,7 @@ def _parser() -> argparse.ArgumentParser:
     b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
     b.add_argument("--quick", action="store_true", help="small cases (seconds): checks that the benchmark runs")
     b.add_argument("--quiet", action="store_true", help="no progress bar")
-    for name, what in (("sweep", "the sweep in the config's [sweep] table: in parallel, resumable"),
+    for name, what in (("sweep", "the sweep in the config's [sweep] table, or given by --vary: in parallel, resumable"),
                        ("spread", "a tolerance run: the samples of the config's [spread] table, with "
                                   "percentiles, histograms, the yield against limits and the sensitivity")):
         w = sub.add_parser(name, help=what)

@@ -1,5 +1,6 @@
 """Config text: TOML read with messages that point at the line, a dict given in Python made plain,
-``--set PATH=VALUE`` overrides on dotted value paths, and a config dict written back as TOML.
+``--set PATH=VALUE`` overrides on dotted value paths (and the value lists of ``--vary``), and a config dict
+written back as TOML.
 ``load.py`` uses these before it validates anything.
 """
 from __future__ import annotations
