@@ -49,11 +49,11 @@ def _parser() -> argparse.ArgumentParser:
     b.add_argument("--json", metavar="FILE", help="also write the figures to FILE (JSON; never overwritten)")
     b.add_argument("--quick", action="store_true", help="small cases (seconds): checks that the benchmark runs")
     b.add_argument("--quiet", action="store_true", help="no progress bar")
-    for name, what in (("sweep", "the sweep in the config's [sweep] table: in parallel, resumable"),
+    for name, what in (("sweep", "the sweep in the config's [sweep] table, or given by --vary: in parallel, resumable"),
                        ("spread", "a tolerance run: the samples of the config's [spread] table, with "
                                   "percentiles, histograms, the yield against limits and the sensitivity")):
         w = sub.add_parser(name, help=what)
-        w.add_argument("config", help=f"the run config (TOML) with a [{name}] table")
+        w.add_argument("config", help=f"the run config (TOML) with a [{name}] table" + " (or --vary)" * (name == "sweep"))
         w.add_argument("--out", metavar="DIR", help=f"output folder (default runs/<config stem>-{name}); "
                                                     "started again on it, only missing points are computed")
         w.add_argument("--jobs", metavar="N", type=int, help="worker processes (default: every core); with "
@@ -68,6 +68,10 @@ def _parser() -> argparse.ArgumentParser:
         w.add_argument("--set", metavar="PATH=VALUE", action="append", default=[], dest="overrides",
                        help="change one value of the config first, like `run --set`")
         w.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+        if name == "sweep":
+            w.add_argument("--vary", metavar="PATH=V1,V2,...", action="append", default=[], help="a value path and "
+                           "its values, e.g. seed.energy_J=0.001,0.01; repeatable; replaces the [sweep] table's paths")
+            w.add_argument("--combine", choices=("grid", "zip"), help="every combination, or the lists side by side")
         if name == "spread":
             w.add_argument("--limit", metavar="FIGURE<=VALUE", action="append", default=[], dest="limits",
                            help="a bound on a figure whose yield the run reports, e.g. b_integral_rad<=3 or "
@@ -298,7 +302,7 @@ def _options(args, command: str) -> tuple[str, int | None]:
 def _many_points(args, command: str, runner, printer) -> int:
     """`sweep` and `spread`: the same options, run in parallel, then the report."""
     backend, jobs = _options(args, command)
-    extra = {"limits": args.limits} if command == "spread" else {}
+    extra = {"limits": args.limits} if command == "spread" else {"vary": args.vary or None, "combine": args.combine}
     result = runner(args.config, args.out, jobs=jobs, backend=backend, scheduler=args.scheduler,
                     overrides=args.overrides, progress=not args.quiet, plots=not args.no_plots,
                     timeout_s=args.timeout, **extra)

@@ -16,6 +16,7 @@ holding a dot is written in double quotes (``sweep."seed.energy_J"``).
 from __future__ import annotations
 
 import dataclasses
+import json
 import os
 from pathlib import Path
 from types import MappingProxyType
@@ -42,7 +43,7 @@ from ampmodel.config.checks import (
 from ampmodel.config.files import FileProblem, read_regular, shorten
 from ampmodel.config.medium import builtin_material, check_media, check_seed_spectrum
 from ampmodel.config.steps import check_steps
-from ampmodel.config.sweep import check_spread, check_sweep
+from ampmodel.config.sweep import check_spread, check_sweep, with_vary
 from ampmodel.config.text import (
     apply_into,
     dump_toml,
@@ -87,7 +88,8 @@ def _config_text(path: Path, name: str) -> str:
 
 def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = (), *,
                 folder: str | os.PathLike | None = None,
-                builtin_materials: Mapping[str, Material] | None = None, stored_seeds: Mapping | None = None) -> Config:
+                builtin_materials: Mapping[str, Material] | None = None, stored_seeds: Mapping | None = None,
+                vary: Mapping[str, Sequence] | Sequence[str] | None = None, combine: str | None = None) -> Config:
     """Read, override and validate a run config.
 
     Parameters
@@ -103,6 +105,11 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
         Built-in materials to use instead of the material files (a rerun uses the data its result
         file recorded).
     stored_seeds : ``seed.from`` as written -> the beam a chained run took (a rerun: from its own file)
+    vary : ``"PATH=V1,V2,..."`` strings (``sweep --vary``) or a mapping ``{path: [values]}``, optional
+        The [sweep] table's value paths, in place of the config's own (its ``combine`` and ``figures``
+        kept); checked as the table is, problems naming ``--vary PATH``.
+    combine : "grid" or "zip", optional
+        The [sweep] table's ``combine`` (``sweep --combine``).
 
     Returns
     -------
@@ -137,12 +144,17 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
 
     if overrides:
         raw = apply_into(raw, overrides, problems)
-    config = _validate(raw, problems, title)
+    labels: dict[str, str] = {}
+    if vary is not None or combine is not None:
+        raw, labels, _ = with_vary(problems, raw, vary, combine)
+    config = _validate(raw, problems, title, labels)
     if problems.lines:
         raise ConfigError(problems.lines)
-    if overrides:
+    if overrides or labels:
         listing = "; ".join(" ".join(str(o).split()) for o in overrides)
-        text = f"# overrides (--set): {listing}\n" + dump_toml(raw)
+        text = (f"# overrides (--set): {listing}\n" if overrides else "") + \
+            (f"# the [sweep] table from the command line: {_sweep_line(raw['sweep'], labels)}\n" if labels else "") + \
+            dump_toml(raw)
     elif text is None:
         try:
             text = dump_toml(raw)
@@ -157,7 +169,16 @@ def load_config(source: str | os.PathLike | Mapping, overrides: Sequence[str] = 
 # Validation
 # ----------------------------------------------------------------------------------------------
 
-def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
+def _sweep_line(table: Mapping, labels: Mapping[str, str]) -> str:
+    """The --vary and --combine options of a [sweep] table, as one line (the text's header)."""
+    parts = [f"--vary {k}={','.join(json.dumps(v, default=str) for v in table[k])}"
+             for k in labels if k != "combine"]
+    if "combine" in labels:
+        parts.append(f"--combine {table['combine']}")
+    return " ".join(parts)
+
+
+def _validate(raw: dict, p: Problems, default_title: str, labels: Mapping[str, str] | None = None) -> Config | None:
     """Check the whole config; return the Config (text, source, raw not yet set) or None with problems."""
     fibre_layout = config_fibre.any_fibre(raw)        # a layout with a fibre (checked to be fibres only)
     only_fibres = config_fibre.all_fibre(raw)
@@ -185,7 +206,7 @@ def _validate(raw: dict, p: Problems, default_title: str) -> Config | None:
     train = Train(**check_table(p, raw["train"], "train", S.TRAIN)) \
         if isinstance(raw.get("train"), dict) else Train()
     if isinstance(raw.get("sweep"), dict):
-        check_sweep(p, raw, builtin_material)
+        check_sweep(p, raw, builtin_material, labels)
     if isinstance(raw.get("spread"), dict):
         check_spread(p, raw)
     if media is not None and seed is not None and not fibre_layout and len(p) == 0:

@@ -11,12 +11,16 @@ Both tables may also name figures of summary.json (``figures = ["steps.3.peak_fl
 config loads (:func:`figure_parts`, :func:`split_limit`: the grammar of a figure path, which
 ``ampmodel.studies.figures`` resolves against a summary); whether the figure exists is known only
 after a run.
+
+``--vary PATH=V1,V2,...`` (``ampmodel sweep``) gives a [sweep] table's value paths on the command line:
+:func:`with_vary` puts them in place of the config's own, and :func:`check_sweep` checks them as it
+checks the table, its problems naming ``--vary PATH``.
 """
 from __future__ import annotations
 
 import math
 import re
-from typing import Any, Callable
+from typing import Any, Callable, Mapping, Sequence
 
 from ampmodel.config import schema as S
 from ampmodel.config.checks import (
@@ -33,6 +37,7 @@ from ampmodel.config.checks import (
     quoted_list,
 )
 from ampmodel.config.schema import item_names, leaf_schema, walk
+from ampmodel.config.text import parse_values
 
 # ----------------------------------------------------------------------------------------------
 # Figure paths and limits: their form
@@ -123,11 +128,12 @@ def check_figure_list(p: Problems, table: dict, name: str, key: str) -> None:
 
 
 def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
-               verb: str) -> tuple[Key, Any, str] | None:
+               verb: str, label: str | None = None) -> tuple[Key, Any, str] | None:
     """The schema entry, container and leaf of a value path named in [sweep] or [spread].
 
-    Returns None (with a problem naming ``table.key``) when the path does not name a value."""
-    path = join_path(table, key)
+    Returns None (with a problem naming ``label``, default ``table.key``) when the path does not name
+    a value."""
+    path = label or join_path(table, key)
     try:
         container, leaf, trail = walk(raw, key)
     except PathError as exc:
@@ -144,28 +150,34 @@ def _value_key(p: Problems, raw: dict, table: str, key: str, given: Any,
     return schema[leaf], container, leaf
 
 
-def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], Any]) -> None:
+def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], Any],
+                labels: Mapping[str, str] | None = None) -> None:
     """The [sweep] table: paths that resolve to values, non-empty lists of valid values, combine.
 
-    ``builtin(problems, path, name)`` checks a material name (``medium.builtin_material``)."""
+    ``builtin(problems, path, name)`` checks a material name (``medium.builtin_material``).
+    ``labels``: how problems name a key given on the command line instead of ``sweep.<key>``
+    (``--vary seed.energy_J``, ``--combine``; :func:`with_vary`)."""
     sweep = raw["sweep"]
+    labels = labels or {}
+    vary = any(key != "combine" for key in labels)
     lengths: dict[str, int] = {}
     combine = "grid"
     if "combine" in sweep:
         combine, message = check_value(sweep["combine"], S.SWEEP_COMBINE)
         if message:
-            p.add("sweep.combine", message, sweep["combine"])
+            p.add(labels.get("combine", "sweep.combine"), message, sweep["combine"])
     check_figure_list(p, sweep, "sweep", "figures")
     for key, values in sweep.items():
         if key in S.SWEEP_OWN:
             continue
-        path = join_path("sweep", key)
-        found = _value_key(p, raw, "sweep", key, values, "sweep")
+        path = labels.get(key) or join_path("sweep", key)
+        found = _value_key(p, raw, "sweep", key, values, "sweep", path)
         if found is None:
             continue
         spec = found[0]
         if not isinstance(values, list) or not values:
-            p.add(path, "must be a non-empty array of values, e.g. [0.001, 0.01]", values)
+            p.add(path, f"give at least one value after =, separated by commas, e.g. {VARY_EXAMPLE}"
+                  if key in labels else "must be a non-empty array of values, e.g. [0.001, 0.01]", values)
             continue
         lengths[key] = len(values)
         for j, value in enumerate(values):
@@ -179,10 +191,80 @@ def check_sweep(p: Problems, raw: dict, builtin: Callable[[Problems, str, str], 
                 p.add(f"{path}[{j}]", "no such medium; media: "
                                       f"{', '.join(item_names(raw['medium'], 'medium'))}", value)
     if not lengths and not any(k not in S.SWEEP_OWN for k in sweep):
-        p.add("sweep", 'empty: give at least one path with its values, e.g. "seed.energy_J" = [0.001, 0.01]')
+        p.add("sweep", 'empty: give at least one path with its values, e.g. "seed.energy_J" = [0.001, 0.01]'
+                       f" (or on the command line: {VARY_EXAMPLE})")
     if combine == "zip" and len(set(lengths.values())) > 1:
         listing = ", ".join(f"{k}: {n}" for k, n in lengths.items())
-        p.add("sweep", f'combine = "zip" needs lists of equal length ({listing})')
+        if vary:
+            where = "--combine zip" if "combine" in labels else 'sweep.combine = "zip" (kept with --vary)'
+            p.add("--vary", f"{where} needs lists of equal length ({listing}): give every --vary the same number "
+                            "of values, or use --combine grid")
+        else:
+            p.add("sweep", f'combine = "zip" needs lists of equal length ({listing})')
+
+
+# ----------------------------------------------------------------------------------------------
+# --vary PATH=V1,V2,...: a [sweep] table's value paths from the command line
+# ----------------------------------------------------------------------------------------------
+
+VARY_EXAMPLE = "--vary seed.energy_J=0.001,0.01"
+
+
+def vary_entries(p: Problems, vary: Mapping[str, Any] | Sequence[str]) -> dict[str, Any]:
+    """The value paths and their lists from ``--vary PATH=V1,V2,...`` strings (or a mapping given in
+    Python, ``{path: [values]}``, taken as it is). A string without ``=``, a path given twice, an empty
+    item between commas: problems naming ``--vary``."""
+    if isinstance(vary, Mapping):
+        return {str(k): v.tolist() if hasattr(v, "tolist") else list(v) if isinstance(v, tuple) else v
+                for k, v in vary.items()}
+    entries: dict[str, Any] = {}
+    for item in [vary] if isinstance(vary, str) else vary:
+        path, sep, text = str(item).partition("=")
+        path = path.strip()
+        if not sep or not path:
+            p.add(f"--vary {item}", f"expected PATH=V1,V2,... (a value path, =, its values separated by commas), "
+                                    f"e.g. {VARY_EXAMPLE}")
+            continue
+        if path in entries:
+            p.add(f"--vary {path}", "given twice: give each path once, with all its values, e.g. "
+                                    f"--vary {path}=1,2,3")
+            continue
+        values = parse_values(text.strip())
+        if values is None:
+            p.add(f"--vary {item}", "an empty value between two commas: separate the values by single commas, "
+                                    f"e.g. {VARY_EXAMPLE}")
+            continue
+        entries[path] = values
+    return entries
+
+
+def with_vary(p: Problems, raw: dict, vary: Mapping[str, Any] | Sequence[str] | None,
+              combine: str | None) -> tuple[dict, dict[str, str], list[str]]:
+    """``raw`` with its [sweep] table's value paths replaced by ``vary`` (its ``combine`` and ``figures``
+    kept; ``combine`` replaced when given).
+
+    Returns
+    -------
+    (raw, labels, replaced)
+        the new config dict (``raw`` is not changed); the problem labels of the keys from the command
+        line for :func:`check_sweep`; the value paths of the config's own table that were replaced.
+    """
+    own = raw.get("sweep") if isinstance(raw.get("sweep"), dict) else {}
+    replaced = [k for k in own if k not in S.SWEEP_OWN] if vary is not None else []
+    table = {k: v for k, v in own.items() if k in S.SWEEP_OWN or vary is None}
+    labels: dict[str, str] = {}
+    if vary is not None:
+        entries = vary_entries(p, vary)
+        if not entries:             # each --vary is a problem already, or none is given
+            if not len(p):
+                p.add("--vary", f"no value path given: give at least one, e.g. {VARY_EXAMPLE}")
+            return {k: v for k, v in raw.items() if k != "sweep"}, labels, replaced
+        table = {**entries, **table}
+        labels.update({k: f"--vary {k}" for k in entries})
+    if combine is not None:
+        table["combine"] = combine
+        labels["combine"] = "--combine"
+    return {**raw, "sweep": table}, labels, replaced
 
 
 def check_spread(p: Problems, raw: dict) -> None:

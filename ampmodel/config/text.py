@@ -1,5 +1,6 @@
 """Config text: TOML read with messages that point at the line, a dict given in Python made plain,
-``--set PATH=VALUE`` overrides on dotted value paths, and a config dict written back as TOML.
+``--set PATH=VALUE`` overrides on dotted value paths (and the value lists of ``--vary``), and a config dict
+written back as TOML.
 ``load.py`` uses these before it validates anything.
 """
 from __future__ import annotations
@@ -147,7 +148,7 @@ def resolve_path(raw: dict, path: str) -> tuple[Any, Any]:
 # Overrides and writing
 # ----------------------------------------------------------------------------------------------
 
-def _parse_value(text: str) -> Any:
+def parse_value(text: str) -> Any:
     """A --set VALUE as a TOML value, or the plain string when it is not one (also one the reader
     cannot take: too deep, too many digits; the value check then says what is wrong with it)."""
     try:
@@ -157,6 +158,25 @@ def _parse_value(text: str) -> Any:
     if list(parsed) != ["v"] or nesting_depth(parsed) > MAX_NESTING:
         return text
     return parsed["v"]
+
+
+def parse_values(text: str) -> list | None:
+    """A --vary list ``V1,V2,...``: read as the items of a TOML array (numbers, booleans, quoted strings,
+    which may hold commas), else split at the commas and each item read as a --set value (plain
+    strings such as ``flat,gaussian``). None when an item is empty (two commas in a row, a comma at
+    the start); an empty text is the empty list."""
+    try:
+        parsed = tomllib.loads("v = [" + text + "]")
+    except (ValueError, RecursionError, MemoryError):
+        parsed = None
+    if parsed is not None and list(parsed) == ["v"] and nesting_depth(parsed) <= MAX_NESTING:
+        return parsed["v"]
+    items = [item.strip() for item in text.split(",")]
+    if items and items[-1] == "":          # a comma at the end, as TOML allows
+        items.pop()
+    if any(item == "" for item in items):
+        return None
+    return [parse_value(item) for item in items]
 
 
 def apply_into(raw: dict, overrides: Sequence[str], problems: Problems) -> dict:
@@ -172,7 +192,7 @@ def apply_into(raw: dict, overrides: Sequence[str], problems: Problems) -> dict:
         except PathError as exc:
             problems.add(f"--set {item}", f"the path does not resolve: {exc}")
             continue
-        container[key] = _parse_value(value_text.strip())
+        container[key] = parse_value(value_text.strip())
     return out
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 import copy
 import dataclasses
 import itertools
+import json
 import os
 import signal
 import sys
@@ -23,7 +24,7 @@ from typing import Any, Callable, Mapping, Sequence
 from ampmodel.config.checks import ConfigError
 from ampmodel.config.load import load_config
 from ampmodel.config.schema import SWEEP_OWN
-from ampmodel.config.text import resolve_path
+from ampmodel.config.text import resolve_path, tomllib
 from ampmodel.description import Config
 from ampmodel.output.atomic import describe_write_error, is_write_error
 from ampmodel.studies import store
@@ -44,6 +45,30 @@ def sweep_points(table: Mapping[str, Any]) -> tuple[list[str], list[dict[str, An
     # "zip": the config check made the lists equally long
     combos = zip(*lists, strict=True) if table.get("combine", "grid") == "zip" else itertools.product(*lists)
     return paths, [dict(zip(paths, c, strict=True)) for c in combos]
+
+
+def own_sweep_paths(config: str | os.PathLike | Mapping | Config) -> list[str]:
+    """The value paths of the config's own [sweep] table, as written (those that --vary replaces)."""
+    if isinstance(config, Config):
+        raw: Any = config.raw
+    elif isinstance(config, Mapping):
+        raw = config
+    else:
+        try:
+            raw = tomllib.loads(Path(config).read_text(encoding="utf-8-sig"))
+        except (OSError, ValueError):
+            return []
+    table = raw.get("sweep")
+    return [k for k in table if k not in SWEEP_OWN] if isinstance(table, Mapping) else []
+
+
+def vary_record(table: Mapping[str, Any]) -> dict[str, Any]:
+    """What a sweep folder's manifest records of a sweep given by --vary: the paths with their values
+    and ``combine`` (compared on a resume), and the options as text (for messages)."""
+    paths = {k: v for k, v in table.items() if k not in SWEEP_OWN}
+    combine = table.get("combine", "grid")
+    options = " ".join(f"--vary {k}={','.join(json.dumps(x, default=str) for x in v)}" for k, v in paths.items())
+    return {"paths": paths, "combine": combine, "options": f"{options} --combine {combine}"}
 
 
 def point_raw(raw: Mapping[str, Any], values: Mapping[str, Any], title: str) -> dict:

@@ -118,8 +118,23 @@ def _now() -> str:
     return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
-def check_folder(out: Path, kind: str, raw: Mapping[str, Any], source: str) -> dict | None:
+def _sweep_given(record: Mapping[str, Any] | None) -> str:
+    return record.get("options", "--vary") if record else "the config's own [sweep] table (no --vary)"
+
+
+def _same_command_line(old: Mapping[str, Any] | None, new: Mapping[str, Any] | None) -> bool:
+    """Whether two --vary records (``points.vary_record``; None: none given) name the same points."""
+    if not old or not new:
+        return not old and not new
+    return all(_normalise(old.get(k)) == _normalise(new.get(k)) for k in ("paths", "combine"))
+
+
+def check_folder(out: Path, kind: str, raw: Mapping[str, Any], source: str,
+                 command_line: Mapping[str, Any] | None = None) -> dict | None:
     """Check that ``out`` may hold this run; nothing is written.
+
+    ``command_line``: the --vary paths, values and combine of a sweep given them (None: not), which
+    must be those the folder was started with.
 
     Returns the existing manifest (a resumed run), or None for a new or empty folder.
 
@@ -153,12 +168,17 @@ def check_folder(out: Path, kind: str, raw: Mapping[str, Any], source: str) -> d
             f"{old_hash[:12]}; this config {source} hashes to {new_hash[:12]}). A {kind} resumes only "
             f"when everything outside its [{kind}] table is the same. "
             f"Give another --out, or remove the folder. Differences:{listing}")
+    if not _same_command_line(manifest.get("vary"), command_line):
+        raise FolderError(
+            f"{out}: holds a {kind} started with {_sweep_given(manifest.get('vary'))}; this start gives "
+            f"{_sweep_given(command_line)}. A {kind} resumes only with the values it was started with: "
+            f"give the same --vary and --combine options as its first start, or another --out.")
     return manifest
 
 
 def write_manifest(out: Path, kind: str, raw: Mapping[str, Any], source: str, table: Any, points: int,
-                   previous: dict | None) -> None:
-    """Write (or update) ``manifest.json``, atomically."""
+                   previous: dict | None, command_line: Mapping[str, Any] | None = None) -> None:
+    """Write (or update) ``manifest.json``, atomically (``command_line``: a sweep's --vary, as ``vary``)."""
     manifest = {
         "kind": kind, "config_hash": config_hash(raw), "source": source,
         "software_version": __version__,
@@ -166,6 +186,8 @@ def write_manifest(out: Path, kind: str, raw: Mapping[str, Any], source: str, ta
         "updated_utc": _now(), "points": points, "table": table,
         "config": normalised_config(raw),
     }
+    if command_line:
+        manifest["vary"] = dict(command_line)
     atomic.write_text(out / MANIFEST, json.dumps(manifest, indent=2, default=str) + "\n")
 
 

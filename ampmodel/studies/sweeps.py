@@ -24,6 +24,7 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 from ampmodel.config.checks import ConfigError
 from ampmodel.config.load import load_config
 from ampmodel.config.measured import inline_files
+from ampmodel.config.sweep import VARY_EXAMPLE
 from ampmodel.config.text import dump_toml, resolve_path
 from ampmodel.description import Config
 from ampmodel.output.atomic import OutputError, describe_write_error, is_write_error
@@ -45,10 +46,12 @@ from ampmodel.studies.points import (
     describe,
     first_point,
     keep_first,
+    own_sweep_paths,
     point_raw,
     point_tasks,
     run_point,
     sweep_points,
+    vary_record,
 )
 from ampmodel.studies.report_files import REPORT, write_report_keeping_results
 
@@ -170,8 +173,8 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
                progress: bool = False, timeout_s: float = PREFLIGHT_TIMEOUT_S,
                table_stem: str = "sweep", table_attrs: Mapping[str, Any] | None = None,
                manifest_table: Any = None, finish: Callable[[SweepResult], None] | None = None,
-               derived: Sequence[str] = (), first_check: Callable[[Mapping[str, Any], str], None] | None = None
-               ) -> SweepResult:
+               derived: Sequence[str] = (), first_check: Callable[[Mapping[str, Any], str], None] | None = None,
+               command_line: Mapping[str, Any] | None = None) -> SweepResult:
     """Run the points of a sweep or a tolerance run into ``out``; compute only those it lacks.
 
     Parameters
@@ -181,14 +184,14 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     paths, values : the value paths and one {path: value} per point, config units
     out : the output folder (created)
     backend, jobs, scheduler : see ``backends.run_tasks``; ``jobs`` None is every core
-    progress : show a tqdm bar (count and time left) on stderr
-    timeout_s : dask pre-flight timeout
+    progress, timeout_s : show a tqdm bar (count and time left) on stderr; the dask pre-flight timeout
     table_stem : the table's file name (``sweep`` -> sweep.h5, sweep.csv)
     manifest_table : the [sweep] or [spread] table, recorded in the manifest
     finish : called with the result while the folder is still locked (plots, statistics)
     derived : further files made from the table (removed at the start with the table, written by ``finish``)
     first_check : checks the figures a table names on a first summary before the folder is touched
         (ConfigError); ``points.first_point`` says which summary (a point it runs is not run again)
+    command_line : a sweep's --vary (``points.vary_record``): in the manifest; a folder resumes only with the same
 
     Raises
     ------
@@ -203,7 +206,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     out = Path(out)
     raws, texts, per_point = prepare(base, values, kind)
     hashed = _hashed_config(base)
-    previous = store.check_folder(out, kind, hashed, base.source)
+    previous = store.check_folder(out, kind, hashed, base.source, command_line)
     hash_ = store.config_hash(hashed)
     notes: list[str] = []
     early = first_point(first_check, kind, base, raws, texts, values, out, hash_, progress) if first_check else None
@@ -211,7 +214,7 @@ def run_points(kind: str, base: Config, paths: list[str], values: Sequence[Mappi
     store.make_points_folder(out)
     with _folder_errors(out, kind, len(values), previous, created), store.folder_lock(out):
         store.reset_folder(out, table_stem, derived)
-        store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous)
+        store.write_manifest(out, kind, hashed, base.source, manifest_table, len(values), previous, command_line)
         summaries, todo = store.found_points(out, values, hash_)
         reused = [i for i in range(len(values)) if i not in set(todo)]
         failed: dict[int, str] = {}
@@ -348,24 +351,26 @@ def default_folder(base: Config, suffix: str) -> Path:
     return Path("runs") / f"{stem}-{suffix}"
 
 
-def load(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str] = ()) -> Config:
-    """A validated Config from a path, a dict or a Config (``overrides``: --set strings)."""
+def load(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str] = (), **sweep: Any) -> Config:
+    """A validated Config from a path, a dict or a Config (``overrides``: --set strings; ``sweep``:
+    ``vary`` and ``combine`` of :func:`ampmodel.config.load.load_config`, when not None)."""
+    sweep = {k: v for k, v in sweep.items() if v is not None}
     if isinstance(config, Config):
-        if overrides:
-            return load_config(dict(config.raw), overrides, folder=config.folder or None)
+        if overrides or sweep:
+            return load_config(dict(config.raw), overrides, folder=config.folder or None, **sweep)
         return config
-    return load_config(config, overrides)
+    return load_config(config, overrides, **sweep)
 
 
 def load_with_table(config: str | os.PathLike | Mapping | Config, overrides: Sequence[str], name: str,
-                    example: str) -> tuple[Config, dict]:
+                    example: str, **sweep: Any) -> tuple[Config, dict]:
     """The validated config (:func:`load`) and its ``[name]`` table (``sweep`` or ``spread``).
 
     Raises
     ------
     ConfigError : bad input, or no such table (the message shows ``example``)
     """
-    base = load(config, overrides)
+    base = load(config, overrides, **sweep)
     table = base.raw.get(name)
     if not isinstance(table, dict):
         raise ConfigError([f"{base.source}: {name}: missing: the config has no [{name}] table; add one, e.g. "
@@ -376,8 +381,9 @@ def load_with_table(config: str | os.PathLike | Mapping | Config, overrides: Seq
 def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLike | None = None, *,
               jobs: int | None = None, backend: str = "loky", scheduler: str | None = None,
               overrides: Sequence[str] = (), progress: bool = False, plots: bool = True,
-              timeout_s: float = PREFLIGHT_TIMEOUT_S) -> SweepResult:
-    """Run the sweep in a config's [sweep] table, in parallel, resumable.
+              timeout_s: float = PREFLIGHT_TIMEOUT_S, vary: Mapping[str, Sequence] | Sequence[str] | None = None,
+              combine: str | None = None) -> SweepResult:
+    """Run the sweep in a config's [sweep] table (or given by ``vary``), in parallel, resumable.
 
     Parameters
     ----------
@@ -393,6 +399,11 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
     progress : show a progress bar (count, time left) on stderr
     plots : write ``plots/*.png`` (each summary scalar against the swept values)
     timeout_s : how long the dask pre-flight check waits for the scheduler and workers
+    vary : the swept value paths and their values, ``{"seed.energy_J": [0.001, 0.01]}`` or
+        ``["seed.energy_J=0.001,0.01"]`` (``--vary``), in place of those of the config's [sweep] table
+        (its ``combine`` and ``figures`` are kept); a config without [sweep] takes them too. A folder
+        started with ``vary`` resumes only with the same values and ``combine``.
+    combine : "grid" or "zip" (``--combine``), in place of the table's (default "grid")
 
     Returns
     -------
@@ -401,14 +412,20 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
 
     Raises
     ------
-    ConfigError : bad input (also a config without [sweep]); FolderError : ``out`` holds another
-    config's sweep (or is not a sweep folder, or is in use); BackendError : the dask cluster
-    cannot be used. Nothing is written in these cases.
+    ConfigError : bad input (also a config without [sweep] and no ``vary``); FolderError : ``out``
+    holds another config's sweep (or another ``vary``, or is not a sweep folder, or is in use);
+    BackendError : the dask cluster cannot be used. Nothing is written in these cases.
     """
     if scheduler and backend == "loky":
         backend = "dask"
     base, table = load_with_table(config, overrides, "sweep",
-                                  '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps)')
+                                  '[sweep] "seed.energy_J" = [0.001, 0.01] (README: Sweeps), or give the '
+                                  f'values on the command line: {VARY_EXAMPLE}', vary=vary, combine=combine)
+    notes = []
+    replaced = own_sweep_paths(config) if vary is not None else []
+    if replaced:
+        notes.append(f"--vary replaces the value paths of the config's [sweep] table ({', '.join(replaced)}); "
+                     "its combine and figures are kept")
     paths, values = sweep_points(table)
     out = Path(out) if out is not None else default_folder(base, "sweep")
     combine = table.get("combine", "grid")
@@ -421,6 +438,7 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
 
     def finish(result: SweepResult) -> None:
         result.figures = figures
+        result.notes[:0] = notes
         if plots:
             from ampmodel.plots.sweep import plot_sweep
             shown = dataclasses.replace(result, summaries=with_figures(result.summaries, figures))
@@ -430,7 +448,8 @@ def run_sweep(config: str | os.PathLike | Mapping | Config, out: str | os.PathLi
     return run_points("sweep", base, paths, values, out, backend=backend, jobs=jobs, scheduler=scheduler,
                       progress=progress, timeout_s=timeout_s, table_stem="sweep",
                       table_attrs={"combine": combine}, manifest_table=table, finish=finish, derived=(REPORT,),
-                      first_check=figure_check(named, base.source) if named else None)
+                      first_check=figure_check(named, base.source) if named else None,
+                      command_line=vary_record(table) if vary is not None else None)
 
 
 # ----------------------------------------------------------------------------------------------
