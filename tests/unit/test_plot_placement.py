@@ -53,7 +53,7 @@ def figures_of(result, tmp_path: Path, monkeypatch) -> dict[str, object]:
 
     for module in (beam, cw, fibre, gain, layout, maps, spectra, trains):
         monkeypatch.setattr(module, "save_png", catch)
-    make_plots(result, tmp_path)
+    make_plots(result, tmp_path, workers=1)   # in this process: the figures are caught here
     return caught
 
 
