@@ -319,8 +319,8 @@ def _figure_cases(size: dict) -> tuple[Any, Any]:
     2 x 2 sweep of it over seed energy and small-signal gain (its summaries, as a sweep holds them)."""
     from types import SimpleNamespace
 
-    from ampmodel.simulation import simulate
     from ampmodel.config.load import load_config
+    from ampmodel.simulation import simulate
     n, nt = size["figures_grid"], size["figures_time_slices"]
     run = simulate(load_config(bench_config(n, nt, 6, 2, lit="rod")))
     values, summaries = [], []

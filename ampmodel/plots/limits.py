@@ -21,6 +21,10 @@ import math
 from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
+import numpy as np
+
+from ampmodel.output.summary import is_number
+
 LIMIT_COLOUR = "#d62728"
 WARNING_COLOUR = "#e08a00"
 BOUND_COLOUR = "#2a7d3a"
@@ -98,3 +102,24 @@ def limit_lines(key: str, summaries: Sequence[Mapping[str, Any] | None], limits:
         if getattr(b, "figure", None) == key:
             lines.append(LimitLine(float(b.value), "bound " + {"<=": "≤", ">=": "≥"}.get(b.op, b.op), BOUND_COLOUR, "-."))
     return lines
+
+
+# Summary figures that restate an input of the run (the seed inside the grid, the pump power, the
+# pulse duration): not drawn against a swept value they merely follow (_echoes).
+INPUT_ECHOES = ("input_energy_J", "input_power_W", "pump_power_W", "pulse_duration_ns", "time_slice_ns",
+                "repetition_rate_Hz")
+
+
+def _echoes(key: str, y: np.ndarray, values: list[dict], paths: Sequence[str]) -> bool:
+    """Whether figure ``key`` is an input restated: one of INPUT_ECHOES in a fixed ratio to a swept value
+    (to 1e-9) over every point, so its figure would be that value drawn against itself."""
+    if key not in INPUT_ECHOES:
+        return False
+    for p in paths:
+        v = np.array([float(x[p]) if is_number(x[p]) else np.nan for x in values])
+        ok = np.isfinite(v) & np.isfinite(y) & (v != 0)
+        if np.unique(v[ok]).size >= 2:
+            ratio = y[ok] / v[ok]
+            if np.all(np.abs(ratio - ratio[0]) <= 1e-9 * abs(ratio[0])):
+                return True
+    return False

@@ -33,7 +33,7 @@ from matplotlib.axes import Axes
 from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
 from ampmodel.plots.drawing import LIGHT, PANELS, FigureJob, draw_all
-from ampmodel.plots.limits import LimitLine, limit_lines
+from ampmodel.plots.limits import LimitLine, _echoes, limit_lines
 from ampmodel.units import unit_of
 
 CMAP_LINES = "viridis"
@@ -305,27 +305,6 @@ def _varying(key: str, summaries: Sequence[Mapping | None]) -> np.ndarray | None
     return y
 
 
-# Summary figures that restate an input of the run (the seed inside the grid, the pump power, the
-# pulse duration): not drawn against a swept value they merely follow (_echoes).
-INPUT_ECHOES = ("input_energy_J", "input_power_W", "pump_power_W", "pulse_duration_ns", "time_slice_ns",
-                "repetition_rate_Hz")
-
-
-def _echoes(key: str, y: np.ndarray, values: list[dict], paths: Sequence[str]) -> bool:
-    """Whether figure ``key`` is an input restated: one of INPUT_ECHOES in a fixed ratio to a swept value
-    (to 1e-9) over every point, so its figure would be that value drawn against itself."""
-    if key not in INPUT_ECHOES:
-        return False
-    for p in paths:
-        v = np.array([float(x[p]) if is_number(x[p]) else np.nan for x in values])
-        ok = np.isfinite(v) & np.isfinite(y) & (v != 0)
-        if np.unique(v[ok]).size >= 2:
-            ratio = y[ok] / v[ok]
-            if np.all(np.abs(ratio - ratio[0]) <= 1e-9 * abs(ratio[0])):
-                return True
-    return False
-
-
 def plot_sweep(result, combine: str, folder: Path, limits: Any = None, workers: int | None = None) -> list[Path]:
     """Write the figures of a sweep (see the module docstring); return their paths.
 
@@ -525,61 +504,3 @@ def _legend(ax, groups, warned, axes, others, combine, figure=None, more=()) -> 
         figure.legend(*args, loc="outside right upper", **style)
     else:
         ax.legend(*args, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0, **style)
-
-
-def plot_histograms(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
-                    folder: Path, title: str = "", limits: Any = None, bounds: Sequence[Any] = (),
-                    workers: int | None = None) -> list[Path]:
-    """One histogram per varying summary scalar, with its 5, 50 and 95 % percentiles marked, and the
-    damage, B-integral and bound lines of that figure (limits.py).
-
-    Parameters
-    ----------
-    summaries : one summary.json dict per sample (None for a sample that failed)
-    percentiles : key -> {"p5", "p50", "p95"} in the unit the key carries
-    folder : where ``hist_<key>.png`` go (created)
-    title : the config's title; limits : its Limits; bounds : the run's bounds (FIGURE<=VALUE ...)
-    workers : processes that draw the figures (drawing.py)
-    """
-    return draw_all(histogram_jobs(summaries, percentiles, Path(folder), title, limits, bounds), workers)
-
-
-def histogram_jobs(summaries: Sequence[Mapping | None], percentiles: Mapping[str, Mapping[str, float]],
-                   folder: Path, title: str = "", limits: Any = None, bounds: Sequence[Any] = ()) -> list[FigureJob]:
-    """The histograms of :func:`plot_histograms` as jobs (drawing.py)."""
-    folder.mkdir(parents=True, exist_ok=True)
-    jobs = []
-    for key in scalar_keys(summaries):
-        if key in NOT_PLOTTED or key not in percentiles:
-            continue
-        y = _varying(key, summaries)
-        if y is not None:
-            lines = limit_lines(key, summaries, limits, bounds)
-            jobs.append(FigureJob(folder / f"hist_{key}.png",
-                                  partial(_histogram, key, y, percentiles[key], lines, folder, title)))
-    return jobs
-
-
-def _histogram(key: str, y: np.ndarray, p: Mapping[str, float], lines: Sequence[LimitLine], folder: Path,
-               title: str) -> Path:
-    shown, label, scale, shown_unit = _scalar_view(key, y)
-    data = shown[np.isfinite(shown)]
-    fig = new_figure(8.2, 4.2)
-    ax = fig.add_subplot(1, 1, 1)
-    bins = int(np.clip(np.sqrt(data.size) * 1.5, 8, 60))
-    ax.hist(data, bins=bins, color=SEED_COLOUR, alpha=0.8, edgecolor="white", linewidth=0.5)
-    unit = "%" if shown_unit == "%" else "" if shown_unit in ("1", "") else f" {shown_unit}"
-    for name, style in (("p5", ":"), ("p50", "-"), ("p95", ":")):
-        value = p[name] * scale
-        ax.axvline(value, color="0.2", ls=style, lw=1.4, label=f"{name[1:]} %: {value:.4g}{unit}")
-    _lines(ax, lines, scale, data, "x", shown_unit)
-    ax.set_xlabel(label)
-    ax.set_ylabel(f"samples (of {data.size})")
-    handles, labels = ax.get_legend_handles_labels()
-    ax.legend(handles, [textwrap.fill(lb, 34, subsequent_indent="  ") for lb in labels], fontsize=8, frameon=False,
-              title="percentiles, limits", title_fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0),
-              borderaxespad=0.0)
-    ax.grid(True, alpha=0.3)
-    fig.suptitle(_wrapped(f"{_human(key)}: spread over {data.size} samples" + (f" ({title})" if title else ""),
-                          fig), fontsize=10)
-    return save_png(fig, folder / f"hist_{key}.png")

@@ -239,8 +239,8 @@ def run_spread(config: str | os.PathLike | Mapping | Config, out: str | os.PathL
         _write_stats(out, result, base)
         if plots:
             from ampmodel.plots.drawing import PANELS, FigureJob, draw_all
+            from ampmodel.plots.histograms import histogram_jobs
             from ampmodel.plots.sensitivity import plot_sensitivity
-            from ampmodel.plots.sweep import histogram_jobs
             jobs = histogram_jobs(with_figures(run.summaries, shown), result.percentiles, out / "plots", base.title,
                                   base.limits, parsed)
             keys = [k for k in KEY_FIGURES if k in result.sensitivity] + [k for k in shown if k in result.sensitivity]

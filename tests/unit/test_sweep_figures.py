@@ -10,8 +10,9 @@ import numpy as np
 import pytest
 
 from ampmodel.description import Limits
-from ampmodel.plots.limits import limit_lines
-from ampmodel.plots.sweep import _echoes, histogram_jobs, sweep_jobs
+from ampmodel.plots.histograms import histogram_jobs
+from ampmodel.plots.limits import _echoes, limit_lines
+from ampmodel.plots.sweep import sweep_jobs
 from ampmodel.studies.figures import Limit
 
 ENERGIES = [0.001, 0.005, 0.015, 0.040]          # uneven steps, as a user sweeps oscillators
@@ -36,14 +37,17 @@ def _sweep(tmp_path: Path):
 
 def _figure_of(job):
     """Draw a job's figure without writing it: the figure save_png was given."""
+    import ampmodel.plots.histograms as histogram_module
     import ampmodel.plots.sweep as sweep_module
     seen = {}
     original = sweep_module.save_png
-    sweep_module.save_png = lambda fig, path: seen.setdefault("fig", fig) and path
+    for module in (sweep_module, histogram_module):
+        module.save_png = lambda fig, path: seen.setdefault("fig", fig) and path
     try:
         job.draw()
     finally:
-        sweep_module.save_png = original
+        for module in (sweep_module, histogram_module):
+            module.save_png = original
     fig = seen["fig"]
     fig.canvas.draw()
     return fig
