@@ -89,3 +89,14 @@ def unit_of(key: str) -> str:
     if key.endswith("_dB") and len(key) > 3:
         return "dB"
     return UNIT_TEXT.get(split_unit(key)[1], "1")
+
+
+# Units as a reader sees them on a figure or a page (superscripts, µ); others as UNIT_TEXT writes them.
+_SHOWN = {"J/cm^2": "J/cm²", "W/cm^2": "W/cm²", "cm^2": "cm²", "m^2/W": "m²/W", "1/m^3": "1/m³", "um": "µm",
+          "us": "µs"}
+
+
+def shown_unit(unit: str) -> str:
+    """``unit`` (as :func:`unit_of` gives it) as a reader sees it: "J/cm^2" -> "J/cm²", "um" -> "µm"."""
+    return _SHOWN.get(unit, unit)
+

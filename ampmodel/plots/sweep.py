@@ -34,7 +34,7 @@ from ampmodel.output.summary import is_number, scalar_keys
 from ampmodel.plots.common import MAP_CMAP, SEED_COLOUR, new_figure, save_png, unit_prefix
 from ampmodel.plots.drawing import LIGHT, PANELS, FigureJob, draw_all
 from ampmodel.plots.limits import LimitLine, _echoes, limit_lines
-from ampmodel.units import unit_of
+from ampmodel.units import shown_unit, unit_of
 
 CMAP_LINES = "viridis"
 WARN_COLOUR = "#d62728"
@@ -61,8 +61,6 @@ LABELS = {
     "worst_damage_margin": "worst step's fluence over its damage fluence",
     "output_peak_power_W": "output peak power", "output_duration_ns": "output pulse duration (FWHM)",
 }
-_PRETTY_UNITS = {"J/cm^2": "J/cm²", "W/cm^2": "W/cm²", "cm^2": "cm²", "m^2/W": "m²/W", "1/m^3": "1/m³",
-                 "um": "µm", "us": "µs"}
 _PREFIXES = [(1e-12, "p"), (1e-9, "n"), (1e-6, "µ"), (1e-3, "m"), (1.0, ""), (1e3, "k"), (1e6, "M"),
              (1e9, "G"), (1e12, "T")]
 _PREFIXED = ("J", "W", "W/cm^2")
@@ -115,8 +113,8 @@ def scale_for(unit: str, values: Sequence[float]) -> tuple[float, str]:
     finite = [abs(v) for v in values if isinstance(v, (int, float)) and math.isfinite(v) and v != 0]
     if unit in _PREFIXED and finite:
         factor, prefix = unit_prefix(max(finite), _PREFIXES)
-        return factor, prefix + _PRETTY_UNITS.get(unit, unit)
-    return 1.0, _PRETTY_UNITS.get(unit, unit)
+        return factor, prefix + shown_unit(unit)
+    return 1.0, shown_unit(unit)
 
 
 def axis_label(words: str, unit: str) -> str:

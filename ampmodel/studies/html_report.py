@@ -21,6 +21,7 @@ from ampmodel.output.tables import fibre_lines, media_lines, quantity_text, seed
 from ampmodel.safety import SAFETY_NOTE
 from ampmodel.studies.html_parts import CSS, esc, fmt_pct, html_table, pre_block, section
 from ampmodel.studies.html_studies import failed_points, fit_sections, points_table, size_section, spread_sections
+from ampmodel.units import shown_unit, split_unit, unit_of
 
 KINDS = ("run", "sweep", "spread", "size", "fit")
 KIND_WORDS = {"run": "run", "sweep": "parameter sweep", "spread": "tolerance run", "size": "sizing",
@@ -68,8 +69,6 @@ class ReportData:
 # ----------------------------------------------------------------------------------------------
 
 
-_UNIT_WORDS = {"J": "J", "W": "W", "ns": "ns", "rad": "rad", "J_cm2": "J/cm²", "W_cm2": "W/cm²", "mm": "mm",
-               "nm": "nm", "ps": "ps", "Hz": "Hz", "dB": "dB", "um": "µm", "m": "m"}
 _FIGURE_TITLES = {
     "fluence_maps": "fluence maps at the steps", "intensity_maps": "intensity maps at the steps",
     "energy_per_step": "energy after each step", "power_per_step": "power after each step",
@@ -99,10 +98,11 @@ def figure_title(file_name: str) -> str:
 
 
 def _figure_words(stem: str) -> str:
-    for suffix in sorted(_UNIT_WORDS, key=len, reverse=True):
-        if stem.endswith("_" + suffix) and len(stem) > len(suffix) + 1:
-            return f"{stem[: -len(suffix) - 1].replace('_', ' ').replace('.', ' ')} ({_UNIT_WORDS[suffix]})"
-    return stem.replace("_", " ").replace(".", " ")
+    """A summary figure's words and unit from its key: ``output_energy_J`` -> "output energy (J)"."""
+    unit = unit_of(stem)
+    base = stem[:-3] if unit == "dB" else split_unit(stem)[0]
+    words = base.replace("_", " ").replace(".", " ")
+    return words if unit == "1" else f"{words} ({shown_unit(unit)})"
 
 
 # ----------------------------------------------------------------------------------------------
