@@ -165,12 +165,9 @@ def parse_values(text: str) -> list | None:
     which may hold commas), else split at the commas and each item read as a --set value (plain
     strings such as ``flat,gaussian``). None when an item is empty (two commas in a row, a comma at
     the start); an empty text is the empty list."""
-    try:
-        parsed = tomllib.loads("v = [" + text + "]")
-    except (ValueError, RecursionError, MemoryError):
-        parsed = None
-    if parsed is not None and list(parsed) == ["v"] and nesting_depth(parsed) <= MAX_NESTING:
-        return parsed["v"]
+    whole = parse_value("[" + text + "]")
+    if isinstance(whole, list):
+        return whole
     items = [item.strip() for item in text.split(",")]
     if items and items[-1] == "":          # a comma at the end, as TOML allows
         items.pop()
